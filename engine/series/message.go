@@ -1,0 +1,59 @@
+package series
+
+import "time"
+
+// Forecast is one rolling multi-step forecast in raw units, as published at
+// the close of a bucket. Package stream encodes it (CONTRACT.md §2); the
+// wall-clock "issued" time is added at publication, so a Forecast depends on
+// data time only.
+type Forecast struct {
+	Topic       string
+	Origin      time.Time // start of the last closed bucket
+	StepSeconds int64
+	LastValue   float64 // last closed bucket's value in raw units
+	Kind        string  // "gauge" or "counter"
+	Model       ModelInfo
+	Levels      []float64 // interval levels in percent, ascending, e.g. [80 95]
+	Points      []Point   // h = 1..horizon
+}
+
+// ModelInfo describes the model a forecast came from.
+type ModelInfo struct {
+	Spec      string // e.g. "ARIMA(1,1,1)(0,1,1)[24]"
+	Transform string // e.g. "log", "boxcox(0.25)"
+	FittedAt  time.Time
+	NObs      int
+	AICc      float64
+}
+
+// Point is the forecast h steps ahead of the origin. Lower[i] and Upper[i]
+// are the bounds of the central interval at Levels[i].
+type Point struct {
+	H      int
+	Time   time.Time // start of the forecast bucket
+	Mean   float64   // bias-adjusted mean in raw units
+	Median float64
+	Lower  []Bound
+	Upper  []Bound
+}
+
+// Bound is one band endpoint. OK is false when the endpoint falls outside
+// the inverse transform's domain; it is then unbounded and published as null.
+type Bound struct {
+	Value float64
+	OK    bool
+}
+
+// AlertEvent is a change of one alert rule's state on one series.
+type AlertEvent struct {
+	Topic         string
+	Rule          string
+	Firing        bool   // true: "firing"; false: "resolved"
+	Direction     string // "above" or "below"
+	Threshold     float64
+	Probability   float64 // chance of crossing within the window
+	WithinSeconds int64
+	ETA           time.Time // first time the median forecast is beyond the threshold
+	HasETA        bool      // false: eta is null
+	Origin        time.Time
+}
