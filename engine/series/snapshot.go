@@ -11,7 +11,8 @@ package series
 type Snapshot struct {
 	Topic       string // series key, the subject after the intake prefix
 	Fingerprint string // fingerprint of the series settings the state was built under
-	Seq         uint64 // input stream position of the last message applied (0: none)
+	Seq         uint64 // input stream position of the last message applied, wholly or in part (0: none)
+	SeqApplied  uint32 // observations of message Seq applied so far (a batch may straddle a refit)
 
 	Kind        string // "gauge" or "counter"
 	StepSeconds int64  // bucket width
