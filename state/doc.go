@@ -1,0 +1,130 @@
+// Package state persists the per-series state of the forewarn daemon in a
+// bbolt file, so that every series resumes after a restart, on this
+// machine or another one, exactly where it stopped, without a refit.
+//
+// # What it owns
+//
+// The file <dir>/forewarn.db (mode 0600, directory 0700) with two buckets:
+//
+//	series  topic bytes → one record (below), the encoding of a series.Snapshot
+//	meta    "format"  → uint16 little-endian, StoreVersion of the layout
+//	        "created" → RFC 3339 time (UTC) at which the file was created
+//
+// state persists and never computes: it knows nothing of models or
+// transforms beyond the plain fields of series.Snapshot. Package engine
+// never imports state.
+//
+// # Concurrency
+//
+// A Store is safe for concurrent use by multiple goroutines. bbolt allows
+// one writer and many readers at a time within a process; Save and Delete
+// are serialised, Load, LoadAll, Check and Info run alongside them. Across
+// processes the file is locked: a writable Open takes it exclusively, so a
+// second daemon, or the CLI while a daemon runs, gets ErrLocked after the
+// lock timeout (1 s by default). Read-only opens share the file.
+//
+// # Durability
+//
+// Save commits a whole batch in one transaction, fsynced on commit (bbolt's
+// default; NoSync exists for tests only). The daemon calls it once per
+// flush, never once per message. After a crash the file holds the last
+// committed batch entirely, and nothing of a batch that did not commit.
+//
+// # Record layout, format version 1
+//
+// A record is self-contained: it can be copied to another machine, or
+// another file, unchanged. All integers are little-endian; int and int64
+// fields are written as their 64-bit two's complement; float64 values are
+// their IEEE 754 bits (math.Float64bits), so NaN payloads, infinities and
+// signed zeros survive bit for bit. A string is a uint32 byte count and the
+// bytes; a float slice is a uint32 element count and 8 bytes per element
+// (nil and empty slices are written alike and decode as nil); a bool is one
+// byte, 0 or 1 (anything else is corrupt).
+//
+// The envelope, the same in every version:
+//
+//	offset  size  field
+//	0       4     magic "fwsr" (0x66 0x77 0x73 0x72)
+//	4       2     format version, uint16
+//	6       4     record length in bytes, uint32, envelope included
+//	10      ...   payload of that version
+//	len-4   4     CRC-32C (Castagnoli) of bytes [0, len-4)
+//
+// The payload of version 1, field by field, in order (series.Snapshot):
+//
+//	Topic              string
+//	Fingerprint        string
+//	Seq                uint64
+//	Kind               string
+//	StepSeconds        int64
+//	HasOpen            bool
+//	OpenBucket         int64
+//	OpenValue          float64
+//	CounterOffset      float64
+//	CounterLastRaw     float64
+//	CounterHasRaw      bool
+//	CounterResets      uint64
+//	WindowEnd          int64
+//	Window             float slice
+//	Closed             uint64
+//	SinceRefit         int64
+//	Late               uint64
+//	Transform.Name     string
+//	Transform.Lambda   float64
+//	Transform.Loc      float64
+//	Transform.Scale    float64
+//	Transform.RunN     int64
+//	Transform.RunMean  float64
+//	Transform.RunM2    float64
+//	model presence     byte: 0 no model (nothing follows for it), 1 model:
+//	  Spec             string
+//	  Mean             bool
+//	  Drift            bool
+//	  Params           float slice
+//	  Sigma2           float64
+//	  LogLik           float64
+//	  AICc             float64
+//	  NObs             int64
+//	  FittedAt         int64
+//	  Filter           float slice
+//	RefitFailures      uint64
+//	LastRefitNote      string
+//	alert count        uint32, then per alert:
+//	  Rule             string
+//	  Firing           bool
+//	  Since            int64
+//	  Probability      float64
+//
+// A 2000-bucket window makes a record of about 16 KB.
+//
+// # Decoding
+//
+// Decode checks the magic, the declared length against the bytes present
+// (shorter: truncated; longer: bad length), the CRC-32C, then the version,
+// then each field against the bytes that remain before allocating for it.
+// Damage gives a *CorruptError (errors.Is ErrCorrupt) naming the fault
+// (bad magic, truncated, bad length, CRC mismatch, bad field) and the byte
+// offset; a version this build does not read gives a *VersionError
+// (errors.Is ErrVersion) carrying the version found. Hostile bytes never
+// panic, and a decode allocates at most a small multiple of the input size.
+//
+// # Evolving the format
+//
+// The envelope never changes, so any build can tell a damaged record from
+// a newer one. A change to the payload (a field added, removed, widened or
+// reordered) takes a new format version: FormatVersion is raised, Encode
+// writes only the newest version, and the decoder of every older version
+// stays in Decode's switch, mapping the old fields onto series.Snapshot
+// (a field the old version lacks gets its documented default). A record of
+// a version above FormatVersion is refused with ErrVersion, never guessed
+// at. Each version's layout stays documented here. The store layout (the
+// buckets and meta keys) has its own StoreVersion under the same rule.
+//
+// # Caveats
+//
+// A record damaged on disk affects only its own topic: LoadAll hands its
+// error to the caller for that topic and loads the others, and the daemon
+// resets that one series. Save keeps its encode buffer between calls, so
+// its memory stays at the size of the largest batch (about 16 KB per series
+// with a 2000-bucket window).
+package state
