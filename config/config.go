@@ -1,0 +1,373 @@
+package config
+
+import (
+	"slices"
+	"strings"
+	"time"
+)
+
+// Config is the whole daemon configuration. The zero value is valid: every
+// zero field means its default, except where a field's comment says what
+// its zero value means instead. Load and Parse return a Config with the
+// defaults already filled in; a Config built in Go gets them from
+// WithDefaults.
+type Config struct {
+	NATS   NATS
+	Intake Intake
+	Output Output
+	State  State
+	HTTP   HTTP
+	Log    Log
+	Refit  Refit
+	Limits Limits
+	// Series holds the per-topic settings; the first entry whose Match
+	// matches a topic applies to it. Empty: one entry matching ">" with
+	// the values of DefaultSeries. A topic that no entry matches is not
+	// forecast (end the list with a `match: ">"` entry for a catch-all).
+	Series []Series
+	// Alerts holds the alert rules; every rule whose Match matches a topic
+	// applies to it. Empty: no alerts.
+	Alerts []Alert
+
+	// pos maps a key path ("series[0].step") to where its value was in the
+	// source; nil for a Config built in Go. Read-only once set.
+	pos map[string]position
+	// file is the name given to Parse, for messages from Validate.
+	file string
+}
+
+type position struct{ line, col int }
+
+// NATS says which bus to use and how to reach it.
+type NATS struct {
+	// URL of an external server (comma-separated for a cluster), e.g.
+	// "nats://bus.example:4222". Zero: run an embedded server.
+	URL string
+	// Listen is the embedded server's address. Zero: "127.0.0.1:4222".
+	Listen string
+	// User and Password authenticate to an external server. Zero: none.
+	User, Password string
+	// Token authenticates to an external server. Zero: none.
+	Token string
+	// NKeySeedFile is a file holding an NKey seed. Zero: none.
+	NKeySeedFile string
+	// CredsFile is a credentials file (user JWT and NKey seed). Zero: none.
+	CredsFile string
+	// TLS configures TLS to an external server.
+	TLS TLS
+	// SyncAlways makes the embedded server fsync every JetStream write.
+	// Zero (false): JetStream's periodic sync, which can lose the last
+	// moments of acknowledged writes if the machine (not just the process)
+	// fails.
+	SyncAlways bool
+}
+
+// TLS holds the TLS settings for an external server. All zero: TLS only if
+// the URL's scheme asks for it, with the system roots.
+type TLS struct {
+	CAFile     string // PEM roots to verify the server with. Zero: system roots.
+	CertFile   string // PEM client certificate. Zero: none. Needs KeyFile.
+	KeyFile    string // PEM client key. Zero: none. Needs CertFile.
+	ServerName string // name to verify the certificate against. Zero: the URL's host.
+	// InsecureSkipVerify turns off certificate verification (testing
+	// only). Zero (false): verify.
+	InsecureSkipVerify bool
+}
+
+// Intake says where observations come from.
+type Intake struct {
+	// Subjects are the subject patterns to consume. The topic of a message
+	// is its subject less the pattern's prefix: the literal tokens before
+	// the first wildcard ("metrics.>" → prefix "metrics.", so
+	// "metrics.shop.orders" is topic "shop.orders"). Zero: ["metrics.>"].
+	Subjects []string
+	// Durable selects a JetStream stream with a durable consumer, so an
+	// observation is acknowledged only once its effect is stored. The zero
+	// value false selects a plain subscription (best effort: messages sent
+	// while the daemon is down are lost). Default() sets true.
+	Durable bool
+	// Stream is the JetStream stream name. Zero: "FOREWARN_INTAKE".
+	Stream string
+	// Consumer is the durable consumer name. Zero: "forewarn".
+	Consumer string
+	// MaxAge is the stream's retention by age: older messages are removed
+	// whether or not they were consumed. Zero: 168h (7 days).
+	MaxAge time.Duration
+	// MaxBytes is the stream's retention by size in bytes: the oldest
+	// messages are removed beyond it. Zero: 1 GiB.
+	MaxBytes int64
+}
+
+// Output says where forecasts, alerts and rejects go.
+type Output struct {
+	// Prefix of every subject forewarn publishes on
+	// (<prefix>.forecast.<topic>, .alert., .reject., .query.). Zero: "forewarn".
+	Prefix string
+}
+
+// State says where and how often series state is stored.
+type State struct {
+	// Dir holds the state database (and the embedded server's store).
+	// Zero: "./forewarn-data".
+	Dir string
+	// FlushInterval is how often dirty series are written, all in one
+	// transaction. Zero: 1s.
+	FlushInterval time.Duration
+	// FlushMax forces a write after this many applied messages, whichever
+	// of the two comes first. Zero: 5000.
+	FlushMax int
+}
+
+// HTTP configures the health, metrics and chart listener.
+type HTTP struct {
+	// Listen is the address to serve on. The zero value "" turns the
+	// listener off. Default() sets "127.0.0.1:8714" (loopback only).
+	Listen string
+}
+
+// Log configures the daemon's log.
+type Log struct {
+	// Level is debug, info, warn or error. Zero: "info".
+	Level string
+	// Format is auto, text or json; auto is text on a terminal and json
+	// otherwise. Zero: "auto".
+	Format string
+}
+
+// Refit configures the background refits.
+type Refit struct {
+	// Workers bounds the number of refits running at once. Zero: the
+	// number of CPUs.
+	Workers int
+}
+
+// Limits bound what any input can make the daemon hold.
+type Limits struct {
+	// MaxSeries is the most series held; observations for further new
+	// topics are rejected (too_many_series). Zero: 10000.
+	MaxSeries int
+	// MaxPayloadBytes is the largest payload accepted (too_large). Zero: 65536.
+	MaxPayloadBytes int
+	// MaxBatch is the most elements in one JSON array payload. Zero: 1000.
+	MaxBatch int
+	// MaxWindow is the largest Window a series entry may ask for. Zero: 20000.
+	MaxWindow int
+	// MaxFuture: observations stamped further ahead of their arrival time
+	// are rejected (bad_time). Zero: 24h.
+	MaxFuture time.Duration
+	// MaxPast: observations stamped further behind their arrival time are
+	// rejected (bad_time). Zero: 8760h (365 days).
+	MaxPast time.Duration
+}
+
+// Series holds the settings of the topics an entry matches.
+type Series struct {
+	// Match is a subject pattern over topics: "*" matches one token, ">"
+	// one or more trailing tokens. Zero: ">".
+	Match string
+	// Kind is gauge (the last value in a bucket) or counter (the last
+	// value, with reset detection). Zero: "gauge".
+	Kind string
+	// Step is the bucket width, a whole number of seconds. Zero: 1m.
+	Step time.Duration
+	// Horizon is the number of steps forecast, 1..1000. Zero: 60.
+	Horizon int
+	// Levels are the prediction-interval levels in percent, each in
+	// (0, 100), distinct; sorted ascending by WithDefaults. Zero: [80, 95].
+	Levels []float64
+	// Window is the number of buckets kept for refits, at least MinPoints
+	// and at most Limits.MaxWindow. Zero: 2000.
+	Window int
+	// MinPoints is the number of buckets before the first fit, at least
+	// 10. Zero: 50.
+	MinPoints int
+	// RefitEvery is the number of closed buckets between refits. Zero: 60.
+	RefitEvery int
+	// Model is "auto" or a fixed "ARIMA(p,d,q)" or "ARIMA(p,d,q)(P,D,Q)[s]"
+	// (spaces are removed on load). Zero: "auto".
+	Model string
+	// Transform is auto, none, log, boxcox (λ chosen from the data),
+	// boxcox(λ) with λ in [-1, 2], or scaled-exp. Zero: "auto".
+	Transform string
+	// CloseAfter closes a bucket after this much wall time without new
+	// data. Zero: a bucket closes only when an observation of a later
+	// bucket arrives.
+	CloseAfter time.Duration
+	// Line is the source line of the entry; 0 when not from a file.
+	Line int
+}
+
+// Alert is a rule that fires when a topic's forecast is likely to cross a
+// threshold within a look-ahead window.
+type Alert struct {
+	// Name identifies the rule: [a-z0-9_-]+, at most 64 bytes, unique.
+	Name string
+	// Match is a subject pattern over topics, as for Series. Required.
+	Match string
+	// Above or Below is the threshold in raw units; exactly one is set.
+	Above, Below *float64
+	// Within is the look-ahead window, > 0. The daemon checks, per series,
+	// that it does not exceed Horizon·Step.
+	Within time.Duration
+	// Probability fires the rule once the chance of crossing within the
+	// window reaches it, in (0, 1]. Required.
+	Probability float64
+	// ResolveProbability resolves a firing rule once the chance falls
+	// below it, in (0, Probability). Zero: Probability/2.
+	ResolveProbability float64
+	// Line is the source line of the rule; 0 when not from a file.
+	Line int
+}
+
+// Threshold returns the rule's threshold and whether it is an "above" rule.
+func (a *Alert) Threshold() (value float64, above bool) {
+	if a.Above != nil {
+		return *a.Above, true
+	}
+	if a.Below != nil {
+		return *a.Below, false
+	}
+	return 0, true
+}
+
+// DefaultSeries returns the settings of the default series entry
+// (match ">"). Each call returns a new value.
+func DefaultSeries() Series {
+	return Series{
+		Match:      ">",
+		Kind:       "gauge",
+		Step:       time.Minute,
+		Horizon:    60,
+		Levels:     []float64{80, 95},
+		Window:     2000,
+		MinPoints:  50,
+		RefitEvery: 60,
+		Model:      "auto",
+		Transform:  "auto",
+	}
+}
+
+// Default returns the default configuration. Each call returns a new value
+// that the caller may change.
+func Default() *Config {
+	return &Config{
+		NATS: NATS{Listen: "127.0.0.1:4222"},
+		Intake: Intake{
+			Subjects: []string{"metrics.>"},
+			Durable:  true,
+			Stream:   "FOREWARN_INTAKE",
+			Consumer: "forewarn",
+			MaxAge:   168 * time.Hour,
+			MaxBytes: 1 << 30,
+		},
+		Output: Output{Prefix: "forewarn"},
+		State:  State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 5000},
+		HTTP:   HTTP{Listen: "127.0.0.1:8714"},
+		Log:    Log{Level: "info", Format: "auto"},
+		Limits: Limits{
+			MaxSeries:       10000,
+			MaxPayloadBytes: 65536,
+			MaxBatch:        1000,
+			MaxWindow:       20000,
+			MaxFuture:       24 * time.Hour,
+			MaxPast:         8760 * time.Hour,
+		},
+		Series: []Series{DefaultSeries()},
+	}
+}
+
+// Clone returns a deep copy of c.
+func (c *Config) Clone() *Config {
+	d := *c
+	d.Intake.Subjects = slices.Clone(c.Intake.Subjects)
+	d.Series = slices.Clone(c.Series)
+	for i := range d.Series {
+		d.Series[i].Levels = slices.Clone(d.Series[i].Levels)
+	}
+	d.Alerts = slices.Clone(c.Alerts)
+	for i := range d.Alerts {
+		d.Alerts[i].Above = clonePtr(d.Alerts[i].Above)
+		d.Alerts[i].Below = clonePtr(d.Alerts[i].Below)
+	}
+	return &d
+}
+
+func clonePtr(p *float64) *float64 {
+	if p == nil {
+		return nil
+	}
+	v := *p
+	return &v
+}
+
+// WithDefaults returns a copy of c with every zero field that means a
+// default set to that default, the series levels sorted, and the model
+// string stripped of spaces. c is not changed.
+func (c *Config) WithDefaults() *Config {
+	d := c.Clone()
+	def := Default()
+	setZero(&d.NATS.Listen, def.NATS.Listen)
+	if len(d.Intake.Subjects) == 0 {
+		d.Intake.Subjects = def.Intake.Subjects
+	}
+	setZero(&d.Intake.Stream, def.Intake.Stream)
+	setZero(&d.Intake.Consumer, def.Intake.Consumer)
+	setZero(&d.Intake.MaxAge, def.Intake.MaxAge)
+	setZero(&d.Intake.MaxBytes, def.Intake.MaxBytes)
+	setZero(&d.Output.Prefix, def.Output.Prefix)
+	setZero(&d.State.Dir, def.State.Dir)
+	setZero(&d.State.FlushInterval, def.State.FlushInterval)
+	setZero(&d.State.FlushMax, def.State.FlushMax)
+	setZero(&d.Log.Level, def.Log.Level)
+	setZero(&d.Log.Format, def.Log.Format)
+	l, dl := &d.Limits, def.Limits
+	setZero(&l.MaxSeries, dl.MaxSeries)
+	setZero(&l.MaxPayloadBytes, dl.MaxPayloadBytes)
+	setZero(&l.MaxBatch, dl.MaxBatch)
+	setZero(&l.MaxWindow, dl.MaxWindow)
+	setZero(&l.MaxFuture, dl.MaxFuture)
+	setZero(&l.MaxPast, dl.MaxPast)
+	if len(d.Series) == 0 {
+		d.Series = def.Series
+	}
+	for i := range d.Series {
+		d.Series[i].fillDefaults()
+	}
+	for i := range d.Alerts {
+		a := &d.Alerts[i]
+		setZero(&a.ResolveProbability, a.Probability/2)
+	}
+	return d
+}
+
+func (s *Series) fillDefaults() {
+	ds := DefaultSeries()
+	setZero(&s.Match, ds.Match)
+	setZero(&s.Kind, ds.Kind)
+	setZero(&s.Step, ds.Step)
+	setZero(&s.Horizon, ds.Horizon)
+	if len(s.Levels) == 0 {
+		s.Levels = ds.Levels
+	}
+	slices.Sort(s.Levels)
+	setZero(&s.Window, ds.Window)
+	setZero(&s.MinPoints, ds.MinPoints)
+	setZero(&s.RefitEvery, ds.RefitEvery)
+	setZero(&s.Model, ds.Model)
+	s.Model = stripSpaces(s.Model)
+	setZero(&s.Transform, ds.Transform)
+	s.Transform = stripSpaces(s.Transform)
+}
+
+// setZero sets *p to def when *p is the zero value of its type.
+func setZero[T comparable](p *T, def T) {
+	var zero T
+	if *p == zero {
+		*p = def
+	}
+}
+
+// stripSpaces removes every white-space character from s.
+func stripSpaces(s string) string {
+	return strings.Join(strings.Fields(s), "")
+}

@@ -1,0 +1,62 @@
+package config
+
+import (
+	"crypto/sha256"
+	"encoding/hex"
+	"slices"
+	"strconv"
+	"strings"
+)
+
+// fingerprintVersion names the canonical encoding; change it if the
+// encoding changes.
+const fingerprintVersion = "forewarn-series-v1"
+
+// Fingerprint returns a stable hash of the settings that change the
+// maths of a series: kind, step, horizon, levels, window, min_points,
+// refit_every, model, transform and close_after. Match and Line do not
+// enter it. Zero fields count as their defaults and levels are compared
+// as a sorted set, so equal settings give equal fingerprints however they
+// were written. The state store keeps it with each series to notice a
+// change of configuration.
+//
+// It is the lower-case hex SHA-256 of the canonical encoding
+//
+//	forewarn-series-v1\nkind=K\nstep=S\nhorizon=H\nlevels=L1,L2,…\nwindow=W\n
+//	min_points=M\nrefit_every=R\nmodel=MODEL\ntransform=T\nclose_after=C\n
+//
+// with durations in nanoseconds and levels in the shortest decimal form
+// that reads back as the same float64.
+//
+// References:
+//   - NIST FIPS 180-4, Secure Hash Standard (2015), §6.2 (SHA-256).
+func (s *Series) Fingerprint() string {
+	c := *s
+	c.Levels = slices.Clone(s.Levels)
+	c.fillDefaults()
+	var b strings.Builder
+	b.WriteString(fingerprintVersion)
+	b.WriteByte('\n')
+	field := func(k, v string) {
+		b.WriteString(k)
+		b.WriteByte('=')
+		b.WriteString(v)
+		b.WriteByte('\n')
+	}
+	field("kind", c.Kind)
+	field("step", strconv.FormatInt(int64(c.Step), 10))
+	field("horizon", strconv.Itoa(c.Horizon))
+	lv := make([]string, len(c.Levels))
+	for i, l := range c.Levels {
+		lv[i] = strconv.FormatFloat(l, 'g', -1, 64)
+	}
+	field("levels", strings.Join(lv, ","))
+	field("window", strconv.Itoa(c.Window))
+	field("min_points", strconv.Itoa(c.MinPoints))
+	field("refit_every", strconv.Itoa(c.RefitEvery))
+	field("model", c.Model)
+	field("transform", c.Transform)
+	field("close_after", strconv.FormatInt(int64(c.CloseAfter), 10))
+	sum := sha256.Sum256([]byte(b.String()))
+	return hex.EncodeToString(sum[:])
+}

@@ -1,0 +1,516 @@
+package config
+
+import (
+	"fmt"
+	"math"
+	"net"
+	"net/url"
+	"regexp"
+	"slices"
+	"strconv"
+	"strings"
+	"time"
+	"unicode"
+)
+
+// Bounds checked by Validate. They keep every input able to make the
+// daemon hold only a bounded amount of memory.
+const (
+	MaxHorizon        = 1000
+	MaxLevels         = 10
+	MinMinPoints      = 10
+	MaxSeriesLimit    = 10_000_000
+	MaxPayloadLimit   = 64 << 20 // the bus's own largest payload setting
+	MaxBatchLimit     = 1_000_000
+	MaxWindowLimit    = 10_000_000
+	MaxWorkers        = 1024
+	maxStep           = 8760 * time.Hour
+	maxHorizonSpan    = 100 * 8760 * time.Hour
+	maxNameLen        = 64
+	maxStreamNameLen  = 255
+	boxCoxMin         = -1.0 // Guerrero (1993) search interval, common practice
+	boxCoxMax         = 2.0
+	maxOrder          = 10 // p, q, P, Q
+	maxD, maxSeasonD  = 2, 1
+	maxSeasonalPeriod = 10000
+)
+
+// Validate reports every problem with c, as an *Errors, or nil. It checks
+// c with its defaults filled in (WithDefaults), so a zero field is valid
+// wherever it means a default. Problems carry the source position of the
+// value when c came from Parse or Load.
+func (c *Config) Validate() error {
+	if probs := c.WithDefaults().validate(nil); len(probs) > 0 {
+		return newErrors(c.file, probs)
+	}
+	return nil
+}
+
+// Overrides are settings from the command line that replace the file's.
+// A nil field leaves the file's value.
+type Overrides struct {
+	NATSURL    *string // --nats: nats.url
+	NATSListen *string // --listen-nats: nats.listen
+	HTTPListen *string // --http: http.listen
+	StateDir   *string // --data: state.dir
+}
+
+// Override returns a copy of c with the overrides applied, validated.
+// Problems with an overridden value carry no file position, since the
+// value did not come from the file.
+func (c *Config) Override(o Overrides) (*Config, error) {
+	d := c.Clone()
+	d.pos = make(map[string]position, len(c.pos))
+	for k, v := range c.pos {
+		d.pos[k] = v
+	}
+	set := func(dst *string, v *string, path string) {
+		if v != nil {
+			*dst = *v
+			d.pos[path] = position{}
+		}
+	}
+	set(&d.NATS.URL, o.NATSURL, "nats.url")
+	set(&d.NATS.Listen, o.NATSListen, "nats.listen")
+	set(&d.HTTP.Listen, o.HTTPListen, "http.listen")
+	set(&d.State.Dir, o.StateDir, "state.dir")
+	d = d.WithDefaults()
+	if err := d.Validate(); err != nil {
+		return nil, err
+	}
+	return d, nil
+}
+
+type validator struct {
+	c      *Config
+	failed map[string]bool
+	probs  []Problem
+}
+
+// add records a problem at path, unless the value at path (or inside it)
+// could not be decoded: that has been reported already.
+func (v *validator) add(path, format string, args ...any) {
+	for f := range v.failed {
+		if f == path || strings.HasPrefix(f, path+".") || strings.HasPrefix(f, path+"[") {
+			return
+		}
+	}
+	p := Problem{Path: path, Msg: fmt.Sprintf(format, args...)}
+	for k := path; k != ""; k = parentPath(k) {
+		if pos, ok := v.c.pos[k]; ok {
+			p.Line, p.Column = pos.line, pos.col
+			break
+		}
+	}
+	v.probs = append(v.probs, p)
+}
+
+// parentPath strips the last key or index: "a.b[2]" → "a.b" → "a" → "".
+func parentPath(p string) string {
+	i := strings.LastIndexAny(p, ".[")
+	if i < 0 {
+		return ""
+	}
+	return p[:i]
+}
+
+// validate checks a defaulted configuration.
+func (c *Config) validate(failed map[string]bool) []Problem {
+	v := &validator{c: c, failed: failed}
+	v.nats()
+	v.intake()
+	if err := ValidTopic(c.Output.Prefix); err != nil {
+		v.add("output.prefix", "%v", err)
+	}
+	v.state()
+	if c.HTTP.Listen != "" {
+		v.hostPort("http.listen", c.HTTP.Listen)
+	}
+	v.oneOf("log.level", c.Log.Level, "debug", "info", "warn", "error")
+	v.oneOf("log.format", c.Log.Format, "auto", "text", "json")
+	v.intRange("refit.workers", c.Refit.Workers, 0, MaxWorkers)
+	v.limits()
+	for i := range c.Series {
+		v.series(i)
+	}
+	names := map[string]int{}
+	for i := range c.Alerts {
+		v.alert(i, names)
+	}
+	return v.probs
+}
+
+func (v *validator) oneOf(path, got string, allowed ...string) {
+	for _, a := range allowed {
+		if got == a {
+			return
+		}
+	}
+	v.add(path, "%q is not one of %s", clip(got), strings.Join(allowed, ", "))
+}
+
+func (v *validator) intRange(path string, got, lo, hi int) {
+	if got < lo || got > hi {
+		v.add(path, "%d is outside %d..%d", got, lo, hi)
+	}
+}
+
+func (v *validator) positive(path string, d time.Duration) bool {
+	if d <= 0 {
+		v.add(path, "must be a positive duration, got %v", d)
+		return false
+	}
+	return true
+}
+
+func (v *validator) hostPort(path, addr string) {
+	_, port, err := net.SplitHostPort(addr)
+	if err != nil {
+		v.add(path, "%q is not an address of the form host:port", clip(addr))
+		return
+	}
+	if n, err := strconv.Atoi(port); err != nil || n < 0 || n > 65535 {
+		v.add(path, "port %q is not a number in 0..65535", clip(port))
+	}
+}
+
+func (v *validator) nats() {
+	n := &v.c.NATS
+	v.hostPort("nats.listen", n.Listen)
+	if n.URL != "" {
+		for _, u := range strings.Split(n.URL, ",") {
+			u = strings.TrimSpace(u)
+			p, err := url.Parse(u)
+			if err != nil || p.Host == "" || p.Hostname() == "" {
+				v.add("nats.url", "%q is not a server URL such as nats://host:4222", clip(u))
+				continue
+			}
+			if s := p.Scheme; s != "nats" && s != "tls" && s != "ws" && s != "wss" {
+				v.add("nats.url", "scheme %q of %q is not one of nats, tls, ws, wss", clip(s), clip(u))
+			}
+		}
+	}
+	if n.URL != "" && n.SyncAlways {
+		v.add("nats.sync_always", "applies to the embedded server only; an external server sets its own sync policy")
+	}
+	external := map[string]string{
+		"nats.user": n.User, "nats.password": n.Password, "nats.token": n.Token,
+		"nats.nkey_seed_file": n.NKeySeedFile, "nats.creds_file": n.CredsFile,
+		"nats.tls.ca_file": n.TLS.CAFile, "nats.tls.cert_file": n.TLS.CertFile,
+		"nats.tls.key_file": n.TLS.KeyFile, "nats.tls.server_name": n.TLS.ServerName,
+	}
+	if n.TLS.InsecureSkipVerify {
+		external["nats.tls.insecure_skip_verify"] = "true"
+	}
+	if n.URL == "" {
+		for _, k := range sortedKeys(external) {
+			if external[k] != "" {
+				v.add(k, "applies to an external server; set nats.url (the embedded server needs no credentials)")
+			}
+		}
+		return
+	}
+	if (n.User == "") != (n.Password == "") {
+		if n.User == "" {
+			v.add("nats.password", "needs nats.user")
+		} else {
+			v.add("nats.user", "needs nats.password")
+		}
+	}
+	var methods []string
+	for _, m := range []struct{ path, val string }{
+		{"nats.user", n.User}, {"nats.token", n.Token},
+		{"nats.nkey_seed_file", n.NKeySeedFile}, {"nats.creds_file", n.CredsFile},
+	} {
+		if m.val != "" {
+			if len(methods) > 0 {
+				v.add(m.path, "cannot be used together with %s; choose one way to authenticate", methods[0])
+			}
+			methods = append(methods, m.path)
+		}
+	}
+	if (n.TLS.CertFile == "") != (n.TLS.KeyFile == "") {
+		if n.TLS.CertFile == "" {
+			v.add("nats.tls.key_file", "needs nats.tls.cert_file")
+		} else {
+			v.add("nats.tls.cert_file", "needs nats.tls.key_file")
+		}
+	}
+}
+
+func sortedKeys(m map[string]string) []string {
+	keys := make([]string, 0, len(m))
+	for k := range m {
+		keys = append(keys, k)
+	}
+	slices.Sort(keys)
+	return keys
+}
+
+func (v *validator) intake() {
+	in := &v.c.Intake
+	out := v.c.Output.Prefix + ".>"
+	for i, s := range in.Subjects {
+		path := fmt.Sprintf("intake.subjects[%d]", i)
+		if err := ValidPattern(s); err != nil {
+			v.add(path, "%v", err)
+			continue
+		}
+		if pre := subjectPrefix(s); pre == "" || pre == s {
+			v.add(path, "%q needs literal tokens then a wildcard, such as \"metrics.>\": the topic is what follows the literal prefix", s)
+			continue
+		}
+		if patternsOverlap(s, out) {
+			v.add(path, "%q overlaps forewarn's own output subjects %q", s, out)
+		}
+		for j := range i {
+			if patternsOverlap(s, in.Subjects[j]) {
+				v.add(path, "%q overlaps intake.subjects[%d] %q: a message would be taken twice", s, j, in.Subjects[j])
+				break
+			}
+		}
+	}
+	if in.Durable {
+		v.streamName("intake.stream", in.Stream)
+		v.streamName("intake.consumer", in.Consumer)
+	}
+	if v.positive("intake.max_age", in.MaxAge) && in.MaxAge < time.Second {
+		v.add("intake.max_age", "%v is less than a second", in.MaxAge)
+	}
+	if in.MaxBytes <= 0 {
+		v.add("intake.max_bytes", "must be positive, got %d", in.MaxBytes)
+	} else if lim := int64(v.c.Limits.MaxPayloadBytes); in.MaxBytes < lim {
+		v.add("intake.max_bytes", "%d is smaller than limits.max_payload_bytes %d", in.MaxBytes, lim)
+	}
+}
+
+// streamName checks a JetStream stream or consumer name: printable, no
+// white space, none of . * > / \ (they have meanings in subjects and paths).
+func (v *validator) streamName(path, name string) {
+	switch {
+	case len(name) > maxStreamNameLen:
+		v.add(path, "longer than %d bytes", maxStreamNameLen)
+	case strings.ContainsAny(name, ".*>/\\"):
+		v.add(path, "%q contains one of . * > / \\", clip(name))
+	case strings.IndexFunc(name, func(r rune) bool { return unicode.IsSpace(r) || !unicode.IsPrint(r) }) >= 0:
+		v.add(path, "%q contains white space or a non-printable character", clip(name))
+	}
+}
+
+func (v *validator) state() {
+	s := &v.c.State
+	if v.positive("state.flush_interval", s.FlushInterval) && (s.FlushInterval < time.Millisecond || s.FlushInterval > time.Hour) {
+		v.add("state.flush_interval", "%v is outside 1ms..1h", s.FlushInterval)
+	}
+	v.intRange("state.flush_max", s.FlushMax, 1, 1_000_000)
+}
+
+func (v *validator) limits() {
+	l := &v.c.Limits
+	v.intRange("limits.max_series", l.MaxSeries, 1, MaxSeriesLimit)
+	v.intRange("limits.max_payload_bytes", l.MaxPayloadBytes, 1, MaxPayloadLimit)
+	v.intRange("limits.max_batch", l.MaxBatch, 1, MaxBatchLimit)
+	v.intRange("limits.max_window", l.MaxWindow, MinMinPoints, MaxWindowLimit)
+	v.positive("limits.max_future", l.MaxFuture)
+	v.positive("limits.max_past", l.MaxPast)
+}
+
+var (
+	modelRE     = regexp.MustCompile(`^ARIMA\((\d{1,5}),(\d{1,5}),(\d{1,5})\)(?:\((\d{1,5}),(\d{1,5}),(\d{1,5})\)\[(\d{1,5})\])?$`)
+	boxCoxRE    = regexp.MustCompile(`^boxcox\(([^()]*)\)$`)
+	alertNameRE = regexp.MustCompile(`^[a-z0-9_-]+$`)
+)
+
+func (v *validator) series(i int) {
+	s := &v.c.Series[i]
+	p := fmt.Sprintf("series[%d]", i)
+	if err := ValidPattern(s.Match); err != nil {
+		v.add(p+".match", "%v", err)
+	} else {
+		for j := range i {
+			if o := v.c.Series[j]; ValidPattern(o.Match) == nil && patternCovers(o.Match, s.Match) {
+				v.add(p+".match", "never applies: series[%d] (match %q) comes first and takes every topic %q matches", j, o.Match, s.Match)
+				break
+			}
+		}
+	}
+	v.oneOf(p+".kind", s.Kind, "gauge", "counter")
+	if v.positive(p+".step", s.Step) {
+		switch {
+		case s.Step%time.Second != 0:
+			v.add(p+".step", "%v is not a whole number of seconds", s.Step)
+		case s.Step > maxStep:
+			v.add(p+".step", "%v is more than %v", s.Step, maxStep)
+		case s.Horizon > 0 && s.Horizon <= MaxHorizon && time.Duration(s.Horizon)*s.Step > maxHorizonSpan:
+			v.add(p+".horizon", "%d steps of %v reach more than 100 years ahead", s.Horizon, s.Step)
+		}
+	}
+	v.intRange(p+".horizon", s.Horizon, 1, MaxHorizon)
+	v.levels(p+".levels", s.Levels)
+	if s.MinPoints < MinMinPoints {
+		v.add(p+".min_points", "%d is less than %d", s.MinPoints, MinMinPoints)
+	}
+	switch {
+	case s.Window < s.MinPoints:
+		v.add(p+".window", "%d is less than min_points %d", s.Window, s.MinPoints)
+	case s.Window > v.c.Limits.MaxWindow:
+		v.add(p+".window", "%d is more than limits.max_window %d", s.Window, v.c.Limits.MaxWindow)
+	}
+	if s.RefitEvery < 1 {
+		v.add(p+".refit_every", "%d is less than 1", s.RefitEvery)
+	}
+	v.model(p, s)
+	v.transform(p+".transform", s.Transform)
+	if s.CloseAfter < 0 {
+		v.add(p+".close_after", "must not be negative, got %v", s.CloseAfter)
+	}
+}
+
+func (v *validator) levels(path string, levels []float64) {
+	if len(levels) > MaxLevels {
+		v.add(path, "%d levels, more than %d", len(levels), MaxLevels)
+	}
+	for k, l := range levels {
+		if !(l > 0 && l < 100) {
+			v.add(path, "level %v is outside (0, 100); levels are percentages", l)
+		}
+		if k > 0 && levels[k-1] == l {
+			v.add(path, "level %v is given twice", l)
+		}
+	}
+}
+
+// model checks a fixed model's syntax and that min_points leaves the
+// differenced series longer than its coefficients (common practice: at
+// least two observations more than coefficients after differencing).
+func (v *validator) model(p string, s *Series) {
+	if s.Model == "auto" {
+		return
+	}
+	path := p + ".model"
+	m := modelRE.FindStringSubmatch(s.Model)
+	if m == nil {
+		v.add(path, "%q is not auto, ARIMA(p,d,q) or ARIMA(p,d,q)(P,D,Q)[s]", clip(s.Model))
+		return
+	}
+	var o [7]int
+	for k := range o {
+		o[k], _ = strconv.Atoi(m[k+1]) // "" (no seasonal part) gives 0
+	}
+	pp, d, q, sp, sd, sq, per := o[0], o[1], o[2], o[3], o[4], o[5], o[6]
+	seasonal := m[7] != ""
+	switch {
+	case max(pp, q, sp, sq) > maxOrder:
+		v.add(path, "%q: AR and MA orders are at most %d", s.Model, maxOrder)
+	case d > maxD:
+		v.add(path, "%q: d is at most %d", s.Model, maxD)
+	case sd > maxSeasonD:
+		v.add(path, "%q: D is at most %d", s.Model, maxSeasonD)
+	case seasonal && (per < 2 || per > maxSeasonalPeriod):
+		v.add(path, "%q: the period s must be in 2..%d", s.Model, maxSeasonalPeriod)
+	default:
+		need := d + per*sd + pp + q + sp + sq + 2
+		if s.MinPoints >= MinMinPoints && s.MinPoints < need {
+			v.add(p+".min_points", "%d is too few for %s, which needs at least %d", s.MinPoints, s.Model, need)
+		}
+	}
+}
+
+func (v *validator) transform(path, t string) {
+	switch t {
+	case "auto", "none", "log", "boxcox", "scaled-exp":
+		return
+	}
+	m := boxCoxRE.FindStringSubmatch(t)
+	if m == nil {
+		v.add(path, "%q is not one of auto, none, log, boxcox, boxcox(λ), scaled-exp", clip(t))
+		return
+	}
+	l, err := strconv.ParseFloat(m[1], 64)
+	if err != nil || math.IsNaN(l) || l < boxCoxMin || l > boxCoxMax {
+		v.add(path, "%q: λ must be a number in [%v, %v]", clip(t), boxCoxMin, boxCoxMax)
+	}
+}
+
+func (v *validator) alert(i int, names map[string]int) {
+	a := &v.c.Alerts[i]
+	p := fmt.Sprintf("alerts[%d]", i)
+	switch {
+	case a.Name == "":
+		v.add(p+".name", "required")
+	case len(a.Name) > maxNameLen || !alertNameRE.MatchString(a.Name):
+		v.add(p+".name", "%q must be 1..%d of a-z, 0-9, _ and -", clip(a.Name), maxNameLen)
+	default:
+		if j, dup := names[a.Name]; dup {
+			v.add(p+".name", "%q is also the name of alerts[%d]", a.Name, j)
+		} else {
+			names[a.Name] = i
+		}
+	}
+	validMatch := false
+	if a.Match == "" {
+		v.add(p+".match", "required")
+	} else if err := ValidPattern(a.Match); err != nil {
+		v.add(p+".match", "%v", err)
+	} else {
+		validMatch = true
+	}
+	switch {
+	case a.Above == nil && a.Below == nil:
+		v.add(p, "needs a threshold: above or below")
+	case a.Above != nil && a.Below != nil:
+		v.add(p+".below", "give either above or below, not both")
+	}
+	if v.positive(p+".within", a.Within) && validMatch {
+		v.alertSeries(p, a)
+	}
+	if !(a.Probability > 0 && a.Probability <= 1) {
+		v.add(p+".probability", "%v is outside (0, 1]", a.Probability)
+	} else if !(a.ResolveProbability > 0 && a.ResolveProbability < a.Probability) {
+		v.add(p+".resolve_probability", "%v is outside (0, probability %v)", a.ResolveProbability, a.Probability)
+	}
+}
+
+// alertSeries checks that some series entry can reach the rule's topics
+// and that the window fits the horizon of at least one of them. The
+// daemon checks each series it applies the rule to.
+func (v *validator) alertSeries(p string, a *Alert) {
+	reach := false
+	var longest time.Duration
+	for _, s := range v.c.Series {
+		if ValidPattern(s.Match) == nil && patternsOverlap(s.Match, a.Match) {
+			reach = true
+			longest = max(longest, time.Duration(min(max(s.Horizon, 0), MaxHorizon))*s.Step)
+		}
+	}
+	switch {
+	case !reach:
+		v.add(p+".match", "%q matches no topic that a series entry matches", a.Match)
+	case a.Within > longest:
+		v.add(p+".within", "%v is beyond every matching series' horizon (at most %v)", a.Within, longest)
+	}
+}
+
+// patternCovers reports whether every subject that matches b also matches a.
+func patternCovers(a, b string) bool {
+	for {
+		at, arest, amore := strings.Cut(a, ".")
+		bt, brest, bmore := strings.Cut(b, ".")
+		if at == ">" && !amore {
+			return true
+		}
+		if bt == ">" && !bmore {
+			return false
+		}
+		if at != "*" && at != bt {
+			return false
+		}
+		if amore != bmore {
+			return false
+		}
+		if !amore {
+			return true
+		}
+		a, b = arest, brest
+	}
+}
