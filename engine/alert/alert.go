@@ -1,0 +1,355 @@
+package alert
+
+import (
+	"fmt"
+	"math"
+	"math/rand/v2"
+)
+
+// Direction says on which side of the threshold the alert condition lies.
+// The zero value is invalid, so a forgotten direction is an error, not a
+// silent default.
+type Direction int
+
+const (
+	// Above: the condition is W > c.
+	Above Direction = iota + 1
+	// Below: the condition is W < c.
+	Below
+)
+
+// String returns "above" or "below" (the words of the alert message).
+func (d Direction) String() string {
+	switch d {
+	case Above:
+		return "above"
+	case Below:
+		return "below"
+	}
+	return fmt.Sprintf("Direction(%d)", int(d))
+}
+
+const (
+	// Negligible is the level under which a crossing probability is treated
+	// as zero without building the joint covariance: when the union bound
+	// k·Q(z_min) ≤ Negligible the bound itself is returned.
+	Negligible = 1e-6
+	// BracketTol is the half-width under which the bracket
+	// max_j P_j ≤ p ≤ min(1, Σ_j P_j) is narrow enough that its midpoint is
+	// returned instead of a simulation (deterministic error ≤ BracketTol).
+	BracketTol = 1e-3
+	// MinPaths is the fewest simulation paths NewEvaluator accepts:
+	// SE = sqrt(p(1−p)/N) ≤ 0.5/sqrt(N) ≤ 0.01 needs N ≥ 2500.
+	MinPaths = 2500
+	// DefaultPaths is used when NewEvaluator is given paths ≤ 0:
+	// SE ≤ 0.5/sqrt(10000) = 0.005, so the 95 % Monte Carlo half-width
+	// 1.96·SE is below 1 % whatever p is.
+	DefaultPaths = 10000
+)
+
+// Query is one evaluation of one rule against one forecast, on the model
+// scale (the caller has already mapped the raw threshold through the
+// transform and flipped Direction if the transform is decreasing).
+type Query struct {
+	// Mean[j-1] is the forecast mean of W_{t+j}, j = 1..h.
+	Mean []float64
+	// Variance[j-1] is the marginal forecast variance of W_{t+j}.
+	Variance []float64
+	// Threshold is c, on the model scale.
+	Threshold float64
+	// Direction is Above (W > c) or Below (W < c).
+	Direction Direction
+	// Window is k, the number of steps looked ahead, 1 ≤ k ≤ h.
+	Window int
+	// Monotone selects the counter rule: the probability is the marginal at
+	// step k. Otherwise (a gauge) it is the probability of crossing at any
+	// step 1..k.
+	Monotone bool
+	// Seed seeds the path simulation. Zero means: derive the seed from the
+	// query's values, so that equal inputs give equal outputs.
+	Seed uint64
+}
+
+// Evaluator computes crossing probabilities. It owns all workspaces, so a
+// call to Probability does not allocate. It is not safe for concurrent
+// use: keep one per worker goroutine.
+type Evaluator struct {
+	maxH  int
+	paths int
+	zSkip []float64 // zSkip[k] = Q⁻¹(Negligible/k), k = 1..maxH
+
+	cov  []float64 // h×h, filled by the caller's callback
+	chol []float64 // k×k lower factor, row-major, stride k
+	m    []float64 // sign-adjusted means, length k
+	z    []float64 // one path's standard normal draws
+	pcg  *rand.PCG
+	rng  *rand.Rand
+
+	stdErr float64
+	method Method
+}
+
+// Method says how the last probability was obtained.
+type Method int
+
+const (
+	// MethodNone: no successful evaluation yet.
+	MethodNone Method = iota
+	// MethodMarginal: exact marginal probability (counter, or window 1).
+	MethodMarginal
+	// MethodSkip: union bound below Negligible; the bound was returned.
+	MethodSkip
+	// MethodBracket: midpoint of the narrow bracket [max P_j, min(1, Σ P_j)].
+	MethodBracket
+	// MethodSimulation: seeded Monte Carlo of the joint Gaussian path.
+	MethodSimulation
+)
+
+// String names the method.
+func (m Method) String() string {
+	switch m {
+	case MethodMarginal:
+		return "marginal"
+	case MethodSkip:
+		return "skip"
+	case MethodBracket:
+		return "bracket"
+	case MethodSimulation:
+		return "simulation"
+	}
+	return "none"
+}
+
+// NewEvaluator returns an evaluator for forecasts of up to maxHorizon steps
+// that simulates paths paths when a path probability is needed
+// (paths ≤ 0 selects DefaultPaths; fewer than MinPaths is an error).
+func NewEvaluator(maxHorizon, paths int) (*Evaluator, error) {
+	if maxHorizon < 1 {
+		return nil, fmt.Errorf("alert: new evaluator: max horizon %d: %w", maxHorizon, ErrMaxHorizon)
+	}
+	if paths <= 0 {
+		paths = DefaultPaths
+	}
+	if paths < MinPaths {
+		return nil, fmt.Errorf("alert: new evaluator: %d paths, need at least %d: %w", paths, MinPaths, ErrPaths)
+	}
+	e := &Evaluator{
+		maxH:  maxHorizon,
+		paths: paths,
+		zSkip: make([]float64, maxHorizon+1),
+		cov:   make([]float64, maxHorizon*maxHorizon),
+		chol:  make([]float64, maxHorizon*maxHorizon),
+		m:     make([]float64, maxHorizon),
+		z:     make([]float64, maxHorizon),
+		pcg:   rand.NewPCG(0, 0),
+	}
+	e.rng = rand.New(e.pcg)
+	for k := 1; k <= maxHorizon; k++ {
+		e.zSkip[k] = upperQuantile(Negligible / float64(k))
+	}
+	return e, nil
+}
+
+// StdErr is the Monte Carlo standard error of the last probability
+// (0 when it was computed exactly or by a bound).
+func (e *Evaluator) StdErr() float64 { return e.stdErr }
+
+// LastMethod says how the last probability was computed.
+func (e *Evaluator) LastMethod() Method { return e.method }
+
+// Paths is the number of simulated paths per path probability.
+func (e *Evaluator) Paths() int { return e.paths }
+
+// Probability returns the probability p that the forecast crosses the
+// threshold within the window, and etaStep, the first step j (1-based,
+// j ≤ h) at which the mean forecast is beyond the threshold, or 0 if it
+// never is within the horizon. joint is called at most once, and only
+// when a path probability must be simulated; it must fill cov (h×h,
+// row-major) with the covariance of the h forecast errors. joint may be
+// nil for counters and for a window of one step.
+//
+// See the package documentation for the formulas.
+func (e *Evaluator) Probability(q *Query, joint func(cov []float64)) (p float64, etaStep int, err error) {
+	e.stdErr, e.method = 0, MethodNone
+	h := len(q.Mean)
+	if h == 0 || len(q.Variance) != h {
+		return 0, 0, fmt.Errorf("alert: probability: %d means, %d variances: %w", h, len(q.Variance), ErrShape)
+	}
+	if h > e.maxH {
+		return 0, 0, fmt.Errorf("alert: probability: horizon %d > %d: %w", h, e.maxH, ErrHorizon)
+	}
+	k := q.Window
+	if k < 1 || k > h {
+		return 0, 0, fmt.Errorf("alert: probability: window %d, horizon %d: %w", k, h, ErrWindow)
+	}
+	var sign float64
+	switch q.Direction {
+	case Above:
+		sign = 1
+	case Below:
+		sign = -1
+	default:
+		return 0, 0, fmt.Errorf("alert: probability: %v: %w", q.Direction, ErrDirection)
+	}
+	if !finite(q.Threshold) {
+		return 0, 0, fmt.Errorf("alert: probability: threshold %v: %w", q.Threshold, ErrNotFinite)
+	}
+	c := sign * q.Threshold
+
+	// One pass: validate, find eta, and test the union bound on 1..k.
+	// far stays true while every step j ≤ k has d_j = c' − m'_j > 0 and
+	// d_j² ≥ zSkip[k]²·v_j, i.e. P_j ≤ Negligible/k.
+	zs := e.zSkip[k]
+	zs2 := zs * zs
+	far := true
+	bestD, bestV := math.Inf(1), 1.0 // step with the smallest d/√v so far
+	for j := 0; j < h; j++ {
+		mj, vj := q.Mean[j], q.Variance[j]
+		if !finite(mj) || !finite(vj) {
+			return 0, 0, fmt.Errorf("alert: probability: step %d mean %v variance %v: %w", j+1, mj, vj, ErrNotFinite)
+		}
+		if vj < 0 {
+			return 0, 0, fmt.Errorf("alert: probability: step %d variance %v: %w", j+1, vj, ErrNegativeVariance)
+		}
+		d := c - sign*mj
+		if etaStep == 0 && d < 0 {
+			etaStep = j + 1
+		}
+		if j < k && far {
+			if d <= 0 || d*d < zs2*vj {
+				far = false
+			} else if d*d*bestV < bestD*bestD*vj {
+				bestD, bestV = d, vj
+			}
+		}
+	}
+
+	if q.Monotone || k == 1 {
+		e.method = MethodMarginal
+		return tail(c-sign*q.Mean[k-1], q.Variance[k-1]), etaStep, nil
+	}
+	if far {
+		e.method = MethodSkip
+		return float64(k) * tail(bestD, bestV), etaStep, nil
+	}
+
+	// Bracket: max_j P_j ≤ p ≤ min(1, Σ_j P_j) (Boole's inequality).
+	lo, hi, jStar := 0.0, 0.0, 0
+	for j := 0; j < k; j++ {
+		pj := tail(c-sign*q.Mean[j], q.Variance[j])
+		hi += pj
+		if pj > lo {
+			lo, jStar = pj, j
+		}
+	}
+	hi = math.Min(hi, 1)
+	if hi-lo <= 2*BracketTol {
+		e.method = MethodBracket
+		return 0.5 * (lo + hi), etaStep, nil
+	}
+
+	if joint == nil {
+		return 0, etaStep, fmt.Errorf("alert: probability: window %d: %w", k, ErrNoCovariance)
+	}
+	cov := e.cov[:h*h]
+	joint(cov)
+	if err := e.factor(cov, q.Variance, h, k); err != nil {
+		return 0, etaStep, fmt.Errorf("alert: probability: %w", err)
+	}
+	for j := 0; j < k; j++ {
+		e.m[j] = sign * q.Mean[j]
+	}
+	seed := q.Seed
+	if seed == 0 {
+		seed = deriveSeed(q, k)
+	}
+	p, e.stdErr = e.simulate(k, c, jStar, lo, seed)
+	p = math.Max(lo, math.Min(hi, p))
+	e.method = MethodSimulation
+	return p, etaStep, nil
+}
+
+// simulate estimates p = P(max_{j≤k} W'_j > c') with W' = m' + L z by the
+// control-variate estimator of the package documentation, using
+// B = 1{W'_{j*} > c'}, whose mean pStar is known exactly.
+func (e *Evaluator) simulate(k int, c float64, jStar int, pStar float64, seed uint64) (p, se float64) {
+	e.pcg.Seed(seed, seed^0x9e3779b97f4a7c15)
+	L, m, z := e.chol, e.m, e.z
+	var nA, nB int
+	for n := 0; n < e.paths; n++ {
+		crossed, end := false, false
+		for j := 0; j < k; j++ {
+			z[j] = e.rng.NormFloat64()
+			row := L[j*k : j*k+j+1]
+			w := m[j]
+			for i, l := range row {
+				w += l * z[i]
+			}
+			if w > c {
+				crossed = true
+				if j == jStar {
+					end = true
+				}
+			}
+			if crossed && j >= jStar {
+				break
+			}
+		}
+		if crossed {
+			nA++
+		}
+		if end {
+			nB++
+		}
+	}
+	N := float64(e.paths)
+	a, b := float64(nA)/N, float64(nB)/N
+	// B ⊂ A, so cov(A,B) = b(1−a) and var(B) = b(1−b).
+	varA := a * (1 - a)
+	varB := b * (1 - b)
+	if varB == 0 {
+		return a, math.Sqrt(varA / N)
+	}
+	covAB := b * (1 - a)
+	beta := covAB / varB
+	p = a - beta*(b-pStar)
+	resid := math.Max(varA-covAB*beta, 0)
+	return p, math.Sqrt(resid / N)
+}
+
+// tail returns P(W > c) for W ~ N(c − d, v), that is Q(d/√v), with the
+// degenerate case v = 0 giving 1 if d < 0 and 0 otherwise.
+func tail(d, v float64) float64 {
+	if v == 0 {
+		if d < 0 {
+			return 1
+		}
+		return 0
+	}
+	return 0.5 * math.Erfc(d/math.Sqrt(2*v))
+}
+
+// upperQuantile returns z with Q(z) = p, Q the standard normal upper tail.
+func upperQuantile(p float64) float64 { return math.Sqrt2 * math.Erfcinv(2*p) }
+
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+
+// deriveSeed hashes the inputs that define the simulated distribution
+// (splitmix64 finaliser over the bit patterns), so equal queries give
+// equal simulations.
+func deriveSeed(q *Query, k int) uint64 {
+	s := mix(uint64(k)<<8 | uint64(q.Direction))
+	s = mix(s ^ math.Float64bits(q.Threshold))
+	for j := 0; j < k; j++ {
+		s = mix(s ^ math.Float64bits(q.Mean[j]))
+		s = mix(s ^ math.Float64bits(q.Variance[j]))
+	}
+	return s
+}
+
+func mix(x uint64) uint64 {
+	x += 0x9e3779b97f4a7c15
+	x = (x ^ (x >> 30)) * 0xbf58476d1ce4e5b9
+	x = (x ^ (x >> 27)) * 0x94d049bb133111eb
+	return x ^ (x >> 31)
+}

@@ -1,0 +1,107 @@
+// Package alert turns a Gaussian forecast into the probability that a
+// series crosses a threshold within a window, finds the first step at which
+// the median forecast is beyond the threshold (eta), and runs the
+// hysteresis that decides when an alert rule fires and resolves.
+//
+// It is pure computation: no I/O, no goroutines, and it imports neither
+// stream nor state. An Evaluator owns its workspaces and is not safe for
+// concurrent use; keep one per worker. Probability does not allocate, on
+// any path (checked with testing.AllocsPerRun).
+//
+// # Scale
+//
+// Everything is on the model scale, where the forecast is Gaussian: the
+// caller maps the raw threshold through the (monotone) transform and flips
+// the direction if the transform is decreasing. A direction Below is
+// handled as Above on −W with threshold −c (the covariance is unchanged),
+// so below, W, c, m_j and v_j stand for the sign-adjusted quantities.
+//
+// # Formulas
+//
+// Let m_j, v_j be the forecast mean and variance of W_j = W_{t+j},
+// j = 1..h, Σ the joint covariance of the h forecast errors, c the
+// threshold, k ≤ h the window, and Q(z) = 1 − Φ(z) = ½·erfc(z/√2) the
+// standard normal upper tail. The marginal probability of step j is
+//
+//	P_j = P(W_j > c) = Q((c − m_j)/√v_j)      (P_j = 1{m_j > c} if v_j = 0)
+//
+// Counter (Monotone): the series cannot fall back, so crossing within the
+// window is the event W_k > c, and p = P_k exactly.
+//
+// Gauge: p = P(max_{j≤k} W_j > c) = 1 − P(W_j ≤ c for all j ≤ k), a
+// k-dimensional Gaussian orthant probability. It is computed in this order,
+// stopping at the first step that applies:
+//
+//  1. Window k = 1: p = P_1 exactly.
+//
+//  2. Skip. Boole's inequality (the union bound) gives
+//     p ≤ Σ_{j≤k} P_j ≤ k·Q(z_min), z_min = min_{j≤k} (c − m_j)/√v_j.
+//     If z_min ≥ Q⁻¹(Negligible/k) then the bound is ≤ Negligible (1e-6)
+//     and k·Q(z_min) is returned; neither Σ nor any P_j is evaluated, and
+//     the covariance callback is not called. The test needs one
+//     multiply-compare per step (d_j > 0 and d_j² ≥ z*²·v_j with
+//     d_j = c − m_j), so it costs tens of nanoseconds for h = 60.
+//
+//  3. Bracket. max_j P_j ≤ p ≤ min(1, Σ_j P_j). If the bracket is at most
+//     2·BracketTol wide, its midpoint is returned (error ≤ BracketTol = 1e-3,
+//     deterministic).
+//
+//  4. Simulation. The leading k×k block of Σ is factored, Σ = L Lᵀ
+//     (Cholesky, semi-definite allowed), and N paths W = m + L z,
+//     z ~ N(0, I), are drawn from a PCG generator seeded by Query.Seed or,
+//     when that is zero, by a hash of the query's values, so equal inputs
+//     give equal results. With A = 1{max_j W_j > c} and the control variate
+//     B = 1{W_{j*} > c}, j* = argmax_j P_j, whose mean P_{j*} is known
+//     exactly, the estimate is
+//
+//     p̂ = Ā − β̂ (B̄ − P_{j*}),   β̂ = cov(A,B)/var(B) = (1 − Ā)/(1 − B̄)
+//
+//     (B = 1 implies A = 1, hence cov(A,B) = B̄(1 − Ā)). Its standard error
+//     is SE = sqrt(var(A)(1 − ρ²)/N) ≤ sqrt(p(1 − p)/N) ≤ 0.5/√N, reported
+//     by Evaluator.StdErr; β̂ is estimated from the same paths, which costs a
+//     bias of order 1/N. With the default N = DefaultPaths = 10 000,
+//     SE ≤ 0.005, so even the 95 % half-width 1.96·SE is below 1 %; the
+//     fewest paths accepted, MinPaths = 2 500, still gives SE ≤ 1 %. The
+//     estimate is clipped to the bracket of step 3. A path stops as soon as
+//     it has crossed and reached step j*, so its cost is at most k(k+1)/2
+//     multiply-adds.
+//
+// eta: the first step j ≤ h (the whole horizon, not only the window) with
+// m_j > c. On the model scale the forecast is Gaussian, so its median is
+// its mean, and a monotone transform maps medians to medians, so this is
+// also the first step at which the raw-scale median is beyond the raw
+// threshold. It is 0 when no step qualifies.
+//
+// # Hysteresis
+//
+// Next implements two levels, Fire and Resolve < Fire (default
+// Resolve = Fire/2): a resolved rule fires when p ≥ Fire, a firing rule
+// resolves when p < Resolve.
+//
+// # Caveats
+//
+// The simulated probability is exact only up to its Monte Carlo error, and
+// it is the probability under the fitted Gaussian model: parameter
+// uncertainty and the discreteness of steps between buckets are not
+// accounted for. The reflection principle (Bachelier 1900; Lévy 1948),
+// P(max_{s≤t} B_s > c) = 2·P(B_t > c) for a driftless Brownian motion,
+// overstates the discrete-step probability and serves in tests as an upper
+// sanity bound only.
+//
+// References:
+//   - Boole, G. (1854). An Investigation of the Laws of Thought (the union
+//     bound, Boole's inequality).
+//   - Genz, A. (1992). Numerical computation of multivariate normal
+//     probabilities. J. Computational and Graphical Statistics 1(2), 141–149
+//     (the reference values in testdata come from its implementation in
+//     R's mvtnorm::pmvnorm).
+//   - Glasserman, P. (2004). Monte Carlo Methods in Financial Engineering,
+//     §4.1 (control variates, the regression estimator β̂ = cov/var).
+//   - Golub, G. H. & Van Loan, C. F. (2013). Matrix Computations, 4th ed.,
+//     §4.2 (Cholesky factorisation).
+//   - Lévy, P. (1948). Processus stochastiques et mouvement brownien
+//     (reflection principle); Bachelier, L. (1900). Théorie de la spéculation.
+//   - O'Neill, M. E. (2014). PCG: a family of simple fast space-efficient
+//     statistically good algorithms for random number generation (the
+//     generator of math/rand/v2).
+package alert
