@@ -1,0 +1,387 @@
+package state
+
+import (
+	"errors"
+	"fmt"
+	"io/fs"
+	"os"
+	"path/filepath"
+	"sync"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+	berrors "go.etcd.io/bbolt/errors"
+
+	"forewarn/engine/series"
+)
+
+// FileName is the name of the state file inside the data directory.
+const FileName = "forewarn.db"
+
+// StoreVersion is the layout version of the store (its buckets and meta
+// keys), kept in the meta bucket under "format". Records carry their own
+// FormatVersion.
+const StoreVersion uint16 = 1
+
+// DefaultLockTimeout is how long Open waits for another process to release
+// the file before it returns a *LockedError.
+const DefaultLockTimeout = time.Second
+
+var (
+	bucketSeries = []byte("series")
+	bucketMeta   = []byte("meta")
+	keyFormat    = []byte("format")
+	keyCreated   = []byte("created")
+)
+
+// Option is an optional knob of Open.
+type Option func(*options)
+
+type options struct {
+	readOnly    bool
+	noSync      bool
+	lockTimeout time.Duration
+}
+
+// ReadOnly opens the file for reading only (the CLI). The file must exist;
+// it is never created or changed, and other read-only opens may share it,
+// but a daemon holding it makes Open fail with a *LockedError.
+func ReadOnly() Option { return func(o *options) { o.readOnly = true } }
+
+// NoSync skips the fsync at each commit. For tests only: a crash or power
+// loss can then lose or damage committed state. The default syncs.
+func NoSync() Option { return func(o *options) { o.noSync = true } }
+
+// LockTimeout sets how long Open waits for the file lock (default
+// DefaultLockTimeout). Zero or negative means the default.
+func LockTimeout(d time.Duration) Option { return func(o *options) { o.lockTimeout = d } }
+
+// Store is the state file: one bbolt database with a "series" bucket
+// (topic → record) and a "meta" bucket. All methods are safe for
+// concurrent use by multiple goroutines; writes are serialised by bbolt,
+// reads run in parallel with each other and with a write.
+type Store struct {
+	db       *bolt.DB
+	path     string
+	readOnly bool
+
+	mu    sync.Mutex // guards arena and keys between Saves
+	arena []byte     // encode buffer reused by Save
+	keys  []int      // record boundaries in arena during one Save
+
+	closeOnce sync.Once
+	closeErr  error
+}
+
+// Open opens (or, unless ReadOnly, creates) dir/forewarn.db. A new
+// directory gets mode 0700 and a new file mode 0600; an existing writable
+// file with wider permissions is narrowed to 0600. The lock wait is
+// bounded by LockTimeout; a file held by another process gives a
+// *LockedError (errors.Is ErrLocked).
+func Open(dir string, opts ...Option) (*Store, error) {
+	o := options{lockTimeout: DefaultLockTimeout}
+	for _, opt := range opts {
+		opt(&o)
+	}
+	if o.lockTimeout <= 0 {
+		o.lockTimeout = DefaultLockTimeout
+	}
+	path := filepath.Join(dir, FileName)
+
+	if o.readOnly {
+		if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
+			return nil, fmt.Errorf("state: open %s: %w", path, ErrNoState)
+		}
+	} else {
+		if err := os.MkdirAll(dir, 0o700); err != nil {
+			return nil, fmt.Errorf("state: create data directory: %w", err)
+		}
+		if fi, err := os.Stat(path); err == nil && fi.Mode().Perm()&^0o600 != 0 {
+			if err := os.Chmod(path, 0o600); err != nil {
+				return nil, fmt.Errorf("state: narrow permissions of %s: %w", path, err)
+			}
+		}
+	}
+
+	db, err := bolt.Open(path, 0o600, &bolt.Options{
+		Timeout:  o.lockTimeout,
+		ReadOnly: o.readOnly,
+		NoSync:   o.noSync,
+	})
+	if errors.Is(err, berrors.ErrTimeout) {
+		return nil, &LockedError{Path: path}
+	}
+	if err != nil {
+		return nil, fmt.Errorf("state: open %s: %w", path, err)
+	}
+	s := &Store{db: db, path: path, readOnly: o.readOnly}
+	if o.readOnly {
+		err = db.View(func(tx *bolt.Tx) error { return checkMeta(tx, path) })
+	} else {
+		err = db.Update(func(tx *bolt.Tx) error { return initBuckets(tx, path) })
+	}
+	if err != nil {
+		db.Close()
+		return nil, err
+	}
+	return s, nil
+}
+
+// initBuckets creates the buckets and meta keys of a new file and checks
+// those of an existing one.
+func initBuckets(tx *bolt.Tx, path string) error {
+	if tx.Bucket(bucketMeta) == nil && tx.Bucket(bucketSeries) == nil {
+		for _, name := range tx.Inspect().Children {
+			return fmt.Errorf("state: %s: %w (it holds bucket %q)", path, ErrNotState, name.Name)
+		}
+		meta, err := tx.CreateBucket(bucketMeta)
+		if err != nil {
+			return fmt.Errorf("state: create meta bucket: %w", err)
+		}
+		if err := meta.Put(keyFormat, le.AppendUint16(nil, StoreVersion)); err != nil {
+			return fmt.Errorf("state: write meta: %w", err)
+		}
+		created := time.Now().UTC().Format(time.RFC3339Nano)
+		if err := meta.Put(keyCreated, []byte(created)); err != nil {
+			return fmt.Errorf("state: write meta: %w", err)
+		}
+		if _, err := tx.CreateBucket(bucketSeries); err != nil {
+			return fmt.Errorf("state: create series bucket: %w", err)
+		}
+	}
+	return checkMeta(tx, path)
+}
+
+// checkMeta verifies that both buckets exist and that the store layout
+// version is one this build reads.
+func checkMeta(tx *bolt.Tx, path string) error {
+	meta := tx.Bucket(bucketMeta)
+	if meta == nil || tx.Bucket(bucketSeries) == nil {
+		return fmt.Errorf("state: %s: %w (missing buckets)", path, ErrNotState)
+	}
+	v := meta.Get(keyFormat)
+	if len(v) != 2 {
+		return fmt.Errorf("state: %s: %w (meta format is %d bytes, want 2)", path, ErrNotState, len(v))
+	}
+	if got := le.Uint16(v); got == 0 || got > StoreVersion {
+		return fmt.Errorf("state: %s: %w", path, &VersionError{What: "store", Found: got, Max: StoreVersion})
+	}
+	return nil
+}
+
+// Path returns the path of the state file.
+func (s *Store) Path() string { return s.path }
+
+// wrap translates bbolt's closed-database error into ErrClosed.
+func wrap(op string, err error) error {
+	if errors.Is(err, berrors.ErrDatabaseNotOpen) {
+		return fmt.Errorf("state: %s: %w", op, ErrClosed)
+	}
+	return err
+}
+
+// Load returns the snapshot stored for topic, ErrNotFound if there is
+// none, or the decode error (ErrCorrupt, ErrVersion) of a damaged record.
+func (s *Store) Load(topic string) (*series.Snapshot, error) {
+	var snap *series.Snapshot
+	err := s.db.View(func(tx *bolt.Tx) error {
+		v := tx.Bucket(bucketSeries).Get([]byte(topic))
+		if v == nil {
+			return fmt.Errorf("state: load %q: %w", topic, ErrNotFound)
+		}
+		var err error
+		snap, err = decodeFor(topic, v)
+		return err
+	})
+	return snap, wrap("load", err)
+}
+
+// decodeFor decodes the record stored under key topic and checks that it
+// names the same topic.
+func decodeFor(topic string, v []byte) (*series.Snapshot, error) {
+	snap, err := Decode(v)
+	if err != nil {
+		return nil, fmt.Errorf("state: record %q: %w", topic, err)
+	}
+	if snap.Topic != topic {
+		return nil, fmt.Errorf("state: record %q: %w", topic,
+			&CorruptError{FaultField, headerLen, fmt.Sprintf("record names topic %q", snap.Topic)})
+	}
+	return snap, nil
+}
+
+type loaded struct {
+	topic string
+	snap  *series.Snapshot
+	err   error
+}
+
+// LoadAll decodes every record, in topic byte order, and calls fn once per
+// topic: with the snapshot, or with a nil snapshot and the decode error of
+// that topic's record (a corrupt record does not stop the others). fn runs
+// after the read transaction has ended, so it may call any Store method. A
+// non-nil error from fn stops the walk and is returned unchanged.
+func (s *Store) LoadAll(fn func(topic string, s *series.Snapshot, err error) error) error {
+	var all []loaded
+	err := s.db.View(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketSeries).ForEach(func(k, v []byte) error {
+			topic := string(k)
+			snap, err := decodeFor(topic, v)
+			all = append(all, loaded{topic, snap, err})
+			return nil
+		})
+	})
+	if err != nil {
+		return wrap("load all", err)
+	}
+	for _, l := range all {
+		if err := fn(l.topic, l.snap, l.err); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// Save writes every snapshot of batch in one read-write transaction, keyed
+// by its topic: the whole batch is committed (and, by default, fsynced)
+// or none of it is. A later entry for the same topic wins. The records are
+// encoded into one buffer that the Store keeps for the next Save, so a
+// steady flush allocates nothing for encoding; the buffer keeps the size
+// of the largest batch.
+func (s *Store) Save(batch []*series.Snapshot) error {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	total := 0
+	for i, snap := range batch {
+		if snap == nil {
+			return fmt.Errorf("state: save: batch[%d] is nil: %w", i, ErrInvalid)
+		}
+		if snap.Topic == "" {
+			return fmt.Errorf("state: save: batch[%d] has an empty topic: %w", i, ErrInvalid)
+		}
+		if len(snap.Topic) > bolt.MaxKeySize {
+			return fmt.Errorf("state: save: topic of %d bytes (at most %d): %w", len(snap.Topic), bolt.MaxKeySize, ErrTooLarge)
+		}
+		n := EncodedLen(snap)
+		if n > maxRecordLen {
+			return fmt.Errorf("state: save %q: %d bytes (at most %d): %w", snap.Topic, n, maxRecordLen, ErrTooLarge)
+		}
+		total += n + len(snap.Topic)
+	}
+	// bbolt keeps a reference to each value until the commit, so every
+	// record needs its own bytes: size the arena once, then append.
+	if cap(s.arena) < total {
+		s.arena = make([]byte, 0, total)
+	}
+	buf := s.arena[:0]
+	s.keys = s.keys[:0]
+	for _, snap := range batch {
+		buf = append(buf, snap.Topic...)
+		s.keys = append(s.keys, len(buf))
+		buf = Encode(buf, snap)
+		s.keys = append(s.keys, len(buf))
+	}
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		b := tx.Bucket(bucketSeries)
+		start := 0
+		for i := 0; i < len(s.keys); i += 2 {
+			k, v := buf[start:s.keys[i]], buf[s.keys[i]:s.keys[i+1]]
+			if err := b.Put(k, v); err != nil {
+				return fmt.Errorf("state: save %q: %w", k, err)
+			}
+			start = s.keys[i+1]
+		}
+		return nil
+	})
+	return wrap("save", err)
+}
+
+// Delete removes the record of topic. Deleting a topic without a record is
+// not an error.
+func (s *Store) Delete(topic string) error {
+	if topic == "" {
+		return fmt.Errorf("state: delete: empty topic: %w", ErrInvalid)
+	}
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		if err := tx.Bucket(bucketSeries).Delete([]byte(topic)); err != nil {
+			return fmt.Errorf("state: delete %q: %w", topic, err)
+		}
+		return nil
+	})
+	return wrap("delete", err)
+}
+
+// Check verifies the whole file: bbolt's page-level consistency check
+// (Tx.Check), the meta bucket, and a decode of every record. It returns
+// nil, or every problem found joined with errors.Join (one per line of its
+// message; errors.Is works through it).
+func (s *Store) Check() error {
+	var problems []error
+	err := s.db.View(func(tx *bolt.Tx) error {
+		for err := range tx.Check() {
+			problems = append(problems, fmt.Errorf("state: bbolt check: %w", err))
+		}
+		if err := checkMeta(tx, s.path); err != nil {
+			problems = append(problems, err)
+			return nil
+		}
+		return tx.Bucket(bucketSeries).ForEach(func(k, v []byte) error {
+			if _, err := decodeFor(string(k), v); err != nil {
+				problems = append(problems, err)
+			}
+			return nil
+		})
+	})
+	if err != nil {
+		return wrap("check", err)
+	}
+	return errors.Join(problems...)
+}
+
+// Info describes a state file.
+type Info struct {
+	Path    string
+	Format  uint16    // StoreVersion of the file
+	Created time.Time // when the file was created (zero if unreadable)
+	Series  int       // number of records
+	Bytes   int64     // file size
+}
+
+// Info returns the store's meta data, record count and file size.
+func (s *Store) Info() (Info, error) {
+	info := Info{Path: s.path}
+	err := s.db.View(func(tx *bolt.Tx) error {
+		meta := tx.Bucket(bucketMeta)
+		if v := meta.Get(keyFormat); len(v) == 2 {
+			info.Format = le.Uint16(v)
+		}
+		info.Created, _ = time.Parse(time.RFC3339Nano, string(meta.Get(keyCreated)))
+		info.Series = tx.Bucket(bucketSeries).Stats().KeyN
+		return nil
+	})
+	if err != nil {
+		return Info{}, wrap("info", err)
+	}
+	info.Bytes, err = s.Size()
+	return info, err
+}
+
+// Size returns the size of the state file in bytes.
+func (s *Store) Size() (int64, error) {
+	fi, err := os.Stat(s.path)
+	if err != nil {
+		return 0, fmt.Errorf("state: size: %w", err)
+	}
+	return fi.Size(), nil
+}
+
+// Close closes the file and releases its lock. It waits for transactions
+// in flight. Calling it again returns the first call's result.
+func (s *Store) Close() error {
+	s.closeOnce.Do(func() {
+		if err := s.db.Close(); err != nil {
+			s.closeErr = fmt.Errorf("state: close %s: %w", s.path, err)
+		}
+	})
+	return s.closeErr
+}

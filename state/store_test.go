@@ -1,0 +1,373 @@
+package state
+
+import (
+	"errors"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"forewarn/engine/series"
+)
+
+func TestStoreSaveLoadReopen(t *testing.T) {
+	dir := t.TempDir()
+	r := rand.New(rand.NewPCG(21, 22))
+	batch := make([]*series.Snapshot, 50)
+	for i := range batch {
+		batch[i] = randomSnapshot(r, 200)
+		batch[i].Topic = "host" + strings.Repeat("x", i) // distinct topics
+	}
+	s, err := Open(dir, NoSync())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := s.Save(batch); err != nil {
+		t.Fatal(err)
+	}
+	if err := s.Close(); err != nil {
+		t.Fatal(err)
+	}
+
+	s = openTestIn(t, dir, ReadOnly())
+	for _, want := range batch {
+		got, err := s.Load(want.Topic)
+		if err != nil {
+			t.Fatalf("Load(%q): %v", want.Topic, err)
+		}
+		if d := diff(want, got); d != "" {
+			t.Fatalf("Load(%q) differs at %s", want.Topic, d)
+		}
+	}
+	if _, err := s.Load("absent"); !errors.Is(err, ErrNotFound) {
+		t.Fatalf("Load(absent): %v, want ErrNotFound", err)
+	}
+	info, err := s.Info()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if info.Series != len(batch) || info.Format != StoreVersion || info.Bytes <= 0 ||
+		time.Since(info.Created) > time.Hour || info.Path != filepath.Join(dir, FileName) {
+		t.Fatalf("Info = %+v", info)
+	}
+	if err := s.Check(); err != nil {
+		t.Fatalf("Check: %v", err)
+	}
+	if err := s.Save(batch[:1]); !errors.Is(err, bolt.ErrDatabaseReadOnly) {
+		t.Fatalf("Save on a read-only store: %v, want bbolt's read-only error", err)
+	}
+}
+
+func TestStoreOverwriteAndDelete(t *testing.T) {
+	s := openTest(t, NoSync())
+	a := &series.Snapshot{Topic: "a", Seq: 1}
+	if err := s.Save([]*series.Snapshot{a, {Topic: "b"}, {Topic: "a", Seq: 3}}); err != nil {
+		t.Fatal(err)
+	}
+	if got, err := s.Load("a"); err != nil || got.Seq != 3 {
+		t.Fatalf("Load(a) = %+v, %v; want the later entry (Seq 3)", got, err)
+	}
+	a.Seq = 9
+	if err := s.Save([]*series.Snapshot{a}); err != nil {
+		t.Fatal(err)
+	}
+	if got, err := s.Load("a"); err != nil || got.Seq != 9 {
+		t.Fatalf("after overwrite Load(a) = %+v, %v", got, err)
+	}
+	if err := s.Delete("a"); err != nil {
+		t.Fatal(err)
+	}
+	if err := s.Delete("a"); err != nil {
+		t.Fatalf("second Delete: %v", err)
+	}
+	if _, err := s.Load("a"); !errors.Is(err, ErrNotFound) {
+		t.Fatalf("Load after Delete: %v", err)
+	}
+	if _, err := s.Load("b"); err != nil {
+		t.Fatalf("Load(b): %v", err)
+	}
+}
+
+func TestStoreSaveRejectsBadBatch(t *testing.T) {
+	s := openTest(t, NoSync())
+	for name, batch := range map[string][]*series.Snapshot{
+		"nil entry":   {{Topic: "ok"}, nil},
+		"empty topic": {{Topic: "ok"}, {}},
+		"long topic":  {{Topic: strings.Repeat("t", bolt.MaxKeySize+1)}},
+	} {
+		err := s.Save(batch)
+		if !errors.Is(err, ErrInvalid) && !errors.Is(err, ErrTooLarge) {
+			t.Errorf("%s: Save = %v", name, err)
+		}
+	}
+	// Nothing of a refused batch is written.
+	if _, err := s.Load("ok"); !errors.Is(err, ErrNotFound) {
+		t.Fatalf("a refused batch left a record: %v", err)
+	}
+	if err := s.Delete(""); !errors.Is(err, ErrInvalid) {
+		t.Fatalf("Delete(\"\") = %v", err)
+	}
+}
+
+func TestOpenLocked(t *testing.T) {
+	dir := t.TempDir()
+	openTestIn(t, dir, NoSync())
+	for _, opts := range [][]Option{{LockTimeout(50 * time.Millisecond)}, {ReadOnly(), LockTimeout(50 * time.Millisecond)}} {
+		s, err := Open(dir, opts...)
+		if err == nil {
+			s.Close()
+			t.Fatal("second Open while the first is open succeeded")
+		}
+		var le *LockedError
+		if !errors.Is(err, ErrLocked) || !errors.As(err, &le) {
+			t.Fatalf("second Open: %v, want ErrLocked", err)
+		}
+		want := filepath.Join(dir, FileName) + " is held by another process (is a daemon running?)"
+		if !strings.Contains(err.Error(), want) {
+			t.Fatalf("message %q does not say %q", err, want)
+		}
+	}
+}
+
+func TestFileModes(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "new", "data")
+	openTestIn(t, dir, NoSync())
+	for path, want := range map[string]os.FileMode{dir: 0o700, filepath.Join(dir, FileName): 0o600} {
+		fi, err := os.Stat(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		// The umask can only narrow these further.
+		if got := fi.Mode().Perm(); got&^want != 0 {
+			t.Errorf("%s: mode %v, want at most %v", path, got, want)
+		}
+	}
+}
+
+func TestOpenNarrowsWideFile(t *testing.T) {
+	dir := t.TempDir()
+	s, err := Open(dir, NoSync())
+	if err != nil {
+		t.Fatal(err)
+	}
+	s.Close()
+	path := filepath.Join(dir, FileName)
+	if err := os.Chmod(path, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	openTestIn(t, dir, NoSync())
+	if fi, _ := os.Stat(path); fi.Mode().Perm() != 0o600 {
+		t.Fatalf("mode after reopen %v, want 0600", fi.Mode().Perm())
+	}
+}
+
+func TestOpenReadOnlyMissing(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "none")
+	if _, err := Open(dir, ReadOnly()); !errors.Is(err, ErrNoState) {
+		t.Fatalf("read-only Open of a missing file: %v, want ErrNoState", err)
+	}
+	if _, err := os.Stat(dir); !errors.Is(err, os.ErrNotExist) {
+		t.Fatalf("read-only Open created %s", dir)
+	}
+}
+
+func TestOpenForeignFile(t *testing.T) {
+	dir := t.TempDir()
+	db, err := bolt.Open(filepath.Join(dir, FileName), 0o600, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := db.Update(func(tx *bolt.Tx) error { _, err := tx.CreateBucket([]byte("other")); return err }); err != nil {
+		t.Fatal(err)
+	}
+	db.Close()
+	for _, opts := range [][]Option{nil, {ReadOnly()}} {
+		if _, err := Open(dir, opts...); !errors.Is(err, ErrNotState) {
+			t.Fatalf("Open of a foreign bbolt file: %v, want ErrNotState", err)
+		}
+	}
+}
+
+func TestOpenNewerStoreVersion(t *testing.T) {
+	dir := t.TempDir()
+	s, err := Open(dir, NoSync())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := s.db.Update(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketMeta).Put(keyFormat, le.AppendUint16(nil, StoreVersion+1))
+	}); err != nil {
+		t.Fatal(err)
+	}
+	s.Close()
+	_, err = Open(dir)
+	var ve *VersionError
+	if !errors.As(err, &ve) || ve.Found != StoreVersion+1 || ve.What != "store" {
+		t.Fatalf("Open of a newer store: %v, want a store *VersionError", err)
+	}
+}
+
+// putRaw stores raw bytes under a key, bypassing Encode.
+func putRaw(t *testing.T, s *Store, key string, v []byte) {
+	t.Helper()
+	if err := s.db.Update(func(tx *bolt.Tx) error { return tx.Bucket(bucketSeries).Put([]byte(key), v) }); err != nil {
+		t.Fatal(err)
+	}
+}
+
+func TestLoadAllSurvivesBadRecords(t *testing.T) {
+	s := openTest(t, NoSync())
+	good := []*series.Snapshot{{Topic: "a", Seq: 1}, {Topic: "c", Seq: 3}, {Topic: "e", Seq: 5}}
+	if err := s.Save(good); err != nil {
+		t.Fatal(err)
+	}
+	damaged := Encode(nil, &series.Snapshot{Topic: "b"})
+	damaged[len(damaged)/2] ^= 0x10
+	putRaw(t, s, "b", damaged)
+	putRaw(t, s, "d", Encode(nil, &series.Snapshot{Topic: "not-d"})) // record under the wrong key
+	newer := Encode(nil, &series.Snapshot{Topic: "f"})
+	le.PutUint16(newer[4:], FormatVersion+1)
+	putRaw(t, s, "f", reseal(newer))
+
+	seen := map[string]error{}
+	loaded := map[string]uint64{}
+	err := s.LoadAll(func(topic string, snap *series.Snapshot, err error) error {
+		seen[topic] = err
+		if err == nil {
+			loaded[topic] = snap.Seq
+		} else if snap != nil {
+			t.Errorf("%s: snapshot with an error", topic)
+		}
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(seen) != 6 {
+		t.Fatalf("LoadAll visited %d topics, want 6: %v", len(seen), seen)
+	}
+	for _, g := range good {
+		if loaded[g.Topic] != g.Seq {
+			t.Errorf("%s: loaded %v, want Seq %d (err %v)", g.Topic, loaded[g.Topic], g.Seq, seen[g.Topic])
+		}
+	}
+	for topic, want := range map[string]error{"b": ErrCorrupt, "d": ErrCorrupt, "f": ErrVersion} {
+		if !errors.Is(seen[topic], want) || !strings.Contains(seen[topic].Error(), `"`+topic+`"`) {
+			t.Errorf("%s: error %v, want %v naming the topic", topic, seen[topic], want)
+		}
+	}
+	if _, err := s.Load("b"); !errors.Is(err, ErrCorrupt) {
+		t.Errorf("Load(b) = %v, want ErrCorrupt", err)
+	}
+
+	// Check lists every bad record, one per line.
+	err = s.Check()
+	if err == nil {
+		t.Fatal("Check found nothing")
+	}
+	if n := len(err.(interface{ Unwrap() []error }).Unwrap()); n != 3 {
+		t.Fatalf("Check reported %d problems, want 3:\n%v", n, err)
+	}
+
+	// The caller can reset the bad series from inside fn; an error from fn stops the walk.
+	stop := errors.New("stop")
+	calls := 0
+	err = s.LoadAll(func(topic string, _ *series.Snapshot, err error) error {
+		calls++
+		if err != nil {
+			if derr := s.Delete(topic); derr != nil {
+				t.Fatal(derr)
+			}
+			return stop
+		}
+		return nil
+	})
+	if !errors.Is(err, stop) || calls != 2 {
+		t.Fatalf("LoadAll returned %v after %d calls, want stop after 2", err, calls)
+	}
+	if _, err := s.Load("b"); !errors.Is(err, ErrNotFound) {
+		t.Fatalf("b not deleted: %v", err)
+	}
+}
+
+func TestCloseIdempotent(t *testing.T) {
+	s, err := Open(t.TempDir(), NoSync())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := s.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if err := s.Close(); err != nil {
+		t.Fatalf("second Close: %v", err)
+	}
+	if _, err := s.Load("x"); !errors.Is(err, ErrClosed) {
+		t.Fatalf("Load after Close: %v, want ErrClosed", err)
+	}
+	if err := s.Save([]*series.Snapshot{{Topic: "x"}}); !errors.Is(err, ErrClosed) {
+		t.Fatalf("Save after Close: %v, want ErrClosed", err)
+	}
+}
+
+// Concurrent saves and loads (run with -race).
+func TestStoreConcurrent(t *testing.T) {
+	s := openTest(t, NoSync())
+	var wg sync.WaitGroup
+	for w := range 4 {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			r := rand.New(rand.NewPCG(uint64(w), 99))
+			for i := range 20 {
+				snap := randomSnapshot(r, 50)
+				snap.Topic = string(rune('a' + w))
+				snap.Seq = uint64(i)
+				if err := s.Save([]*series.Snapshot{snap}); err != nil {
+					t.Error(err)
+					return
+				}
+				got, err := s.Load(snap.Topic)
+				if err != nil || got.Seq != uint64(i) {
+					t.Errorf("worker %d: Load = %v, %v", w, got, err)
+					return
+				}
+			}
+		}()
+	}
+	wg.Wait()
+}
+
+// BenchmarkSave is one flush: 1000 series with 2000-bucket windows in one
+// transaction, fsynced on commit (the default).
+func BenchmarkSave(b *testing.B) {
+	for _, sync := range []bool{true, false} {
+		name := "fsync"
+		var opts []Option
+		if !sync {
+			name, opts = "nosync", []Option{NoSync()}
+		}
+		b.Run(name, func(b *testing.B) {
+			s := openTest(b, opts...)
+			batch := make([]*series.Snapshot, 1000)
+			total := 0
+			for i := range batch {
+				snap := *window2000()
+				snap.Topic = "bench.series." + strings.Repeat("x", i%7) + string(rune('a'+i%26)) + string(rune('a'+i/26))
+				batch[i] = &snap
+				total += EncodedLen(&snap)
+			}
+			b.SetBytes(int64(total))
+			b.ReportAllocs()
+			for b.Loop() {
+				if err := s.Save(batch); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
