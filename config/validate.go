@@ -90,10 +90,8 @@ type validator struct {
 // add records a problem at path, unless the value at path (or inside it)
 // could not be decoded: that has been reported already.
 func (v *validator) add(path, format string, args ...any) {
-	for f := range v.failed {
-		if f == path || strings.HasPrefix(f, path+".") || strings.HasPrefix(f, path+"[") {
-			return
-		}
+	if v.isFailed(path) {
+		return
 	}
 	p := Problem{Path: path, Msg: fmt.Sprintf(format, args...)}
 	for k := path; k != ""; k = parentPath(k) {
@@ -103,6 +101,17 @@ func (v *validator) add(path, format string, args ...any) {
 		}
 	}
 	v.probs = append(v.probs, p)
+}
+
+// isFailed reports whether the value at path, or one inside it, could
+// not be decoded.
+func (v *validator) isFailed(path string) bool {
+	for f := range v.failed {
+		if f == path || strings.HasPrefix(f, path+".") || strings.HasPrefix(f, path+"[") {
+			return true
+		}
+	}
+	return false
 }
 
 // parentPath strips the last key or index: "a.b[2]" → "a.b" → "a" → "".
@@ -119,8 +128,8 @@ func (c *Config) validate(failed map[string]bool) []Problem {
 	v := &validator{c: c, failed: failed}
 	v.nats()
 	v.intake()
-	if err := ValidTopic(c.Output.Prefix); err != nil {
-		v.add("output.prefix", "%v", err)
+	if why := checkSubject(c.Output.Prefix, false); why != "" {
+		v.add("output.prefix", "%q is not a valid subject prefix: %s", clip(c.Output.Prefix), why)
 	}
 	v.state()
 	if c.HTTP.Listen != "" {
@@ -138,6 +147,16 @@ func (c *Config) validate(failed map[string]bool) []Problem {
 		v.alert(i, names)
 	}
 	return v.probs
+}
+
+// pattern reports whether s is a valid subject pattern, recording a
+// problem if it is not.
+func (v *validator) pattern(path, s string) bool {
+	if why := checkSubject(s, true); why != "" {
+		v.add(path, "%q is not a valid subject pattern: %s", clip(s), why)
+		return false
+	}
+	return true
 }
 
 func (v *validator) oneOf(path, got string, allowed ...string) {
@@ -210,7 +229,7 @@ func (v *validator) nats() {
 		}
 		return
 	}
-	if (n.User == "") != (n.Password == "") {
+	if (n.User == "") != (n.Password == "") && !v.isFailed("nats.user") && !v.isFailed("nats.password") {
 		if n.User == "" {
 			v.add("nats.password", "needs nats.user")
 		} else {
@@ -252,8 +271,7 @@ func (v *validator) intake() {
 	out := v.c.Output.Prefix + ".>"
 	for i, s := range in.Subjects {
 		path := fmt.Sprintf("intake.subjects[%d]", i)
-		if err := ValidPattern(s); err != nil {
-			v.add(path, "%v", err)
+		if !v.pattern(path, s) {
 			continue
 		}
 		if pre := subjectPrefix(s); pre == "" || pre == s {
@@ -324,9 +342,7 @@ var (
 func (v *validator) series(i int) {
 	s := &v.c.Series[i]
 	p := fmt.Sprintf("series[%d]", i)
-	if err := ValidPattern(s.Match); err != nil {
-		v.add(p+".match", "%v", err)
-	} else {
+	if v.pattern(p+".match", s.Match) {
 		for j := range i {
 			if o := v.c.Series[j]; ValidPattern(o.Match) == nil && patternCovers(o.Match, s.Match) {
 				v.add(p+".match", "never applies: series[%d] (match %q) comes first and takes every topic %q matches", j, o.Match, s.Match)
@@ -341,7 +357,7 @@ func (v *validator) series(i int) {
 			v.add(p+".step", "%v is not a whole number of seconds", s.Step)
 		case s.Step > maxStep:
 			v.add(p+".step", "%v is more than %v", s.Step, maxStep)
-		case s.Horizon > 0 && s.Horizon <= MaxHorizon && time.Duration(s.Horizon)*s.Step > maxHorizonSpan:
+		case float64(s.Horizon)*s.Step.Hours() > maxHorizonSpan.Hours():
 			v.add(p+".horizon", "%d steps of %v reach more than 100 years ahead", s.Horizon, s.Step)
 		}
 	}
@@ -450,10 +466,8 @@ func (v *validator) alert(i int, names map[string]int) {
 	validMatch := false
 	if a.Match == "" {
 		v.add(p+".match", "required")
-	} else if err := ValidPattern(a.Match); err != nil {
-		v.add(p+".match", "%v", err)
 	} else {
-		validMatch = true
+		validMatch = v.pattern(p+".match", a.Match)
 	}
 	switch {
 	case a.Above == nil && a.Below == nil:

@@ -1,0 +1,393 @@
+package config
+
+import (
+	"errors"
+	"flag"
+	"os"
+	"reflect"
+	"strings"
+	"testing"
+	"time"
+)
+
+var update = flag.Bool("update", false, "rewrite the golden files under testdata/")
+
+// problemsOf parses src and returns its problems; it fails the test if
+// the error is not an *Errors.
+func problemsOf(t *testing.T, src string) []Problem {
+	t.Helper()
+	_, err := Parse([]byte(src), "t.yaml")
+	if err == nil {
+		return nil
+	}
+	var e *Errors
+	if !errors.As(err, &e) {
+		t.Fatalf("error %v (%T) is not a *config.Errors", err, err)
+	}
+	if !errors.Is(err, ErrInvalid) {
+		t.Errorf("error does not wrap ErrInvalid")
+	}
+	return e.Problems
+}
+
+func TestDefaultIsFreshAndValid(t *testing.T) {
+	a := Default()
+	a.Series[0].Levels[0] = 1
+	a.Intake.Subjects[0] = "x.>"
+	b := Default()
+	if b.Series[0].Levels[0] != 80 || b.Intake.Subjects[0] != "metrics.>" {
+		t.Fatal("Default shares mutable state between calls")
+	}
+	if err := b.Validate(); err != nil {
+		t.Fatalf("Default() is not valid: %v", err)
+	}
+	// The zero Config is valid: every zero field means a default.
+	if err := (&Config{}).Validate(); err != nil {
+		t.Fatalf("zero Config is not valid: %v", err)
+	}
+}
+
+// The documented defaults, CONTRACT.md §2 and the field comments.
+func TestEmptyFileGivesDefaults(t *testing.T) {
+	for _, src := range []string{"", "# only a comment\n", "{}", "nats:\nseries:\n"} {
+		c, err := Parse([]byte(src), "empty.yaml")
+		if err != nil {
+			t.Fatalf("%q: %v", src, err)
+		}
+		c.pos, c.file = nil, ""
+		want := Default()
+		if !reflect.DeepEqual(c, want) {
+			t.Errorf("%q:\n got %+v\nwant %+v", src, c, want)
+		}
+	}
+	d := Default()
+	s := d.Series[0]
+	checks := []struct {
+		name     string
+		got, exp any
+	}{
+		{"nats.url", d.NATS.URL, ""},
+		{"nats.listen", d.NATS.Listen, "127.0.0.1:4222"},
+		{"intake.subjects", d.Intake.Subjects, []string{"metrics.>"}},
+		{"intake.durable", d.Intake.Durable, true},
+		{"output.prefix", d.Output.Prefix, "forewarn"},
+		{"state.dir", d.State.Dir, "./forewarn-data"},
+		{"http.listen", d.HTTP.Listen, "127.0.0.1:8714"},
+		{"series.match", s.Match, ">"},
+		{"series.kind", s.Kind, "gauge"},
+		{"series.step", s.Step, time.Minute},
+		{"series.horizon", s.Horizon, 60},
+		{"series.levels", s.Levels, []float64{80, 95}},
+		{"series.window", s.Window, 2000},
+		{"series.min_points", s.MinPoints, 50},
+		{"series.refit_every", s.RefitEvery, 60},
+		{"series.model", s.Model, "auto"},
+		{"series.transform", s.Transform, "auto"},
+	}
+	for _, c := range checks {
+		if !reflect.DeepEqual(c.got, c.exp) {
+			t.Errorf("default %s = %v, want %v", c.name, c.got, c.exp)
+		}
+	}
+}
+
+func TestWithDefaultsDoesNotChangeReceiver(t *testing.T) {
+	c := &Config{Series: []Series{{Match: "a.>", Levels: []float64{95, 80}, Model: "ARIMA(1, 1, 1)"}}}
+	d := c.WithDefaults()
+	if c.Series[0].Levels[0] != 95 || c.Series[0].Model != "ARIMA(1, 1, 1)" || c.Series[0].Kind != "" {
+		t.Errorf("WithDefaults changed its receiver: %+v", c.Series[0])
+	}
+	got := d.Series[0]
+	if !reflect.DeepEqual(got.Levels, []float64{80, 95}) || got.Model != "ARIMA(1,1,1)" || got.Kind != "gauge" || got.Step != time.Minute {
+		t.Errorf("WithDefaults gave %+v", got)
+	}
+}
+
+func TestLoadFull(t *testing.T) {
+	c, err := Load("testdata/full.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c.NATS.URL != "tls://bus-1.example.net:4222, tls://bus-2.example.net:4222" || c.NATS.TLS.ServerName != "bus.example.net" {
+		t.Errorf("nats: %+v", c.NATS)
+	}
+	if c.Intake.MaxBytes != 2<<30 || c.Intake.MaxAge != 72*time.Hour || c.Intake.Stream != "TELEMETRY_IN" {
+		t.Errorf("intake: %+v", c.Intake)
+	}
+	if c.Limits.MaxPayloadBytes != 32<<10 || c.Limits.MaxPast != 720*time.Hour {
+		t.Errorf("limits: %+v", c.Limits)
+	}
+	if c.State.FlushInterval != 500*time.Millisecond || c.Refit.Workers != 3 || c.Log.Format != "json" {
+		t.Errorf("state/refit/log: %+v %+v %+v", c.State, c.Refit, c.Log)
+	}
+	if len(c.Series) != 3 {
+		t.Fatalf("%d series entries, want 3", len(c.Series))
+	}
+	s0 := c.Series[0]
+	want0 := Series{Match: "shop.*.orders", Kind: "counter", Step: time.Hour, Horizon: 48,
+		Levels: []float64{50, 80, 95}, Window: 2400, MinPoints: 72, RefitEvery: 24,
+		Model: "ARIMA(0,1,1)(0,1,1)[24]", Transform: "log", CloseAfter: 90 * time.Second, Line: 45}
+	if !reflect.DeepEqual(s0, want0) {
+		t.Errorf("series[0]:\n got %+v\nwant %+v", s0, want0)
+	}
+	if s1 := c.Series[1]; s1.Step != 5*time.Minute || s1.Horizon != 288 || s1.Window != 2000 || s1.Transform != "boxcox(0.5)" || s1.Line != 56 {
+		t.Errorf("series[1]: %+v", s1)
+	}
+	a0, a1 := c.Alerts[0], c.Alerts[1]
+	if v, above := a0.Threshold(); !above || v != 9e11 || a0.Within != 6*time.Hour || a0.ResolveProbability != 0.45 || a0.Line != 62 {
+		t.Errorf("alerts[0]: %+v", a0)
+	}
+	if v, above := a1.Threshold(); above || v != 100 || a1.ResolveProbability != 0.3 || a1.Line != 67 {
+		t.Errorf("alerts[1]: %+v", a1)
+	}
+}
+
+func TestLoadMinimal(t *testing.T) {
+	c, err := Load("testdata/minimal.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, ok := c.SeriesFor("shop.eu.orders")
+	if !ok || s.Kind != "counter" || s.Step != time.Hour || s.Horizon != 60 {
+		t.Errorf("SeriesFor(shop.eu.orders) = %+v, %v", s, ok)
+	}
+	s, ok = c.SeriesFor("storage.vol1.used_bytes")
+	if !ok || s.Match != ">" || s.Kind != "gauge" {
+		t.Errorf("SeriesFor(storage...) = %+v, %v", s, ok)
+	}
+}
+
+func TestLoadMissingFile(t *testing.T) {
+	_, err := Load("testdata/no-such-file.yaml")
+	if !errors.Is(err, os.ErrNotExist) || !strings.Contains(err.Error(), "no-such-file.yaml") {
+		t.Errorf("Load of a missing file: %v", err)
+	}
+}
+
+// A file with many problems reports them all at once, in source order,
+// formatted FILE:LINE:COL: path: message.
+func TestManyProblemsAtOnce(t *testing.T) {
+	_, err := Load("testdata/many-problems.yaml")
+	if err == nil {
+		t.Fatal("no error")
+	}
+	got := err.Error() + "\n"
+	const golden = "testdata/many-problems.golden"
+	if *update {
+		if err := os.WriteFile(golden, []byte(got), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, rerr := os.ReadFile(golden)
+	if rerr != nil {
+		t.Fatal(rerr)
+	}
+	if got != string(want) {
+		t.Errorf("got:\n%s\nwant:\n%s", got, want)
+	}
+	var e *Errors
+	errors.As(err, &e)
+	if len(e.Problems) < 20 {
+		t.Errorf("only %d problems reported", len(e.Problems))
+	}
+	for i := 1; i < len(e.Problems); i++ {
+		if e.Problems[i].Line < e.Problems[i-1].Line {
+			t.Errorf("problems out of order at %d: %+v after %+v", i, e.Problems[i], e.Problems[i-1])
+		}
+	}
+}
+
+func TestErrorFormat(t *testing.T) {
+	e := &Errors{File: "f.yaml", Problems: []Problem{
+		{Line: 3, Column: 7, Path: "a.b", Msg: "bad"},
+		{Line: 4, Msg: "syntax"},
+		{Path: "c", Msg: "no position"},
+	}}
+	want := "f.yaml:3:7: a.b: bad\nf.yaml:4: syntax\nf.yaml: c: no position"
+	if e.Error() != want {
+		t.Errorf("got %q, want %q", e.Error(), want)
+	}
+	e.File = ""
+	if got := e.Error(); got != "3:7: a.b: bad\n4: syntax\nc: no position" {
+		t.Errorf("without a file: %q", got)
+	}
+}
+
+// One case a rule: the source, then the one problem expected, by line,
+// path and a part of its message.
+func TestValidationRules(t *testing.T) {
+	cases := []struct {
+		name string
+		src  string
+		line int
+		path string
+		msg  string
+	}{
+		// decoding
+		{"unknown top key", "nats: {}\nbogus: 1\n", 2, "bogus", "unknown key"},
+		{"unknown key suggestion", "series:\n  - match: \">\"\n    horizn: 5\n", 3, "series[0].horizn", `did you mean "horizon"`},
+		{"duplicate key", "log:\n  level: info\n  level: warn\n", 3, "log.level", "given twice"},
+		{"section not a mapping", "nats: [1, 2]\n", 1, "nats", "expected a mapping"},
+		{"string given a number", "nats:\n  password: 12345\n  url: nats://h:4222\n  user: u\n", 2, "nats.password", "put it in quotes"},
+		{"bool given a word", "intake:\n  durable: yes\n", 2, "intake.durable", "expected true or false"},
+		{"int given a float", "refit:\n  workers: 2.5\n", 2, "refit.workers", "whole number"},
+		{"int too large", "limits:\n  max_series: 99999999999999\n", 2, "limits.max_series", "whole number"},
+		{"duration bare number", "state:\n  flush_interval: 5\n", 2, "state.flush_interval", "has no unit"},
+		{"duration garbage", "state:\n  flush_interval: soon\n", 2, "state.flush_interval", "is not a duration"},
+		{"size garbage", "intake:\n  max_bytes: lots\n", 2, "intake.max_bytes", "expected a size"},
+		{"size overflow", "intake:\n  max_bytes: 99999999TiB\n", 2, "intake.max_bytes", "expected a size"},
+		{"number not finite", "alerts:\n  - {name: a, match: x.y, above: .inf, within: 1m, probability: 0.5}\n", 2, "alerts[0].above", "finite"},
+		{"list given a scalar", "intake:\n  subjects: metrics.>\n", 2, "intake.subjects", "expected a list"},
+		{"merge key", "base: &b {kind: gauge}\n", 1, "base", "unknown key"},
+		{"merge key in series", "series:\n  - <<: {kind: gauge}\n    match: \">\"\n", 2, "series[0]", "merge keys"},
+		{"second document", "log: {level: info}\n---\nlog: {level: warn}\n", 2, "", "second YAML document"},
+		{"syntax", "nats:\n  url: [\n", 2, "", "YAML syntax"},
+		// nats
+		{"listen not host:port", "nats:\n  listen: localhost\n", 2, "nats.listen", "host:port"},
+		{"listen bad port", "nats:\n  listen: \"127.0.0.1:99999\"\n", 2, "nats.listen", "0..65535"},
+		{"url not a url", "nats:\n  url: \"just words\"\n", 2, "nats.url", "not a server URL"},
+		{"url scheme", "nats:\n  url: \"http://h:4222\"\n", 2, "nats.url", "scheme"},
+		{"password without user", "nats:\n  url: nats://h:4222\n  password: p\n", 3, "nats.password", "needs nats.user"},
+		{"two auth methods", "nats:\n  url: nats://h:4222\n  token: t\n  creds_file: c.creds\n", 4, "nats.creds_file", "choose one"},
+		{"cert without key", "nats:\n  url: tls://h:4222\n  tls: {cert_file: c.pem}\n", 3, "nats.tls.cert_file", "needs nats.tls.key_file"},
+		{"credentials on embedded", "nats:\n  creds_file: c.creds\n", 2, "nats.creds_file", "external server"},
+		{"sync_always on external", "nats:\n  url: nats://h:4222\n  sync_always: true\n", 3, "nats.sync_always", "embedded server only"},
+		// intake, output
+		{"subject without wildcard", "intake:\n  subjects: [metrics.cpu]\n", 2, "intake.subjects[0]", "literal tokens then a wildcard"},
+		{"subject all wildcard", "intake:\n  subjects: [\">\"]\n", 2, "intake.subjects[0]", "literal tokens then a wildcard"},
+		{"subject bad", "intake:\n  subjects: [\"metrics.>.x\"]\n", 2, "intake.subjects[0]", "last token"},
+		{"subjects overlap", "intake:\n  subjects: [\"a.>\", \"a.*.b\"]\n", 2, "intake.subjects[1]", "overlaps intake.subjects[0]"},
+		{"subject eats output", "intake:\n  subjects: [\"forewarn.>\"]\n", 2, "intake.subjects[0]", "own output"},
+		{"stream name", "intake:\n  stream: \"my.stream\"\n", 2, "intake.stream", "contains one of"},
+		{"consumer name", "intake:\n  consumer: \"a b\"\n", 2, "intake.consumer", "white space"},
+		{"max_age negative", "intake:\n  max_age: -1h\n", 2, "intake.max_age", "positive"},
+		{"max_age tiny", "intake:\n  max_age: 10ms\n", 2, "intake.max_age", "less than a second"},
+		{"max_bytes below payload", "intake:\n  max_bytes: 1000\n", 2, "intake.max_bytes", "smaller than limits.max_payload_bytes"},
+		{"prefix wildcard", "output:\n  prefix: \"fw.*\"\n", 2, "output.prefix", "wildcard"},
+		// state, http, log, refit, limits
+		{"flush_interval long", "state:\n  flush_interval: 2h\n", 2, "state.flush_interval", "1ms..1h"},
+		{"flush_max negative", "state:\n  flush_max: -1\n", 2, "state.flush_max", "outside 1..1000000"},
+		{"http listen bad", "http:\n  listen: \"nowhere\"\n", 2, "http.listen", "host:port"},
+		{"log level", "log:\n  level: verbose\n", 2, "log.level", "not one of debug"},
+		{"log format", "log:\n  format: xml\n", 2, "log.format", "not one of auto"},
+		{"workers negative", "refit:\n  workers: -2\n", 2, "refit.workers", "outside 0..1024"},
+		{"max_series huge", "limits:\n  max_series: 20000000\n", 2, "limits.max_series", "outside"},
+		{"max_payload huge", "limits:\n  max_payload_bytes: 1GiB\nintake: {max_bytes: 2GiB}\n", 2, "limits.max_payload_bytes", "outside"},
+		{"max_batch negative", "limits:\n  max_batch: -5\n", 2, "limits.max_batch", "outside"},
+		{"max_window huge", "limits:\n  max_window: 20000000\n", 2, "limits.max_window", "outside"},
+		{"max_future negative", "limits:\n  max_future: -1s\n", 2, "limits.max_future", "positive"},
+		// series
+		{"series match bad", "series:\n  - match: \"a..b\"\n", 2, "series[0].match", "token 2 is empty"},
+		{"series match wildcard inside", "series:\n  - match: \"a.b*\"\n", 2, "series[0].match", "whole token"},
+		{"series shadowed", "series:\n  - match: \"a.>\"\n  - match: \"a.b.c\"\n", 3, "series[1].match", "never applies"},
+		{"kind", "series:\n  - kind: rate\n", 2, "series[0].kind", "not one of gauge, counter"},
+		{"step fraction", "series:\n  - step: 1500ms\n", 2, "series[0].step", "whole number of seconds"},
+		{"step negative", "series:\n  - step: -1m\n", 2, "series[0].step", "positive"},
+		{"step too long", "series:\n  - step: 9000h\n", 2, "series[0].step", "more than"},
+		{"horizon span", "series:\n  - {step: 8000h, horizon: 1000}\n", 2, "series[0].horizon", "100 years"},
+		{"horizon large", "series:\n  - horizon: 1001\n", 2, "series[0].horizon", "outside 1..1000"},
+		{"horizon negative", "series:\n  - horizon: -1\n", 2, "series[0].horizon", "outside 1..1000"},
+		{"level 100", "series:\n  - levels: [80, 100]\n", 2, "series[0].levels", "outside (0, 100)"},
+		{"level zero", "series:\n  - levels: [0.0, 95]\n", 2, "series[0].levels", "outside (0, 100)"},
+		{"level duplicate", "series:\n  - levels: [95, 80, 95]\n", 2, "series[0].levels", "given twice"},
+		{"too many levels", "series:\n  - levels: [1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11]\n", 2, "series[0].levels", "more than 10"},
+		{"level not a number", "series:\n  - levels: [80, high]\n", 2, "series[0].levels[1]", "expected a number"},
+		{"window below min_points", "series:\n  - {window: 40, min_points: 50}\n", 2, "series[0].window", "less than min_points"},
+		{"window above max", "series:\n  - window: 20001\n", 2, "series[0].window", "more than limits.max_window"},
+		{"min_points small", "series:\n  - min_points: 9\n", 2, "series[0].min_points", "less than 10"},
+		{"refit_every negative", "series:\n  - refit_every: -1\n", 2, "series[0].refit_every", "less than 1"},
+		{"model syntax", "series:\n  - model: \"ARMA(1,1)\"\n", 2, "series[0].model", "is not auto"},
+		{"model seasonal syntax", "series:\n  - model: \"ARIMA(0,1,1)(0,1,1)\"\n", 2, "series[0].model", "is not auto"},
+		{"model order", "series:\n  - model: \"ARIMA(11,0,0)\"\n", 2, "series[0].model", "at most 10"},
+		{"model d", "series:\n  - model: \"ARIMA(0,3,1)\"\n", 2, "series[0].model", "d is at most 2"},
+		{"model D", "series:\n  - model: \"ARIMA(0,1,1)(0,2,1)[12]\"\n", 2, "series[0].model", "D is at most 1"},
+		{"model period", "series:\n  - model: \"ARIMA(0,1,1)(0,1,1)[1]\"\n", 2, "series[0].model", "period s"},
+		{"model needs points", "series:\n  - {model: \"ARIMA(1,1,1)(1,1,1)[168]\", window: 5000}\n", 2, "series[0].min_points", "needs at least 175"},
+		{"transform", "series:\n  - transform: sqrt\n", 2, "series[0].transform", "is not one of auto"},
+		{"boxcox lambda", "series:\n  - transform: boxcox(3)\n", 2, "series[0].transform", "λ must be"},
+		{"boxcox lambda nan", "series:\n  - transform: boxcox(NaN)\n", 2, "series[0].transform", "λ must be"},
+		{"close_after negative", "series:\n  - close_after: -5s\n", 2, "series[0].close_after", "not be negative"},
+		// alerts
+		{"alert name missing", "alerts:\n  - {match: x.y, above: 1, within: 1m, probability: 0.5}\n", 2, "alerts[0].name", "required"},
+		{"alert name chars", "alerts:\n  - {name: Disk, match: x.y, above: 1, within: 1m, probability: 0.5}\n", 2, "alerts[0].name", "a-z, 0-9"},
+		{"alert name duplicate", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 0.5}\n  - {name: a, match: x.z, above: 1, within: 1m, probability: 0.5}\n", 3, "alerts[1].name", "also the name of alerts[0]"},
+		{"alert match missing", "alerts:\n  - {name: a, above: 1, within: 1m, probability: 0.5}\n", 2, "alerts[0].match", "required"},
+		{"alert match bad", "alerts:\n  - {name: a, match: \">.x\", above: 1, within: 1m, probability: 0.5}\n", 2, "alerts[0].match", "last token"},
+		{"alert no series", "series: [{match: \"shop.>\"}]\nalerts:\n  - {name: a, match: \"disk.*\", above: 1, within: 1m, probability: 0.5}\n", 3, "alerts[0].match", "no topic that a series entry matches"},
+		{"alert no threshold", "alerts:\n  - {name: a, match: x.y, within: 1m, probability: 0.5}\n", 2, "alerts[0]", "needs a threshold"},
+		{"alert both thresholds", "alerts:\n  - {name: a, match: x.y, above: 1, below: 0, within: 1m, probability: 0.5}\n", 2, "alerts[0].below", "not both"},
+		{"alert within missing", "alerts:\n  - {name: a, match: x.y, above: 1, probability: 0.5}\n", 2, "alerts[0].within", "positive"},
+		{"alert within beyond horizon", "alerts:\n  - {name: a, match: x.y, above: 1, within: 2h, probability: 0.5}\n", 2, "alerts[0].within", "beyond every matching series' horizon (at most 1h0m0s)"},
+		{"alert probability zero", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 0}\n", 2, "alerts[0].probability", "outside (0, 1]"},
+		{"alert probability above 1", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 1.01}\n", 2, "alerts[0].probability", "outside (0, 1]"},
+		{"alert resolve above fire", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 0.5, resolve_probability: 0.5}\n", 2, "alerts[0].resolve_probability", "outside (0, probability 0.5)"},
+		{"alert resolve negative", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 0.5, resolve_probability: -0.1}\n", 2, "alerts[0].resolve_probability", "outside"},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			probs := problemsOf(t, tc.src)
+			if len(probs) != 1 {
+				t.Fatalf("want 1 problem, got %d:\n%v", len(probs), (&Errors{Problems: probs}).Error())
+			}
+			p := probs[0]
+			if p.Line != tc.line || p.Path != tc.path || !strings.Contains(p.Msg, tc.msg) {
+				t.Errorf("got line %d path %q msg %q\nwant line %d path %q msg containing %q", p.Line, p.Path, p.Msg, tc.line, tc.path, tc.msg)
+			}
+		})
+	}
+}
+
+// Values that look odd but are allowed.
+func TestAccepted(t *testing.T) {
+	for _, src := range []string{
+		"series:\n  - close_after: 0\n",                                       // bare 0 is a duration
+		"series:\n  - {horizon: 0, levels: []}\n",                             // zero means default
+		"http:\n  listen: \"\"\n",                                             // empty disables
+		"intake:\n  durable: false\n  stream: \"a.b\"\n",                      // names unused when not durable
+		"series:\n  - model: \"ARIMA(1, 1, 1) (0, 1, 1) [12]\"\n",             // spaces
+		"series:\n  - {model: \"ARIMA(0,1,1)(0,1,1)[24]\", min_points: 29}\n", // exactly enough points
+		"series:\n  - transform: boxcox(-0.5)\n",
+		"nats:\n  url: nats://h:4222\n  user: u\n  password: \"12345\"\n",
+		"limits:\n  max_payload_bytes: \"1 MB\"\n",
+		"series:\n  - &s {match: \">\", step: 5m}\n", // an unused anchor
+	} {
+		if _, err := Parse([]byte(src), "ok.yaml"); err != nil {
+			t.Errorf("%q: %v", src, err)
+		}
+	}
+}
+
+func TestAliases(t *testing.T) {
+	src := "x-common: &common\n  step: 5m\n"
+	if _, err := Parse([]byte(src), ""); err == nil {
+		t.Fatal("an unknown top-level key holding an anchor was accepted")
+	}
+	src = "series:\n  - &one {match: \"a.>\", step: 5m, levels: &lv [50, 90]}\n  - {match: \"b.>\", levels: *lv}\n  - match: \">\"\n"
+	c, err := Parse([]byte(src), "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(c.Series[1].Levels, []float64{50, 90}) {
+		t.Errorf("alias levels: %v", c.Series[1].Levels)
+	}
+}
+
+func TestOverride(t *testing.T) {
+	c, err := Load("testdata/minimal.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	url, dir, bad := "nats://10.0.0.5:4222", "/tmp/fw-data", "nowhere"
+	d, err := c.Override(Overrides{NATSURL: &url, StateDir: &dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d.NATS.URL != url || d.State.Dir != dir || c.NATS.URL != "" {
+		t.Errorf("override: %+v %+v (original %+v)", d.NATS, d.State, c.NATS)
+	}
+	_, err = c.Override(Overrides{HTTPListen: &bad})
+	var e *Errors
+	if !errors.As(err, &e) || len(e.Problems) != 1 || e.Problems[0].Line != 0 || e.Problems[0].Path != "http.listen" {
+		t.Errorf("bad override: %v", err)
+	}
+}
