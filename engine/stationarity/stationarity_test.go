@@ -98,6 +98,12 @@ type pyRefs struct {
 		Nobs                 int
 		Crit1, Crit5, Crit10 float64
 	}
+	NDiffs []struct {
+		Series  string
+		Log     bool
+		D       int
+		Pvalues []float64
+	}
 }
 
 func loadPyRefs(t *testing.T) pyRefs {
@@ -288,6 +294,21 @@ func TestNDiffs(t *testing.T) {
 	}
 	if _, err := NDiffs(ar, 0.2, 2); !errors.Is(err, ErrBadArgument) {
 		t.Errorf("alpha 0.2: %v", err)
+	}
+}
+
+// NDiffs against successive statsmodels 0.13.5 kpss(y, regression="c", nlags=⌊4(n/100)^{1/4}⌋)
+// tests at 5 % on the six reference series (testdata/py/stationarity_refs.py): d = 0, 1 and 2
+// all occur.
+func TestNDiffsStatsmodels(t *testing.T) {
+	refs := loadPyRefs(t)
+	if len(refs.NDiffs) == 0 {
+		t.Fatal("no ndiffs cases")
+	}
+	for _, c := range refs.NDiffs {
+		if d, err := NDiffs(series(t, c.Series, c.Log), 0.05, 2); err != nil || d != c.D {
+			t.Errorf("%s: d = %d, %v; statsmodels KPSS sequence %v gives %d", c.Series, d, err, c.Pvalues, c.D)
+		}
 	}
 }
 

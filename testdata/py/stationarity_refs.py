@@ -46,6 +46,7 @@ def main():
         "kpss": [],
         "mackinnonp": [],
         "mackinnoncrit": [],
+        "ndiffs": [],
     }
     for case, file, takelog in SERIES:
         x = load(file)
@@ -70,6 +71,18 @@ def main():
                     "crit10": crit["10%"], "crit5": crit["5%"],
                     "crit2_5": crit["2.5%"], "crit1": crit["1%"],
                 })
+        # Successive level KPSS tests at 5 %, lag truncation int(4 (n/100)^(1/4)) (the l4 of
+        # Kwiatkowski et al. 1992), at most two differences: the d at which p >= 0.05 first.
+        y, d, pvalues = x, 0, []
+        while True:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                _, p, _, _ = kpss(y, regression="c", nlags=int(4 * (len(y) / 100) ** 0.25))
+            pvalues.append(p)
+            if p >= 0.05 or d == 2:
+                break
+            y, d = np.diff(y), d + 1
+        out["ndiffs"].append({"series": case, "log": takelog, "d": d, "pvalues": pvalues})
     for reg in ("c", "ct"):
         for tau in np.arange(-6.0, 3.01, 0.25):
             out["mackinnonp"].append({"regression": reg, "tau": float(tau),
