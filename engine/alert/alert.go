@@ -196,31 +196,43 @@ func (e *Evaluator) Probability(q *Query, joint func(cov []float64)) (p float64,
 	}
 	c := sign * q.Threshold
 
-	// One pass: validate, find eta, and test the union bound on 1..k.
-	// far stays true while every step j ≤ k has d_j = c' − m'_j > 0 and
-	// d_j² ≥ zSkip[k]²·v_j, i.e. P_j ≤ Negligible/k.
+	// Validate: x − x + v − v is 0 for finite x, v and NaN otherwise, so the
+	// sum is 0 exactly when every value is finite (IEEE 754).
+	mean, variance := q.Mean[:h], q.Variance[:h]
+	bad, minV := 0.0, 0.0
+	for j, mj := range mean {
+		vj := variance[j]
+		bad += mj - mj + vj - vj
+		if vj < minV {
+			minV = vj
+		}
+	}
+	if bad != 0 || minV < 0 {
+		return 0, 0, badInput(mean, variance)
+	}
+	for j, mj := range mean {
+		if sign*mj > c {
+			etaStep = j + 1
+			break
+		}
+	}
+
+	// Union-bound test on 1..k: far while every step has d_j = c' − m'_j > 0
+	// and d_j² ≥ zSkip[k]²·v_j, i.e. P_j ≤ Negligible/k. (bestD, bestV) is
+	// the step with the smallest d/√v, compared without division.
 	zs := e.zSkip[k]
 	zs2 := zs * zs
 	far := true
-	bestD, bestV := math.Inf(1), 1.0 // step with the smallest d/√v so far
-	for j := 0; j < h; j++ {
-		mj, vj := q.Mean[j], q.Variance[j]
-		if !finite(mj) || !finite(vj) {
-			return 0, 0, fmt.Errorf("alert: probability: step %d mean %v variance %v: %w", j+1, mj, vj, ErrNotFinite)
-		}
-		if vj < 0 {
-			return 0, 0, fmt.Errorf("alert: probability: step %d variance %v: %w", j+1, vj, ErrNegativeVariance)
-		}
+	bestD, bestV := math.Inf(1), 1.0
+	for j, mj := range mean[:k] {
+		vj := variance[j]
 		d := c - sign*mj
-		if etaStep == 0 && d < 0 {
-			etaStep = j + 1
+		if d <= 0 || d*d < zs2*vj {
+			far = false
+			break
 		}
-		if j < k && far {
-			if d <= 0 || d*d < zs2*vj {
-				far = false
-			} else if d*d*bestV < bestD*bestD*vj {
-				bestD, bestV = d, vj
-			}
+		if d*d*bestV < bestD*bestD*vj {
+			bestD, bestV = d, vj
 		}
 	}
 
@@ -267,6 +279,21 @@ func (e *Evaluator) Probability(q *Query, joint func(cov []float64)) (p float64,
 	p = math.Max(lo, math.Min(hi, p))
 	e.method = MethodSimulation
 	return p, etaStep, nil
+}
+
+// badInput builds the error for the first mean or variance that is not
+// finite, or the first negative variance.
+func badInput(mean, variance []float64) error {
+	for j, mj := range mean {
+		vj := variance[j]
+		if !finite(mj) || !finite(vj) {
+			return fmt.Errorf("alert: probability: step %d mean %v variance %v: %w", j+1, mj, vj, ErrNotFinite)
+		}
+		if vj < 0 {
+			return fmt.Errorf("alert: probability: step %d variance %v: %w", j+1, vj, ErrNegativeVariance)
+		}
+	}
+	panic("alert: badInput called on valid input")
 }
 
 // simulate estimates p = P(max_{j≤k} W'_j > c') with W' = m' + L z by the
@@ -332,7 +359,9 @@ func tail(d, v float64) float64 {
 // upperQuantile returns z with Q(z) = p, Q the standard normal upper tail.
 func upperQuantile(p float64) float64 { return math.Sqrt2 * math.Erfcinv(2*p) }
 
-func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+// finite reports whether x is neither NaN nor ±Inf: x − x is 0 for finite
+// x and NaN otherwise (IEEE 754). Written this way it inlines.
+func finite(x float64) bool { return x-x == 0 }
 
 // deriveSeed hashes the inputs that define the simulated distribution
 // (splitmix64 finaliser over the bit patterns), so equal queries give
