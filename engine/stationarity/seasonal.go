@@ -74,7 +74,10 @@ func SeasonalStrength(x []float64, period int) (float64, error) {
 				m++
 			}
 		}
-		figure[i] = s / float64(m) // m ≥ 1: two full periods leave each position defined once
+		if m == 0 { // only with missing values: two full periods define every position once
+			return 0, fmt.Errorf("stationarity: seasonal strength: no defined value at cycle position %d: %w", i, ErrTooShort)
+		}
+		figure[i] = s / float64(m)
 		centre += figure[i]
 	}
 	centre /= float64(period)

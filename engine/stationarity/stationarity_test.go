@@ -364,6 +364,13 @@ func TestBadInput(t *testing.T) {
 	if _, err := SeasonalStrength(nile[:20], 12); !errors.Is(err, ErrTooShort) {
 		t.Errorf("SeasonalStrength short: %v", err)
 	}
+	gappy := append([]float64(nil), nile[:24]...)
+	for i := 0; i < 24; i += 4 {
+		gappy[i] = math.NaN() // cycle position 0 of period 4 never defined
+	}
+	if f, err := SeasonalStrength(gappy, 4); !errors.Is(err, ErrTooShort) {
+		t.Errorf("SeasonalStrength with an undefined cycle position: %v, %v", f, err)
+	}
 	if _, err := SeasonalStrength(nile, 1); !errors.Is(err, ErrBadArgument) {
 		t.Errorf("SeasonalStrength period 1: %v", err)
 	}

@@ -21,6 +21,10 @@ var (
 	// ErrTooShort is returned by Guerrero when the series has fewer than two usable subseries.
 	ErrTooShort = errors.New("transform: series too short")
 
+	// ErrConstant is returned by Guerrero when the subseries have no variation, so that no λ
+	// is better than another.
+	ErrConstant = errors.New("transform: series has no variation")
+
 	// ErrBadArgument is returned for an unusable argument other than the data, such as an
 	// empty or non-finite λ interval.
 	ErrBadArgument = errors.New("transform: bad argument")

@@ -19,7 +19,7 @@ import (
 // around the best grid point (deterministic).
 //
 // Errors: ErrBadArgument for an empty or non-finite interval, ErrDomain for a value ≤ 0 or
-// ±Inf, ErrTooShort for fewer than two usable subseries.
+// ±Inf, ErrTooShort for fewer than two usable subseries, ErrConstant when no subseries varies.
 //
 // References:
 //   - Guerrero, V. M. (1993). Time-series analysis supported by power transformations.
@@ -65,6 +65,9 @@ func Guerrero(x []float64, period int, lower, upper float64) (float64, error) {
 		if v := cv(lower + float64(i)*step); v < bestv {
 			best, bestv = i, v
 		}
+	}
+	if math.IsInf(bestv, 1) {
+		return 0, fmt.Errorf("transform: guerrero: subseries without variation: %w", ErrConstant)
 	}
 	a := lower + float64(max(best-1, 0))*step
 	b := lower + float64(min(best+1, grid-1))*step

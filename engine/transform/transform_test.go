@@ -436,6 +436,9 @@ func TestGuerreroErrors(t *testing.T) {
 	if _, err := Guerrero([]float64{1, 2, 0, 4}, 2, -1, 2); !errors.Is(err, ErrDomain) {
 		t.Errorf("zero value: %v", err)
 	}
+	if _, err := Guerrero([]float64{5, 5, 5, 5, 5, 5}, 3, -1, 2); !errors.Is(err, ErrConstant) {
+		t.Errorf("constant: %v", err)
+	}
 	if _, err := Guerrero([]float64{1, 2, 3}, 2, -1, 2); !errors.Is(err, ErrTooShort) {
 		t.Errorf("short: %v", err)
 	}

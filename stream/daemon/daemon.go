@@ -1,0 +1,693 @@
+package daemon
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"hash/fnv"
+	"log/slog"
+	"math"
+	"runtime"
+	"sync"
+	"time"
+
+	"github.com/nats-io/nats.go"
+
+	"forewarn/config"
+	"forewarn/engine/alert"
+	"forewarn/engine/series"
+	"forewarn/state"
+	"forewarn/stream"
+)
+
+// Options are the parts a Daemon runs on. Config, Conn and Store are
+// required.
+type Options struct {
+	Config *config.Config
+	Conn   *nats.Conn
+	Store  *state.Store
+	Logger *slog.Logger
+	// Now is the wall clock, for arrival stamps and "issued" times.
+	// Nil means time.Now.
+	Now func() time.Time
+	// OnForecast and OnAlert, when set, are called on the loop goroutine
+	// after each publication (the demo prints lines from them). They must
+	// not block and must not keep the values.
+	OnForecast func(f *series.Forecast)
+	OnAlert    func(e *series.AlertEvent)
+}
+
+// Daemon ties the intake, the series, the state store and the publisher
+// together. One loop goroutine owns every series; refits run in a bounded
+// pool of workers.
+type Daemon struct {
+	opt     Options
+	cfg     *config.Config
+	log     *slog.Logger
+	now     func() time.Time
+	store   *state.Store
+	pub     *stream.Publisher
+	intake  *stream.Intake
+	limits  stream.Limits
+	metrics *Metrics
+
+	batches chan []stream.Message
+	handled chan struct{}
+	results chan fitDone
+	jobs    chan fitTask
+	inspect chan func()
+
+	// Loop-owned.
+	series    map[string]*entry
+	busy      int // series waiting for a refit
+	sinceSave int
+	obsBuf    []stream.Observation
+	encBuf    []byte
+	lastSeq   uint64 // highest stream position handled
+	acked     uint64
+	evaluator *alert.Evaluator
+	cov       []float64
+
+	mu     sync.RWMutex
+	latest map[string][]byte // latest forecast JSON per topic, for queries
+
+	ready chan struct{}
+}
+
+// entry is one live series and its bookkeeping on the loop.
+type entry struct {
+	s       *series.Series
+	rules   []rule
+	busy    bool
+	pending []pendingObs
+	dirty   bool
+	rejects uint64
+	seen    time.Time // wall time of the last observation, for close_after
+	refits  []int64   // bucket indices of recent refits, for charts
+}
+
+type pendingObs struct {
+	seq     uint64
+	index   int
+	t       int64
+	v       float64
+	subject string
+	recv    time.Time
+}
+
+type rule struct {
+	cfg    config.Alert
+	above  bool
+	window int // steps
+}
+
+type fitTask struct {
+	topic string
+	job   *series.FitJob
+}
+
+type fitDone struct {
+	topic  string
+	result series.FitResult
+}
+
+// New builds a daemon; Run starts it.
+func New(o Options) (*Daemon, error) {
+	if o.Config == nil || o.Conn == nil || o.Store == nil {
+		return nil, errors.New("daemon: Config, Conn and Store are required")
+	}
+	if o.Logger == nil {
+		o.Logger = slog.Default()
+	}
+	if o.Now == nil {
+		o.Now = time.Now
+	}
+	c := o.Config
+	in, err := stream.NewIntake(o.Conn, stream.IntakeOptions{
+		Subjects: c.Intake.Subjects,
+		Durable:  c.Intake.Durable,
+		Stream:   c.Intake.Stream,
+		Consumer: c.Intake.Consumer,
+		MaxAge:   c.Intake.MaxAge,
+		MaxBytes: c.Intake.MaxBytes,
+	})
+	if err != nil {
+		return nil, err
+	}
+	maxH := 1
+	for _, s := range c.Series {
+		maxH = max(maxH, s.Horizon)
+	}
+	d := &Daemon{
+		opt:       o,
+		cfg:       c,
+		log:       o.Logger,
+		now:       o.Now,
+		store:     o.Store,
+		pub:       stream.NewPublisher(o.Conn, c.Output.Prefix),
+		intake:    in,
+		limits:    stream.Limits{MaxPayload: c.Limits.MaxPayloadBytes, MaxBatch: c.Limits.MaxBatch, MaxFuture: c.Limits.MaxFuture, MaxPast: c.Limits.MaxPast},
+		metrics:   NewMetrics(),
+		batches:   make(chan []stream.Message),
+		handled:   make(chan struct{}),
+		results:   make(chan fitDone, 64),
+		jobs:      make(chan fitTask, 1024),
+		inspect:   make(chan func()),
+		series:    make(map[string]*entry),
+		latest:    make(map[string][]byte),
+		evaluator: alert.NewEvaluator(maxH, 0),
+		ready:     make(chan struct{}),
+	}
+	return d, nil
+}
+
+// Metrics returns the daemon's metrics, for the HTTP endpoint.
+func (d *Daemon) Metrics() *Metrics { return d.metrics }
+
+// Ready is closed once the state is loaded and intake runs.
+func (d *Daemon) Ready() <-chan struct{} { return d.ready }
+
+// Latest returns the latest forecast message of topic. Safe for
+// concurrent use.
+func (d *Daemon) Latest(topic string) ([]byte, bool) {
+	d.mu.RLock()
+	b, ok := d.latest[topic]
+	d.mu.RUnlock()
+	return b, ok
+}
+
+// Inspect runs fn on the loop goroutine, where it may read (not keep) the
+// series; it returns false when the daemon is not running.
+func (d *Daemon) Inspect(ctx context.Context, fn func(all map[string]*Entry)) bool {
+	done := make(chan struct{})
+	f := func() {
+		defer close(done)
+		view := make(map[string]*Entry, len(d.series))
+		for k, e := range d.series {
+			view[k] = &Entry{e: e}
+		}
+		fn(view)
+	}
+	select {
+	case d.inspect <- f:
+	case <-ctx.Done():
+		return false
+	}
+	<-done
+	return true
+}
+
+// Run loads the state, starts the refit workers, the intake and the query
+// responder, and processes messages until ctx is cancelled. It then stops
+// the intake, finishes refits in flight, applies what waited on them,
+// writes the state and acknowledges it.
+func (d *Daemon) Run(ctx context.Context) error {
+	if err := d.load(); err != nil {
+		return err
+	}
+	workers := d.cfg.Refit.Workers
+	if workers <= 0 {
+		workers = runtime.NumCPU()
+	}
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for t := range d.jobs {
+				d.results <- fitDone{topic: t.topic, result: t.job.Run()}
+			}
+		}()
+	}
+	sub, err := stream.ServeQueries(d.opt.Conn, d.cfg.Output.Prefix, d.Latest)
+	if err != nil {
+		close(d.jobs)
+		wg.Wait()
+		return err
+	}
+	defer sub.Unsubscribe()
+
+	intakeCtx, stopIntake := context.WithCancel(context.Background())
+	intakeErr := make(chan error, 1)
+	go func() {
+		intakeErr <- d.intake.Run(intakeCtx, func(batch []stream.Message) {
+			select {
+			case d.batches <- batch:
+				<-d.handled
+			case <-intakeCtx.Done():
+			}
+		})
+	}()
+	close(d.ready)
+
+	flushEvery := d.cfg.State.FlushInterval
+	if flushEvery <= 0 {
+		flushEvery = time.Second
+	}
+	tick := time.NewTicker(flushEvery)
+	defer tick.Stop()
+	var runErr error
+loop:
+	for {
+		select {
+		case <-ctx.Done():
+			break loop
+		case err := <-intakeErr:
+			runErr = err
+			intakeErr = nil
+			break loop
+		case batch := <-d.batches:
+			d.handleBatch(batch)
+			d.handled <- struct{}{}
+			if d.sinceSave >= d.cfg.State.FlushMax {
+				d.flush()
+			}
+		case r := <-d.results:
+			d.finishFit(r)
+		case <-tick.C:
+			d.closeIdle()
+			d.flush()
+		case fn := <-d.inspect:
+			fn()
+		}
+	}
+
+	// Shutdown: stop intake first (a batch in hand is still handled), then
+	// finish the refits in flight, then persist and acknowledge.
+	stopIntake()
+	for intakeErr != nil {
+		select {
+		case batch := <-d.batches:
+			d.handleBatch(batch)
+			d.handled <- struct{}{}
+		case err := <-intakeErr:
+			if err != nil && !errors.Is(err, context.Canceled) && runErr == nil {
+				runErr = err
+			}
+			intakeErr = nil
+		}
+	}
+	for d.busy > 0 {
+		d.finishFit(<-d.results)
+	}
+	close(d.jobs)
+	wg.Wait()
+	d.flush()
+	d.pub.Flush()
+	return runErr
+}
+
+// load restores every persisted series. A record that cannot be read
+// affects only its own series, which starts afresh (and, with a durable
+// intake, is rebuilt from what the stream still holds).
+func (d *Daemon) load() error {
+	var minSeq uint64
+	err := d.store.LoadAll(func(topic string, snap *series.Snapshot, err error) error {
+		if err != nil {
+			d.log.Warn("state record unreadable; the series starts afresh", "topic", topic, "err", err)
+			d.metrics.StateResets.Inc()
+			return nil
+		}
+		sc, ok := d.cfg.SeriesFor(topic)
+		if !ok {
+			d.log.Info("persisted series no longer matches any series entry; dropped", "topic", topic)
+			return nil
+		}
+		s, rerr := series.Restore(snap, settingsOf(sc))
+		if rerr != nil {
+			d.log.Warn("state record does not fit the settings; the series starts afresh", "topic", topic, "err", rerr)
+			d.metrics.StateResets.Inc()
+			s, rerr = series.New(topic, settingsOf(sc))
+			if rerr != nil {
+				return rerr
+			}
+		}
+		e := &entry{s: s, rules: d.rulesFor(topic, sc)}
+		d.series[topic] = e
+		if seq, _ := s.Position(); minSeq == 0 || seq < minSeq {
+			minSeq = seq
+		}
+		if s.HasModel() {
+			d.storeLatest(s)
+		}
+		return nil
+	})
+	if err != nil {
+		return fmt.Errorf("daemon: load state: %w", err)
+	}
+	d.metrics.Series.Set(float64(len(d.series)))
+	return nil
+}
+
+// settingsOf copies the maths-relevant settings out of a config entry.
+func settingsOf(sc *config.Series) series.Settings {
+	return series.Settings{
+		Kind:        sc.Kind,
+		StepSeconds: int64(sc.Step / time.Second),
+		Horizon:     sc.Horizon,
+		Levels:      sc.Levels,
+		Window:      sc.Window,
+		MinPoints:   sc.MinPoints,
+		RefitEvery:  sc.RefitEvery,
+		Model:       sc.Model,
+		Period:      sc.Period,
+		Transform:   sc.Transform,
+		Fingerprint: sc.Fingerprint(),
+	}
+}
+
+func (d *Daemon) rulesFor(topic string, sc *config.Series) []rule {
+	var rs []rule
+	for _, a := range d.cfg.AlertsFor(topic) {
+		_, above := a.Threshold()
+		k := int(math.Ceil(float64(a.Within) / float64(sc.Step)))
+		if k > sc.Horizon {
+			d.log.Warn("alert window longer than the series horizon; rule skipped for this series",
+				"topic", topic, "rule", a.Name, "within", a.Within, "horizon_steps", sc.Horizon)
+			continue
+		}
+		rs = append(rs, rule{cfg: a, above: above, window: max(k, 1)})
+	}
+	return rs
+}
+
+// handleBatch applies one batch of messages in order.
+func (d *Daemon) handleBatch(batch []stream.Message) {
+	for i := range batch {
+		d.handle(&batch[i])
+	}
+}
+
+func (d *Daemon) handle(m *stream.Message) {
+	if m.Seq > d.lastSeq {
+		d.lastSeq = m.Seq
+	}
+	d.sinceSave++
+	topic, err := stream.TopicOf(m.Subject, d.cfg.Intake.Subjects)
+	if err == nil {
+		err = config.ValidTopic(topic)
+	}
+	if err != nil {
+		d.reject(m.Subject, topic, m.Received, "bad_topic", err.Error())
+		return
+	}
+	obs, err := stream.ParsePayload(m.Data, m.Received, d.limits, d.obsBuf[:0])
+	d.obsBuf = obs[:0]
+	if err != nil {
+		var rj *stream.Reject
+		if errors.As(err, &rj) {
+			d.reject(m.Subject, topic, m.Received, rj.Code, rj.Reason)
+		} else {
+			d.reject(m.Subject, topic, m.Received, "bad_payload", err.Error())
+		}
+		return
+	}
+	e := d.series[topic]
+	if e == nil {
+		if e = d.create(m, topic); e == nil {
+			return
+		}
+	}
+	e.seen = m.Received
+	for i := range obs {
+		if e.s.Handled(m.Seq, i) {
+			continue // a redelivered message: its effect is already in the state
+		}
+		p := pendingObs{seq: m.Seq, index: i, t: obs[i].Time.UnixNano(), v: obs[i].Value, subject: m.Subject, recv: m.Received}
+		if e.busy {
+			e.pending = append(e.pending, p)
+			d.metrics.Pending.Inc()
+			continue
+		}
+		d.apply(topic, e, p)
+	}
+}
+
+func (d *Daemon) create(m *stream.Message, topic string) *entry {
+	if len(d.series) >= d.cfg.Limits.MaxSeries {
+		d.reject(m.Subject, topic, m.Received, "too_many_series",
+			fmt.Sprintf("the daemon already tracks %d series (limits.max_series); new topic %q is not accepted", len(d.series), topic))
+		return nil
+	}
+	sc, ok := d.cfg.SeriesFor(topic)
+	if !ok {
+		d.reject(m.Subject, topic, m.Received, "no_series_entry",
+			fmt.Sprintf("no series entry in the configuration matches topic %q", topic))
+		return nil
+	}
+	s, err := series.New(topic, settingsOf(sc))
+	if err != nil {
+		d.reject(m.Subject, topic, m.Received, "bad_settings", err.Error())
+		return nil
+	}
+	e := &entry{s: s, rules: d.rulesFor(topic, sc)}
+	d.series[topic] = e
+	d.metrics.Series.Set(float64(len(d.series)))
+	return e
+}
+
+// apply feeds one observation to a series that is not waiting on a refit.
+func (d *Daemon) apply(topic string, e *entry, p pendingObs) {
+	out, err := e.s.Observe(p.t, p.v)
+	e.s.Advance(p.seq, p.index)
+	e.dirty = true
+	if err != nil {
+		code := "bad_value"
+		switch {
+		case errors.Is(err, series.ErrLate):
+			code = "late"
+		case errors.Is(err, series.ErrDomain):
+			code = "out_of_domain"
+		case errors.Is(err, series.ErrNotFinite):
+			code = "not_finite"
+		}
+		e.rejects++
+		d.reject(p.subject, topic, p.recv, code, err.Error())
+		return
+	}
+	d.metrics.Accepted.Inc()
+	d.outcome(topic, e, out)
+}
+
+func (d *Daemon) outcome(topic string, e *entry, out series.Outcome) {
+	switch out {
+	case series.Published:
+		d.publish(topic, e)
+	case series.NeedFit:
+		e.busy = true
+		d.busy++
+		d.metrics.Refitting.Inc()
+		d.jobs <- fitTask{topic: topic, job: e.s.FitJob()}
+	}
+}
+
+// finishFit installs a refit and then applies what waited on it, in order.
+func (d *Daemon) finishFit(r fitDone) {
+	e := d.series[r.topic]
+	d.busy--
+	d.metrics.Refitting.Dec()
+	d.metrics.RefitSeconds.Observe(r.result.Elapsed.Seconds())
+	e.busy = false
+	e.dirty = true
+	out, err := e.s.Install(r.result)
+	if err != nil {
+		d.metrics.RefitFailures.Inc()
+		d.log.Warn("refit failed; previous model kept", "topic", r.topic, "err", err)
+	} else {
+		d.metrics.Refits.Inc()
+		e.refits = append(e.refits, r.result.End)
+		if len(e.refits) > 32 {
+			e.refits = e.refits[1:]
+		}
+	}
+	d.outcome(r.topic, e, out)
+	for len(e.pending) > 0 && !e.busy {
+		p := e.pending[0]
+		e.pending = e.pending[1:]
+		d.metrics.Pending.Dec()
+		d.apply(r.topic, e, p)
+	}
+	if len(e.pending) == 0 {
+		e.pending = nil
+	}
+}
+
+// publish encodes and publishes the series' latest forecast, then
+// evaluates its alert rules.
+func (d *Daemon) publish(topic string, e *entry) {
+	fc := e.s.Forecast()
+	now := d.now()
+	d.encBuf = stream.AppendForecast(d.encBuf[:0], fc, now)
+	d.pub.Forecast(topic, d.encBuf)
+	d.mu.Lock()
+	d.latest[topic] = append(d.latest[topic][:0], d.encBuf...)
+	d.mu.Unlock()
+	d.metrics.Published.Inc()
+	if d.opt.OnForecast != nil {
+		d.opt.OnForecast(fc)
+	}
+	if len(e.rules) > 0 {
+		d.evaluate(topic, e, fc, now)
+	}
+}
+
+func (d *Daemon) storeLatest(s *series.Series) {
+	b := stream.AppendForecast(nil, s.Forecast(), d.now())
+	d.mu.Lock()
+	d.latest[s.Topic()] = b
+	d.mu.Unlock()
+}
+
+// evaluate updates every alert rule of the series from its latest forecast.
+func (d *Daemon) evaluate(topic string, e *entry, fc *series.Forecast, now time.Time) {
+	mean, variance, tr := e.s.ModelScale()
+	states := e.s.Alerts()
+	for _, r := range e.rules {
+		thr, above := r.cfg.Threshold()
+		c, ok := tr.Forward(thr)
+		dir := alert.Above
+		if !above {
+			dir = alert.Below
+		}
+		if !tr.Increasing() {
+			if dir == alert.Above {
+				dir = alert.Below
+			} else {
+				dir = alert.Above
+			}
+		}
+		var p float64
+		var eta int
+		if ok != nil {
+			// The threshold lies outside the transform's domain (e.g. a
+			// non-positive level under log): every value is above it.
+			if above {
+				p = 1
+			}
+		} else {
+			var err error
+			p, eta, err = d.evaluator.Probability(&alert.Query{
+				Mean: mean, Variance: variance, Threshold: c, Direction: dir,
+				Window: r.window, Monotone: e.s.Settings().Kind == "counter",
+				Seed: seedOf(topic, r.cfg.Name, fc.Origin),
+			}, func(cov []float64) { e.s.Joint(cov) })
+			if err != nil {
+				d.log.Warn("alert evaluation failed", "topic", topic, "rule", r.cfg.Name, "err", err)
+				continue
+			}
+		}
+		st := findState(states, r.cfg.Name)
+		firing, changed := alert.Next(st.Firing, p, alert.Rule{Fire: r.cfg.Probability, Resolve: r.cfg.ResolveProbability})
+		st.Probability = p
+		if !changed {
+			continue
+		}
+		st.Firing = firing
+		st.Since = fc.Origin.Unix() / fc.StepSeconds
+		ev := series.AlertEvent{
+			Topic: topic, Rule: r.cfg.Name, Firing: firing, Threshold: thr,
+			Probability: p, WithinSeconds: int64(r.cfg.Within / time.Second), Origin: fc.Origin,
+		}
+		ev.Direction = "below"
+		if above {
+			ev.Direction = "above"
+		}
+		if eta > 0 {
+			ev.ETA, ev.HasETA = fc.Points[eta-1].Time, true
+		}
+		d.encBuf = stream.AppendAlert(d.encBuf[:0], &ev, now)
+		d.pub.Alert(topic, d.encBuf)
+		d.metrics.Alerts.Inc()
+		if d.opt.OnAlert != nil {
+			d.opt.OnAlert(&ev)
+		}
+	}
+}
+
+func findState(states *[]series.AlertSnapshot, name string) *series.AlertSnapshot {
+	for i := range *states {
+		if (*states)[i].Rule == name {
+			return &(*states)[i]
+		}
+	}
+	*states = append(*states, series.AlertSnapshot{Rule: name})
+	return &(*states)[len(*states)-1]
+}
+
+// seedOf derives the simulation seed of one rule evaluation from data
+// only, so that alert probabilities are deterministic.
+func seedOf(topic, rule string, origin time.Time) uint64 {
+	h := fnv.New64a()
+	h.Write([]byte(topic))
+	h.Write([]byte{0})
+	h.Write([]byte(rule))
+	var b [8]byte
+	u := uint64(origin.Unix())
+	for i := range b {
+		b[i] = byte(u >> (8 * i))
+	}
+	h.Write(b[:])
+	return h.Sum64()
+}
+
+func (d *Daemon) reject(subject, topic string, received time.Time, code, reason string) {
+	d.metrics.Rejected.WithLabelValues(code).Inc()
+	d.encBuf = stream.AppendReject(d.encBuf[:0], subject, topic, code, reason, received)
+	d.pub.Reject(topic, d.encBuf)
+}
+
+// closeIdle closes open buckets that saw no data for close_after (wall
+// time). This is the one rule that depends on wall time; it is off unless
+// configured.
+func (d *Daemon) closeIdle() {
+	now := d.now()
+	for topic, e := range d.series {
+		sc, ok := d.cfg.SeriesFor(topic)
+		if !ok || sc.CloseAfter <= 0 || e.busy || e.seen.IsZero() || now.Sub(e.seen) < sc.CloseAfter {
+			continue
+		}
+		if out := e.s.CloseOpen(); out != series.Absorbed {
+			e.dirty = true
+			d.outcome(topic, e, out)
+		}
+	}
+}
+
+// flush writes every changed series in one transaction, then acknowledges
+// the stream up to the last position whose effect is now on disk: nothing
+// waiting on a refit may be acknowledged.
+func (d *Daemon) flush() {
+	d.sinceSave = 0
+	var batch []*series.Snapshot
+	for _, e := range d.series {
+		if e.dirty {
+			batch = append(batch, e.s.Snapshot())
+		}
+	}
+	if len(batch) > 0 {
+		if err := d.store.Save(batch); err != nil {
+			d.log.Error("state write failed; will retry at the next flush", "err", err)
+			d.metrics.StateWriteFailures.Inc()
+			return
+		}
+		for _, e := range d.series {
+			e.dirty = false
+		}
+	}
+	if size, err := d.store.Size(); err == nil {
+		d.metrics.StateBytes.Set(float64(size))
+	}
+	floor := d.lastSeq
+	for _, e := range d.series {
+		if len(e.pending) > 0 && e.pending[0].seq > 0 && e.pending[0].seq-1 < floor {
+			floor = e.pending[0].seq - 1
+		}
+	}
+	if floor > d.acked {
+		if err := d.intake.Ack(floor); err != nil {
+			d.log.Warn("acknowledgement failed; the stream will redeliver (no effect twice)", "seq", floor, "err", err)
+			return
+		}
+		d.acked = floor
+	}
+}

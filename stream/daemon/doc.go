@@ -1,0 +1,27 @@
+// Package daemon runs forewarn: it takes messages from the intake, applies
+// them to their series in order, runs refits in a bounded worker pool,
+// publishes forecasts, alerts and rejects, and writes the series state in
+// batched transactions, acknowledging the stream only once the effect of
+// a message is on disk.
+//
+// # Ownership and order
+//
+// One loop goroutine owns every series. Refits run on worker goroutines on
+// a copy of the window (series.FitJob); while a series refits, its later
+// observations wait in its queue and are applied, in order, once the new
+// model is installed. Other series carry on. Forecasts therefore depend on
+// data time only.
+//
+// # What is acknowledged
+//
+// Each series' record holds the stream position it reflects (message and
+// observation within it), so a redelivered message has no effect. After a
+// flush the stream is acknowledged (AckAll) up to the last position such
+// that nothing at or before it still waits on a refit.
+//
+// # Shutdown
+//
+// When the context is cancelled: stop the intake (the batch in hand is
+// finished), finish the refits in flight and apply what waited on them,
+// write the state, acknowledge, flush the publisher.
+package daemon

@@ -1,0 +1,245 @@
+// Package demo is a simulated publisher for `forewarn run --demo`: three
+// invented series of a small software company, published on a simulated
+// clock that runs thousands of times faster than the wall clock, so that
+// fits, forecasts and an alert appear within a minute. The data are
+// invented for the demo only.
+//
+// The scenario:
+//
+//   - release.downloads: cumulative downloads of a new release (a counter),
+//     growing fast after launch and then slowing; the download service
+//     restarts once, so the counter resets and forewarn carries the total.
+//   - storage.vol1.used_bytes: bytes used on a volume of 1 TB (a gauge),
+//     filling steadily; the rule volume-nearly-full fires when it is likely
+//     to pass 900 GB within six hours; at 95 % an operator frees space and
+//     the rule resolves.
+//   - shop.orders: cumulative orders of the web shop (a counter) with a
+//     daily cycle.
+//
+// Each series first publishes a few days of history in one burst (as if the
+// daemon had just been put next to running services), then one observation
+// per simulated step.
+package demo
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"strconv"
+	"strings"
+	"time"
+
+	"github.com/nats-io/nats.go"
+
+	"forewarn/config"
+	"forewarn/engine/series"
+)
+
+// Tick is the simulated time that passes per Interval of wall time.
+const (
+	Tick     = 5 * time.Minute
+	Interval = 100 * time.Millisecond
+)
+
+// Capacity of the demo volume, in bytes.
+const Capacity = 1e12
+
+// Series returns the series entries of the scenario, to be put in front of
+// the configured ones.
+func Series() []config.Series {
+	return []config.Series{
+		{Match: "release.downloads", Kind: "counter", Step: 15 * time.Minute, Horizon: 48,
+			Levels: []float64{80, 95}, Window: 600, MinPoints: 60, RefitEvery: 48, Model: "auto", Transform: "auto"},
+		{Match: "storage.*.used_bytes", Kind: "gauge", Step: 5 * time.Minute, Horizon: 72,
+			Levels: []float64{80, 95}, Window: 600, MinPoints: 60, RefitEvery: 36, Model: "ARIMA(0,1,1)", Transform: "none"},
+		{Match: "shop.orders", Kind: "counter", Step: time.Hour, Horizon: 24,
+			Levels: []float64{80, 95}, Window: 400, MinPoints: 72, RefitEvery: 24, Model: "auto", Transform: "none", Period: 24},
+	}
+}
+
+// Alerts returns the scenario's alert rule.
+func Alerts() []config.Alert {
+	above := 0.9 * Capacity
+	return []config.Alert{{Name: "volume-nearly-full", Match: "storage.*.used_bytes", Above: &above,
+		Within: 6 * time.Hour, Probability: 0.9}}
+}
+
+// Limits returns the limits the simulated clock needs: it runs far ahead
+// of the wall clock, so observation times are not checked against arrival.
+func Limits(l config.Limits) config.Limits {
+	l.MaxFuture = -1
+	l.MaxPast = -1
+	return l
+}
+
+// world is the simulated state of the three services.
+type world struct {
+	rng       *rand.Rand
+	start     time.Time
+	downloads float64 // service's own counter (resets on restart)
+	used      float64
+	orders    float64
+	restarted bool
+}
+
+// Run publishes the scenario under prefix (e.g. "metrics.") until ctx is
+// cancelled. The history burst covers backlog of simulated time before
+// the live part starts.
+func Run(ctx context.Context, nc *nats.Conn, prefix string) error {
+	backlog := 4 * 24 * time.Hour
+	w := &world{
+		rng:   rand.New(rand.NewPCG(2026, 12)),
+		start: time.Date(2026, 11, 2, 0, 0, 0, 0, time.UTC),
+		used:  0.62 * Capacity,
+	}
+	now := w.start
+	var burst strings.Builder
+	flush := func(subject string) error {
+		if burst.Len() == 0 {
+			return nil
+		}
+		err := nc.Publish(subject, []byte("["+burst.String()+"]"))
+		burst.Reset()
+		return err
+	}
+	// History in bursts of at most one simulated day per series and message.
+	for day := time.Duration(0); day < backlog; day += 24 * time.Hour {
+		var lines [3][]string
+		for t := now; t.Before(now.Add(24 * time.Hour)); t = t.Add(Tick) {
+			for i, v := range w.step(t) {
+				lines[i] = append(lines[i], obs(t, v))
+			}
+		}
+		for i, subject := range subjects(prefix) {
+			burst.WriteString(strings.Join(lines[i], ","))
+			if err := flush(subject); err != nil {
+				return fmt.Errorf("demo: publish: %w", err)
+			}
+		}
+		now = now.Add(24 * time.Hour)
+	}
+	tick := time.NewTicker(Interval)
+	defer tick.Stop()
+	for {
+		select {
+		case <-ctx.Done():
+			return nil
+		case <-tick.C:
+		}
+		for i, v := range w.step(now) {
+			if err := nc.Publish(subjects(prefix)[i], []byte(obs(now, v))); err != nil {
+				return fmt.Errorf("demo: publish: %w", err)
+			}
+		}
+		now = now.Add(Tick)
+	}
+}
+
+func subjects(prefix string) [3]string {
+	return [3]string{prefix + "release.downloads", prefix + "storage.vol1.used_bytes", prefix + "shop.orders"}
+}
+
+func obs(t time.Time, v float64) string {
+	return `{"time":"` + t.Format(time.RFC3339) + `","value":` + strconv.FormatFloat(v, 'f', 0, 64) + `}`
+}
+
+// step advances the world by one tick ending at t and returns the three
+// published values.
+func (w *world) step(t time.Time) [3]float64 {
+	hours := t.Sub(w.start).Hours()
+	tick := Tick.Hours()
+	// Downloads: a logistic adoption curve of 2 million downloads with its
+	// midpoint at day 3, plus a daily rhythm; the service restarts at day 4.5.
+	rate := 2e6 * logisticSlope(hours, 72, 18) * (1 + 0.35*math.Sin(2*math.Pi*(hours-8)/24))
+	w.downloads += math.Max(0, rate*tick*(1+0.1*w.rng.NormFloat64()))
+	if !w.restarted && hours >= 108 {
+		w.downloads, w.restarted = 0, true
+	}
+	// Storage: about 2.6 GB an hour with noise, plus a nightly compaction.
+	w.used += 2.6e9*tick + 0.4e9*w.rng.NormFloat64()
+	if h := math.Mod(hours, 24); h >= 3 && h < 3+tick {
+		w.used -= 4e9
+	}
+	// At 95 % an operator moves old data away.
+	if w.used > 0.95*Capacity {
+		w.used = 0.7 * Capacity
+	}
+	// Orders: a daily cycle peaking in the evening.
+	perHour := 40 + 35*math.Sin(2*math.Pi*(hours-13)/24)
+	w.orders += math.Max(0, perHour*tick+math.Sqrt(perHour*tick)*w.rng.NormFloat64())
+	return [3]float64{math.Round(w.downloads), math.Round(w.used), math.Round(w.orders)}
+}
+
+// logisticSlope is the derivative per hour of a logistic curve of unit
+// height with midpoint mid and time scale s (hours).
+func logisticSlope(t, mid, s float64) float64 {
+	e := math.Exp(-(t - mid) / s)
+	return e / (s * (1 + e) * (1 + e))
+}
+
+// ForecastLine is the demo's one readable line for a forecast.
+func ForecastLine(f *series.Forecast) string {
+	if len(f.Points) == 0 {
+		return ""
+	}
+	p := f.Points[len(f.Points)-1]
+	span := time.Duration(p.H) * time.Duration(f.StepSeconds) * time.Second
+	band := ""
+	if n := len(f.Levels); n > 0 {
+		band = fmt.Sprintf(" (%g%%: %s … %s)", f.Levels[0], bound(p.Lower[0]), bound(p.Upper[0]))
+	}
+	return fmt.Sprintf("%s  %-24s now %s → in %s %s%s  [%s, %s]",
+		f.Origin.Format("Jan 02 15:04"), f.Topic, human(f.LastValue), span, human(p.Median), band,
+		f.Model.Spec, f.Model.Transform)
+}
+
+// AlertLine is the demo's one readable line for an alert state change.
+func AlertLine(e *series.AlertEvent) string {
+	state := "RESOLVED"
+	if e.Firing {
+		state = "FIRING"
+	}
+	eta := "beyond the horizon"
+	if e.HasETA {
+		eta = e.ETA.Format("Jan 02 15:04")
+	}
+	return fmt.Sprintf("%s  %-24s ALERT %s %s: P(%s %s within %s) = %.2f, median crosses %s",
+		e.Origin.Format("Jan 02 15:04"), e.Topic, e.Rule, state, e.Direction, human(e.Threshold),
+		time.Duration(e.WithinSeconds)*time.Second, e.Probability, eta)
+}
+
+func bound(b series.Bound) string {
+	if !b.OK {
+		return "unbounded"
+	}
+	return human(b.Value)
+}
+
+// human prints a value with an SI suffix and three significant figures.
+func human(v float64) string {
+	if math.IsNaN(v) {
+		return "n/a"
+	}
+	a := math.Abs(v)
+	for _, u := range []struct {
+		f float64
+		s string
+	}{{1e12, "T"}, {1e9, "G"}, {1e6, "M"}, {1e3, "k"}} {
+		if a >= u.f {
+			return strconv.FormatFloat(v/u.f, 'f', 3-digits(a/u.f), 64) + u.s
+		}
+	}
+	return strconv.FormatFloat(v, 'f', max(0, 3-digits(a)), 64)
+}
+
+func digits(a float64) int {
+	switch {
+	case a >= 100:
+		return 3
+	case a >= 10:
+		return 2
+	default:
+		return 1
+	}
+}

@@ -1,0 +1,227 @@
+package stream
+
+import (
+	"math"
+	"strconv"
+	"time"
+	"unicode/utf8"
+
+	"forewarn/engine/series"
+)
+
+// AppendForecast appends the JSON forecast message of CONTRACT.md §2 for f,
+// issued at the wall time issued, to dst and returns the extended buffer:
+//
+//	{"topic":…,"issued":…,"origin":…,"step_seconds":…,"last_value":…,"kind":…,
+//	 "model":{"spec":…,"transform":…,"fitted_at":…,"nobs":…,"aicc":…},
+//	 "points":[{"h":…,"time":…,"mean":…,"median":…,"lower":{"80":…},"upper":{"80":…}},…]}
+//
+// Keys come in this order, without white space. Times are RFC 3339 in UTC:
+// whole seconds without a fraction, otherwise with as many fractional digits
+// as the nanoseconds need (time.RFC3339Nano). A zero FittedAt is null.
+// Numbers are the shortest decimal that reads back as the same float64
+// (strconv 'g', -1); a non-finite number, and a Bound with OK false, is
+// null. Level keys are the level in plain decimal ("80", "97.5"). Lower[i]
+// and Upper[i] are paired with f.Levels[i]; missing entries are null.
+//
+// With a dst of enough capacity AppendForecast does not allocate.
+func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
+	dst = append(dst, `{"topic":`...)
+	dst = appendString(dst, f.Topic)
+	dst = append(dst, `,"issued":`...)
+	dst = appendTime(dst, issued)
+	dst = append(dst, `,"origin":`...)
+	dst = appendTime(dst, f.Origin)
+	dst = append(dst, `,"step_seconds":`...)
+	dst = strconv.AppendInt(dst, f.StepSeconds, 10)
+	dst = append(dst, `,"last_value":`...)
+	dst = appendFloat(dst, f.LastValue)
+	dst = append(dst, `,"kind":`...)
+	dst = appendString(dst, f.Kind)
+	dst = append(dst, `,"model":{"spec":`...)
+	dst = appendString(dst, f.Model.Spec)
+	dst = append(dst, `,"transform":`...)
+	dst = appendString(dst, f.Model.Transform)
+	dst = append(dst, `,"fitted_at":`...)
+	if f.Model.FittedAt.IsZero() {
+		dst = append(dst, "null"...)
+	} else {
+		dst = appendTime(dst, f.Model.FittedAt)
+	}
+	dst = append(dst, `,"nobs":`...)
+	dst = strconv.AppendInt(dst, int64(f.Model.NObs), 10)
+	dst = append(dst, `,"aicc":`...)
+	dst = appendFloat(dst, f.Model.AICc)
+	dst = append(dst, `},"points":[`...)
+	for i := range f.Points {
+		pt := &f.Points[i]
+		if i > 0 {
+			dst = append(dst, ',')
+		}
+		dst = append(dst, `{"h":`...)
+		dst = strconv.AppendInt(dst, int64(pt.H), 10)
+		dst = append(dst, `,"time":`...)
+		dst = appendTime(dst, pt.Time)
+		dst = append(dst, `,"mean":`...)
+		dst = appendFloat(dst, pt.Mean)
+		dst = append(dst, `,"median":`...)
+		dst = appendFloat(dst, pt.Median)
+		dst = append(dst, `,"lower":`...)
+		dst = appendBounds(dst, f.Levels, pt.Lower)
+		dst = append(dst, `,"upper":`...)
+		dst = appendBounds(dst, f.Levels, pt.Upper)
+		dst = append(dst, '}')
+	}
+	return append(dst, "]}"...)
+}
+
+func appendBounds(dst []byte, levels []float64, b []series.Bound) []byte {
+	dst = append(dst, '{')
+	for i, l := range levels {
+		if i > 0 {
+			dst = append(dst, ',')
+		}
+		dst = append(dst, '"')
+		dst = strconv.AppendFloat(dst, l, 'f', -1, 64)
+		dst = append(dst, `":`...)
+		if i < len(b) && b[i].OK {
+			dst = appendFloat(dst, b[i].Value)
+		} else {
+			dst = append(dst, "null"...)
+		}
+	}
+	return append(dst, '}')
+}
+
+// AppendAlert appends the JSON alert message of CONTRACT.md §2 for e,
+// issued at the wall time issued:
+//
+//	{"topic":…,"rule":…,"state":"firing"|"resolved","direction":…,"threshold":…,
+//	 "probability":…,"within_seconds":…,"eta":…|null,"issued":…,"origin":…}
+//
+// with the number and time conventions of AppendForecast. It does not
+// allocate with a dst of enough capacity.
+func AppendAlert(dst []byte, e *series.AlertEvent, issued time.Time) []byte {
+	dst = append(dst, `{"topic":`...)
+	dst = appendString(dst, e.Topic)
+	dst = append(dst, `,"rule":`...)
+	dst = appendString(dst, e.Rule)
+	if e.Firing {
+		dst = append(dst, `,"state":"firing"`...)
+	} else {
+		dst = append(dst, `,"state":"resolved"`...)
+	}
+	dst = append(dst, `,"direction":`...)
+	dst = appendString(dst, e.Direction)
+	dst = append(dst, `,"threshold":`...)
+	dst = appendFloat(dst, e.Threshold)
+	dst = append(dst, `,"probability":`...)
+	dst = appendFloat(dst, e.Probability)
+	dst = append(dst, `,"within_seconds":`...)
+	dst = strconv.AppendInt(dst, e.WithinSeconds, 10)
+	dst = append(dst, `,"eta":`...)
+	if e.HasETA {
+		dst = appendTime(dst, e.ETA)
+	} else {
+		dst = append(dst, "null"...)
+	}
+	dst = append(dst, `,"issued":`...)
+	dst = appendTime(dst, issued)
+	dst = append(dst, `,"origin":`...)
+	dst = appendTime(dst, e.Origin)
+	return append(dst, '}')
+}
+
+// AppendReject appends the JSON reject message of CONTRACT.md §2:
+//
+//	{"subject":…,"topic":…,"code":…,"reason":…,"received":…}
+//
+// subject is the message's subject as received (any bytes; invalid UTF-8
+// becomes U+FFFD), topic the topic read from it ("" when there is none).
+func AppendReject(dst []byte, subject, topic, code, reason string, received time.Time) []byte {
+	dst = append(dst, `{"subject":`...)
+	dst = appendString(dst, subject)
+	dst = append(dst, `,"topic":`...)
+	dst = appendString(dst, topic)
+	dst = append(dst, `,"code":`...)
+	dst = appendString(dst, code)
+	dst = append(dst, `,"reason":`...)
+	dst = appendString(dst, reason)
+	dst = append(dst, `,"received":`...)
+	dst = appendTime(dst, received)
+	return append(dst, '}')
+}
+
+// AppendError appends the query error reply {"error":msg}.
+func AppendError(dst []byte, msg string) []byte {
+	dst = append(dst, `{"error":`...)
+	dst = appendString(dst, msg)
+	return append(dst, '}')
+}
+
+func appendTime(dst []byte, t time.Time) []byte {
+	dst = append(dst, '"')
+	dst = t.UTC().AppendFormat(dst, time.RFC3339Nano)
+	return append(dst, '"')
+}
+
+func appendFloat(dst []byte, v float64) []byte {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return append(dst, "null"...)
+	}
+	return strconv.AppendFloat(dst, v, 'g', -1, 64)
+}
+
+const hexDigits = "0123456789abcdef"
+
+// appendString appends s as a JSON string. It escapes '"', '\\' and the
+// control characters, and, as encoding/json does, '<', '>', '&', U+2028 and
+// U+2029 so that the output is safe inside HTML and JavaScript; invalid
+// UTF-8 becomes U+FFFD.
+func appendString(dst []byte, s string) []byte {
+	dst = append(dst, '"')
+	start := 0
+	for i := 0; i < len(s); {
+		c := s[i]
+		if c < utf8.RuneSelf {
+			if c >= 0x20 && c != '"' && c != '\\' && c != '<' && c != '>' && c != '&' {
+				i++
+				continue
+			}
+			dst = append(dst, s[start:i]...)
+			switch c {
+			case '"', '\\':
+				dst = append(dst, '\\', c)
+			case '\n':
+				dst = append(dst, '\\', 'n')
+			case '\r':
+				dst = append(dst, '\\', 'r')
+			case '\t':
+				dst = append(dst, '\\', 't')
+			default:
+				dst = append(dst, '\\', 'u', '0', '0', hexDigits[c>>4], hexDigits[c&0xf])
+			}
+			i++
+			start = i
+			continue
+		}
+		r, size := utf8.DecodeRuneInString(s[i:])
+		if r == utf8.RuneError && size == 1 {
+			dst = append(dst, s[start:i]...)
+			dst = append(dst, `\ufffd`...)
+			i += size
+			start = i
+			continue
+		}
+		if r == '\u2028' || r == '\u2029' {
+			dst = append(dst, s[start:i]...)
+			dst = append(dst, '\\', 'u', '2', '0', '2', hexDigits[r&0xf])
+			i += size
+			start = i
+			continue
+		}
+		i += size
+	}
+	dst = append(dst, s[start:]...)
+	return append(dst, '"')
+}

@@ -1,0 +1,104 @@
+package stream
+
+import (
+	"fmt"
+	"strings"
+
+	"github.com/nats-io/nats.go"
+)
+
+// Publisher publishes the daemon's output messages under a subject prefix
+// (CONTRACT.md §2): <prefix>.forecast.<topic>, <prefix>.alert.<topic> and
+// <prefix>.reject.<topic>. It only moves bytes: the payloads come from
+// AppendForecast, AppendAlert and AppendReject. It is safe for concurrent
+// use, as the connection is.
+type Publisher struct {
+	nc     *nats.Conn
+	prefix string
+}
+
+// NewPublisher returns a Publisher on nc under prefix ("" → "forewarn").
+func NewPublisher(nc *nats.Conn, prefix string) *Publisher {
+	if prefix == "" {
+		prefix = "forewarn"
+	}
+	return &Publisher{nc: nc, prefix: prefix}
+}
+
+// Prefix returns the subject prefix.
+func (p *Publisher) Prefix() string { return p.prefix }
+
+func (p *Publisher) publish(kind, topic string, payload []byte) error {
+	subj := p.prefix + kind + topic
+	if err := p.nc.Publish(subj, payload); err != nil {
+		return fmt.Errorf("stream: publish on %q: %w", subj, err)
+	}
+	return nil
+}
+
+// Forecast publishes an encoded forecast on <prefix>.forecast.<topic>. The
+// connection copies payload before Forecast returns.
+func (p *Publisher) Forecast(topic string, payload []byte) error {
+	return p.publish(".forecast.", topic, payload)
+}
+
+// Alert publishes an encoded alert event on <prefix>.alert.<topic>.
+func (p *Publisher) Alert(topic string, payload []byte) error {
+	return p.publish(".alert.", topic, payload)
+}
+
+// Reject publishes an encoded reject message on <prefix>.reject.<topic>.
+// A message whose subject carries no valid topic is published on
+// <prefix>.reject with topic "" in the payload: pass topic "".
+func (p *Publisher) Reject(topic string, payload []byte) error {
+	if topic == "" {
+		subj := p.prefix + ".reject"
+		if err := p.nc.Publish(subj, payload); err != nil {
+			return fmt.Errorf("stream: publish on %q: %w", subj, err)
+		}
+		return nil
+	}
+	return p.publish(".reject.", topic, payload)
+}
+
+// Flush waits until the server has received everything published so far.
+func (p *Publisher) Flush() error {
+	if err := p.nc.Flush(); err != nil {
+		return fmt.Errorf("stream: flush: %w", err)
+	}
+	return nil
+}
+
+// NoForecastReason is the error text of a query reply for a topic without a
+// forecast.
+func NoForecastReason(topic string) string {
+	return fmt.Sprintf("no forecast for topic %q yet (warming up or unknown)", topic)
+}
+
+// ServeQueries answers requests on <prefix>.query.<topic> with the latest
+// forecast message that lookup returns for the topic, or with
+// {"error": "..."} when lookup has none. lookup is called on the
+// subscription's goroutine, one request at a time; the bytes it returns are
+// copied before the next call. Unsubscribe or drain the returned
+// subscription to stop.
+func ServeQueries(nc *nats.Conn, prefix string, lookup func(topic string) ([]byte, bool)) (*nats.Subscription, error) {
+	if prefix == "" {
+		prefix = "forewarn"
+	}
+	base := prefix + ".query."
+	sub, err := nc.Subscribe(base+">", func(m *nats.Msg) {
+		if m.Reply == "" {
+			return
+		}
+		topic, _ := strings.CutPrefix(m.Subject, base)
+		if data, ok := lookup(topic); ok {
+			_ = m.Respond(data)
+			return
+		}
+		_ = m.Respond(AppendError(nil, NoForecastReason(topic)))
+	})
+	if err != nil {
+		return nil, fmt.Errorf("stream: serve queries on %q: %w", base+">", err)
+	}
+	return sub, nil
+}
