@@ -307,11 +307,7 @@ func (e *Evaluator) simulate(k int, c float64, jStar int, pStar float64, seed ui
 		crossed, end := false, false
 		for j := 0; j < k; j++ {
 			z[j] = e.rng.NormFloat64()
-			row := L[j*k : j*k+j+1]
-			w := m[j]
-			for i, l := range row {
-				w += l * z[i]
-			}
+			w := m[j] + dot(L[j*k:j*k+j+1], z[:j+1])
 			if w > c {
 				crossed = true
 				if j == jStar {
@@ -342,6 +338,24 @@ func (e *Evaluator) simulate(k int, c float64, jStar int, pStar float64, seed ui
 	p = a - beta*(b-pStar)
 	resid := math.Max(varA-covAB*beta, 0)
 	return p, math.Sqrt(resid / N)
+}
+
+// dot returns Σ a_i b_i (len(b) ≥ len(a)) with four independent
+// accumulators, so the adds do not wait on each other.
+func dot(a, b []float64) float64 {
+	b = b[:len(a)]
+	var s0, s1, s2, s3 float64
+	i := 0
+	for ; i+4 <= len(a); i += 4 {
+		s0 += a[i] * b[i]
+		s1 += a[i+1] * b[i+1]
+		s2 += a[i+2] * b[i+2]
+		s3 += a[i+3] * b[i+3]
+	}
+	for ; i < len(a); i++ {
+		s0 += a[i] * b[i]
+	}
+	return (s0 + s1) + (s2 + s3)
 }
 
 // tail returns P(W > c) for W ~ N(c − d, v), that is Q(d/√v), with the

@@ -481,3 +481,34 @@ func TestBadInput(t *testing.T) {
 		t.Errorf("NewEvaluator(10, %d): %v", MinPaths-1, err)
 	}
 }
+
+// Bracket: when only one step carries probability, max_j P_j and Σ_j P_j
+// (Boole's inequality) pin p for any covariance; the midpoint is returned
+// without the callback. Checked against the two exact extremes: independent
+// steps, p = 1 − Π(1 − P_j), and perfectly correlated steps, p = max_j P_j
+// (P_j from gonum distuv.Normal).
+func TestBracketNeedsNoCovariance(t *testing.T) {
+	e := newEval(t, 6, 0)
+	mean := []float64{0, 0, 0, 0, 0, 4}
+	variance := []float64{1, 1, 1, 1, 1, 1}
+	q := &Query{Mean: mean, Variance: variance, Threshold: 4.5, Direction: Above, Window: 6}
+	called := false
+	p, eta, err := e.Probability(q, func([]float64) { called = true })
+	if err != nil {
+		t.Fatal(err)
+	}
+	if called || e.LastMethod() != MethodBracket || eta != 0 {
+		t.Fatalf("called %v, method %v, eta %d", called, e.LastMethod(), eta)
+	}
+	safe, maxP := 1.0, 0.0
+	for j := range mean {
+		pj := distuv.Normal{Mu: mean[j], Sigma: 1}.Survival(q.Threshold)
+		safe *= 1 - pj
+		maxP = math.Max(maxP, pj)
+	}
+	for name, want := range map[string]float64{"independent": 1 - safe, "correlated": maxP} {
+		if math.Abs(p-want) > BracketTol {
+			t.Errorf("%s: p = %.6f, exact %.6f", name, p, want)
+		}
+	}
+}
