@@ -79,10 +79,15 @@ type CorruptError struct {
 	Fault  Fault
 	Offset int    // byte offset in the record where the problem was found
 	Detail string // what was being read, in words
+	Topic  string // the key the record is stored under; "" from Decode
 }
 
 func (e *CorruptError) Error() string {
-	return fmt.Sprintf("state: corrupt record: %s at byte %d (%s)", e.Fault, e.Offset, e.Detail)
+	rec := "record"
+	if e.Topic != "" {
+		rec = fmt.Sprintf("record %q", e.Topic)
+	}
+	return fmt.Sprintf("state: corrupt %s: %s at byte %d (%s)", rec, e.Fault, e.Offset, e.Detail)
 }
 
 // Is reports whether target is ErrCorrupt.
@@ -91,13 +96,13 @@ func (e *CorruptError) Is(target error) bool { return target == ErrCorrupt }
 // VersionError reports a format version this build does not read.
 // errors.Is(err, ErrVersion) holds.
 type VersionError struct {
-	What  string // "record" or "store"
+	What  string // "record", `record "<topic>"` or "store <path>"
 	Found uint16 // the version in the data
 	Max   uint16 // the newest version this build reads
 }
 
 func (e *VersionError) Error() string {
-	return fmt.Sprintf("state: %s format version %d, this build reads versions 1 to %d", e.What, e.Found, e.Max)
+	return fmt.Sprintf("state: %s has format version %d; this build reads versions 1 to %d", e.What, e.Found, e.Max)
 }
 
 // Is reports whether target is ErrVersion.

@@ -182,28 +182,28 @@ func appendFloats(dst []byte, v []float64) []byte {
 func Decode(b []byte) (*series.Snapshot, error) {
 	if len(b) < len(magic) {
 		if bytes.HasPrefix(magic[:], b) {
-			return nil, &CorruptError{FaultTruncated, len(b), "record shorter than its header"}
+			return nil, &CorruptError{Fault: FaultTruncated, Offset: len(b), Detail: "record shorter than its header"}
 		}
-		return nil, &CorruptError{FaultMagic, 0, "not a forewarn series record"}
+		return nil, &CorruptError{Fault: FaultMagic, Offset: 0, Detail: "not a forewarn series record"}
 	}
 	if !bytes.Equal(b[:len(magic)], magic[:]) {
-		return nil, &CorruptError{FaultMagic, 0, "not a forewarn series record"}
+		return nil, &CorruptError{Fault: FaultMagic, Offset: 0, Detail: "not a forewarn series record"}
 	}
 	if len(b) < headerLen {
-		return nil, &CorruptError{FaultTruncated, len(b), "record shorter than its header"}
+		return nil, &CorruptError{Fault: FaultTruncated, Offset: len(b), Detail: "record shorter than its header"}
 	}
 	n := uint64(le.Uint32(b[6:10]))
 	switch {
 	case n < envelopeLen:
-		return nil, &CorruptError{FaultLength, 6, fmt.Sprintf("declared length %d is shorter than the envelope", n)}
+		return nil, &CorruptError{Fault: FaultLength, Offset: 6, Detail: fmt.Sprintf("declared length %d is shorter than the envelope", n)}
 	case uint64(len(b)) < n:
-		return nil, &CorruptError{FaultTruncated, len(b), fmt.Sprintf("record declares %d bytes, %d present", n, len(b))}
+		return nil, &CorruptError{Fault: FaultTruncated, Offset: len(b), Detail: fmt.Sprintf("record declares %d bytes, %d present", n, len(b))}
 	case uint64(len(b)) > n:
-		return nil, &CorruptError{FaultLength, int(n), fmt.Sprintf("%d bytes follow the declared end", uint64(len(b))-n)}
+		return nil, &CorruptError{Fault: FaultLength, Offset: int(n), Detail: fmt.Sprintf("%d bytes follow the declared end", uint64(len(b))-n)}
 	}
 	body := b[:n-crcLen]
 	if got, want := crc32.Checksum(body, castagnoli), le.Uint32(b[n-crcLen:]); got != want {
-		return nil, &CorruptError{FaultChecksum, int(n - crcLen), fmt.Sprintf("stored %08x, computed %08x", want, got)}
+		return nil, &CorruptError{Fault: FaultChecksum, Offset: int(n - crcLen), Detail: fmt.Sprintf("stored %08x, computed %08x", want, got)}
 	}
 	switch v := le.Uint16(b[4:6]); v {
 	case 1:
@@ -223,7 +223,7 @@ type reader struct {
 
 func (r *reader) fail(f Fault, what string) {
 	if r.err == nil {
-		r.err = &CorruptError{f, r.off, what}
+		r.err = &CorruptError{Fault: f, Offset: r.off, Detail: what}
 	}
 }
 

@@ -90,7 +90,7 @@ func Open(dir string, opts ...Option) (*Store, error) {
 
 	if o.readOnly {
 		if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
-			return nil, fmt.Errorf("state: open %s: %w", path, ErrNoState)
+			return nil, fmt.Errorf("%w at %s", ErrNoState, path)
 		}
 	} else {
 		if err := os.MkdirAll(dir, 0o700); err != nil {
@@ -132,7 +132,7 @@ func Open(dir string, opts ...Option) (*Store, error) {
 func initBuckets(tx *bolt.Tx, path string) error {
 	if tx.Bucket(bucketMeta) == nil && tx.Bucket(bucketSeries) == nil {
 		for _, name := range tx.Inspect().Children {
-			return fmt.Errorf("state: %s: %w (it holds bucket %q)", path, ErrNotState, name.Name)
+			return fmt.Errorf("%w: %s holds bucket %q", ErrNotState, path, name.Name)
 		}
 		meta, err := tx.CreateBucket(bucketMeta)
 		if err != nil {
@@ -157,14 +157,14 @@ func initBuckets(tx *bolt.Tx, path string) error {
 func checkMeta(tx *bolt.Tx, path string) error {
 	meta := tx.Bucket(bucketMeta)
 	if meta == nil || tx.Bucket(bucketSeries) == nil {
-		return fmt.Errorf("state: %s: %w (missing buckets)", path, ErrNotState)
+		return fmt.Errorf("%w: %s lacks its buckets", ErrNotState, path)
 	}
 	v := meta.Get(keyFormat)
 	if len(v) != 2 {
-		return fmt.Errorf("state: %s: %w (meta format is %d bytes, want 2)", path, ErrNotState, len(v))
+		return fmt.Errorf("%w: %s has a meta format of %d bytes, want 2", ErrNotState, path, len(v))
 	}
 	if got := le.Uint16(v); got == 0 || got > StoreVersion {
-		return fmt.Errorf("state: %s: %w", path, &VersionError{What: "store", Found: got, Max: StoreVersion})
+		return &VersionError{What: "store " + path, Found: got, Max: StoreVersion}
 	}
 	return nil
 }
@@ -175,7 +175,7 @@ func (s *Store) Path() string { return s.path }
 // wrap translates bbolt's closed-database error into ErrClosed.
 func wrap(op string, err error) error {
 	if errors.Is(err, berrors.ErrDatabaseNotOpen) {
-		return fmt.Errorf("state: %s: %w", op, ErrClosed)
+		return fmt.Errorf("%w (%s)", ErrClosed, op)
 	}
 	return err
 }
@@ -187,7 +187,7 @@ func (s *Store) Load(topic string) (*series.Snapshot, error) {
 	err := s.db.View(func(tx *bolt.Tx) error {
 		v := tx.Bucket(bucketSeries).Get([]byte(topic))
 		if v == nil {
-			return fmt.Errorf("state: load %q: %w", topic, ErrNotFound)
+			return fmt.Errorf("%w %q", ErrNotFound, topic)
 		}
 		var err error
 		snap, err = decodeFor(topic, v)
@@ -200,12 +200,20 @@ func (s *Store) Load(topic string) (*series.Snapshot, error) {
 // names the same topic.
 func decodeFor(topic string, v []byte) (*series.Snapshot, error) {
 	snap, err := Decode(v)
-	if err != nil {
+	var ce *CorruptError
+	var ve *VersionError
+	switch {
+	case errors.As(err, &ce):
+		ce.Topic = topic
+		return nil, ce
+	case errors.As(err, &ve):
+		ve.What = fmt.Sprintf("record %q", topic)
+		return nil, ve
+	case err != nil:
 		return nil, fmt.Errorf("state: record %q: %w", topic, err)
-	}
-	if snap.Topic != topic {
-		return nil, fmt.Errorf("state: record %q: %w", topic,
-			&CorruptError{FaultField, headerLen, fmt.Sprintf("record names topic %q", snap.Topic)})
+	case snap.Topic != topic:
+		return nil, &CorruptError{Fault: FaultField, Offset: headerLen, Topic: topic,
+			Detail: fmt.Sprintf("the record names topic %q", snap.Topic)}
 	}
 	return snap, nil
 }
@@ -254,17 +262,17 @@ func (s *Store) Save(batch []*series.Snapshot) error {
 	total := 0
 	for i, snap := range batch {
 		if snap == nil {
-			return fmt.Errorf("state: save: batch[%d] is nil: %w", i, ErrInvalid)
+			return fmt.Errorf("%w: save: batch[%d] is nil", ErrInvalid, i)
 		}
 		if snap.Topic == "" {
-			return fmt.Errorf("state: save: batch[%d] has an empty topic: %w", i, ErrInvalid)
+			return fmt.Errorf("%w: save: batch[%d] has an empty topic", ErrInvalid, i)
 		}
 		if len(snap.Topic) > bolt.MaxKeySize {
-			return fmt.Errorf("state: save: topic of %d bytes (at most %d): %w", len(snap.Topic), bolt.MaxKeySize, ErrTooLarge)
+			return fmt.Errorf("%w: save: topic of %d bytes (at most %d)", ErrTooLarge, len(snap.Topic), bolt.MaxKeySize)
 		}
 		n := EncodedLen(snap)
 		if n > maxRecordLen {
-			return fmt.Errorf("state: save %q: %d bytes (at most %d): %w", snap.Topic, n, maxRecordLen, ErrTooLarge)
+			return fmt.Errorf("%w: save %q: %d bytes (at most %d)", ErrTooLarge, snap.Topic, n, maxRecordLen)
 		}
 		total += n + len(snap.Topic)
 	}
@@ -300,7 +308,7 @@ func (s *Store) Save(batch []*series.Snapshot) error {
 // not an error.
 func (s *Store) Delete(topic string) error {
 	if topic == "" {
-		return fmt.Errorf("state: delete: empty topic: %w", ErrInvalid)
+		return fmt.Errorf("%w: delete: empty topic", ErrInvalid)
 	}
 	err := s.db.Update(func(tx *bolt.Tx) error {
 		if err := tx.Bucket(bucketSeries).Delete([]byte(topic)); err != nil {
