@@ -37,10 +37,13 @@
 //  2. Skip. Boole's inequality (the union bound) gives
 //     p ≤ Σ_{j≤k} P_j ≤ k·Q(z_min), z_min = min_{j≤k} (c − m_j)/√v_j.
 //     If z_min ≥ Q⁻¹(Negligible/k) then the bound is ≤ Negligible (1e-6)
-//     and k·Q(z_min) is returned; neither Σ nor any P_j is evaluated, and
+//     and min(Negligible, k·φ(z_min)/z_min) ≥ k·Q(z_min) is returned
+//     (Gordon's inequality Q(z) < φ(z)/z, one exp instead of one erfc,
+//     φ the standard normal density); neither Σ nor any P_j is evaluated, and
 //     the covariance callback is not called. The test needs one
-//     multiply-compare per step (d_j > 0 and d_j² ≥ z*²·v_j with
-//     d_j = c − m_j), so it costs tens of nanoseconds for h = 60.
+//     multiply-compare per step (d_j > 0 and d_j² ≥ Q⁻¹(Negligible/k)²·v_j with
+//     d_j = c − m_j) and no allocation: about 0.2 µs of CPU for h = 60 on
+//     the shared 2-core development machine (BenchmarkFarFromThreshold).
 //
 //  3. Bracket. max_j P_j ≤ p ≤ min(1, Σ_j P_j). If the bracket is at most
 //     2·BracketTol wide, its midpoint is returned (error ≤ BracketTol = 1e-3,
@@ -97,6 +100,9 @@
 //     R's mvtnorm::pmvnorm).
 //   - Glasserman, P. (2004). Monte Carlo Methods in Financial Engineering,
 //     §4.1 (control variates, the regression estimator β̂ = cov/var).
+//   - Gordon, R. D. (1941). Values of Mills' ratio of area to bounding
+//     ordinate and of the normal probability integral for large values of
+//     the argument. Ann. Math. Statist. 12(3), 364–366.
 //   - Golub, G. H. & Van Loan, C. F. (2013). Matrix Computations, 4th ed.,
 //     §4.2 (Cholesky factorisation).
 //   - Lévy, P. (1948). Processus stochastiques et mouvement brownien
