@@ -21,7 +21,7 @@
 //
 // # Delivery
 //
-// Durable mode (the default) keeps a JetStream stream over the intake
+// Durable mode (IntakeOptions.Durable; the config's default) keeps a JetStream stream over the intake
 // subjects — file storage; retention by limits: messages older than MaxAge
 // (default 7 days) or beyond MaxBytes (default 1 GiB) are discarded,
 // oldest first, whether or not the daemon has read them — and one durable
@@ -37,7 +37,7 @@
 // crash may lose the last unsynced stretch unless EmbeddedOptions.SyncAlways
 // is set.
 //
-// Plain mode (IntakeOptions.Plain) uses core subscriptions. It is best
+// Plain mode (IntakeOptions.Durable false) uses core subscriptions. It is best
 // effort: messages published while the daemon is down or disconnected are
 // lost, a handler that falls far behind makes the client drop messages
 // (see Intake.Dropped), and nothing is redelivered. Seq is then 0.

@@ -82,7 +82,7 @@ func appendBounds(dst []byte, levels []float64, b []series.Bound) []byte {
 			dst = append(dst, ',')
 		}
 		dst = append(dst, '"')
-		dst = strconv.AppendFloat(dst, l, 'f', -1, 64)
+		dst = appendLevel(dst, l)
 		dst = append(dst, `":`...)
 		if i < len(b) && b[i].OK {
 			dst = appendFloat(dst, b[i].Value)
@@ -157,6 +157,14 @@ func AppendError(dst []byte, msg string) []byte {
 	dst = append(dst, `{"error":`...)
 	dst = appendString(dst, msg)
 	return append(dst, '}')
+}
+
+// appendLevel writes an interval level in plain decimal: "80", "97.5".
+func appendLevel(dst []byte, l float64) []byte {
+	if l == math.Trunc(l) && l >= 0 && l < 1e15 {
+		return strconv.AppendInt(dst, int64(l), 10) // the common case, cheaper
+	}
+	return strconv.AppendFloat(dst, l, 'f', -1, 64)
 }
 
 func appendTime(dst []byte, t time.Time) []byte {

@@ -31,11 +31,11 @@ type IntakeOptions struct {
 	// Subjects to take in. Default ["metrics.>"].
 	Subjects []string
 
-	// Plain selects core subscriptions instead of the durable JetStream
-	// intake (intake.durable: false). Plain mode is best effort: messages
-	// published while the daemon is down or disconnected are lost, and
-	// nothing is redelivered.
-	Plain bool
+	// Durable selects the JetStream intake (the config's intake.durable,
+	// true by default there). False selects core subscriptions, which are
+	// best effort: messages published while the daemon is down or
+	// disconnected are lost, and nothing is redelivered.
+	Durable bool
 
 	// Stream is the JetStream stream name. Default "FOREWARN_INTAKE".
 	Stream string
@@ -53,6 +53,9 @@ type IntakeOptions struct {
 	// AckWait is how long the server waits for an acknowledgement before
 	// it redelivers. Default 60 s.
 	AckWait time.Duration
+
+	// SetupTimeout bounds the JetStream requests of NewIntake. Default 10 s.
+	SetupTimeout time.Duration
 
 	// BatchSize is the most messages handed to the handler at once.
 	// Default 1024.
@@ -92,6 +95,9 @@ func (o IntakeOptions) withDefaults() IntakeOptions {
 	}
 	if o.AckWait == 0 {
 		o.AckWait = 60 * time.Second
+	}
+	if o.SetupTimeout <= 0 {
+		o.SetupTimeout = 10 * time.Second
 	}
 	if o.BatchSize <= 0 {
 		o.BatchSize = 1024
@@ -140,15 +146,18 @@ type delivered struct {
 	msg jetstream.Msg
 }
 
-// NewIntake prepares an intake on nc. In durable mode it creates the
+// NewIntake prepares an intake on nc, waiting at most SetupTimeout for the
+// server's answers. In durable mode it creates the
 // JetStream stream if it is absent (file storage, limits retention by
 // MaxAge and MaxBytes, discarding the oldest), updates its subjects and
 // limits if they differ, and (re)creates the durable consumer so that
 // delivery resumes just after the consumer's acknowledgement floor, in
 // stream order: messages that were delivered but not acknowledged before a
 // restart come first, without waiting for AckWait.
-func NewIntake(ctx context.Context, nc *nats.Conn, o IntakeOptions) (*Intake, error) {
+func NewIntake(nc *nats.Conn, o IntakeOptions) (*Intake, error) {
 	o = o.withDefaults()
+	ctx, cancel := context.WithTimeout(context.Background(), o.SetupTimeout)
+	defer cancel()
 	in := &Intake{
 		nc:    nc,
 		o:     o,
@@ -156,7 +165,7 @@ func NewIntake(ctx context.Context, nc *nats.Conn, o IntakeOptions) (*Intake, er
 		full:  make(chan struct{}, 1),
 	}
 	in.space = sync.NewCond(&in.mu)
-	if o.Plain {
+	if !o.Durable {
 		return in, nil
 	}
 	js, err := jetstream.New(nc)
@@ -356,7 +365,7 @@ func (in *Intake) Run(ctx context.Context, handle func(batch []Message)) error {
 // subscribe starts delivery into the buffer and returns the function that
 // stops it and waits until no more messages can be pushed.
 func (in *Intake) subscribe() (func(), error) {
-	if in.o.Plain {
+	if !in.o.Durable {
 		return in.subscribePlain()
 	}
 	cc, err := in.cons.Consume(func(m jetstream.Msg) {
@@ -434,7 +443,7 @@ func (in *Intake) subscribePlain() (func(), error) {
 // the caller recognises by Seq). Plain mode: no effect. Ack may be called
 // from any goroutine.
 func (in *Intake) Ack(seq uint64) error {
-	if in.o.Plain {
+	if !in.o.Durable {
 		return nil
 	}
 	in.ackMu.Lock()
@@ -472,4 +481,4 @@ func (in *Intake) Dropped() uint64 {
 }
 
 // Durable reports whether the intake uses JetStream.
-func (in *Intake) Durable() bool { return !in.o.Plain }
+func (in *Intake) Durable() bool { return in.o.Durable }

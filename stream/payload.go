@@ -342,11 +342,11 @@ func (p *parser) object() (Observation, *Reject) {
 		if p.i >= len(p.b) {
 			return o, p.notJSON()
 		}
+		if (seenTime && string(key) == "time") || (seenValue && string(key) == "value") {
+			return o, reject(CodeBadField, "%skey %s appears twice; send it once", p.where(), excerpt(key))
+		}
 		switch string(key) {
 		case "time":
-			if seenTime {
-				return o, reject(CodeBadField, "%skey \"time\" appears twice; send it once", p.where())
-			}
 			seenTime = true
 			t, rej := p.time()
 			if rej != nil {
@@ -354,9 +354,6 @@ func (p *parser) object() (Observation, *Reject) {
 			}
 			o.Time = t
 		case "value":
-			if seenValue {
-				return o, reject(CodeBadField, "%skey \"value\" appears twice; send it once", p.where())
-			}
 			seenValue = true
 			v, rej := p.value()
 			if rej != nil {
@@ -740,19 +737,48 @@ func excerpt(b []byte) string {
 	return strconv.Quote(string(b))
 }
 
-// TopicOf returns the topic that subject carries under prefix
-// ("metrics.shop.orders" under "metrics" → "shop.orders"). valid, when not
-// nil, checks the topic (config.ValidTopic in the daemon). Errors wrap
-// ErrBadSubject.
-func TopicOf(subject, prefix string, valid func(string) error) (string, error) {
-	if len(subject) <= len(prefix)+1 || subject[:len(prefix)] != prefix || subject[len(prefix)] != '.' {
-		return "", fmt.Errorf("%w: subject %q is not under %q", ErrBadSubject, subject, prefix+".")
-	}
-	topic := subject[len(prefix)+1:]
-	if valid != nil {
-		if err := valid(topic); err != nil {
-			return "", fmt.Errorf("%w: subject %q: %w", ErrBadSubject, subject, err)
+// TopicOf returns the topic that subject carries: the subject without its
+// first token ("metrics.shop.orders" → "shop.orders", CONTRACT.md §2). The
+// subject must match one of the intake patterns (the bus's "*" and ">"
+// wildcards); a narrower pattern such as "metrics.shop.>" keeps the same
+// topic names. TopicOf checks only the shape; the daemon validates the
+// topic itself (config.ValidTopic). Errors wrap ErrBadSubject.
+func TopicOf(subject string, patterns []string) (string, error) {
+	matched := false
+	for _, p := range patterns {
+		if SubjectMatches(p, subject) {
+			matched = true
+			break
 		}
 	}
+	if !matched {
+		return "", fmt.Errorf("%w: subject %q matches none of the intake subjects %q", ErrBadSubject, subject, patterns)
+	}
+	_, topic, ok := strings.Cut(subject, ".")
+	if !ok || topic == "" {
+		return "", fmt.Errorf("%w: subject %q has no topic after its first token (send on e.g. \"metrics.shop.orders\")", ErrBadSubject, subject)
+	}
 	return topic, nil
+}
+
+// SubjectMatches reports whether subject matches pattern, token by token:
+// "*" matches one token, a final ">" one or more.
+func SubjectMatches(pattern, subject string) bool {
+	for {
+		pt, prest, pmore := strings.Cut(pattern, ".")
+		if pt == ">" && !pmore {
+			return subject != ""
+		}
+		st, srest, smore := strings.Cut(subject, ".")
+		if pt != "*" && pt != st {
+			return false
+		}
+		if st == "" && pt == "*" {
+			return false
+		}
+		if !pmore || !smore {
+			return pmore == smore
+		}
+		pattern, subject = prest, srest
+	}
 }

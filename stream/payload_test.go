@@ -217,19 +217,23 @@ func TestParsePayloadAllocs(t *testing.T) {
 }
 
 func TestTopicOf(t *testing.T) {
-	noDots := func(s string) error {
-		if strings.Contains(s, "*") {
-			return errors.New("wildcard")
+	pats := []string{"metrics.>", "app.*.gauge"}
+	for subj, want := range map[string]string{
+		"metrics.shop.orders": "shop.orders",
+		"metrics.x":           "x",
+		"app.web.gauge":       "web.gauge",
+	} {
+		if got, err := TopicOf(subj, pats); err != nil || got != want {
+			t.Errorf("%q: got %q, %v; want %q", subj, got, err, want)
 		}
-		return nil
 	}
-	if got, err := TopicOf("metrics.shop.orders", "metrics", noDots); err != nil || got != "shop.orders" {
-		t.Errorf("got %q, %v", got, err)
-	}
-	for _, s := range []string{"metrics", "metrics.", "metricsx.a", "other.a", "metrics.a.*"} {
-		if _, err := TopicOf(s, "metrics", noDots); !errors.Is(err, ErrBadSubject) {
-			t.Errorf("%q: got %v, want ErrBadSubject", s, err)
+	for _, s := range []string{"metrics", "other.a", "app.web.gauge.x", "app.gauge", "metricsx.a", ""} {
+		if got, err := TopicOf(s, pats); !errors.Is(err, ErrBadSubject) {
+			t.Errorf("%q: got %q, %v; want ErrBadSubject", s, got, err)
 		}
+	}
+	if _, err := TopicOf("metrics", []string{">"}); !errors.Is(err, ErrBadSubject) {
+		t.Errorf("a one-token subject has no topic: %v", err)
 	}
 }
 

@@ -1,0 +1,256 @@
+package stream
+
+import (
+	"encoding/json"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"reflect"
+	"strconv"
+	"testing"
+	"time"
+
+	"forewarn/engine/series"
+)
+
+// Odd topic and rule strings: quotes, backslashes, control characters,
+// HTML characters, line separators, non-ASCII and invalid UTF-8.
+var oddStrings = []string{
+	"shop.orders", `a"b`, `back\slash`, "tab\tnew\nline\r", "bell\x07\x00\x1f", "<tag>&amp;",
+	"ünïcødé.温度", "sep\u2028\u2029", "bad\xffutf8\xc3", "", "emoji.😀",
+}
+
+func randFloat(r *rand.Rand) float64 {
+	switch r.IntN(12) {
+	case 0:
+		return math.NaN()
+	case 1:
+		return math.Inf(1 - 2*r.IntN(2))
+	case 2:
+		return 0
+	case 3:
+		return r.NormFloat64() * 1e-9
+	case 4:
+		return r.NormFloat64() * 1e22
+	case 5:
+		return float64(r.IntN(100000))
+	default:
+		return r.NormFloat64() * 1000
+	}
+}
+
+func randTime(r *rand.Rand) time.Time {
+	t := time.Unix(1.7e9+r.Int64N(1e8), 0)
+	if r.IntN(3) == 0 {
+		t = t.Add(time.Duration(r.Int64N(1e9)))
+	}
+	if r.IntN(2) == 0 {
+		t = t.In(time.FixedZone("x", 3600*(r.IntN(20)-10)))
+	}
+	return t
+}
+
+func randForecast(r *rand.Rand) *series.Forecast {
+	levels := [][]float64{{80, 95}, {50, 80, 95, 97.5}, {99.9}, {}}[r.IntN(4)]
+	f := &series.Forecast{
+		Topic:       oddStrings[r.IntN(len(oddStrings))],
+		Origin:      randTime(r),
+		StepSeconds: int64(1 + r.IntN(86400)),
+		LastValue:   randFloat(r),
+		Kind:        []string{"gauge", "counter"}[r.IntN(2)],
+		Model: series.ModelInfo{
+			Spec:      fmt.Sprintf("ARIMA(%d,%d,%d)(0,1,1)[24]", r.IntN(3), r.IntN(2), r.IntN(3)),
+			Transform: []string{"none", "log", "boxcox(0.25)", "scaled-exp"}[r.IntN(4)],
+			NObs:      r.IntN(5000),
+			AICc:      randFloat(r),
+		},
+		Levels: levels,
+	}
+	if r.IntN(5) > 0 {
+		f.Model.FittedAt = randTime(r)
+	}
+	for h := 1; h <= r.IntN(30); h++ {
+		p := series.Point{H: h, Time: randTime(r), Mean: randFloat(r), Median: randFloat(r)}
+		for range levels {
+			p.Lower = append(p.Lower, series.Bound{Value: randFloat(r), OK: r.IntN(4) > 0})
+			p.Upper = append(p.Upper, series.Bound{Value: randFloat(r), OK: r.IntN(4) > 0})
+		}
+		f.Points = append(f.Points, p)
+	}
+	return f
+}
+
+// Reference encodings built with encoding/json from maps (the Go standard
+// library as the outside reference), with CONTRACT.md §2's keys.
+
+func refNum(v float64) any {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return nil
+	}
+	return v
+}
+
+func refTime(t time.Time) string { return t.UTC().Format(time.RFC3339Nano) }
+
+func refBounds(levels []float64, b []series.Bound) map[string]any {
+	m := map[string]any{}
+	for i, l := range levels {
+		var v any
+		if i < len(b) && b[i].OK {
+			v = refNum(b[i].Value)
+		}
+		m[strconv.FormatFloat(l, 'f', -1, 64)] = v
+	}
+	return m
+}
+
+func refForecast(f *series.Forecast, issued time.Time) []byte {
+	var fitted any
+	if !f.Model.FittedAt.IsZero() {
+		fitted = refTime(f.Model.FittedAt)
+	}
+	points := []any{}
+	for _, p := range f.Points {
+		points = append(points, map[string]any{
+			"h": p.H, "time": refTime(p.Time), "mean": refNum(p.Mean), "median": refNum(p.Median),
+			"lower": refBounds(f.Levels, p.Lower), "upper": refBounds(f.Levels, p.Upper),
+		})
+	}
+	b, err := json.Marshal(map[string]any{
+		"topic": f.Topic, "issued": refTime(issued), "origin": refTime(f.Origin),
+		"step_seconds": f.StepSeconds, "last_value": refNum(f.LastValue), "kind": f.Kind,
+		"model": map[string]any{
+			"spec": f.Model.Spec, "transform": f.Model.Transform, "fitted_at": fitted,
+			"nobs": f.Model.NObs, "aicc": refNum(f.Model.AICc),
+		},
+		"points": points,
+	})
+	if err != nil {
+		panic(err)
+	}
+	return b
+}
+
+// sameJSON decodes both documents with encoding/json and compares them.
+func sameJSON(t *testing.T, got, want []byte) {
+	t.Helper()
+	var g, w any
+	if err := json.Unmarshal(got, &g); err != nil {
+		t.Fatalf("encoding/json cannot read the output: %v\n%s", err, got)
+	}
+	if err := json.Unmarshal(want, &w); err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(g, w) {
+		t.Fatalf("output differs from the encoding/json reference\n got %s\nwant %s", got, want)
+	}
+}
+
+func TestAppendForecastMatchesReference(t *testing.T) {
+	r := rand.New(rand.NewPCG(1, 2))
+	var buf []byte
+	for range 500 {
+		f := randForecast(r)
+		issued := randTime(r)
+		buf = AppendForecast(buf[:0], f, issued)
+		sameJSON(t, buf, refForecast(f, issued))
+	}
+}
+
+func TestAppendForecastExact(t *testing.T) {
+	origin := time.Date(2024, 5, 1, 12, 0, 0, 0, time.UTC)
+	f := &series.Forecast{
+		Topic: "shop.orders", Origin: origin, StepSeconds: 60, LastValue: 1834, Kind: "counter",
+		Model:  series.ModelInfo{Spec: "ARIMA(1,1,1)(0,1,1)[24]", Transform: "log", FittedAt: origin.Add(-time.Hour), NObs: 480, AICc: -1234.5},
+		Levels: []float64{80, 97.5},
+		Points: []series.Point{{H: 1, Time: origin.Add(time.Minute), Mean: 1840.2, Median: 1839.9,
+			Lower: []series.Bound{{Value: 1830.1, OK: true}, {Value: 0, OK: false}},
+			Upper: []series.Bound{{Value: 1849.8, OK: true}, {Value: math.Inf(1), OK: true}}}},
+	}
+	got := string(AppendForecast(nil, f, origin.Add(1500*time.Millisecond)))
+	want := `{"topic":"shop.orders","issued":"2024-05-01T12:00:01.5Z","origin":"2024-05-01T12:00:00Z",` +
+		`"step_seconds":60,"last_value":1834,"kind":"counter","model":{"spec":"ARIMA(1,1,1)(0,1,1)[24]",` +
+		`"transform":"log","fitted_at":"2024-05-01T11:00:00Z","nobs":480,"aicc":-1234.5},"points":[{"h":1,` +
+		`"time":"2024-05-01T12:01:00Z","mean":1840.2,"median":1839.9,"lower":{"80":1830.1,"97.5":null},` +
+		`"upper":{"80":1849.8,"97.5":null}}]}`
+	if got != want {
+		t.Fatalf("got\n%s\nwant\n%s", got, want)
+	}
+}
+
+func TestAppendAlertAndRejectMatchReference(t *testing.T) {
+	r := rand.New(rand.NewPCG(3, 4))
+	var buf []byte
+	for range 300 {
+		e := &series.AlertEvent{
+			Topic: oddStrings[r.IntN(len(oddStrings))], Rule: oddStrings[r.IntN(len(oddStrings))],
+			Firing: r.IntN(2) == 0, Direction: []string{"above", "below"}[r.IntN(2)],
+			Threshold: randFloat(r), Probability: r.Float64(), WithinSeconds: r.Int64N(1e6),
+			ETA: randTime(r), HasETA: r.IntN(2) == 0, Origin: randTime(r),
+		}
+		issued := randTime(r)
+		state := "resolved"
+		if e.Firing {
+			state = "firing"
+		}
+		var eta any
+		if e.HasETA {
+			eta = refTime(e.ETA)
+		}
+		want, _ := json.Marshal(map[string]any{
+			"topic": e.Topic, "rule": e.Rule, "state": state, "direction": e.Direction,
+			"threshold": refNum(e.Threshold), "probability": refNum(e.Probability),
+			"within_seconds": e.WithinSeconds, "eta": eta, "issued": refTime(issued), "origin": refTime(e.Origin),
+		})
+		buf = AppendAlert(buf[:0], e, issued)
+		sameJSON(t, buf, want)
+
+		subj, topic, reason := oddStrings[r.IntN(len(oddStrings))], oddStrings[r.IntN(len(oddStrings))], oddStrings[r.IntN(len(oddStrings))]
+		want, _ = json.Marshal(map[string]any{"subject": subj, "topic": topic, "code": "not_json", "reason": reason, "received": refTime(issued)})
+		buf = AppendReject(buf[:0], subj, topic, "not_json", reason, issued)
+		sameJSON(t, buf, want)
+	}
+}
+
+func benchForecast() *series.Forecast {
+	origin := time.Date(2024, 5, 1, 12, 0, 0, 0, time.UTC)
+	f := &series.Forecast{
+		Topic: "shop.orders", Origin: origin, StepSeconds: 3600, LastValue: 183412.5, Kind: "counter",
+		Model:  series.ModelInfo{Spec: "ARIMA(1,1,1)(0,1,1)[24]", Transform: "log", FittedAt: origin, NObs: 480, AICc: -1234.5678},
+		Levels: []float64{80, 95},
+	}
+	for h := 1; h <= 24; h++ {
+		m := 183412.5 + 1234.567*float64(h)
+		f.Points = append(f.Points, series.Point{H: h, Time: origin.Add(time.Duration(h) * time.Hour), Mean: m, Median: m - 0.25,
+			Lower: []series.Bound{{Value: m - 100.125*float64(h), OK: true}, {Value: m - 180.5*float64(h), OK: true}},
+			Upper: []series.Bound{{Value: m + 100.125*float64(h), OK: true}, {Value: m + 180.5*float64(h), OK: true}}})
+	}
+	return f
+}
+
+func TestAppendAllocs(t *testing.T) {
+	f := benchForecast()
+	issued := time.Now()
+	buf := make([]byte, 0, 8192)
+	if a := testing.AllocsPerRun(100, func() { buf = AppendForecast(buf[:0], f, issued) }); a != 0 {
+		t.Errorf("AppendForecast: %v allocations, want 0", a)
+	}
+	e := &series.AlertEvent{Topic: "x", Rule: "r", Direction: "above", HasETA: true}
+	if a := testing.AllocsPerRun(100, func() { buf = AppendAlert(buf[:0], e, issued) }); a != 0 {
+		t.Errorf("AppendAlert: %v allocations, want 0", a)
+	}
+	if a := testing.AllocsPerRun(100, func() { buf = AppendReject(buf[:0], "metrics.x", "x", "not_json", "why", issued) }); a != 0 {
+		t.Errorf("AppendReject: %v allocations, want 0", a)
+	}
+}
+
+func BenchmarkAppendForecast(b *testing.B) {
+	f := benchForecast()
+	issued := time.Now()
+	buf := AppendForecast(nil, f, issued)
+	b.SetBytes(int64(len(buf)))
+	b.ReportAllocs()
+	for b.Loop() {
+		buf = AppendForecast(buf[:0], f, issued)
+	}
+}
