@@ -1,0 +1,136 @@
+package auto
+
+import (
+	"fmt"
+	"math"
+	"strings"
+
+	"forewarn/engine/arima"
+	"forewarn/engine/transform"
+)
+
+// Options configures Select. The zero value of a field means its default.
+type Options struct {
+	Period    int    // seasonal period in steps; 0 or 1: non-seasonal
+	Transform string // "auto" (or "") or a fixed transform (transform.Parse syntax)
+	Model     string // "auto" (or "") or a fixed "ARIMA(p,d,q)" / "ARIMA(p,d,q)(P,D,Q)[s]": then only the transform is chosen
+	Warm      *Warm  // previous choice, for warm-started refits (may be nil)
+	// Mean is "auto" (or ""): a fixed Model keeps the constant its string
+	// gives (arima.ParseSpec: a mean when d + D = 0 unless "with zero mean"),
+	// and the search tries the constant on and off; "yes": a fixed Model
+	// estimates a mean (needs d + D = 0); "no": no constant at all.
+	Mean string
+	// Order bounds; 0 means the defaults 5, 5, 2, 2 (Hyndman & Khandakar 2008).
+	MaxP, MaxQ, MaxSP, MaxSQ int
+}
+
+// Warm is a previous choice that a refit starts from.
+type Warm struct {
+	Spec      arima.Spec
+	Params    []float64 // in arima.Model.Params layout
+	Transform transform.Transform
+}
+
+// Candidate is one fit that Select tried.
+type Candidate struct {
+	Spec      string  // arima.Spec.String, e.g. "ARIMA(1,1,1)(0,1,1)[24]" or "ARIMA(2,1,0) with drift"
+	Transform string  // transform spec (transform.Transform.String)
+	AICc      float64 // raw-scale AICc; NaN when the fit failed or was rejected
+	Err       string  // why the fit failed or was rejected; "" for an accepted fit
+}
+
+// Choice is the outcome of Select.
+type Choice struct {
+	Spec      arima.Spec
+	Transform transform.Transform // frozen (Loc/Scale set) as used for the fit
+	Result    *arima.Result       // fit on the transformed series
+	RawAICc   float64             // AICc on the raw scale (log-Jacobian added)
+	Tried     []Candidate         // every fit, in the order tried
+}
+
+// Default order bounds (Hyndman & Khandakar 2008, §3.2).
+const (
+	DefaultMaxP  = 5
+	DefaultMaxQ  = 5
+	DefaultMaxSP = 2
+	DefaultMaxSQ = 2
+)
+
+// maxModels bounds the number of fits of one stepwise search (a bound of
+// our own, so a search on a flat AICc surface ends).
+const maxModels = 60
+
+// rootMargin: a fit is rejected when a root of one of its polynomials has
+// modulus ≤ rootMargin (Hyndman & Khandakar 2008 use 1.001).
+const rootMargin = 1.001
+
+// Select chooses a transform and a seasonal ARIMA order for y (raw units,
+// NaN = missing) and fits it; see the package documentation for the
+// procedure. It is deterministic.
+func Select(y []float64, o Options) (*Choice, error) {
+	if err := o.normalise(); err != nil {
+		return nil, err
+	}
+	nobs := 0
+	for _, v := range y {
+		if math.IsInf(v, 0) {
+			return nil, fmt.Errorf("%w: value %v in the series", ErrDomain, v)
+		}
+		if !math.IsNaN(v) {
+			nobs++
+		}
+	}
+	if nobs < minObs {
+		return nil, fmt.Errorf("%w: %d observed values, need at least %d", ErrTooShort, nobs, minObs)
+	}
+	s := &selector{y: y, o: o}
+	if o.Warm != nil {
+		if c, err := s.warm(); err == nil {
+			return c, nil
+		}
+		// The previous model no longer fits (e.g. a value left the
+		// transform's domain): choose afresh.
+		s.tried = s.tried[:0]
+	}
+	return s.cold()
+}
+
+// minObs is the fewest observed values Select fits a model to.
+const minObs = 8
+
+func (o *Options) normalise() error {
+	if o.Period < 0 {
+		return fmt.Errorf("%w: period %d is negative", ErrBadOptions, o.Period)
+	}
+	if o.Period == 1 {
+		o.Period = 0
+	}
+	for _, b := range []struct {
+		v   *int
+		def int
+		nm  string
+	}{{&o.MaxP, DefaultMaxP, "MaxP"}, {&o.MaxQ, DefaultMaxQ, "MaxQ"}, {&o.MaxSP, DefaultMaxSP, "MaxSP"}, {&o.MaxSQ, DefaultMaxSQ, "MaxSQ"}} {
+		switch {
+		case *b.v < 0:
+			return fmt.Errorf("%w: %s %d is negative", ErrBadOptions, b.nm, *b.v)
+		case *b.v == 0:
+			*b.v = b.def
+		}
+	}
+	o.Transform = strings.TrimSpace(o.Transform)
+	if o.Transform == "" {
+		o.Transform = "auto"
+	}
+	switch o.Mean {
+	case "":
+		o.Mean = "auto"
+	case "auto", "yes", "no":
+	default:
+		return fmt.Errorf("%w: mean %q: want auto, yes or no", ErrBadOptions, o.Mean)
+	}
+	o.Model = strings.TrimSpace(o.Model)
+	if o.Model == "" {
+		o.Model = "auto"
+	}
+	return nil
+}

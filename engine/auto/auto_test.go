@@ -1,0 +1,439 @@
+package auto
+
+import (
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"strconv"
+	"testing"
+
+	"forewarn/engine/arima"
+	"forewarn/engine/transform"
+)
+
+// loadSeries reads testdata/datasets/NAME.csv (R 4.2.2 `datasets`, exported
+// by testdata/r/arima_refs.R; NA = missing).
+func loadSeries(t testing.TB, name string) []float64 {
+	t.Helper()
+	f, err := os.Open(filepath.Join("..", "..", "testdata", "datasets", name+".csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	rows, err := csv.NewReader(f).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	y := make([]float64, 0, len(rows)-1)
+	for _, r := range rows[1:] {
+		v, err := strconv.ParseFloat(r[len(r)-1], 64)
+		if err != nil {
+			v = math.NaN()
+		}
+		y = append(y, v)
+	}
+	return y
+}
+
+// rRef is one case of testdata/r/arima_refs.json (R 4.2.2 stats::arima,
+// method "ML").
+type rRef struct {
+	ID, Data, Transform string
+	Order, Seasonal     []int
+	Period              int
+	LogLik, AIC         float64
+	NObs                int
+}
+
+func loadRefs(t *testing.T) map[string]rRef {
+	t.Helper()
+	raw, err := os.ReadFile(filepath.Join("..", "..", "testdata", "r", "arima_refs.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var doc struct{ Cases []rRef }
+	if err := json.Unmarshal(raw, &doc); err != nil {
+		t.Fatal(err)
+	}
+	m := map[string]rRef{}
+	for _, c := range doc.Cases {
+		m[c.ID] = c
+	}
+	return m
+}
+
+// aicc is AIC + 2(k+1)(k+2)/(n−k−2) (Hurvich & Tsai 1989), k the number of
+// estimated coefficients.
+func aicc(aic float64, k, n int) float64 {
+	return aic + 2*float64(k+1)*float64(k+2)/float64(n-k-2)
+}
+
+// TestFixedModelMatchesR: with the order fixed and no transform, Select's
+// fit is R's fit, and its raw AICc is R's AIC corrected for small samples.
+// Source: R 4.2.2 stats::arima(method = "ML"), testdata/r/arima_refs.json.
+func TestFixedModelMatchesR(t *testing.T) {
+	refs := loadRefs(t)
+	for _, tc := range []struct {
+		id, model string
+		period, k int
+	}{
+		{"USAccDeaths_airline", "ARIMA(0,1,1)(0,1,1)[12]", 12, 2},
+		{"LakeHuron_ar2", "ARIMA(2,0,0)", 0, 3},
+		{"WWWusage_111", "ARIMA(1,1,1)", 0, 2},
+	} {
+		ref := refs[tc.id]
+		y := loadSeries(t, ref.Data)
+		c, err := Select(y, Options{Period: tc.period, Transform: "none", Model: tc.model})
+		if err != nil {
+			t.Fatalf("%s: %v", tc.id, err)
+		}
+		// Tolerance: the arima package's acceptance (loglik within 0.01 of R).
+		if math.Abs(c.Result.LogLik-ref.LogLik) > 0.01 {
+			t.Errorf("%s: loglik %.4f, R 4.2.2 %.4f", tc.id, c.Result.LogLik, ref.LogLik)
+		}
+		want := aicc(ref.AIC, tc.k, ref.NObs)
+		if math.Abs(c.RawAICc-want) > 0.02 {
+			t.Errorf("%s: raw AICc %.4f, from R's AIC %.4f", tc.id, c.RawAICc, want)
+		}
+		if len(c.Tried) != 1 || c.Transform.Name != transform.None {
+			t.Errorf("%s: tried %v, transform %v; want one fit, none", tc.id, c.Tried, c.Transform)
+		}
+	}
+}
+
+// TestRawAICcJacobian: the log airline fit of AirPassengers on the raw
+// scale is R's log-scale loglik 244.70 minus Σ log x over the 131
+// observations after the first d + sD = 13 (Box & Cox 1964; R 4.2.2,
+// testdata/r/arima_refs.json). The log10 fit, R's loglik 353.96, gives the
+// same raw-scale likelihood: the two differ by exactly n·log(ln 10)
+// (REFERENCES.md).
+func TestRawAICcJacobian(t *testing.T) {
+	refs := loadRefs(t)
+	y := loadSeries(t, "AirPassengers")
+	c, err := Select(y, Options{Period: 12, Transform: "log", Model: "ARIMA(0,1,1)(0,1,1)[12]"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var sumLog float64
+	for _, v := range y[13:] {
+		sumLog += math.Log(v)
+	}
+	for _, id := range []string{"AirPassengers_log_airline", "AirPassengers_log10_airline"} {
+		ref := refs[id]
+		ll := ref.LogLik - sumLog
+		if id == "AirPassengers_log10_airline" {
+			ll -= float64(ref.NObs) * math.Log(math.Ln10)
+		}
+		want := -2*ll + 2*3 + 2*3*4/float64(ref.NObs-4)
+		if math.Abs(c.RawAICc-want) > 0.02 {
+			t.Errorf("raw AICc %.4f; from R's %s loglik %.4f", c.RawAICc, id, want)
+		}
+	}
+}
+
+// TestAirPassengersNotRaw: with the airline order fixed, the automatic
+// transform choice leaves the raw scale for AirPassengers, whose seasonal
+// swings grow with the level (Box & Jenkins 1976, Series G, model the log).
+func TestAirPassengersNotRaw(t *testing.T) {
+	y := loadSeries(t, "AirPassengers")
+	c, err := Select(y, Options{Period: 12, Transform: "auto", Model: "ARIMA(0,1,1)(0,1,1)[12]"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c.Transform.Name == transform.None {
+		t.Errorf("chose %v; tried %+v", c.Transform, c.Tried)
+	}
+	if len(c.Tried) != 3 {
+		t.Errorf("tried %d transforms, want none, log, boxcox", len(c.Tried))
+	}
+	for _, cd := range c.Tried {
+		if cd.Err == "" && cd.AICc < c.RawAICc {
+			t.Errorf("%+v beats the choice %v", cd, c.RawAICc)
+		}
+	}
+}
+
+// simulate returns n values of the seasonal ARIMA m (from its polynomials)
+// driven by seeded N(0, σ²) noise, after a burn-in of 200, plus level.
+func simulate(t testing.TB, m *arima.Model, n int, level float64, seed uint64) []float64 {
+	t.Helper()
+	rng := rand.New(rand.NewPCG(seed, 0))
+	s := m.Spec.Period
+	// Expanded AR and MA polynomials of φ(B)Φ(B^s) and θ(B)Θ(B^s).
+	ar := mulPoly(polyOf(m.AR, -1, 1), polyOf(m.SAR, -1, s))
+	ma := mulPoly(polyOf(m.MA, 1, 1), polyOf(m.SMA, 1, s))
+	burn := 200
+	N := n + burn
+	e := make([]float64, N)
+	w := make([]float64, N)
+	for i := range e {
+		e[i] = rng.NormFloat64() * math.Sqrt(m.Sigma2)
+		v := 0.0
+		for j := 0; j < len(ma); j++ {
+			if i-j >= 0 {
+				v += ma[j] * e[i-j]
+			}
+		}
+		for j := 1; j < len(ar); j++ {
+			if i-j >= 0 {
+				v -= ar[j] * w[i-j]
+			}
+		}
+		w[i] = v
+	}
+	x := w[burn:]
+	for k := 0; k < m.Spec.D; k++ {
+		x = integrate(x, 1)
+	}
+	for k := 0; k < m.Spec.SD; k++ {
+		x = integrate(x, s)
+	}
+	out := make([]float64, n)
+	for i := range out {
+		out[i] = x[i] + level
+		if m.Spec.Mean {
+			out[i] += m.Mean
+		}
+	}
+	return out
+}
+
+func polyOf(c []float64, sign float64, lag int) []float64 {
+	p := make([]float64, len(c)*lag+1)
+	p[0] = 1
+	for i, v := range c {
+		p[(i+1)*lag] = sign * v
+	}
+	return p
+}
+
+func mulPoly(a, b []float64) []float64 {
+	out := make([]float64, len(a)+len(b)-1)
+	for i, x := range a {
+		for j, y := range b {
+			out[i+j] += x * y
+		}
+	}
+	return out
+}
+
+func integrate(x []float64, lag int) []float64 {
+	out := make([]float64, len(x))
+	for i := range x {
+		out[i] = x[i]
+		if i >= lag {
+			out[i] += out[i-lag]
+		}
+	}
+	return out
+}
+
+func mustModel(t testing.TB, spec string, mean bool, params []float64, sigma2 float64) *arima.Model {
+	t.Helper()
+	sp, err := arima.ParseSpec(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sp.Mean = mean
+	m, err := arima.NewModel(sp, params, sigma2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return m
+}
+
+// TestStepwiseOnKnownModels: on series simulated from known models the
+// search finds the true differencing orders and a model at least as good
+// (by AICc) as the true order, and every accepted fit it reports is no
+// better than its choice (the search's own consistency).
+func TestStepwiseOnKnownModels(t *testing.T) {
+	cases := []struct {
+		name     string
+		model    *arima.Model
+		n        int
+		d, sd    int
+		trueSpec string
+	}{
+		{"AR(2)", mustModel(t, "ARIMA(2,0,0)", true, []float64{0.6, -0.3, 10}, 1), 400, 0, 0, "ARIMA(2,0,0)"},
+		{"IMA(1,1)", mustModel(t, "ARIMA(0,1,1)", false, []float64{-0.5}, 1), 400, 1, 0, "ARIMA(0,1,1)"},
+		{"airline[12]", mustModel(t, "ARIMA(0,1,1)(0,1,1)[12]", false, []float64{-0.4, -0.6}, 1), 240, 1, 1, "ARIMA(0,1,1)(0,1,1)[12]"},
+	}
+	for i, tc := range cases {
+		y := simulate(t, tc.model, tc.n, 0, uint64(i+1))
+		c, err := Select(y, Options{Period: tc.model.Spec.Period, Transform: "none"})
+		if err != nil {
+			t.Fatalf("%s: %v", tc.name, err)
+		}
+		if c.Spec.D != tc.d || c.Spec.SD != tc.sd {
+			t.Errorf("%s: chose %s, want d=%d D=%d", tc.name, c.Spec, tc.d, tc.sd)
+		}
+		truth, err := Select(y, Options{Period: tc.model.Spec.Period, Transform: "none", Model: tc.trueSpec})
+		if err != nil {
+			t.Fatalf("%s true spec: %v", tc.name, err)
+		}
+		if c.RawAICc > truth.RawAICc+1e-9 && c.Spec.D == tc.d && c.Spec.SD == tc.sd {
+			t.Errorf("%s: chose %s AICc %.3f, the true order has %.3f", tc.name, c.Spec, c.RawAICc, truth.RawAICc)
+		}
+		for _, cd := range c.Tried {
+			if cd.Err == "" && cd.AICc < c.RawAICc {
+				t.Errorf("%s: tried %+v better than the choice %.3f", tc.name, cd, c.RawAICc)
+			}
+		}
+		t.Logf("%s: chose %s (AICc %.2f; true order %.2f), %d fits", tc.name, c.Spec.String(), c.RawAICc, truth.RawAICc, len(c.Tried))
+	}
+}
+
+// TestDeterministic: the same data give the same choice, fit for fit.
+func TestDeterministic(t *testing.T) {
+	y := loadSeries(t, "USAccDeaths")
+	a, err := Select(y, Options{Period: 12})
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := Select(y, Options{Period: 12})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.Spec != b.Spec || a.Transform != b.Transform || a.RawAICc != b.RawAICc || len(a.Tried) != len(b.Tried) {
+		t.Fatalf("two runs differ: %s %v %v / %s %v %v", a.Spec, a.Transform, a.RawAICc, b.Spec, b.Transform, b.RawAICc)
+	}
+	for i := range a.Tried {
+		ta, tb := a.Tried[i], b.Tried[i]
+		if ta.Spec != tb.Spec || ta.Transform != tb.Transform || ta.Err != tb.Err || !(ta.AICc == tb.AICc || math.IsNaN(ta.AICc) && math.IsNaN(tb.AICc)) {
+			t.Errorf("fit %d differs: %+v / %+v", i, ta, tb)
+		}
+	}
+}
+
+// TestWarm: a warm refit from the cold choice keeps the order and the
+// likelihood, with at most five fits.
+func TestWarm(t *testing.T) {
+	y := loadSeries(t, "USAccDeaths")
+	cold, err := Select(y, Options{Period: 12})
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := &Warm{Spec: cold.Spec, Params: cold.Result.Model.Params(), Transform: cold.Transform}
+	warm, err := Select(y, Options{Period: 12, Warm: w})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(warm.Tried) > 5 {
+		t.Errorf("warm refit tried %d fits, want ≤ 5", len(warm.Tried))
+	}
+	if warm.RawAICc > cold.RawAICc+0.01 {
+		t.Errorf("warm AICc %.4f worse than cold %.4f", warm.RawAICc, cold.RawAICc)
+	}
+	// A warm transform that no longer applies falls back to a cold choice.
+	neg := append([]float64(nil), y...)
+	neg[10] = -1
+	w2 := &Warm{Spec: cold.Spec, Params: w.Params, Transform: transform.Transform{Name: transform.Log}}
+	c, err := Select(neg, Options{Period: 12, Warm: w2})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c.Transform.Name == transform.Log || c.Transform.Name == transform.BoxCox {
+		t.Errorf("transform %v on a series with a negative value", c.Transform)
+	}
+}
+
+func TestAdjustStart(t *testing.T) {
+	from := arima.Spec{P: 2, Q: 1, SQ: 1, D: 1, SD: 1, Period: 12}
+	to := arima.Spec{P: 1, Q: 2, SQ: 1, D: 1, SD: 1, Period: 12}
+	got := adjustStart([]float64{0.5, -0.2, 0.3, -0.6}, from, to)
+	want := []float64{0.5, 0.3, 0, -0.6}
+	if fmt.Sprint(got) != fmt.Sprint(want) {
+		t.Errorf("adjustStart = %v, want %v", got, want)
+	}
+	if adjustStart([]float64{1}, from, to) != nil {
+		t.Error("a start of the wrong length must give nil")
+	}
+}
+
+// TestMinRootModulus checks the root moduli on polynomials worked by hand.
+func TestMinRootModulus(t *testing.T) {
+	cases := []struct {
+		c    []float64
+		sign float64
+		want float64
+	}{
+		{[]float64{1.3, -0.4}, -1, 1.25},      // 1 − 1.3z + 0.4z² = (1 − 0.5z)(1 − 0.8z): roots 2, 1.25
+		{[]float64{0, 0.25}, 1, 2},            // 1 + 0.25z²: roots ±2i
+		{[]float64{-0.9995}, 1, 1 / 0.9995},   // 1 − 0.9995z
+		{[]float64{0.5, 0, 0}, -1, 2},         // trailing zeros ignored
+		{nil, 1, math.Inf(1)},                 // no polynomial, no root
+		{[]float64{0, 0, 0, 0.0625}, -1, 2.0}, // 1 − z⁴/16: |z| = 2
+	}
+	for _, tc := range cases {
+		if got := minRootModulus(tc.c, tc.sign); math.Abs(got-tc.want) > 1e-9*math.Max(1, tc.want) && got != tc.want {
+			t.Errorf("minRootModulus(%v, %v) = %v, want %v", tc.c, tc.sign, got, tc.want)
+		}
+	}
+}
+
+// TestConcaveGrowth: scaled-exp is tried for a saturating rise and not for
+// a straight line or a convex rise (the package's documented rule).
+func TestConcaveGrowth(t *testing.T) {
+	rng := rand.New(rand.NewPCG(7, 0))
+	mk := func(f func(float64) float64) []float64 {
+		y := make([]float64, 200)
+		for i := range y {
+			y[i] = f(float64(i)) + 0.05*rng.NormFloat64()
+		}
+		return y
+	}
+	if !concaveGrowth(mk(func(t float64) float64 { return math.Log(1 + t) })) {
+		t.Error("log growth not seen as concave")
+	}
+	if concaveGrowth(mk(func(t float64) float64 { return 0.01 * t })) {
+		t.Error("a line seen as concave")
+	}
+	if concaveGrowth(mk(func(t float64) float64 { return 1e-4 * t * t })) {
+		t.Error("convex growth seen as concave")
+	}
+}
+
+func TestErrors(t *testing.T) {
+	y := loadSeries(t, "Nile")
+	neg := append([]float64(nil), y...)
+	neg[3] = -5
+	cases := []struct {
+		name string
+		y    []float64
+		o    Options
+		want error
+	}{
+		{"negative period", y, Options{Period: -1}, ErrBadOptions},
+		{"negative bound", y, Options{MaxP: -1}, ErrBadOptions},
+		{"unknown transform", y, Options{Transform: "sqrt"}, ErrBadOptions},
+		{"bad model", y, Options{Model: "ARIMA(1,1)"}, ErrBadOptions},
+		{"short", y[:5], Options{}, ErrTooShort},
+		{"log of a negative value", neg, Options{Transform: "log"}, ErrDomain},
+		{"infinite value", append([]float64{math.Inf(1)}, y...), Options{}, ErrDomain},
+		{"all missing", []float64{math.NaN(), math.NaN(), math.NaN(), math.NaN(), math.NaN(), math.NaN(), math.NaN(), math.NaN(), math.NaN()}, Options{}, ErrTooShort},
+	}
+	for _, tc := range cases {
+		if _, err := Select(tc.y, tc.o); !errors.Is(err, tc.want) {
+			t.Errorf("%s: %v, want %v", tc.name, err, tc.want)
+		}
+	}
+}
+
+func ExampleSelect() {
+	// R `datasets` LakeHuron, 1875–1972 (first 20 of 98 annual levels, feet).
+	y := []float64{580.38, 581.86, 580.97, 580.8, 579.79, 580.39, 580.42, 580.82, 581.4, 581.32,
+		581.44, 581.68, 581.17, 580.53, 580.01, 579.91, 579.14, 579.16, 579.55, 579.67}
+	c, err := Select(y, Options{Transform: "none", Model: "ARIMA(1,0,0)"})
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	fmt.Println(c.Spec.String(), c.Transform.String(), len(c.Tried), "fit")
+	// Output:
+	// ARIMA(1,0,0) none 1 fit
+}

@@ -1,0 +1,51 @@
+package auto
+
+import (
+	"testing"
+)
+
+// hourly24 is a deterministic hourly series of 2000 points with a daily
+// period: the airline model (0,1,1)(0,1,1)[24], θ = −0.4, Θ = −0.6, σ = 1,
+// simulated from a seeded generator around a level of 500 (positive, so
+// log and boxcox are candidates too).
+func hourly24(b testing.TB) []float64 {
+	m := mustModel(b, "ARIMA(0,1,1)(0,1,1)[24]", false, []float64{-0.4, -0.6}, 1)
+	return simulate(b, m, 2000, 500, 2024)
+}
+
+// BenchmarkSelectHourly24 is a cold automatic choice (transform, d, D,
+// stepwise orders) for 2000 hourly points with s = 24. Target: < 1 s.
+func BenchmarkSelectHourly24(b *testing.B) {
+	y := hourly24(b)
+	b.ReportAllocs()
+	var fits int
+	for b.Loop() {
+		c, err := Select(y, Options{Period: 24})
+		if err != nil {
+			b.Fatal(err)
+		}
+		fits = len(c.Tried)
+	}
+	b.ReportMetric(float64(fits), "fits/op")
+}
+
+// BenchmarkWarmHourly24 is a warm-started refit of the same series from
+// its cold choice, after 24 new points. Target: < 50 ms.
+func BenchmarkWarmHourly24(b *testing.B) {
+	y := hourly24(b)
+	c, err := Select(y[:1976], Options{Period: 24})
+	if err != nil {
+		b.Fatal(err)
+	}
+	w := &Warm{Spec: c.Spec, Params: c.Result.Model.Params(), Transform: c.Transform}
+	b.ReportAllocs()
+	var fits int
+	for b.Loop() {
+		c, err := Select(y, Options{Period: 24, Warm: w})
+		if err != nil {
+			b.Fatal(err)
+		}
+		fits = len(c.Tried)
+	}
+	b.ReportMetric(float64(fits), "fits/op")
+}

@@ -1,0 +1,86 @@
+// Package auto chooses a transform and a seasonal ARIMA order for a series
+// automatically, and fits the chosen model.
+//
+// # Procedure (Select)
+//
+// Deterministic: the same series and options give the same choice.
+//
+//  1. Candidate transforms. With Transform "auto": none; log and boxcox(λ),
+//     λ by Guerrero (1993) on [−1, 2], when every observed value is > 0;
+//     scaled-exp when the series shows concave growth (see below). A fixed
+//     transform is the only candidate ("boxcox" without λ gets Guerrero's λ).
+//     Scaled-exp is tried only when a least-squares quadratic trend
+//     a + b·t + c·t² through the observed values rises (b + 2c·t̄ > 0 at the
+//     mean time t̄) and bends down with c < 0 at a t-ratio below −2: the
+//     saturating growth it is meant for (a heuristic; common practice).
+//  2. Differencing, once, shared by every transform (a comparison of
+//     likelihoods across transforms through the log-Jacobian is only valid
+//     at equal differencing orders). The orders are chosen on the
+//     variance-stabilised series: the boxcox(λ) candidate when the series is
+//     positive, the raw series otherwise. D = NSDiffs (seasonal strength >
+//     0.64) when the period s ≥ 2 and at least 2s + 2 values are observed,
+//     else 0; then d = NDiffs (successive KPSS level tests at 5 %, d ≤ 2) on
+//     the series differenced D times at lag s.
+//  3. Transform choice. For each candidate transform, the four starting
+//     models of Hyndman & Khandakar (2008) are fitted; the transform whose
+//     best starting model has the lowest raw-scale AICc wins.
+//  4. Order search, on the winning transform: the stepwise search of
+//     Hyndman & Khandakar (2008) from the best starting model. The
+//     neighbours of the current model, tried in a fixed order, are ±1 on
+//     one of p, q, P, Q; ±1 on p and q together; ±1 on P and Q together; the
+//     constant on or off. The first neighbour with a lower AICc becomes the
+//     current model and the search repeats; it stops when no neighbour
+//     improves or after MaxModels fits. Orders are bounded by MaxP, MaxQ,
+//     MaxSP, MaxSQ. The constant is a mean when d + D = 0 and a drift when
+//     d + D = 1; there is none when d + D ≥ 2.
+//  5. The chosen order is refitted under every other candidate transform
+//     and the transform with the lowest raw-scale AICc is kept.
+//
+// A fit is rejected (listed in Choice.Tried with its reason) when it fails,
+// when its log-likelihood is not finite, or when a root of its AR, MA,
+// seasonal AR or seasonal MA polynomial lies within 1.001 of the unit circle
+// (|z| ≤ 1.001; seasonal polynomials in z^s). Roots are the eigenvalues of
+// the companion matrix.
+//
+// # Raw-scale AICc
+//
+// With w = g(x) the transformed series, the model gives log L_w on the
+// model scale, and the raw series has
+//
+//	log L_x = log L_w + J,   J = Σ_t log |g'(x_t)|
+//	AICc_x  = −2·log L_x + 2(k+1) + 2(k+1)(k+2)/(n−k−2)
+//
+// where the sum runs over the n observations that enter the likelihood of
+// the differenced series (the observed values after the first d + sD
+// observed ones) and k is the number of estimated coefficients.
+//
+// # Fixed model, warm start
+//
+// With a fixed Model only the transform is chosen (the spec fitted under
+// each candidate). With Warm set, the previous spec and transform are
+// refitted first from the previous parameters; then the reduced
+// neighbourhood of ±1 on p and on q (each fit warm-started from the
+// previous parameters) is tried, and the best is kept. Differencing and
+// the transform are not re-chosen on a warm refit.
+//
+// # Contract
+//
+// Pure computation: no I/O, no goroutines; safe for concurrent use on
+// different inputs. Missing values are NaN. Errors wrap the sentinels of
+// errors.go.
+//
+// References:
+//   - Hyndman, R. J. & Khandakar, Y. (2008). Automatic time series
+//     forecasting: the forecast package for R. Journal of Statistical
+//     Software 27(3), §3.2 (the stepwise algorithm).
+//   - Guerrero, V. M. (1993). Time-series analysis supported by power
+//     transformations. Journal of Forecasting 12(1), 37–48.
+//   - Box, G. E. P. & Cox, D. R. (1964). An analysis of transformations.
+//     Journal of the Royal Statistical Society B 26(2), 211–252 (the
+//     Jacobian term).
+//   - Hurvich, C. M. & Tsai, C.-L. (1989). Regression and time series model
+//     selection in small samples. Biometrika 76(2), 297–307 (AICc).
+//   - Kwiatkowski, D., Phillips, P. C. B., Schmidt, P. & Shin, Y. (1992).
+//     Testing the null hypothesis of stationarity against the alternative
+//     of a unit root. Journal of Econometrics 54, 159–178.
+package auto
