@@ -55,6 +55,7 @@
 //	Topic              string
 //	Fingerprint        string
 //	Seq                uint64
+//	SeqApplied         uint32
 //	Kind               string
 //	StepSeconds        int64
 //	HasOpen            bool

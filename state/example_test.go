@@ -28,8 +28,8 @@ func ExampleEncode() {
 	_, err = state.Decode(rec)
 	fmt.Println(err)
 	// Output:
-	// 241 storage.vol1.used_bytes [7.1e+11 NaN 7.3e+11]
-	// state: corrupt record: CRC mismatch at byte 237 (stored 5f152797, computed cbb726c4)
+	// 245 storage.vol1.used_bytes [7.1e+11 NaN 7.3e+11]
+	// state: corrupt record: CRC mismatch at byte 241 (stored 2815c7ab, computed 2e4b4f16)
 }
 
 func ExampleStore() {

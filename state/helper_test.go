@@ -90,6 +90,7 @@ func randomSnapshot(r *rand.Rand, maxWindow int) *series.Snapshot {
 		Topic:          "t." + randomString(r, 30),
 		Fingerprint:    randomString(r, 64),
 		Seq:            r.Uint64(),
+		SeqApplied:     r.Uint32(),
 		Kind:           []string{"gauge", "counter"}[r.IntN(2)],
 		StepSeconds:    r.Int64N(86400) + 1,
 		HasOpen:        r.IntN(2) == 0,

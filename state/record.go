@@ -36,7 +36,7 @@ const (
 	strHead   = 4 // uint32 length before a string
 	sliceHead = 4 // uint32 count before a float64 slice
 	// every fixed-width field of the snapshot outside Transform, Model, Alerts
-	fixedTop = 8 + 8 + // Seq, StepSeconds
+	fixedTop = 8 + 4 + 8 + // Seq, SeqApplied, StepSeconds
 		1 + 8 + 8 + // HasOpen, OpenBucket, OpenValue
 		8 + 8 + 1 + 8 + // CounterOffset, CounterLastRaw, CounterHasRaw, CounterResets
 		8 + // WindowEnd
@@ -83,6 +83,7 @@ func Encode(dst []byte, s *series.Snapshot) []byte {
 	dst = appendString(dst, s.Topic)
 	dst = appendString(dst, s.Fingerprint)
 	dst = le.AppendUint64(dst, s.Seq)
+	dst = le.AppendUint32(dst, s.SeqApplied)
 	dst = appendString(dst, s.Kind)
 	dst = le.AppendUint64(dst, uint64(s.StepSeconds))
 
@@ -312,6 +313,7 @@ func decodeV1(body []byte) (*series.Snapshot, error) {
 	s.Topic = r.str("topic")
 	s.Fingerprint = r.str("fingerprint")
 	s.Seq = r.u64("seq")
+	s.SeqApplied = r.u32("seq applied")
 	s.Kind = r.str("kind")
 	s.StepSeconds = r.i64("step seconds")
 

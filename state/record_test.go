@@ -167,7 +167,7 @@ func TestVersionMismatch(t *testing.T) {
 // Fields that pass the checksum but hold values no encoder writes.
 func TestBadFieldsBehindValidChecksum(t *testing.T) {
 	base := Encode(nil, &series.Snapshot{Topic: "x", Window: []float64{1, 2}})
-	hasOpen := headerLen + 4 + 1 + 4 + 8 + 4 + 8 // after topic "x", empty fingerprint, seq, empty kind, step
+	hasOpen := headerLen + 4 + 1 + 4 + 8 + 4 + 4 + 8 // after topic "x", empty fingerprint, seq, seq applied, empty kind, step
 	windowCount := hasOpen + 1 + 8 + 8 + 8 + 8 + 1 + 8 + 8
 	tests := []struct {
 		name  string
