@@ -1,16 +1,22 @@
 package auto
 
 import (
+	"math"
 	"testing"
 )
 
 // hourly24 is a deterministic hourly series of 2000 points with a daily
-// period: the airline model (0,1,1)(0,1,1)[24], θ = −0.4, Θ = −0.6, σ = 1,
-// simulated from a seeded generator around a level of 500 (positive, so
-// log and boxcox are candidates too).
+// period: a daily profile 20·sin(2πt/24) plus the airline model
+// (0,1,1)(0,1,1)[24], θ = −0.4, Θ = −0.6, σ = 1, simulated from a seeded
+// generator around a level of 500 (positive, so log and boxcox are
+// candidates too).
 func hourly24(b testing.TB) []float64 {
 	m := mustModel(b, "ARIMA(0,1,1)(0,1,1)[24]", false, []float64{-0.4, -0.6}, 1)
-	return simulate(b, m, 2000, 500, 2024)
+	y := simulate(b, m, 2000, 500, 2024)
+	for i := range y {
+		y[i] += 20 * math.Sin(2*math.Pi*float64(i)/24)
+	}
+	return y
 }
 
 // BenchmarkSelectHourly24 is a cold automatic choice (transform, d, D,

@@ -21,18 +21,23 @@
 //     0.64) when the period s ≥ 2 and at least 2s + 2 values are observed,
 //     else 0; then d = NDiffs (successive KPSS level tests at 5 %, d ≤ 2) on
 //     the series differenced D times at lag s.
-//  3. Transform choice. For each candidate transform, the four starting
-//     models of Hyndman & Khandakar (2008) are fitted; the transform whose
-//     best starting model has the lowest raw-scale AICc wins.
+//  3. Transform choice. The four starting models of Hyndman & Khandakar
+//     (2008) are fitted on the base candidate (the one of step 2), and the
+//     best of them is fitted under every other candidate; the transform
+//     with the lowest raw-scale AICc at that order wins (one comparison
+//     order instead of a search per transform, to keep Select fast).
 //  4. Order search, on the winning transform: the stepwise search of
 //     Hyndman & Khandakar (2008) from the best starting model. The
 //     neighbours of the current model, tried in a fixed order, are ±1 on
 //     one of p, q, P, Q; ±1 on p and q together; ±1 on P and Q together; the
 //     constant on or off. The first neighbour with a lower AICc becomes the
 //     current model and the search repeats; it stops when no neighbour
-//     improves or after MaxModels fits. Orders are bounded by MaxP, MaxQ,
-//     MaxSP, MaxSQ. The constant is a mean when d + D = 0 and a drift when
-//     d + D = 1; there is none when d + D ≥ 2.
+//     improves or after 60 fits. Each neighbour's fit starts from the
+//     current model's coefficients, cut or padded with zeros (a nested
+//     start, so a larger neighbour starts where the current model is).
+//     Orders are bounded by MaxP, MaxQ, MaxSP, MaxSQ. The constant is a
+//     mean when d + D = 0 and a drift when d + D = 1; there is none when
+//     d + D ≥ 2 or when Options.Mean is "no".
 //  5. The chosen order is refitted under every other candidate transform
 //     and the transform with the lowest raw-scale AICc is kept.
 //

@@ -91,18 +91,25 @@ func (s *selector) cold() (*Choice, error) {
 		return s.choice(bestC, best)
 	}
 
-	// Transform choice on the starting models.
-	var bestC *scaled
+	// Transform choice at the best starting model of the base transform.
+	base := s.base(cands)
 	var best *fitted
-	for _, c := range cands {
-		for _, spec := range s.starts() {
-			if f := s.fit(c, spec, nil); f != nil && (best == nil || f.aicc < best.aicc) {
-				best, bestC = f, c
-			}
+	for _, spec := range s.starts() {
+		if f := s.fit(base, spec, nil); f != nil && (best == nil || f.aicc < best.aicc) {
+			best = f
 		}
 	}
 	if best == nil {
 		return s.choice(nil, nil)
+	}
+	bestC := base
+	for _, c := range cands {
+		if c == base {
+			continue
+		}
+		if f := s.fit(c, best.spec, nil); f != nil && f.aicc < best.aicc {
+			best, bestC = f, c
+		}
 	}
 	best = s.stepwise(bestC, best)
 	// The chosen order under every other transform.
@@ -183,13 +190,7 @@ func (s *selector) transforms() ([]*scaled, error) {
 // differencing chooses d and D once for every candidate (package doc,
 // step 2).
 func (s *selector) differencing(cands []*scaled) {
-	base := cands[0]
-	for _, c := range cands {
-		if c.tr.Name == transform.BoxCox {
-			base = c
-		}
-	}
-	x := interpolate(base.w)
+	x := interpolate(s.base(cands).w)
 	p := s.o.Period
 	s.seasonal = p >= 2 && s.nobs >= 2*p+2
 	s.sd = 0
@@ -206,6 +207,17 @@ func (s *selector) differencing(cands []*scaled) {
 	if d, err := stationarity.NDiffs(x, 0.05, 2); err == nil {
 		s.d = d
 	}
+}
+
+// base is the variance-stabilised candidate: boxcox when there is one,
+// else the first candidate (none, or the fixed transform).
+func (s *selector) base(cands []*scaled) *scaled {
+	for _, c := range cands {
+		if c.tr.Name == transform.BoxCox {
+			return c
+		}
+	}
+	return cands[0]
 }
 
 // spec builds the spec of orders (p, q)(P, Q) at the shared differencing
@@ -283,7 +295,7 @@ func (s *selector) stepwise(c *scaled, cur *fitted) *fitted {
 			if c.fits >= maxModels {
 				break
 			}
-			if f := s.fit(c, nb, nil); f != nil && f.aicc < cur.aicc {
+			if f := s.fit(c, nb, adjustStart(cur.res.Model.Params(), cur.spec, nb)); f != nil && f.aicc < cur.aicc {
 				cur, improved = f, true
 				break
 			}
