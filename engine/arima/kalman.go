@@ -161,7 +161,8 @@ const (
 //	dst[r] = c + src[0] + Σ_j δ_j src[r+j]          (the new level y_t)
 //	dst[r+j] = src[r+j−1]                           (j ≥ 1)
 func (s *ssm) tVec(dst, src []float64, c float64) {
-	r, nd := s.r, s.nd
+	r := s.r
+	nd := len(dst) - r // 0: the ARMA block alone
 	s0 := src[0]
 	for i := 0; i < r-1; i++ {
 		dst[i] = s.phi[i]*s0 + src[i+1]
@@ -181,7 +182,7 @@ func (s *ssm) tVec(dst, src []float64, c float64) {
 }
 
 // zVec returns Z src = src[0] + Σ_j δ_j src[r+j] (the observation row of
-// the augmented form; src[0] alone without levels).
+// the augmented form); src must hold the levels.
 func (s *ssm) zVec(src []float64) float64 {
 	v := src[0]
 	for _, j := range s.deltaNZ {
@@ -192,7 +193,7 @@ func (s *ssm) zVec(src []float64) float64 {
 
 // predictCov sets P ← T P Tᵀ + R Rᵀ (Durbin & Koopman 2012, eq. 4.24,
 // P_{t+1} = T P_{t|t} Tᵀ + R Q Rᵀ) for the m×m state covariance, m = r
-// (levels known) or r+nd (levels in the state), using the sparsity of T:
+// (the ARMA block alone) or r+nd (levels in the state), using the sparsity of T:
 // two passes of tVec, O(m² + m·nnz(δ)), never a dense product. tmp has m²
 // elements.
 func (s *ssm) predictCov(P, tmp []float64, m int) {
@@ -203,7 +204,7 @@ func (s *ssm) predictCov(P, tmp []float64, m int) {
 	// P = T tmp: column k of P is T tmp[:,k]; by symmetry of the result
 	// it is row k of (T tmp)ᵀ = tmpᵀ Tᵀ, i.e. tVec of column k of tmp.
 	// Rows of T tmp are combinations of rows of tmp.
-	r, nd := s.r, s.nd
+	r, nd := s.r, m-s.r
 	row := func(i int) []float64 { return tmp[i*m : (i+1)*m] }
 	for i := 0; i < r; i++ {
 		dst := P[i*m : (i+1)*m]
@@ -241,12 +242,12 @@ func (s *ssm) predictCov(P, tmp []float64, m int) {
 	}
 }
 
-// updateCov performs the measurement update for an observation with row Z
-// (Durbin & Koopman 2012, eq. 4.24 in filtered form, §4.3.2):
+// gain computes, for the measurement update with observation row Z
+// (Durbin & Koopman 2012, eq. 4.24 in filtered form, §4.3.2)
 //
-//	M = P Zᵀ,  F = Z P Zᵀ,  a ← a + M v/F,  P ← P − M Mᵀ/F.
+//	M = P Zᵀ,  F = Z P Zᵀ,  then  a ← a + M v/F,  P ← P − M Mᵀ/F (rank1Down),
 //
-// It returns F, and leaves M in mvec. aug selects the augmented Z.
+// M into mvec and returns F. aug selects the augmented Z (levels in the state).
 func (s *ssm) gain(P, mvec []float64, m int, aug bool) float64 {
 	r := s.r
 	for i := 0; i < m; i++ {
