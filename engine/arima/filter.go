@@ -61,9 +61,9 @@ type Filter struct {
 
 	// workspace
 	tmp, mv, t1, u, g []float64
-	psi2             []float64 // cumulative Σ_{i<h} ψ*_i², h = 0..maxH
-	psiStar          []float64 // ψ*_0..ψ*_{maxH−1}
-	G, PG            []float64 // maxH×m rows for ForecastJoint
+	psi2              []float64 // cumulative Σ_{i<h} ψ*_i², h = 0..maxH
+	psiStar           []float64 // ψ*_0..ψ*_{maxH−1}
+	G, PG             []float64 // maxH×m rows for ForecastJoint
 }
 
 // NewFilter returns a filter for m, ready to Step through a series from its
