@@ -1,0 +1,647 @@
+package e2e
+
+import (
+	"bufio"
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"net"
+	"net/http"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"sync"
+	"syscall"
+	"testing"
+	"time"
+
+	"github.com/nats-io/nats-server/v2/server"
+	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
+)
+
+// binPath is the forewarn binary built by TestMain; moduleRoot the
+// directory of go.mod.
+var binPath, moduleRoot string
+
+func TestMain(m *testing.M) {
+	os.Exit(runMain(m))
+}
+
+func runMain(m *testing.M) int {
+	out, err := exec.Command("go", "env", "GOMOD").Output()
+	gomod := strings.TrimSpace(string(out))
+	if err != nil || gomod == "" || gomod == os.DevNull {
+		fmt.Fprintf(os.Stderr, "e2e: cannot find the module root (go env GOMOD: %q, %v)\n", gomod, err)
+		return 1
+	}
+	moduleRoot = filepath.Dir(gomod)
+	tmp, err := os.MkdirTemp("", "forewarn-e2e-")
+	if err != nil {
+		fmt.Fprintf(os.Stderr, "e2e: %v\n", err)
+		return 1
+	}
+	defer os.RemoveAll(tmp)
+	binPath = filepath.Join(tmp, "forewarn")
+	build := exec.Command("go", "build", "-o", binPath, "./cmd/forewarn")
+	build.Dir = moduleRoot
+	if b, err := build.CombinedOutput(); err != nil {
+		fmt.Fprintf(os.Stderr, "e2e: go build ./cmd/forewarn: %v\n%s", err, b)
+		return 1
+	}
+	return m.Run()
+}
+
+// datasetPath is a file of the module's testdata/datasets (R's datasets
+// package, exported as CSV by the project).
+func datasetPath(name string) string {
+	return filepath.Join(moduleRoot, "testdata", "datasets", name)
+}
+
+// readDataset reads the value column (the last one) of a dataset CSV.
+func readDataset(t *testing.T, name string) []float64 {
+	t.Helper()
+	b, err := os.ReadFile(datasetPath(name))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var v []float64
+	sc := bufio.NewScanner(bytes.NewReader(b))
+	for line := 0; sc.Scan(); line++ {
+		if line == 0 {
+			continue // header
+		}
+		f := strings.Split(strings.TrimSpace(sc.Text()), ",")
+		x, err := strconv.ParseFloat(f[len(f)-1], 64)
+		if err != nil {
+			t.Fatalf("%s line %d: %v", name, line+1, err)
+		}
+		v = append(v, x)
+	}
+	return v
+}
+
+// freePort returns a loopback port that was free a moment ago.
+func freePort(t *testing.T) int {
+	t.Helper()
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	return ln.Addr().(*net.TCPAddr).Port
+}
+
+// startNATS runs an in-process NATS server with JetStream on a random port
+// and returns its client URL.
+func startNATS(t *testing.T) string {
+	t.Helper()
+	s, err := server.NewServer(&server.Options{
+		Host: "127.0.0.1", Port: -1, NoLog: true, NoSigs: true,
+		JetStream: true, StoreDir: t.TempDir(),
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s.Start()
+	if !s.ReadyForConnections(10 * time.Second) {
+		s.Shutdown()
+		t.Fatal("nats server not ready within 10s")
+	}
+	t.Cleanup(func() { s.Shutdown(); s.WaitForShutdown() })
+	return s.ClientURL()
+}
+
+// busMode says where the daemon's NATS server is.
+type busMode int
+
+const (
+	external busMode = iota // an in-process server of the test, --nats URL
+	embedded                // the daemon's own server, --listen-nats
+)
+
+func (m busMode) String() string {
+	if m == embedded {
+		return "embedded"
+	}
+	return "external"
+}
+
+// daemon is one forewarn run process and the flags it is started with;
+// start may be called again after stop or kill (same --data).
+type daemon struct {
+	t        *testing.T
+	name     string
+	args     []string
+	natsURL  string // for the test's clients
+	httpAddr string
+	logPath  string
+
+	mu      sync.Mutex
+	cmd     *exec.Cmd
+	stdout  *syncBuffer
+	done    chan struct{}
+	waitErr error
+	starts  int
+}
+
+// newDaemon prepares a daemon with the given config text (YAML) and a new
+// data directory. With mode external a server is started for it.
+func newDaemon(t *testing.T, mode busMode, configYAML string, extra ...string) *daemon {
+	t.Helper()
+	dir := t.TempDir()
+	cfg := filepath.Join(dir, "forewarn.yaml")
+	if err := os.WriteFile(cfg, []byte(configYAML), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	data := filepath.Join(dir, "data")
+	d := &daemon{t: t, name: t.Name(), logPath: filepath.Join(dir, "daemon.log")}
+	d.httpAddr = fmt.Sprintf("127.0.0.1:%d", freePort(t))
+	d.args = []string{"run", "--config", cfg, "--data", data, "--http", d.httpAddr}
+	if mode == external {
+		d.natsURL = startNATS(t)
+		d.args = append(d.args, "--nats", d.natsURL)
+	} else {
+		hp := fmt.Sprintf("127.0.0.1:%d", freePort(t))
+		d.natsURL = "nats://" + hp
+		d.args = append(d.args, "--listen-nats", hp)
+	}
+	d.args = append(d.args, extra...)
+	t.Cleanup(func() {
+		d.kill()
+		if t.Failed() {
+			t.Logf("daemon log tail (%s):\n%s", d.logPath, tail(d.logPath, 40))
+		}
+	})
+	return d
+}
+
+func (d *daemon) dataDir() string {
+	for i, a := range d.args {
+		if a == "--data" {
+			return d.args[i+1]
+		}
+	}
+	panic("e2e: daemon without --data")
+}
+
+// start runs the process and waits for /readyz.
+func (d *daemon) start() {
+	d.t.Helper()
+	d.mu.Lock()
+	if d.cmd != nil {
+		d.mu.Unlock()
+		d.t.Fatal("e2e: daemon already running")
+	}
+	logf, err := os.OpenFile(d.logPath, os.O_CREATE|os.O_APPEND|os.O_WRONLY, 0o600)
+	if err != nil {
+		d.mu.Unlock()
+		d.t.Fatal(err)
+	}
+	fmt.Fprintf(logf, "=== start %d: forewarn %s\n", d.starts, strings.Join(d.args, " "))
+	d.starts++
+	cmd := exec.Command(binPath, d.args...)
+	d.stdout = &syncBuffer{}
+	cmd.Stdout = d.stdout
+	cmd.Stderr = logf
+	if err := cmd.Start(); err != nil {
+		logf.Close()
+		d.mu.Unlock()
+		d.t.Fatal(err)
+	}
+	done := make(chan struct{})
+	d.cmd, d.done = cmd, done
+	d.mu.Unlock()
+	go func() {
+		err := cmd.Wait()
+		logf.Close()
+		d.mu.Lock()
+		d.waitErr = err
+		d.mu.Unlock()
+		close(done)
+	}()
+	d.waitReady(60 * time.Second)
+}
+
+func (d *daemon) waitReady(timeout time.Duration) {
+	d.t.Helper()
+	client := &http.Client{Timeout: time.Second}
+	deadline := time.Now().Add(timeout)
+	for {
+		select {
+		case <-d.done:
+			d.t.Fatalf("daemon exited before it was ready (%v); log:\n%s", d.waitErr, tail(d.logPath, 40))
+		default:
+		}
+		resp, err := client.Get("http://" + d.httpAddr + "/readyz")
+		if err == nil {
+			resp.Body.Close()
+			if resp.StatusCode == http.StatusOK {
+				return
+			}
+		}
+		if time.Now().After(deadline) {
+			d.t.Fatalf("daemon not ready within %s; log:\n%s", timeout, tail(d.logPath, 40))
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+}
+
+// stop sends SIGTERM and requires a clean exit (status 0) within a minute.
+func (d *daemon) stop() {
+	d.t.Helper()
+	d.mu.Lock()
+	cmd, done := d.cmd, d.done
+	d.mu.Unlock()
+	if cmd == nil {
+		return
+	}
+	_ = cmd.Process.Signal(syscall.SIGTERM)
+	select {
+	case <-done:
+	case <-time.After(60 * time.Second):
+		_ = cmd.Process.Kill()
+		<-done
+		d.t.Fatalf("daemon did not stop within 60s of SIGTERM")
+	}
+	d.mu.Lock()
+	err := d.waitErr
+	d.cmd = nil
+	d.mu.Unlock()
+	if err != nil {
+		d.t.Fatalf("daemon exit after SIGTERM: %v; log:\n%s", err, tail(d.logPath, 40))
+	}
+}
+
+// kill sends SIGKILL (a crash) and waits for the process to be gone.
+func (d *daemon) kill() {
+	d.mu.Lock()
+	cmd, done := d.cmd, d.done
+	d.mu.Unlock()
+	if cmd == nil {
+		return
+	}
+	_ = cmd.Process.Signal(syscall.SIGKILL)
+	<-done
+	d.mu.Lock()
+	d.cmd = nil
+	d.mu.Unlock()
+}
+
+// running reports whether the process is alive.
+func (d *daemon) running() bool {
+	d.mu.Lock()
+	defer d.mu.Unlock()
+	if d.cmd == nil {
+		return false
+	}
+	select {
+	case <-d.done:
+		return false
+	default:
+		return true
+	}
+}
+
+// cli runs the binary with args and returns stdout, stderr and exit code.
+func cli(t *testing.T, args ...string) (string, string, int) {
+	t.Helper()
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+	defer cancel()
+	cmd := exec.CommandContext(ctx, binPath, args...)
+	var out, errb bytes.Buffer
+	cmd.Stdout, cmd.Stderr = &out, &errb
+	err := cmd.Run()
+	code := 0
+	if err != nil {
+		var ee *exec.ExitError
+		if !errors.As(err, &ee) {
+			t.Fatalf("forewarn %v: %v", args, err)
+		}
+		code = ee.ExitCode()
+	}
+	return out.String(), errb.String(), code
+}
+
+// syncBuffer is a bytes.Buffer safe for one writer and many readers.
+type syncBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuffer) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
+}
+
+func tail(path string, n int) string {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return err.Error()
+	}
+	lines := strings.Split(strings.TrimRight(string(b), "\n"), "\n")
+	if len(lines) > n {
+		lines = lines[len(lines)-n:]
+	}
+	return strings.Join(lines, "\n")
+}
+
+// connect makes a client connection that reconnects forever (the embedded
+// server goes away with the daemon) and closes on cleanup.
+func connect(t *testing.T, url string) *nats.Conn {
+	t.Helper()
+	nc, err := nats.Connect(url, nats.MaxReconnects(-1), nats.ReconnectWait(20*time.Millisecond),
+		nats.RetryOnFailedConnect(true), nats.ReconnectBufSize(-1))
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(nc.Close)
+	waitConnected(t, nc)
+	return nc
+}
+
+// waitConnected waits until nc is connected and its subscriptions are
+// known to the server.
+func waitConnected(t *testing.T, nc *nats.Conn) {
+	t.Helper()
+	eventually(t, 30*time.Second, "client connected", func() bool {
+		return nc.IsConnected() && nc.FlushTimeout(time.Second) == nil
+	})
+}
+
+// eventually polls cond until it holds or fails the test after timeout.
+func eventually(t *testing.T, timeout time.Duration, what string, cond func() bool) {
+	t.Helper()
+	deadline := time.Now().Add(timeout)
+	for !cond() {
+		if time.Now().After(deadline) {
+			t.Fatalf("not within %s: %s", timeout, what)
+		}
+		time.Sleep(10 * time.Millisecond)
+	}
+}
+
+// message is one output message as received.
+type message struct {
+	Subject string
+	Data    []byte
+}
+
+// collector keeps every message on forewarn.forecast.>, .alert.>, .reject.>
+// and .reject (a reject without a topic).
+type collector struct {
+	mu   sync.Mutex
+	msgs map[string][]message // by kind: forecast, alert, reject
+}
+
+func collect(t *testing.T, nc *nats.Conn) *collector {
+	t.Helper()
+	c := &collector{msgs: map[string][]message{}}
+	for _, kind := range []string{"forecast", "alert", "reject"} {
+		for _, subj := range []string{"forewarn." + kind + ".>", "forewarn." + kind} {
+			_, err := nc.Subscribe(subj, func(m *nats.Msg) {
+				c.mu.Lock()
+				c.msgs[kind] = append(c.msgs[kind], message{m.Subject, append([]byte(nil), m.Data...)})
+				c.mu.Unlock()
+			})
+			if err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	if err := nc.Flush(); err != nil {
+		t.Fatal(err)
+	}
+	return c
+}
+
+// get returns a copy of the messages of kind on subject (all subjects if
+// subject is "").
+func (c *collector) get(kind, subject string) []message {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	var out []message
+	for _, m := range c.msgs[kind] {
+		if subject == "" || m.Subject == subject {
+			out = append(out, m)
+		}
+	}
+	return out
+}
+
+func (c *collector) count(kind, subject string) int { return len(c.get(kind, subject)) }
+
+// forecast is the part of a forecast message the tests read; the full
+// message is compared with normalized.
+type forecast struct {
+	Topic       string          `json:"topic"`
+	Issued      string          `json:"issued"`
+	Origin      time.Time       `json:"origin"`
+	StepSeconds int64           `json:"step_seconds"`
+	LastValue   float64         `json:"last_value"`
+	Kind        string          `json:"kind"`
+	Model       forecastModel   `json:"model"`
+	Points      []forecastPoint `json:"points"`
+}
+
+type forecastModel struct {
+	Spec      string  `json:"spec"`
+	Transform string  `json:"transform"`
+	FittedAt  string  `json:"fitted_at"`
+	NObs      int     `json:"nobs"`
+	AICc      float64 `json:"aicc"`
+}
+
+type forecastPoint struct {
+	H      int                 `json:"h"`
+	Time   time.Time           `json:"time"`
+	Mean   float64             `json:"mean"`
+	Median float64             `json:"median"`
+	Lower  map[string]*float64 `json:"lower"`
+	Upper  map[string]*float64 `json:"upper"`
+}
+
+func decodeForecast(t *testing.T, b []byte) forecast {
+	t.Helper()
+	var f forecast
+	if err := json.Unmarshal(b, &f); err != nil {
+		t.Fatalf("forecast message is not the contract's JSON: %v\n%s", err, b)
+	}
+	return f
+}
+
+// normalized decodes a JSON message keeping numbers as written and drops
+// the keys that legitimately depend on wall time.
+func normalized(t *testing.T, b []byte, drop ...string) map[string]any {
+	t.Helper()
+	dec := json.NewDecoder(bytes.NewReader(b))
+	dec.UseNumber()
+	var m map[string]any
+	if err := dec.Decode(&m); err != nil {
+		t.Fatalf("not a JSON object: %v\n%s", err, b)
+	}
+	for _, k := range drop {
+		delete(m, k)
+	}
+	return m
+}
+
+// forecastsByOrigin indexes the forecast messages of one subject by origin
+// and fails on an origin seen twice with different content.
+func forecastsByOrigin(t *testing.T, msgs []message) map[time.Time][]byte {
+	t.Helper()
+	out := map[time.Time][]byte{}
+	for _, m := range msgs {
+		f := decodeForecast(t, m.Data)
+		out[f.Origin] = m.Data
+	}
+	return out
+}
+
+// publisher publishes observations into the JetStream intake stream with a
+// message id (so a retry after a lost acknowledgement is not stored twice)
+// and retries until the stream acknowledges; the daemon may be down.
+type publisher struct {
+	t  *testing.T
+	js jetstream.JetStream
+	n  int
+}
+
+func newPublisher(t *testing.T, nc *nats.Conn) *publisher {
+	t.Helper()
+	js, err := jetstream.New(nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return &publisher{t: t, js: js}
+}
+
+// publish stores one message; it returns an error only if the stream did
+// not acknowledge within timeout.
+func (p *publisher) publish(subject string, data []byte, timeout time.Duration) error {
+	p.n++
+	id := fmt.Sprintf("e2e-%d", p.n)
+	deadline := time.Now().Add(timeout)
+	for {
+		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+		_, err := p.js.Publish(ctx, subject, data, jetstream.WithMsgID(id))
+		cancel()
+		if err == nil {
+			return nil
+		}
+		if time.Now().After(deadline) {
+			return fmt.Errorf("publish %s: %w", subject, err)
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+}
+
+func (p *publisher) must(subject string, data []byte) {
+	p.t.Helper()
+	if err := p.publish(subject, data, 60*time.Second); err != nil {
+		p.t.Fatal(err)
+	}
+}
+
+// obsJSON is one observation object {"time": RFC 3339, "value": v}.
+func obsJSON(at time.Time, v float64) []byte {
+	return fmt.Appendf(nil, `{"time":%q,"value":%s}`, at.UTC().Format(time.RFC3339Nano), strconv.FormatFloat(v, 'g', -1, 64))
+}
+
+// waitConsumed waits until the durable consumer has acknowledged every
+// message of the intake stream: each one's effect is committed.
+func waitConsumed(t *testing.T, nc *nats.Conn, timeout time.Duration) {
+	t.Helper()
+	js, err := jetstream.New(nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var last string
+	eventually(t, timeout, "intake stream fully acknowledged ("+streamName+"/"+consumerName+")", func() bool {
+		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+		defer cancel()
+		s, err := js.Stream(ctx, streamName)
+		if err != nil {
+			last = err.Error()
+			return false
+		}
+		si, err := s.Info(ctx)
+		if err != nil {
+			last = err.Error()
+			return false
+		}
+		c, err := s.Consumer(ctx, consumerName)
+		if err != nil {
+			last = err.Error()
+			return false
+		}
+		ci, err := c.Info(ctx)
+		if err != nil {
+			last = err.Error()
+			return false
+		}
+		last = fmt.Sprintf("stream last seq %d, ack floor %d, pending %d, ack pending %d",
+			si.State.LastSeq, ci.AckFloor.Stream, ci.NumPending, ci.NumAckPending)
+		return ci.AckFloor.Stream == si.State.LastSeq && ci.NumPending == 0 && ci.NumAckPending == 0
+	})
+	_ = last
+}
+
+// The stream and consumer names the tests set in every config
+// (intake.stream, intake.consumer).
+const (
+	streamName   = "E2E_INTAKE"
+	consumerName = "e2e"
+)
+
+// baseConfig is the head of every test config: durable intake, fast flushes
+// and limits wide enough for the fixed dates the tests use.
+func baseConfig(maxSeries int) string {
+	return fmt.Sprintf(`intake:
+  subjects: ["metrics.>"]
+  durable: true
+  stream: %s
+  consumer: %s
+state:
+  flush_interval: 200ms
+log:
+  level: info
+  format: json
+limits:
+  max_series: %d
+  max_past: 87600h
+  max_future: 87600h
+`, streamName, consumerName, maxSeries)
+}
+
+// stateShow runs forewarn state show TOPIC on a stopped daemon's data.
+func stateShow(t *testing.T, dataDir, topic string) map[string]any {
+	t.Helper()
+	out, errOut, code := cli(t, "state", "show", topic, "--data", dataDir)
+	if code != 0 {
+		t.Fatalf("forewarn state show %s: exit %d: %s", topic, code, errOut)
+	}
+	return normalized(t, []byte(out))
+}
+
+// query asks the running daemon for the latest forecast of topic.
+func query(t *testing.T, natsURL, topic string) ([]byte, int, string) {
+	t.Helper()
+	out, errOut, code := cli(t, "query", "--nats", natsURL, topic)
+	return []byte(out), code, errOut
+}
+
+// t0 is the data-time origin of the tests' series (a fixed date, so runs
+// are reproducible; limits.max_past is wide enough for it).
+var t0 = time.Date(2024, 1, 1, 0, 0, 0, 0, time.UTC)
