@@ -1,0 +1,210 @@
+package chart
+
+import (
+	"math"
+	"strconv"
+	"time"
+
+	"gonum.org/v1/plot"
+)
+
+// timeTicker labels a time axis (unix seconds) in UTC at round instants:
+// the smallest step from a fixed ladder (seconds up to weeks, then
+// calendar months and years) that gives at most maxLabels ticks. A label
+// carries the date (or the year) only on the first tick and where it
+// changes, so a label reads like "Mar 4 18:00" then "21:00".
+type timeTicker struct{ maxLabels int }
+
+const (
+	minute = 60
+	hour   = 60 * minute
+	day    = 24 * hour
+	week   = 7 * day
+)
+
+var fixedSteps = []float64{1, 2, 5, 10, 15, 30, minute, 2 * minute, 5 * minute, 10 * minute, 15 * minute,
+	30 * minute, hour, 2 * hour, 3 * hour, 6 * hour, 12 * hour, day, 2 * day, week, 2 * week}
+
+var monthSteps = []int{1, 2, 3, 6}
+
+// Ticks implements plot.Ticker.
+func (tt timeTicker) Ticks(lo, hi float64) []plot.Tick {
+	if !(hi > lo) || !finite(lo) || !finite(hi) {
+		return nil
+	}
+	n := float64(max(tt.maxLabels, 2))
+	for _, s := range fixedSteps {
+		if (hi-lo)/s <= n {
+			return fixedTicks(lo, hi, s)
+		}
+	}
+	for _, m := range monthSteps {
+		if (hi-lo)/(float64(m)*30.44*day) <= n {
+			return monthTicks(lo, hi, m)
+		}
+	}
+	years := (hi - lo) / (365.25 * day)
+	k := 1 // 1, 2, 5, 10, 20, 50, …
+	for i := 0; float64(k)*n < years; i++ {
+		k = []int{2, 5, 10}[i%3] * pow10(i/3)
+	}
+	return yearTicks(lo, hi, k)
+}
+
+func fixedTicks(lo, hi, s float64) []plot.Tick {
+	off := 0.0
+	if s >= week {
+		off = 4 * day // 1970-01-05 was a Monday
+	}
+	var out []plot.Tick
+	var prev time.Time
+	for x := math.Ceil((lo-off)/s)*s + off; x <= hi; x += s {
+		t := time.Unix(int64(x), 0).UTC()
+		out = append(out, plot.Tick{Value: x, Label: timeLabel(t, prev, s)})
+		prev = t
+	}
+	return out
+}
+
+func timeLabel(t, prev time.Time, s float64) string {
+	first := prev.IsZero()
+	switch {
+	case s < minute:
+		if first || t.YearDay() != prev.YearDay() {
+			return t.Format("Jan 2 15:04:05")
+		}
+		return t.Format("15:04:05")
+	case s < day:
+		if first || t.YearDay() != prev.YearDay() || t.Year() != prev.Year() {
+			return t.Format("Jan 2 15:04")
+		}
+		return t.Format("15:04")
+	default:
+		if first || t.Year() != prev.Year() {
+			return t.Format("Jan 2 2006")
+		}
+		return t.Format("Jan 2")
+	}
+}
+
+func monthTicks(lo, hi float64, m int) []plot.Tick {
+	t := time.Unix(int64(math.Floor(lo)), 0).UTC()
+	t = time.Date(t.Year(), t.Month(), 1, 0, 0, 0, 0, time.UTC)
+	var out []plot.Tick
+	var prev time.Time
+	for ; secs(t) <= hi; t = t.AddDate(0, 1, 0) {
+		if secs(t) < lo || (int(t.Month())-1)%m != 0 {
+			continue
+		}
+		label := t.Format("Jan")
+		if prev.IsZero() || t.Year() != prev.Year() {
+			label = t.Format("Jan 2006")
+		}
+		out = append(out, plot.Tick{Value: secs(t), Label: label})
+		prev = t
+	}
+	return out
+}
+
+func yearTicks(lo, hi float64, k int) []plot.Tick {
+	y := time.Unix(int64(math.Floor(lo)), 0).UTC().Year()
+	y = (y + k - 1) / k * k
+	var out []plot.Tick
+	for ; ; y += k {
+		t := time.Date(y, 1, 1, 0, 0, 0, 0, time.UTC)
+		if secs(t) > hi {
+			break
+		}
+		if secs(t) >= lo {
+			out = append(out, plot.Tick{Value: secs(t), Label: strconv.Itoa(y)})
+		}
+	}
+	return out
+}
+
+// valueTicker places ticks like plot.DefaultTicks and labels them with
+// formatValue, so large values read "1.5M" rather than "1.5e+06".
+type valueTicker struct{}
+
+// Ticks implements plot.Ticker.
+func (valueTicker) Ticks(lo, hi float64) []plot.Tick {
+	ts := plot.DefaultTicks{}.Ticks(lo, hi)
+	step := math.Inf(1)
+	last := math.NaN()
+	for _, t := range ts {
+		if t.Label == "" {
+			continue
+		}
+		if !math.IsNaN(last) {
+			step = math.Min(step, t.Value-last)
+		}
+		last = t.Value
+	}
+	if math.IsInf(step, 1) {
+		step = hi - lo
+	}
+	mag := math.Max(math.Abs(lo), math.Abs(hi))
+	for i := range ts {
+		if ts[i].Label != "" {
+			ts[i].Label = formatValue(ts[i].Value, step, mag)
+		}
+	}
+	return ts
+}
+
+// formatValue writes v with as many decimals as the tick step needs and,
+// from 10 000 on, a decimal-multiple suffix (k, M, G, T, P; common
+// practice for operator dashboards).
+func formatValue(v, step, mag float64) string {
+	if v == 0 {
+		return "0"
+	}
+	if !finite(v) {
+		return strconv.FormatFloat(v, 'g', -1, 64)
+	}
+	if mag < 1e-3 {
+		return strconv.FormatFloat(v, 'g', 3, 64)
+	}
+	scale, suffix := 1.0, ""
+	if mag >= 1e4 {
+		for _, s := range suffixes {
+			if mag >= s.f {
+				scale, suffix = s.f, s.s
+				break
+			}
+		}
+	}
+	dec := 0
+	if step > 0 && finite(step) {
+		dec = int(math.Max(0, math.Ceil(-math.Log10(step/scale)-1e-9)))
+	}
+	dec = min(dec, 6)
+	return strconv.FormatFloat(v/scale, 'f', dec, 64) + suffix
+}
+
+func pow10(e int) int {
+	p := 1
+	for range e {
+		p *= 10
+	}
+	return p
+}
+
+// formatExact writes a threshold with up to six significant digits, with
+// the same suffixes as formatValue from 10 000 on.
+func formatExact(v float64) string {
+	if !finite(v) || math.Abs(v) < 1e4 {
+		return strconv.FormatFloat(v, 'g', 6, 64)
+	}
+	for _, s := range suffixes {
+		if math.Abs(v) >= s.f {
+			return strconv.FormatFloat(v/s.f, 'g', 6, 64) + s.s
+		}
+	}
+	return strconv.FormatFloat(v, 'g', 6, 64)
+}
+
+var suffixes = []struct {
+	f float64
+	s string
+}{{1e15, "P"}, {1e12, "T"}, {1e9, "G"}, {1e6, "M"}, {1e3, "k"}}

@@ -1,0 +1,356 @@
+package chart
+
+import (
+	"bytes"
+	"encoding/xml"
+	"errors"
+	"image"
+	"image/color"
+	"image/png"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+)
+
+// pixels counts, in img, the pixels of colour c (exact match; the fill of
+// a band is opaque, so its inner pixels carry the colour exactly) and
+// returns their bounding box.
+func pixels(img image.Image, c color.RGBA) (n int, box image.Rectangle) {
+	b := img.Bounds()
+	box = image.Rectangle{Min: b.Max, Max: b.Min}
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		for x := b.Min.X; x < b.Max.X; x++ {
+			r, g, bl, _ := img.At(x, y).RGBA()
+			if uint8(r>>8) == c.R && uint8(g>>8) == c.G && uint8(bl>>8) == c.B {
+				n++
+				box.Min.X, box.Min.Y = min(box.Min.X, x), min(box.Min.Y, y)
+				box.Max.X, box.Max.Y = max(box.Max.X, x+1), max(box.Max.Y, y+1)
+			}
+		}
+	}
+	return n, box
+}
+
+func renderPNG(t *testing.T, d *Data, o Options) image.Image {
+	t.Helper()
+	var buf bytes.Buffer
+	if err := Render(&buf, PNG, d, o); err != nil {
+		t.Fatal(err)
+	}
+	img, err := png.Decode(&buf)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return img
+}
+
+// The forecast fan of the log airline model of AirPassengers with six
+// missing months (R 4.2.2 predict.Arima, testdata/r/arima_refs.json) is
+// drawn as two bands that lie right of the history, with the narrower
+// 80 % band on top of the 95 % band, and the threshold line across.
+func TestBandsDrawnInForecastRegion(t *testing.T) {
+	d := refForecast(t, "AirPassengers_na_log_airline", []float64{80, 95})
+	d.Thresholds = []Threshold{{Name: "capacity", Value: 700, Above: true, Firing: true}}
+	img := renderPNG(t, d, Options{Width: 900, Height: 420})
+	if b := img.Bounds(); b.Dx() != 900 || b.Dy() != 420 {
+		t.Fatalf("image is %v, want 900×420 px", b)
+	}
+	n80, box80 := pixels(img, BandColor(0, 2))
+	n95, box95 := pixels(img, BandColor(1, 2))
+	if n80 < 500 || n95 < 300 {
+		t.Fatalf("band pixels: 80 %% %d, 95 %% %d; want both drawn", n80, n95)
+	}
+	// The fan starts at the last observation: no band pixel lies left of
+	// the history's last drawn pixel (the line's own antialiasing aside).
+	// Rows below 130 px keep the legend (top right) out of the count.
+	low := img.(interface {
+		SubImage(image.Rectangle) image.Image
+	}).SubImage(image.Rect(0, 130, 900, 420))
+	_, box80 = pixels(low, BandColor(0, 2))
+	_, box95 = pixels(low, BandColor(1, 2))
+	nh, boxH := pixels(low, colHistory)
+	if nh < 200 {
+		t.Fatalf("history: %d pixels of its colour", nh)
+	}
+	if box80.Min.X < boxH.Max.X-3 || box95.Min.X < boxH.Max.X-3 {
+		t.Errorf("band pixels start at x = %d (80 %%) and %d (95 %%), left of the history's end at %d",
+			box80.Min.X, box95.Min.X, boxH.Max.X)
+	}
+	// The 95 % band is wider than the 80 % band.
+	if box95.Dy() <= box80.Dy() {
+		t.Errorf("95 %% band spans %d px vertically, 80 %% band %d", box95.Dy(), box80.Dy())
+	}
+	if n, _ := pixels(img, colFiring); n < 200 {
+		t.Errorf("firing threshold: %d pixels of its colour", n)
+	}
+	if n, _ := pixels(img, colMedian); n < 50 {
+		t.Errorf("median forecast: %d pixels of its colour", n)
+	}
+}
+
+// An unbounded upper endpoint (outside the inverse transform's domain)
+// runs the band to the top of the plotting area instead of failing.
+func TestUnboundedBandReachesEdge(t *testing.T) {
+	d := synthetic(300, 3)
+	for i := range d.Forecast {
+		if i > 20 {
+			d.Forecast[i].Upper[1] = math.Inf(1)
+			d.Forecast[i].Upper[0] = math.NaN()
+		}
+	}
+	d.Thresholds = nil
+	img := renderPNG(t, d, Options{Width: 900, Height: 420})
+	_, box := pixels(img, BandColor(0, 2))
+	if box.Min.Y > 40 {
+		t.Errorf("unbounded 80 %% band tops out at y = %d px, want the top of the plot", box.Min.Y)
+	}
+}
+
+func TestSVGIsWellFormed(t *testing.T) {
+	d := refForecast(t, "USAccDeaths_airline", []float64{80, 95})
+	d.Refits = []time.Time{d.Times[48]}
+	var buf bytes.Buffer
+	if err := Render(&buf, SVG, d, Options{Width: 640, Height: 300}); err != nil {
+		t.Fatal(err)
+	}
+	dec := xml.NewDecoder(bytes.NewReader(buf.Bytes()))
+	var root *xml.StartElement
+	for {
+		tok, err := dec.Token()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			t.Fatalf("SVG does not parse as XML: %v", err)
+		}
+		if se, ok := tok.(xml.StartElement); ok && root == nil {
+			root = &se
+		}
+	}
+	if root == nil || root.Name.Local != "svg" {
+		t.Fatalf("root element %v, want svg", root)
+	}
+	attr := map[string]string{}
+	for _, a := range root.Attr {
+		attr[a.Name.Local] = a.Value
+	}
+	// 640 × 300 px at 0.75 pt per px.
+	if attr["width"] != "480pt" || attr["height"] != "225pt" {
+		t.Errorf("svg size %s × %s, want 480pt × 225pt", attr["width"], attr["height"])
+	}
+	s := buf.String()
+	for _, c := range []color.RGBA{BandColor(0, 2), BandColor(1, 2)} {
+		hex := strings.ToUpper(strings.TrimPrefix(colorHex(c), "#"))
+		if !strings.Contains(s, "fill:#"+hex) {
+			t.Errorf("no band filled with #%s", hex)
+		}
+	}
+	if !strings.Contains(s, "sans-serif") {
+		t.Error("no generic font fallback in the SVG")
+	}
+}
+
+func colorHex(c color.RGBA) string {
+	const digits = "0123456789ABCDEF"
+	b := []byte{'#', 0, 0, 0, 0, 0, 0}
+	for i, v := range []uint8{c.R, c.G, c.B} {
+		b[1+2*i], b[2+2*i] = digits[v>>4], digits[v&15]
+	}
+	return string(b)
+}
+
+func TestEmptyAndMissingOnly(t *testing.T) {
+	for name, d := range map[string]*Data{
+		"zero":        {},
+		"all missing": {Times: []time.Time{time.Unix(0, 0), time.Unix(60, 0)}, Values: []float64{math.NaN(), math.NaN()}},
+		"one value":   {Times: []time.Time{time.Unix(0, 0)}, Values: []float64{5}},
+		"no history":  {Forecast: []Point{{Time: time.Unix(60, 0), Median: 1}}},
+	} {
+		var buf bytes.Buffer
+		if err := Render(&buf, SVG, d, Options{}); err != nil {
+			t.Errorf("%s: %v", name, err)
+		}
+		if !bytes.Contains(buf.Bytes(), []byte("</svg>")) {
+			t.Errorf("%s: no complete SVG", name)
+		}
+	}
+}
+
+func TestBadInput(t *testing.T) {
+	t0 := time.Unix(0, 0)
+	cases := []struct {
+		name string
+		d    Data
+		o    Options
+		f    Format
+		want error
+	}{
+		{"lengths", Data{Times: []time.Time{t0}, Values: []float64{1, 2}}, Options{}, SVG, ErrShape},
+		{"bounds", Data{Levels: []float64{80}, Forecast: []Point{{Time: t0}}}, Options{}, SVG, ErrShape},
+		{"order", Data{Times: []time.Time{t0.Add(time.Minute), t0}, Values: []float64{1, 2}}, Options{}, SVG, ErrOrder},
+		{"forecast order", Data{Forecast: []Point{{Time: t0.Add(time.Minute)}, {Time: t0}}}, Options{}, SVG, ErrOrder},
+		{"level", Data{Levels: []float64{100}}, Options{}, SVG, ErrLevel},
+		{"narrow", Data{}, Options{Width: 10}, SVG, ErrSize},
+		{"huge", Data{}, Options{Height: 1 << 20}, PNG, ErrSize},
+		{"format", Data{}, Options{}, Format(9), ErrFormat},
+	}
+	for _, c := range cases {
+		err := Render(io.Discard, c.f, &c.d, c.o)
+		if !errors.Is(err, c.want) {
+			t.Errorf("%s: got %v, want %v", c.name, err, c.want)
+		}
+	}
+	if _, err := FormatOf("chart.jpeg"); !errors.Is(err, ErrFormat) {
+		t.Errorf("FormatOf(.jpeg): %v", err)
+	}
+}
+
+func TestWriteFileByExtension(t *testing.T) {
+	d := refForecast(t, "co2_airline", []float64{80, 95})
+	dir := t.TempDir()
+	for _, name := range []string{"co2.svg", "co2.PNG"} {
+		path := filepath.Join(dir, name)
+		if err := WriteFile(path, d, Options{}); err != nil {
+			t.Fatal(err)
+		}
+		b, err := os.ReadFile(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		isPNG := bytes.HasPrefix(b, []byte("\x89PNG\r\n\x1a\n"))
+		if isPNG != strings.HasSuffix(name, ".PNG") {
+			t.Errorf("%s: PNG signature %v", name, isPNG)
+		}
+	}
+}
+
+// Thinning keeps, in every pixel column, the extremes of the original
+// values and the gaps (checked on invented data with gaps).
+func TestDecimateKeepsExtremesAndGaps(t *testing.T) {
+	d := synthetic(20000, 11)
+	gaps := 0
+	for i := 5000; i < 20000; i += 3001 {
+		d.Values[i], d.Values[i+1] = math.NaN(), math.NaN()
+		gaps++
+	}
+	x := make([]float64, len(d.Times))
+	for i, tm := range d.Times {
+		x[i] = secs(tm)
+	}
+	const cols = 300
+	x0, x1 := x[0], x[len(x)-1]
+	dx, dy := decimate(x, d.Values, cols, x0, x1)
+	nan := 0
+	for _, v := range dy {
+		if math.IsNaN(v) {
+			nan++
+		}
+	}
+	if nan != gaps {
+		t.Errorf("%d gaps survive, want %d", nan, gaps)
+	}
+	if len(dx) > 2*(cols+1+gaps)+gaps {
+		t.Errorf("%d points after thinning to %d columns", len(dx), cols)
+	}
+	w := (x1 - x0) / cols
+	type mm struct{ lo, hi float64 }
+	ext := func(xs, ys []float64) map[int]mm {
+		m := map[int]mm{}
+		for i := range xs {
+			if math.IsNaN(ys[i]) {
+				continue
+			}
+			c := int(math.Floor((xs[i] - x0) / w))
+			e, ok := m[c]
+			if !ok {
+				e = mm{ys[i], ys[i]}
+			}
+			e.lo, e.hi = math.Min(e.lo, ys[i]), math.Max(e.hi, ys[i])
+			m[c] = e
+		}
+		return m
+	}
+	orig, thin := ext(x, d.Values), ext(dx, dy)
+	if len(orig) != len(thin) {
+		t.Fatalf("%d columns before, %d after", len(orig), len(thin))
+	}
+	for c, e := range orig {
+		if thin[c] != e {
+			t.Errorf("column %d: extremes %v, want %v", c, thin[c], e)
+		}
+	}
+	for i := 1; i < len(dx); i++ {
+		if dx[i] < dx[i-1] {
+			t.Fatalf("thinned times go backwards at %d", i)
+		}
+	}
+}
+
+func TestTimeTicks(t *testing.T) {
+	at := func(s string) float64 {
+		tm, err := time.Parse(time.RFC3339, s)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return secs(tm)
+	}
+	cases := []struct {
+		lo, hi string
+		n      int
+		want   []string
+	}{
+		{"2025-03-04T00:10:00Z", "2025-03-06T00:00:00Z", 7,
+			[]string{"Mar 4 12:00", "Mar 5 00:00", "12:00", "Mar 6 00:00"}},
+		{"2025-03-04T09:58:00Z", "2025-03-04T11:01:00Z", 5,
+			[]string{"Mar 4 10:00", "10:15", "10:30", "10:45", "11:00"}},
+		{"2024-12-20T00:00:00Z", "2025-01-20T00:00:00Z", 5,
+			[]string{"Dec 23 2024", "Dec 30", "Jan 6 2025", "Jan 13", "Jan 20"}}, // weeks start on Monday
+		{"1949-01-01T00:00:00Z", "1951-01-01T00:00:00Z", 5,
+			[]string{"Jan 1949", "Jul", "Jan 1950", "Jul", "Jan 1951"}},
+		{"1949-01-01T00:00:00Z", "1962-12-01T00:00:00Z", 7,
+			[]string{"1950", "1952", "1954", "1956", "1958", "1960", "1962"}},
+		{"1700-01-01T00:00:00Z", "1988-01-01T00:00:00Z", 7,
+			[]string{"1700", "1750", "1800", "1850", "1900", "1950"}},
+	}
+	for _, c := range cases {
+		ticks := timeTicker{maxLabels: c.n}.Ticks(at(c.lo), at(c.hi))
+		var got []string
+		for _, tk := range ticks {
+			got = append(got, tk.Label)
+		}
+		if strings.Join(got, "|") != strings.Join(c.want, "|") {
+			t.Errorf("%s … %s: %q, want %q", c.lo, c.hi, got, c.want)
+		}
+	}
+}
+
+func TestFormatValue(t *testing.T) {
+	cases := []struct {
+		v, step, mag float64
+		want         string
+	}{
+		{9e11, 1e11, 9e11, "900G"},
+		{1834.5, 0.5, 2000, "1834.5"},
+		{0.25, 0.05, 1, "0.25"},
+		{12000, 2000, 20000, "12k"},
+		{-5e6, 1e6, 5e6, "-5M"},
+		{2.5e6, 5e5, 5e6, "2.5M"},
+		{0, 1, 10, "0"},
+		{0.00012, 0.00002, 0.0002, "0.00012"},
+	}
+	for _, c := range cases {
+		if got := formatValue(c.v, c.step, c.mag); got != c.want {
+			t.Errorf("formatValue(%g, %g, %g) = %q, want %q", c.v, c.step, c.mag, got, c.want)
+		}
+	}
+	if got := formatExact(9.0e11); got != "900G" {
+		t.Errorf("formatExact(9e11) = %q", got)
+	}
+	if got := formatExact(1191.6251); got != "1191.63" {
+		t.Errorf("formatExact(1191.6251) = %q", got)
+	}
+}
