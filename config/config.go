@@ -1,6 +1,8 @@
 package config
 
 import (
+	"fmt"
+	"runtime"
 	"slices"
 	"strings"
 	"time"
@@ -217,6 +219,31 @@ type Alert struct {
 	ResolveProbability float64
 	// Line is the source line of the rule; 0 when not from a file.
 	Line int
+}
+
+// WorkerCount returns the number of refit workers: Workers, or the number
+// of CPUs when Workers is zero.
+func (r Refit) WorkerCount() int {
+	if r.Workers > 0 {
+		return r.Workers
+	}
+	return runtime.NumCPU()
+}
+
+// Span returns how far ahead the series is forecast: Horizon·Step.
+func (s *Series) Span() time.Duration {
+	return time.Duration(s.Horizon) * s.Step
+}
+
+// CheckSeries returns nil if the rule can be evaluated on a series with
+// settings s, or an error wrapping ErrWithinBeyondHorizon when the rule's
+// window reaches further than the series is forecast.
+func (a *Alert) CheckSeries(s *Series) error {
+	if a.Within > s.Span() {
+		return fmt.Errorf("%w: rule %q looks %v ahead, series entry %q forecasts %d steps of %v (%v)",
+			ErrWithinBeyondHorizon, a.Name, a.Within, s.Match, s.Horizon, s.Step, s.Span())
+	}
+	return nil
 }
 
 // Threshold returns the rule's threshold and whether it is an "above" rule.

@@ -391,3 +391,37 @@ func TestOverride(t *testing.T) {
 		t.Errorf("bad override: %v", err)
 	}
 }
+
+func TestAlertCheckSeries(t *testing.T) {
+	s := DefaultSeries() // 60 steps of 1m
+	a := Alert{Name: "a", Within: time.Hour}
+	if err := a.CheckSeries(&s); err != nil {
+		t.Errorf("within = horizon·step: %v", err)
+	}
+	a.Within = time.Hour + time.Second
+	if err := a.CheckSeries(&s); !errors.Is(err, ErrWithinBeyondHorizon) {
+		t.Errorf("within beyond horizon·step: %v", err)
+	}
+}
+
+func TestWorkerCount(t *testing.T) {
+	if n := (Refit{Workers: 3}).WorkerCount(); n != 3 {
+		t.Errorf("WorkerCount(3) = %d", n)
+	}
+	if n := (Refit{}).WorkerCount(); n < 1 {
+		t.Errorf("WorkerCount(0) = %d", n)
+	}
+}
+
+func BenchmarkParseFull(b *testing.B) {
+	data, err := os.ReadFile("testdata/full.yaml")
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := Parse(data, "full.yaml"); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

@@ -19,6 +19,10 @@ var (
 	// ErrBadPattern is returned by ValidPattern for a subject pattern that
 	// the bus would not accept as a subscription or match filter.
 	ErrBadPattern = errors.New("config: bad subject pattern")
+
+	// ErrWithinBeyondHorizon is returned by (*Alert).CheckSeries when a
+	// rule's window is longer than a series' Horizon·Step.
+	ErrWithinBeyondHorizon = errors.New("config: alert window beyond the forecast horizon")
 )
 
 // Problem is one thing wrong with a configuration. Line and Column are

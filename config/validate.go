@@ -494,13 +494,15 @@ func (v *validator) alertSeries(p string, a *Alert) {
 	for _, s := range v.c.Series {
 		if ValidPattern(s.Match) == nil && patternsOverlap(s.Match, a.Match) {
 			reach = true
-			longest = max(longest, time.Duration(min(max(s.Horizon, 0), MaxHorizon))*s.Step)
+			if s.Horizon >= 1 && s.Horizon <= MaxHorizon && s.Step > 0 && s.Step <= maxStep {
+				longest = max(longest, s.Span())
+			}
 		}
 	}
 	switch {
 	case !reach:
 		v.add(p+".match", "%q matches no topic that a series entry matches", a.Match)
-	case a.Within > longest:
+	case longest > 0 && a.Within > longest:
 		v.add(p+".within", "%v is beyond every matching series' horizon (at most %v)", a.Within, longest)
 	}
 }
