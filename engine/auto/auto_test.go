@@ -437,3 +437,54 @@ func ExampleSelect() {
 	// Output:
 	// ARIMA(1,0,0) none 1 fit
 }
+
+// TestScaledExpCandidate: a saturating rise, x = 10·log(1 + t/20) plus
+// seeded AR(1) noise, makes scaled-exp a candidate (package doc, step 1),
+// fitted at the same differencing orders as the others.
+func TestScaledExpCandidate(t *testing.T) {
+	m := mustModel(t, "ARIMA(1,0,0)", false, []float64{0.5}, 0.01)
+	y := simulate(t, m, 300, 0, 11)
+	for i := range y {
+		y[i] += 10 * math.Log(1+float64(i)/20)
+	}
+	c, err := Select(y, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	seen := false
+	for _, cd := range c.Tried {
+		if cd.Transform == "scaled-exp" {
+			seen = true
+		}
+	}
+	if !seen {
+		t.Errorf("scaled-exp not tried; tried %+v", c.Tried)
+	}
+	for _, cd := range c.Tried {
+		sp, err := arima.ParseSpec(cd.Spec)
+		if err != nil {
+			t.Fatalf("candidate spec %q: %v", cd.Spec, err)
+		}
+		if sp.D != c.Spec.D || sp.SD != c.Spec.SD {
+			t.Errorf("candidate %s at other differencing orders than the choice %s", cd.Spec, c.Spec)
+		}
+	}
+	t.Logf("chose %s %s", c.Spec, c.Transform)
+}
+
+// TestMissingValues: R's AirPassengers with six NA holes
+// (testdata/r/arima_refs.R) still gets seasonal and first differences
+// (D = 1 and d = 1, as the airline model of Box & Jenkins 1976, Series G).
+func TestMissingValues(t *testing.T) {
+	y := loadSeries(t, "AirPassengers_na")
+	c, err := Select(y, Options{Period: 12})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c.Spec.SD != 1 || c.Spec.D != 1 {
+		t.Errorf("chose %s, want d = 1, D = 1", c.Spec)
+	}
+	if c.Result.NObs != 144-6-13 {
+		t.Errorf("nobs %d, want 125 (R 4.2.2, testdata/r/arima_refs.json AirPassengers_na_log_airline)", c.Result.NObs)
+	}
+}
