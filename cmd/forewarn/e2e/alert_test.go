@@ -1,0 +1,146 @@
+package e2e
+
+import (
+	"encoding/json"
+	"math"
+	"math/rand/v2"
+	"testing"
+	"time"
+)
+
+// alertMsg is an alert message (CONTRACT.md §2).
+type alertMsg struct {
+	Topic         string     `json:"topic"`
+	Rule          string     `json:"rule"`
+	State         string     `json:"state"`
+	Direction     string     `json:"direction"`
+	Threshold     float64    `json:"threshold"`
+	Probability   float64    `json:"probability"`
+	WithinSeconds int64      `json:"within_seconds"`
+	ETA           *time.Time `json:"eta"`
+	Issued        string     `json:"issued"`
+	Origin        time.Time  `json:"origin"`
+}
+
+func alertsOf(t *testing.T, c *collector, topic string) []alertMsg {
+	t.Helper()
+	var out []alertMsg
+	for _, m := range c.get("alert", "forewarn.alert."+topic) {
+		var a alertMsg
+		if err := json.Unmarshal(m.Data, &a); err != nil {
+			t.Fatalf("alert message is not the contract's JSON: %v\n%s", err, m.Data)
+		}
+		out = append(out, a)
+	}
+	return out
+}
+
+// TestAlertEndToEnd is issue 5's end-to-end acceptance: a storage gauge
+// climbing linearly toward its capacity (invented data: 100 + 2·t plus
+// seeded Gaussian noise of sd 0.3, t in steps of 1h) with the rule "above
+// 400 within 24h with probability 0.9" fires exactly once, with an eta
+// within a step of the crossing of the median; a SIGTERM restart does not
+// fire it again; once the volume is cleaned up and stays flat far below the
+// threshold the probability falls and the rule resolves.
+//
+// The analytic crossing: an ARIMA(0,2,1) forecast of a noisy line is that
+// line, so the median crosses 400 at t* = (400 − 100)/2 = 150 steps after
+// t0 (common practice: a local linear trend extrapolates the trend).
+func TestAlertEndToEnd(t *testing.T) {
+	t.Parallel()
+	const topic = "storage.vol1.used_bytes"
+	const step = time.Hour
+	const threshold = 400.0
+	cfg := baseConfig(10) + `series:
+  - match: "storage.>"
+    kind: gauge
+    step: 1h
+    horizon: 48
+    levels: [80, 95]
+    window: 300
+    min_points: 30
+    refit_every: 12
+    model: "ARIMA(0,2,1)"
+    transform: none
+alerts:
+  - {name: vol-full, match: "storage.*.used_bytes", above: 400, within: 24h, probability: 0.9}
+`
+	rng := rand.New(rand.NewPCG(5, 5))
+	var values []float64
+	for i := range 141 { // climbing: t = 0..140, the last value ≈ 380
+		values = append(values, 100+2*float64(i)+0.3*rng.NormFloat64())
+	}
+	for range 80 { // cleaned up: flat near 150
+		values = append(values, 150+0.3*rng.NormFloat64())
+	}
+
+	d := newDaemon(t, external, cfg)
+	d.start()
+	nc := connect(t, d.natsURL)
+	c := collect(t, nc)
+	p := newPublisher(t, nc)
+	publishRange(p, topic, step, values, 0, 136)
+	waitOrigin(t, c, topic, step, 134, 60*time.Second)
+	as := alertsOf(t, c, topic)
+	if len(as) != 1 || as[0].State != "firing" {
+		t.Fatalf("climbing to t=135: alerts %+v, want exactly one firing", as)
+	}
+	a := as[0]
+	if a.Rule != "vol-full" || a.Direction != "above" || a.Threshold != threshold || a.WithinSeconds != 86400 {
+		t.Errorf("firing alert fields: %+v", a)
+	}
+	if a.Probability < 0.9 || a.Probability > 1 {
+		t.Errorf("firing probability %g, want in [0.9, 1]", a.Probability)
+	}
+	crossing := t0.Add(150 * step)
+	if a.ETA == nil {
+		t.Errorf("firing alert has no eta; the median crosses at %s", crossing.Format(time.RFC3339))
+	} else if dt := a.ETA.Sub(crossing); math.Abs(float64(dt)) > float64(step) {
+		t.Errorf("eta %s, analytic median crossing %s: off by %s, more than a step", a.ETA.Format(time.RFC3339), crossing.Format(time.RFC3339), dt)
+	}
+	// eta is, by definition, the first forecast time whose median is
+	// beyond the threshold (CONTRACT.md §2): check it against the forecast
+	// with the same origin.
+	for _, m := range c.get("forecast", "forewarn.forecast."+topic) {
+		f := decodeForecast(t, m.Data)
+		if !f.Origin.Equal(a.Origin) {
+			continue
+		}
+		var first *time.Time
+		for i := range f.Points {
+			if f.Points[i].Median > threshold {
+				first = &f.Points[i].Time
+				break
+			}
+		}
+		if first != nil && a.ETA != nil && !first.Equal(*a.ETA) {
+			t.Errorf("eta %s, but the forecast at the same origin first has its median above %g at %s", a.ETA, threshold, first)
+		}
+	}
+	t.Logf("fired at origin %s with probability %.3f, eta %v", a.Origin.Format(time.RFC3339), a.Probability, a.ETA)
+
+	// Restart: still climbing, already firing, nothing new.
+	d.stop()
+	d.start()
+	waitConnected(t, nc)
+	publishRange(p, topic, step, values, 136, 141)
+	waitOrigin(t, c, topic, step, 139, 60*time.Second)
+	if as := alertsOf(t, c, topic); len(as) != 1 {
+		t.Fatalf("after the restart: %d alert messages %+v, want still the one firing", len(as), as)
+	}
+
+	// Growth stops far below the threshold: the rule resolves, once.
+	publishRange(p, topic, step, values, 141, len(values))
+	waitOrigin(t, c, topic, step, len(values)-2, 60*time.Second)
+	d.stop()
+	as = alertsOf(t, c, topic)
+	if len(as) != 2 || as[1].State != "resolved" {
+		t.Fatalf("after growth stopped: alerts %+v, want firing then resolved", as)
+	}
+	if r := as[1]; r.Probability >= 0.45 {
+		t.Errorf("resolved with probability %g, want below the resolve level 0.45 (half of 0.9)", r.Probability)
+	}
+	if !as[1].Origin.After(t0.Add(140 * step)) {
+		t.Errorf("resolved at origin %s, before growth stopped", as[1].Origin.Format(time.RFC3339))
+	}
+}
