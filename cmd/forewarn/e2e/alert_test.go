@@ -75,10 +75,7 @@ alerts:
 	}
 
 	d := newDaemon(t, external, cfg)
-	d.start()
-	nc := connect(t, d.natsURL)
-	c := collect(t, nc)
-	p := newPublisher(t, nc)
+	nc, c, p := session(t, d)
 	publishRange(p, topic, step, values, 0, 136)
 	waitOrigin(t, c, topic, step, 134, 60*time.Second)
 	as := alertsOf(t, c, topic)

@@ -136,21 +136,11 @@ func TestBadInput(t *testing.T) {
 	half := len(nile) / 2
 
 	// Clean run: the good series alone.
-	clean := newDaemon(t, external, badInputConfig())
-	clean.start()
-	cnc := connect(t, clean.natsURL)
-	cc := collect(t, cnc)
-	publishRange(newPublisher(t, cnc), good, step, nile, 0, len(nile))
-	waitOrigin(t, cc, good, step, len(nile)-2, 60*time.Second)
-	clean.stop()
-	want := forecastsByOrigin(t, cc.get("forecast", "forewarn.forecast."+good))
+	want := uninterrupted(t, external, badInputConfig(), good, step, nile)
 
 	// Dirty run.
 	d := newDaemon(t, external, badInputConfig())
-	d.start()
-	nc := connect(t, d.natsURL)
-	c := collect(t, nc)
-	p := newPublisher(t, nc)
+	nc, c, p := session(t, d)
 	publishRange(p, good, step, nile, 0, half)
 
 	type expect struct{ subject, code, name string }

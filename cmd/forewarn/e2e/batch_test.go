@@ -78,10 +78,7 @@ func TestStreamingEqualsBatch(t *testing.T) {
     transform: none
 `, horizon, window)
 	d := newDaemon(t, external, cfg)
-	d.start()
-	nc := connect(t, d.natsURL)
-	c := collect(t, nc)
-	p := newPublisher(t, nc)
+	_, c, p := session(t, d)
 	n := len(values)
 	publishRange(p, topic, step, values, 0, n)
 	p.must("metrics."+topic, obsJSON(t0.Add(time.Duration(n)*step), values[n-1]))

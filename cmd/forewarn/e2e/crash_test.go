@@ -204,10 +204,7 @@ func TestCrashNothingLostNothingTwice(t *testing.T) {
 		t.Run(mode.String(), func(t *testing.T) {
 			// Uninterrupted reference run: everything at once.
 			ref := newDaemon(t, mode, crashConfig(size.series))
-			ref.start()
-			rnc := connect(t, ref.natsURL)
-			rc := collect(t, rnc)
-			rp := newPublisher(t, rnc)
+			_, rc, rp := session(t, ref)
 			for _, m := range msgs {
 				rp.must("metrics."+m.topic, m.data)
 			}
@@ -215,10 +212,7 @@ func TestCrashNothingLostNothingTwice(t *testing.T) {
 
 			// Crash run.
 			d := newDaemon(t, mode, crashConfig(size.series))
-			d.start()
-			nc := connect(t, d.natsURL)
-			c := collect(t, nc)
-			p := newPublisher(t, nc)
+			nc, c, p := session(t, d)
 			rng := rand.New(rand.NewPCG(uint64(7+i), 99))
 			firstPart := msgs[:len(msgs)-nFinal]
 			// The publisher spreads the first part over about the time the

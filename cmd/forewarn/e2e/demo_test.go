@@ -84,10 +84,8 @@ func TestQuery(t *testing.T) {
     transform: none
 `
 	d := newDaemon(t, embedded, cfg)
-	d.start()
-	nc := connect(t, d.natsURL)
-	c := collect(t, nc)
-	publishRange(newPublisher(t, nc), topic, step, values, 0, len(values))
+	_, c, p := session(t, d)
+	publishRange(p, topic, step, values, 0, len(values))
 	waitOrigin(t, c, topic, step, len(values)-2, 60*time.Second)
 	fs := c.get("forecast", "forewarn.forecast."+topic)
 	latest := fs[len(fs)-1].Data

@@ -645,3 +645,12 @@ func query(t *testing.T, natsURL, topic string) ([]byte, int, string) {
 // t0 is the data-time origin of the tests' series (a fixed date, so runs
 // are reproducible; limits.max_past is wide enough for it).
 var t0 = time.Date(2024, 1, 1, 0, 0, 0, 0, time.UTC)
+
+// session starts d and returns a client connection, a collector on the
+// output subjects and a publisher into the intake stream.
+func session(t *testing.T, d *daemon) (*nats.Conn, *collector, *publisher) {
+	t.Helper()
+	d.start()
+	nc := connect(t, d.natsURL)
+	return nc, collect(t, nc), newPublisher(t, nc)
+}

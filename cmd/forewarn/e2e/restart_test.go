@@ -61,14 +61,7 @@ func TestRestartEqualsUninterrupted(t *testing.T) {
 		t.Run(mode.String(), func(t *testing.T) {
 			t.Parallel()
 			// Uninterrupted run.
-			a := newDaemon(t, mode, restartConfig())
-			a.start()
-			anc := connect(t, a.natsURL)
-			ac := collect(t, anc)
-			publishRange(newPublisher(t, anc), topic, step, values, 0, n)
-			waitOrigin(t, ac, topic, step, n-2, 60*time.Second)
-			a.stop()
-			want := forecastsByOrigin(t, ac.get("forecast", "forewarn.forecast."+topic))
+			want := uninterrupted(t, mode, restartConfig(), topic, step, values)
 			// Forecasts start once min_points buckets have closed: buckets
 			// 0..n-2 close, so origins 23..n-2.
 			if len(want) != n-1-23 {
@@ -77,10 +70,7 @@ func TestRestartEqualsUninterrupted(t *testing.T) {
 
 			// Interrupted run: SIGTERM after the first half.
 			b := newDaemon(t, mode, restartConfig())
-			b.start()
-			bnc := connect(t, b.natsURL)
-			bc := collect(t, bnc)
-			bp := newPublisher(t, bnc)
+			bnc, bc, bp := session(t, b)
 			publishRange(bp, topic, step, values, 0, half)
 			waitOrigin(t, bc, topic, step, half-2, 60*time.Second)
 			before := bc.count("forecast", "forewarn.forecast."+topic)
@@ -123,4 +113,17 @@ func TestRestartEqualsUninterrupted(t *testing.T) {
 			}
 		})
 	}
+}
+
+// uninterrupted publishes values (one a bucket) to a new daemon, waits for
+// the forecast at the last closed bucket, stops the daemon and returns the
+// forecasts of topic by origin.
+func uninterrupted(t *testing.T, mode busMode, cfg, topic string, step time.Duration, values []float64) map[time.Time][]byte {
+	t.Helper()
+	d := newDaemon(t, mode, cfg)
+	_, c, p := session(t, d)
+	publishRange(p, topic, step, values, 0, len(values))
+	waitOrigin(t, c, topic, step, len(values)-2, 60*time.Second)
+	d.stop()
+	return forecastsByOrigin(t, c.get("forecast", "forewarn.forecast."+topic))
 }
