@@ -73,9 +73,21 @@ func (s *ssm) chandrasekhar(w, x []float64, ws *workspace, resid []float64) (sum
 	F := s.q0[0]
 	M := -1 / F
 	steady := false
-	logF := math.Log(F)
+	logF := 0.0
 	phi := s.phi[:r]
-	for t, wt := range w {
+	for t := 0; t < len(w); t++ {
+		if steady {
+			// constant F and K: a tight loop, sums scaled by 1/F at the end
+			rest := steadyRun(w[t:], x, t, a, ax, K, phi, resid, F)
+			rest.scale(F)
+			out.syy += rest.syy
+			out.sxy += rest.sxy
+			out.sxx += rest.sxx
+			out.sumlog += float64(rest.n) * logF
+			out.n += rest.n
+			break
+		}
+		wt := w[t]
 		if !(F > 0) {
 			return out, ErrNumerical
 		}
@@ -87,11 +99,7 @@ func (s *ssm) chandrasekhar(w, x []float64, ws *workspace, resid []float64) (sum
 		out.syy += v * v / F
 		out.sxy += vx * v / F
 		out.sxx += vx * vx / F
-		if steady {
-			out.sumlog += logF
-		} else {
-			out.sumlog += math.Log(F)
-		}
+		out.sumlog += math.Log(F)
 		out.n++
 		if resid != nil {
 			resid[t] = v / math.Sqrt(F)
@@ -110,9 +118,6 @@ func (s *ssm) chandrasekhar(w, x []float64, ws *workspace, resid []float64) (sum
 				ax[i] = ax[i+1] + phi[i]*a0 + K[i]*k
 			}
 			ax[r-1] = phi[r-1]*a0 + K[r-1]*k
-		}
-		if steady {
-			continue
 		}
 		zw := W[0]
 		Fn := F + M*zw*zw
@@ -141,6 +146,106 @@ func (s *ssm) chandrasekhar(w, x []float64, ws *workspace, resid []float64) (sum
 		}
 	}
 	return out, nil
+}
+
+// scale divides the unscaled sums of steadyRun by F.
+func (u *sums) scale(F float64) {
+	u.syy /= F
+	u.sxy /= F
+	u.sxx /= F
+}
+
+// steadyRun continues the filter over w (the tail of the series starting at
+// index t0 of x and resid) with the frozen gain K̄ and variance F:
+// v_t = w_t − a_t[0], a_{t+1} = T a_t + K̄ v_t/F. The sums are returned
+// unscaled (Σ v², not Σ v²/F).
+func steadyRun(w, x []float64, t0 int, a, ax, K, phi, resid []float64, F float64) sums {
+	var out sums
+	r := len(a)
+	inv := 1 / F
+	sd := 1 / math.Sqrt(F)
+	K = K[:r]
+	phi = phi[:r]
+	var syy, sxy, sxx float64
+	if r == 1 {
+		// AR(1) or white noise: scalar state
+		p0, k0 := phi[0], K[0]*inv
+		a0, b0 := a[0], ax[0]
+		for i, wt := range w {
+			v := wt - a0
+			a0 = p0*a0 + k0*v
+			syy += v * v
+			if x != nil {
+				vx := x[t0+i] - b0
+				b0 = p0*b0 + k0*vx
+				sxy += v * vx
+				sxx += vx * vx
+			}
+			if resid != nil {
+				resid[t0+i] = v * sd
+			}
+		}
+		a[0], ax[0] = a0, b0
+		out.syy, out.sxy, out.sxx, out.n = syy, sxy, sxx, len(w)
+		return out
+	}
+	// The regression column is filtered with data-independent gains, so its
+	// prediction errors converge; once one repeats exactly, all later ones
+	// equal it and Σ v_x v = v_x Σ v.
+	xdone := x == nil
+	var vxInf, sumv float64
+	nx := 0
+	for i, wt := range w {
+		v := wt - a[0]
+		syy += v * v
+		k := v * inv
+		a0 := a[0]
+		for j := 0; j < r-1; j++ {
+			a[j] = a[j+1] + phi[j]*a0 + K[j]*k
+		}
+		a[r-1] = phi[r-1]*a0 + K[r-1]*k
+		if resid != nil {
+			resid[t0+i] = v * sd
+		}
+		if xdone {
+			if x != nil {
+				sumv += v
+				nx++
+			}
+			continue
+		}
+		vx := x[t0+i] - ax[0]
+		sxy += v * vx
+		sxx += vx * vx
+		kx := vx * inv
+		b0 := ax[0]
+		changed := false
+		for j := 0; j < r-1; j++ {
+			nv := ax[j+1] + phi[j]*b0 + K[j]*kx
+			changed = changed || nv != ax[j]
+			ax[j] = nv
+		}
+		nv := phi[r-1]*b0 + K[r-1]*kx
+		changed = changed || nv != ax[r-1]
+		ax[r-1] = nv
+		if !changed && constCol(x, t0+i) {
+			xdone, vxInf = true, vx
+		}
+	}
+	sxy += vxInf * sumv
+	sxx += vxInf * vxInf * float64(nx)
+	out.syy, out.sxy, out.sxx, out.n = syy, sxy, sxx, len(w)
+	return out
+}
+
+// constCol reports whether x is constant from index t on (checked once).
+func constCol(x []float64, t int) bool {
+	for _, v := range x[t:] {
+		if v != x[t] {
+			return false
+		}
+	}
+	return true
 }
 
 // kappa is the prior variance, relative to σ², of the levels when they
