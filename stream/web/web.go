@@ -1,105 +1,159 @@
-// Package web is forewarn's HTTP surface: health and readiness, the
-// daemon's own metrics as OpenMetrics text, and a JSON view of the series.
-// It reads the daemon only through Daemon.Inspect and Daemon.Latest, so it
-// never races the loop that owns the series.
+// Package web is forewarn's HTTP surface for a running daemon: it adapts
+// the daemon to the Source that package site serves (pages, charts, JSON,
+// health) and adds the count of series by status to the daemon's own
+// metrics. It reads the daemon only through Daemon.Inspect (on the loop
+// goroutine that owns the series, copying what a request shows) and
+// Daemon.Latest, so it never races that loop.
 package web
 
 import (
 	"context"
-	"encoding/json"
+	"math"
 	"net/http"
-	"sort"
-	"strings"
 	"time"
 
-	"github.com/prometheus/client_golang/prometheus/promhttp"
+	"github.com/prometheus/client_golang/prometheus"
 
 	"forewarn/config"
+	"forewarn/engine/series"
 	"forewarn/stream/daemon"
+	"forewarn/stream/web/site"
 )
 
-// Handler serves the HTTP surface of d.
+// InspectTimeout bounds how long a request waits for the daemon's loop.
+const InspectTimeout = 5 * time.Second
+
+// Handler serves the HTTP surface of d (routes: package site).
 func Handler(d *daemon.Daemon, cfg *config.Config) http.Handler {
-	mux := http.NewServeMux()
-	mux.HandleFunc("GET /healthz", func(w http.ResponseWriter, r *http.Request) {
-		w.Header().Set("Content-Type", "text/plain; charset=utf-8")
-		w.Write([]byte("ok\n"))
-	})
-	mux.HandleFunc("GET /readyz", func(w http.ResponseWriter, r *http.Request) {
-		select {
-		case <-d.Ready():
-			w.Write([]byte("ready\n"))
-		default:
-			http.Error(w, "loading state", http.StatusServiceUnavailable)
-		}
-	})
-	mux.Handle("GET /metrics", promhttp.HandlerFor(d.Metrics().Registry, promhttp.HandlerOpts{EnableOpenMetrics: true}))
-	mux.HandleFunc("GET /api/series", func(w http.ResponseWriter, r *http.Request) {
-		list, ok := summaries(r.Context(), d)
-		if !ok {
-			http.Error(w, "daemon not running", http.StatusServiceUnavailable)
-			return
-		}
-		writeJSON(w, list)
-	})
-	mux.HandleFunc("GET /api/series/{topic...}", func(w http.ResponseWriter, r *http.Request) {
-		topic := r.PathValue("topic")
-		if strings.HasSuffix(topic, "/chart.svg") {
-			http.NotFound(w, r)
-			return
-		}
-		b, ok := d.Latest(topic)
-		if !ok {
-			http.Error(w, `{"error": "no forecast for this topic yet"}`, http.StatusNotFound)
-			return
-		}
-		w.Header().Set("Content-Type", "application/json")
-		w.Write(b)
-	})
-	return mux
+	reg := prometheus.NewRegistry()
+	reg.MustRegister(NewStatusCollector(d))
+	info := site.Info{Prefix: cfg.Output.Prefix, Subjects: cfg.Intake.Subjects}
+	return site.Handler(Source{d}, prometheus.Gatherers{d.Metrics().Registry, reg}, info)
 }
 
-// Summary is one series in /api/series.
-type Summary struct {
-	Topic     string    `json:"topic"`
-	Kind      string    `json:"kind"`
-	Status    string    `json:"status"`
-	Step      int64     `json:"step_seconds"`
-	Closed    uint64    `json:"closed_buckets"`
-	LastValue *float64  `json:"last_value"`
-	Origin    time.Time `json:"origin,omitzero"`
-	Model     string    `json:"model,omitempty"`
-	Rejects   uint64    `json:"rejects"`
+// Source is a daemon seen as a site.Source.
+type Source struct{ D *daemon.Daemon }
+
+// Ready implements site.Source.
+func (s Source) Ready() <-chan struct{} { return s.D.Ready() }
+
+// Latest implements site.Source.
+func (s Source) Latest(topic string) ([]byte, bool) { return s.D.Latest(topic) }
+
+// Views implements site.Source.
+func (s Source) Views(ctx context.Context, topic string, history int) ([]site.View, error) {
+	ctx, cancel := context.WithTimeout(ctx, InspectTimeout)
+	defer cancel()
+	var out []site.View
+	ok := s.D.Inspect(ctx, func(all map[string]*daemon.Entry) {
+		if topic != "" {
+			if e, ok := all[topic]; ok {
+				out = append(out, View(topic, e, history))
+			}
+			return
+		}
+		out = make([]site.View, 0, len(all))
+		for t, e := range all {
+			out = append(out, View(t, e, history))
+		}
+	})
+	if !ok {
+		return nil, site.ErrNotRunning
+	}
+	return out, nil
 }
 
-func summaries(ctx context.Context, d *daemon.Daemon) ([]Summary, bool) {
-	var out []Summary
-	ok := d.Inspect(ctx, func(all map[string]*daemon.Entry) {
-		for topic, e := range all {
-			s := e.Series()
-			snap := s.Snapshot()
-			sm := Summary{Topic: topic, Kind: snap.Kind, Status: e.Status(), Step: snap.StepSeconds,
-				Closed: snap.Closed, Rejects: e.Rejects()}
-			if n := len(snap.Window); n > 0 {
-				v := snap.Window[n-1]
-				if v == v {
-					sm.LastValue = &v
+// View copies one entry, with at most history recent buckets (all when
+// history < 0). It must run inside Daemon.Inspect.
+func View(topic string, e *daemon.Entry, history int) site.View {
+	s := e.Series()
+	snap := s.Snapshot()
+	step := snap.StepSeconds
+	at := func(bucket int64) time.Time { return time.Unix(bucket*step, 0).UTC() }
+	w := snap.Window
+	if history >= 0 && len(w) > history {
+		w = w[len(w)-history:]
+	}
+	v := site.View{
+		Topic: topic, Kind: snap.Kind, Status: e.Status(), StepSeconds: step,
+		Closed: snap.Closed, Rejects: e.Rejects(), Late: snap.Late,
+		History: append([]float64(nil), w...), HistoryEnd: at(snap.WindowEnd),
+		RefitFailures: snap.RefitFailures, LastRefitNote: snap.LastRefitNote,
+	}
+	for _, b := range e.Refits() {
+		v.Refits = append(v.Refits, at(b))
+	}
+	if s.HasModel() {
+		fc := s.Forecast()
+		m := fc.Model
+		v.Model = site.Model{Spec: m.Spec, Transform: m.Transform, FittedAt: m.FittedAt, NObs: m.NObs, AICc: m.AICc}
+		v.Forecast = forecastView(fc)
+	}
+	for _, r := range e.Rules() {
+		rv := site.Rule{Name: r.Name, Threshold: r.Threshold, Above: r.Above, Probability: math.NaN()}
+		for _, a := range snap.Alerts {
+			if a.Rule == r.Name {
+				rv.Firing, rv.Probability = a.Firing, a.Probability
+				if a.Since != 0 {
+					rv.Since = at(a.Since)
 				}
 			}
-			if snap.Model != nil {
-				sm.Model = snap.Model.Spec
-				sm.Origin = s.Forecast().Origin
-			}
-			out = append(out, sm)
 		}
-	})
-	sort.Slice(out, func(i, j int) bool { return out[i].Topic < out[j].Topic })
-	return out, ok
+		v.Rules = append(v.Rules, rv)
+	}
+	return v
 }
 
-func writeJSON(w http.ResponseWriter, v any) {
-	w.Header().Set("Content-Type", "application/json")
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	enc.Encode(v)
+func forecastView(fc *series.Forecast) *site.Forecast {
+	f := &site.Forecast{Origin: fc.Origin, Levels: append([]float64(nil), fc.Levels...),
+		Points: make([]site.Point, len(fc.Points))}
+	bound := func(b series.Bound) float64 {
+		if !b.OK {
+			return math.NaN()
+		}
+		return b.Value
+	}
+	for i, p := range fc.Points {
+		q := site.Point{H: p.H, Time: p.Time, Mean: p.Mean, Median: p.Median,
+			Lower: make([]float64, len(p.Lower)), Upper: make([]float64, len(p.Upper))}
+		for j := range p.Lower {
+			q.Lower[j], q.Upper[j] = bound(p.Lower[j]), bound(p.Upper[j])
+		}
+		f.Points[i] = q
+	}
+	return f
+}
+
+// statusCollector reports forewarn_series_by_status{status} at scrape time.
+type statusCollector struct {
+	d    *daemon.Daemon
+	desc *prometheus.Desc
+}
+
+// Statuses are the values of the status label, in the order reported.
+var Statuses = []string{"warming_up", "fitted", "refitting"}
+
+// NewStatusCollector returns a collector of the number of series of d in
+// each status. A scrape while the daemon is not running reports nothing.
+func NewStatusCollector(d *daemon.Daemon) prometheus.Collector {
+	return &statusCollector{d: d, desc: prometheus.NewDesc("forewarn_series_by_status",
+		"Series tracked, by status (warming_up, fitted, refitting).", []string{"status"}, nil)}
+}
+
+func (c *statusCollector) Describe(ch chan<- *prometheus.Desc) { ch <- c.desc }
+
+func (c *statusCollector) Collect(ch chan<- prometheus.Metric) {
+	ctx, cancel := context.WithTimeout(context.Background(), InspectTimeout)
+	defer cancel()
+	counts := map[string]int{}
+	if !c.d.Inspect(ctx, func(all map[string]*daemon.Entry) {
+		for _, e := range all {
+			counts[e.Status()]++
+		}
+	}) {
+		return
+	}
+	for _, s := range Statuses {
+		ch <- prometheus.MustNewConstMetric(c.desc, prometheus.GaugeValue, float64(counts[s]), s)
+	}
 }

@@ -1,0 +1,154 @@
+package site
+
+import (
+	"bytes"
+	"html/template"
+	"math"
+	"net/http"
+	"net/url"
+	"strconv"
+	"time"
+)
+
+var funcs = template.FuncMap{
+	"path":   url.PathEscape,
+	"status": StatusText,
+	"num":    num,
+	"bound":  bound,
+	"level":  func(l float64) string { return strconv.FormatFloat(l, 'g', -1, 64) },
+	"utc":    utc,
+	"state":  stateWord,
+	"dir":    direction,
+	"pct": func(p float64) string {
+		if !finite(p) {
+			return "—"
+		}
+		return strconv.FormatFloat(100*p, 'f', 1, 64) + " %"
+	},
+	"at": func(xs []float64, i int) float64 { return xs[i] },
+	"step": func(s int64) string {
+		return (time.Duration(s) * time.Second).String()
+	},
+}
+
+func num(x float64) string {
+	if math.IsNaN(x) {
+		return "missing"
+	}
+	return strconv.FormatFloat(x, 'g', 7, 64)
+}
+
+func bound(x float64) string {
+	if !finite(x) {
+		return "unbounded"
+	}
+	return strconv.FormatFloat(x, 'g', 7, 64)
+}
+
+func utc(t time.Time) string {
+	if t.IsZero() {
+		return "—"
+	}
+	return t.UTC().Format(time.RFC3339)
+}
+
+const style = `<style>
+body{font:14px/1.45 "Liberation Sans",Arial,Helvetica,sans-serif;margin:0;color:#1d1d1d;background:#f4f5f7}
+header{background:#16324f;color:#fff;padding:10px 24px}
+header a{color:#fff;text-decoration:none;font-weight:bold;font-size:17px}
+main{padding:16px 24px}
+h1{font-size:20px;margin:4px 0 12px}
+h2{font-size:16px;margin:20px 0 8px}
+table{border-collapse:collapse;background:#fff}
+th,td{padding:5px 10px;border-bottom:1px solid #e2e4e8;text-align:left;vertical-align:middle}
+th{background:#eceef2;font-weight:600}
+td.n{text-align:right;font-variant-numeric:tabular-nums}
+.st{display:inline-block;padding:1px 8px;border-radius:9px;font-size:12px}
+.st-fitted{background:#d8efd9;color:#1e5e24}
+.st-warming_up{background:#fdf0cc;color:#7a5a00}
+.st-refitting{background:#dbe7f7;color:#17457a}
+.firing{color:#b71c1c;font-weight:bold}
+.ok{color:#2e6b32}
+.chart{background:#fff;border:1px solid #dcdfe4}
+.muted{color:#666}
+dl{display:grid;grid-template-columns:max-content auto;gap:2px 14px;background:#fff;padding:10px 14px;width:max-content}
+dt{color:#555}
+</style>`
+
+var indexTmpl = template.Must(template.New("index").Funcs(funcs).Parse(`<!doctype html>
+<html lang="en"><head><meta charset="utf-8"><title>forewarn — series</title>` + style + `</head>
+<body><header><a href="./">forewarn</a></header><main>
+<h1>Series <span class="muted">({{len .Series}})</span></h1>
+{{if not .Series}}<p class="muted">No series yet: nothing has arrived on the intake subjects.</p>{{else}}
+<table id="series">
+<tr><th>topic</th><th>status</th><th>last value</th><th>model</th><th>rejects</th><th>alerts</th><th>history and forecast</th></tr>
+{{range .Series}}<tr class="series" data-topic="{{.Topic}}">
+<td><a href="series/{{path .Topic}}">{{.Topic}}</a><br><span class="muted">{{.Kind}}, step {{step .StepSeconds}}</span></td>
+<td><span class="st st-{{.Status}}">{{status .Status}}</span></td>
+<td class="n">{{num .LastValue}}</td>
+<td>{{if .Model.Spec}}{{.Model.Spec}}<br><span class="muted">{{.Model.Transform}}</span>{{else}}<span class="muted">none yet</span>{{end}}</td>
+<td class="n">{{.Rejects}}{{if .Late}} <span class="muted">({{.Late}} late)</span>{{end}}</td>
+<td>{{range .Rules}}<div class="{{state .Firing}}">{{.Name}}: {{state .Firing}}</div>{{else}}<span class="muted">no rules</span>{{end}}</td>
+<td><img class="chart" src="api/series/{{path .Topic}}/chart.svg?w=` + strconv.Itoa(SmallWidth) + `&amp;h=` + strconv.Itoa(SmallHeight) + `" width="` + strconv.Itoa(SmallWidth) + `" height="` + strconv.Itoa(SmallHeight) + `" alt="chart of {{.Topic}}"></td>
+</tr>
+{{end}}</table>{{end}}
+<p class="muted">Reading {{range $i, $s := .Subjects}}{{if $i}}, {{end}}<code>{{$s}}</code>{{end}}; publishing under <code>{{.Prefix}}.</code>
+· JSON: <a href="api/series">api/series</a> · metrics: <a href="metrics">metrics</a></p>
+</main></body></html>
+`))
+
+var seriesTmpl = template.Must(template.New("series").Funcs(funcs).Parse(`<!doctype html>
+<html lang="en"><head><meta charset="utf-8"><title>forewarn — {{.Topic}}</title>` + style + `</head>
+<body><header><a href="../">forewarn</a></header><main>
+<h1>{{.Topic}} <span class="st st-{{.Status}}">{{status .Status}}</span></h1>
+<img id="chart" class="chart" src="../api/series/{{path .Topic}}/chart.svg?w=` + strconv.Itoa(LargeWidth) + `&amp;h=` + strconv.Itoa(LargeHeight) + `" width="` + strconv.Itoa(LargeWidth) + `" height="` + strconv.Itoa(LargeHeight) + `" alt="history and forecast of {{.Topic}}">
+<h2>Series</h2>
+<dl>
+<dt>kind</dt><dd>{{.Kind}}</dd>
+<dt>step</dt><dd>{{step .StepSeconds}}</dd>
+<dt>last closed bucket</dt><dd>{{utc .HistoryEnd}}: {{num .LastValue}}</dd>
+<dt>buckets closed</dt><dd>{{.Closed}}</dd>
+<dt>rejected</dt><dd>{{.Rejects}} ({{.Late}} late)</dd>
+<dt>model</dt><dd>{{if .Model.Spec}}{{.Model.Spec}}, transform {{.Model.Transform}}, fitted on {{.Model.NObs}} buckets up to {{utc .Model.FittedAt}}, AICc {{num .Model.AICc}}{{else}}none yet{{end}}</dd>
+<dt>failed refits</dt><dd>{{.RefitFailures}}{{if .LastRefitNote}}: {{.LastRefitNote}}{{end}}</dd>
+</dl>
+<h2>Alert rules</h2>
+{{if .Rules}}<table id="rules"><tr><th>rule</th><th>threshold</th><th>state</th><th>probability</th><th>since</th></tr>
+{{range .Rules}}<tr><td>{{.Name}}</td><td>{{dir .Above}} {{num .Threshold}}</td><td class="{{state .Firing}}">{{state .Firing}}</td><td class="n">{{pct .Probability}}</td><td>{{utc .Since}}</td></tr>
+{{end}}</table>{{else}}<p class="muted">No alert rule watches this series.</p>{{end}}
+<h2>Latest forecast</h2>
+{{with .Forecast}}<p class="muted">from the bucket starting {{utc .Origin}}; <a href="../api/series/{{path $.Topic}}">as JSON</a></p>
+<table id="forecast"><tr><th>h</th><th>time</th><th>mean</th><th>median</th>{{range .Levels}}<th>{{level .}} % interval</th>{{end}}</tr>
+{{range .Points}}{{$p := .}}<tr><td class="n">{{.H}}</td><td>{{utc .Time}}</td><td class="n">{{num .Mean}}</td><td class="n">{{num .Median}}</td>{{range $i, $l := $.Forecast.Levels}}<td class="n">{{bound (at $p.Lower $i)}} … {{bound (at $p.Upper $i)}}</td>{{end}}</tr>
+{{end}}</table>{{else}}<p class="muted">No forecast yet: the series is warming up.</p>{{end}}
+</main></body></html>
+`))
+
+func (s *server) index(w http.ResponseWriter, r *http.Request) {
+	vs, ok := s.views(w, r, "", 1)
+	if !ok {
+		return
+	}
+	render(w, indexTmpl, struct {
+		Info
+		Series []View
+	}{s.info, vs})
+}
+
+func (s *server) page(w http.ResponseWriter, r *http.Request) {
+	v, ok := s.one(w, r, 1)
+	if !ok {
+		return
+	}
+	render(w, seriesTmpl, v)
+}
+
+func render(w http.ResponseWriter, t *template.Template, data any) {
+	var buf bytes.Buffer
+	if err := t.Execute(&buf, data); err != nil {
+		http.Error(w, err.Error(), http.StatusInternalServerError)
+		return
+	}
+	w.Header().Set("Content-Type", "text/html; charset=utf-8")
+	w.Write(buf.Bytes())
+}

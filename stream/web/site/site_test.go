@@ -1,0 +1,168 @@
+package site
+
+import (
+	"bytes"
+	"encoding/json"
+	"encoding/xml"
+	"io"
+	"net/http"
+	"net/http/httptest"
+	"strings"
+	"testing"
+
+	"github.com/prometheus/client_golang/prometheus"
+)
+
+func get(t *testing.T, h http.Handler, url string, header ...string) *httptest.ResponseRecorder {
+	t.Helper()
+	req := httptest.NewRequest("GET", url, nil)
+	for i := 0; i+1 < len(header); i += 2 {
+		req.Header.Set(header[i], header[i+1])
+	}
+	rec := httptest.NewRecorder()
+	h.ServeHTTP(rec, req)
+	return rec
+}
+
+func TestHealthAndReadiness(t *testing.T) {
+	src := fixture(t)
+	h := Handler(src, prometheus.NewRegistry(), Info{Subjects: []string{"metrics.>"}, Prefix: "forewarn"})
+	if rec := get(t, h, "/healthz"); rec.Code != 200 {
+		t.Errorf("/healthz: %d", rec.Code)
+	}
+	if rec := get(t, h, "/readyz"); rec.Code != http.StatusServiceUnavailable {
+		t.Errorf("/readyz before ready: %d", rec.Code)
+	}
+	close(src.ready)
+	if rec := get(t, h, "/readyz"); rec.Code != 200 {
+		t.Errorf("/readyz after ready: %d", rec.Code)
+	}
+	src.down = true
+	if rec := get(t, h, "/api/series"); rec.Code != http.StatusServiceUnavailable {
+		t.Errorf("/api/series with the daemon down: %d", rec.Code)
+	}
+}
+
+func TestSeriesJSON(t *testing.T) {
+	h := Handler(fixture(t), prometheus.NewRegistry(), Info{Subjects: []string{"metrics.>"}, Prefix: "forewarn"})
+	rec := get(t, h, "/api/series")
+	if rec.Code != 200 || rec.Header().Get("Content-Type") != "application/json" {
+		t.Fatalf("/api/series: %d %s", rec.Code, rec.Header().Get("Content-Type"))
+	}
+	var list []Summary
+	if err := json.Unmarshal(rec.Body.Bytes(), &list); err != nil {
+		t.Fatal(err)
+	}
+	var topics []string
+	for _, s := range list {
+		topics = append(topics, s.Topic)
+	}
+	if strings.Join(topics, ",") != "air.passengers,lab.hormone,uk.gas" {
+		t.Errorf("topics %v, want sorted", topics)
+	}
+	air := list[0]
+	// The last AirPassengers value in R's `datasets` is 432 (Dec 1960).
+	if air.LastValue == nil || *air.LastValue != 432 || air.Rejects != 3 || air.Late != 1 || air.Status != "fitted" {
+		t.Errorf("air.passengers summary %+v", air)
+	}
+	if len(air.Alerts) != 2 || air.Alerts[0].State != "firing" || air.Alerts[1].Probability != nil {
+		t.Errorf("alerts %+v", air.Alerts)
+	}
+	if list[1].Model != "" || list[1].Status != "warming_up" || !list[1].Origin.IsZero() {
+		t.Errorf("warming series %+v", list[1])
+	}
+
+	if rec := get(t, h, "/api/series/air.passengers"); rec.Code != 200 || rec.Body.String() != `{"topic":"air.passengers"}` {
+		t.Errorf("latest: %d %q", rec.Code, rec.Body.String())
+	}
+	rec = get(t, h, "/api/series/uk.gas")
+	var e map[string]string
+	if rec.Code != 404 || json.Unmarshal(rec.Body.Bytes(), &e) != nil || e["error"] == "" {
+		t.Errorf("no forecast yet: %d %q", rec.Code, rec.Body.String())
+	}
+}
+
+func TestChartEndpoint(t *testing.T) {
+	h := Handler(fixture(t), prometheus.NewRegistry(), Info{Subjects: []string{"metrics.>"}, Prefix: "forewarn"})
+	rec := get(t, h, "/api/series/air.passengers/chart.svg?w=500&h=200&points=60")
+	if rec.Code != 200 || rec.Header().Get("Content-Type") != "image/svg+xml" {
+		t.Fatalf("chart: %d %s %s", rec.Code, rec.Header().Get("Content-Type"), rec.Body.String())
+	}
+	dec := xml.NewDecoder(bytes.NewReader(rec.Body.Bytes()))
+	for {
+		_, err := dec.Token()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			t.Fatalf("chart is not well-formed XML: %v", err)
+		}
+	}
+	if !strings.Contains(rec.Body.String(), `width="375pt" height="150pt"`) {
+		t.Error("chart size not taken from w and h")
+	}
+	for url, want := range map[string]int{
+		"/api/series/air.passengers/chart.svg?w=abc":   400,
+		"/api/series/air.passengers/chart.svg?h=99999": 400,
+		"/api/series/air.passengers/chart.svg?points=0": 400,
+		"/api/series/no.such/chart.svg":                404,
+		"/api/series/lab.hormone/chart.svg":            200,
+		"/series/no.such":                              404,
+	} {
+		rec := get(t, h, url)
+		if rec.Code != want {
+			t.Errorf("%s: %d, want %d (%s)", url, rec.Code, want, rec.Body.String())
+		}
+		if want == 400 && !strings.Contains(rec.Body.String(), "query parameter") {
+			t.Errorf("%s: message %q does not name the parameter", url, rec.Body.String())
+		}
+	}
+}
+
+func TestPages(t *testing.T) {
+	h := Handler(fixture(t), prometheus.NewRegistry(), Info{Subjects: []string{"metrics.>"}, Prefix: "forewarn"})
+	rec := get(t, h, "/")
+	if rec.Code != 200 || !strings.HasPrefix(rec.Header().Get("Content-Type"), "text/html") {
+		t.Fatalf("index: %d", rec.Code)
+	}
+	body := rec.Body.String()
+	for _, want := range []string{
+		`<a href="series/air.passengers">air.passengers</a>`,
+		`src="api/series/air.passengers/chart.svg?w=360&amp;h=110"`,
+		`<span class="st st-warming_up">warming up</span>`,
+		`<div class="firing">busy-summer: firing</div>`,
+		`<div class="ok">quiet: ok</div>`,
+		`3 <span class="muted">(1 late)</span>`,
+		`Reading <code>metrics.&gt;</code>; publishing under <code>forewarn.</code>`,
+	} {
+		if !strings.Contains(body, want) {
+			t.Errorf("index lacks %s", want)
+		}
+	}
+	if n := strings.Count(body, `<tr class="series"`); n != 3 {
+		t.Errorf("index lists %d series, want 3", n)
+	}
+
+	rec = get(t, h, "/series/air.passengers")
+	if rec.Code != 200 {
+		t.Fatalf("series page: %d", rec.Code)
+	}
+	body = rec.Body.String()
+	// 24 forecast rows (R's predict with n.ahead = 24), the header row
+	// names both levels.
+	tbl := body[strings.Index(body, `<table id="forecast">`):]
+	tbl = tbl[:strings.Index(tbl, "</table>")]
+	if n := strings.Count(tbl, "<tr>"); n != 25 {
+		t.Errorf("forecast table has %d rows, want 24 and a header", n)
+	}
+	for _, want := range []string{"80 % interval", "95 % interval", `src="../api/series/air.passengers/chart.svg?w=960&amp;h=440"`,
+		"above 600", "97.0 %"} {
+		if !strings.Contains(body, want) {
+			t.Errorf("series page lacks %q", want)
+		}
+	}
+	rec = get(t, h, "/series/lab.hormone")
+	if !strings.Contains(rec.Body.String(), "No forecast yet") {
+		t.Error("warming series page does not say there is no forecast")
+	}
+}
