@@ -102,12 +102,12 @@ func TestChartEndpoint(t *testing.T) {
 		t.Error("chart size not taken from w and h")
 	}
 	for url, want := range map[string]int{
-		"/api/series/air.passengers/chart.svg?w=abc":   400,
-		"/api/series/air.passengers/chart.svg?h=99999": 400,
+		"/api/series/air.passengers/chart.svg?w=abc":    400,
+		"/api/series/air.passengers/chart.svg?h=99999":  400,
 		"/api/series/air.passengers/chart.svg?points=0": 400,
-		"/api/series/no.such/chart.svg":                404,
-		"/api/series/lab.hormone/chart.svg":            200,
-		"/series/no.such":                              404,
+		"/api/series/no.such/chart.svg":                 404,
+		"/api/series/lab.hormone/chart.svg":             200,
+		"/series/no.such":                               404,
 	} {
 		rec := get(t, h, url)
 		if rec.Code != want {
