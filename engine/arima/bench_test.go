@@ -97,10 +97,10 @@ func benchmarkFit(b *testing.B, id string) {
 
 // R 4.2.2 on this machine: see testdata/r/arima_bench.json (26 ms, 91 ms,
 // 1.05 s and 43.6 s in ../shared/REFERENCES.md).
-func BenchmarkFitARIMA212n1000(b *testing.B)        { benchmarkFit(b, "arima212") }
-func BenchmarkFitARMA11n10000(b *testing.B)         { benchmarkFit(b, "arma11") }
-func BenchmarkFitAirline24n2000(b *testing.B)       { benchmarkFit(b, "airline24") }
-func BenchmarkFitAirline168n2000(b *testing.B)      { benchmarkFit(b, "airline168") }
+func BenchmarkFitARIMA212n1000(b *testing.B)   { benchmarkFit(b, "arima212") }
+func BenchmarkFitARMA11n10000(b *testing.B)    { benchmarkFit(b, "arma11") }
+func BenchmarkFitAirline24n2000(b *testing.B)  { benchmarkFit(b, "airline24") }
+func BenchmarkFitAirline168n2000(b *testing.B) { benchmarkFit(b, "airline168") }
 func BenchmarkLogLikAirline168n2000(b *testing.B) {
 	ref := loadBench(b)["airline168"]
 	y := benchSeries(b, "airline168")
