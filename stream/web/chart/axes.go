@@ -3,6 +3,7 @@ package chart
 import (
 	"math"
 	"strconv"
+	"strings"
 	"time"
 
 	"gonum.org/v1/plot"
@@ -144,12 +145,46 @@ func (valueTicker) Ticks(lo, hi float64) []plot.Tick {
 		step = hi - lo
 	}
 	mag := math.Max(math.Abs(lo), math.Abs(hi))
+	// A step of 1 between ticks at 1.5, 2.5, … still needs a decimal:
+	// refine the step until every labelled value is written exactly.
+	for range 6 {
+		exact := true
+		for _, t := range ts {
+			if t.Label != "" && !writtenExactly(t.Value, step, mag) {
+				exact = false
+				break
+			}
+		}
+		if exact {
+			break
+		}
+		step /= 10
+	}
 	for i := range ts {
 		if ts[i].Label != "" {
 			ts[i].Label = formatValue(ts[i].Value, step, mag)
 		}
 	}
 	return ts
+}
+
+// writtenExactly reports whether formatValue(v, step, mag) loses nothing
+// of v beyond a millionth of the step.
+func writtenExactly(v, step, mag float64) bool {
+	back, err := strconv.ParseFloat(strings.TrimRight(formatValue(v, step, mag), "kMGTP"), 64)
+	if err != nil {
+		return false
+	}
+	scale := 1.0
+	if mag >= 1e4 {
+		for _, s := range suffixes {
+			if mag >= s.f {
+				scale = s.f
+				break
+			}
+		}
+	}
+	return math.Abs(back*scale-v) <= 1e-6*step
 }
 
 // formatValue writes v with as many decimals as the tick step needs and,

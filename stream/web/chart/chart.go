@@ -218,6 +218,9 @@ var (
 	colGrid     = color.RGBA{R: 0xe6, G: 0xe6, B: 0xe6, A: 0xff}
 )
 
+// MedianColor is the colour of the median forecast line.
+func MedianColor() color.RGBA { return colMedian }
+
 // BandColor returns the fill colour of the band at rank i of n, i = 0
 // being the narrowest (lowest level). With two levels the 80 % band is
 // colBandDark and the 95 % band colBandPale; the HTTP surface's browser

@@ -354,3 +354,23 @@ func TestFormatValue(t *testing.T) {
 		t.Errorf("formatExact(1191.6251) = %q", got)
 	}
 }
+
+// Tick labels stay distinct when the ticks fall on halves (a range of
+// 1.5 … 3.5 with a unit step between labels).
+func TestValueTicksDistinct(t *testing.T) {
+	for _, r := range [][2]float64{{1.4, 3.6}, {0.001, 0.0042}, {99990, 100012}, {-2.5e9, 7.5e9}} {
+		seen := map[string]bool{}
+		for _, tk := range (valueTicker{}).Ticks(r[0], r[1]) {
+			if tk.Label == "" {
+				continue
+			}
+			if seen[tk.Label] {
+				t.Errorf("range %v: label %q twice", r, tk.Label)
+			}
+			seen[tk.Label] = true
+		}
+		if len(seen) < 2 {
+			t.Errorf("range %v: %d labels", r, len(seen))
+		}
+	}
+}
