@@ -44,6 +44,11 @@ type Data struct {
 
 	// Refits are the data times at which the model was refitted.
 	Refits []time.Time
+
+	// Index draws the x axis as observation numbers: Times then hold
+	// time.Unix(i, 0) for observation i (counted from 1), as Offline.Data
+	// makes them for a CSV without a time column.
+	Index bool
 }
 
 // Point is one forecast step.
@@ -274,6 +279,12 @@ func draw1(c draw.Canvas, d *Data, wpx int) {
 	} else {
 		p.X.Tick.Marker = timeTicker{maxLabels: max(2, wpx/120)}
 		p.Y.Tick.Marker = valueTicker{}
+		if d.Index {
+			p.X.Tick.Marker = valueTicker{}
+			if !compact {
+				p.X.Label.Text = "observation"
+			}
+		}
 	}
 	g := plotter.NewGrid()
 	g.Vertical.Color, g.Horizontal.Color = colGrid, colGrid

@@ -11,6 +11,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -372,5 +373,72 @@ func TestValueTicksDistinct(t *testing.T) {
 		if len(seen) < 2 {
 			t.Errorf("range %v: %d labels", r, len(seen))
 		}
+	}
+}
+
+// An offline fit's CSV time column as R writes time(x) (decimal years) is
+// read as months, and the forecast continues month by month; without a
+// time column the axis counts observations.
+func TestOfflineData(t *testing.T) {
+	r := refForecast(t, "USAccDeaths_airline", []float64{80, 95})
+	o := &Offline{Title: "USAccDeaths", Values: r.Values, Levels: r.Levels}
+	for i := range r.Times {
+		// R's time(USAccDeaths): 1973, 1973.0833…, as in the dataset file.
+		o.Times = append(o.Times, strconv.FormatFloat(1973+float64(i)/12, 'f', 8, 64))
+	}
+	for _, p := range r.Forecast {
+		o.Median, o.Lower, o.Upper = append(o.Median, p.Median), append(o.Lower, p.Lower), append(o.Upper, p.Upper)
+	}
+	d, err := o.Data()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d.Index {
+		t.Fatal("decimal years not read as times")
+	}
+	// USAccDeaths runs Jan 1973 – Dec 1978 (R `datasets`); the first
+	// forecast month is Jan 1979.
+	if got := d.Times[len(d.Times)-1]; !got.Equal(time.Date(1978, 12, 1, 0, 0, 0, 0, time.UTC)) {
+		t.Errorf("last time %v", got)
+	}
+	if got := d.Forecast[0].Time; !got.Equal(time.Date(1979, 1, 1, 0, 0, 0, 0, time.UTC)) {
+		t.Errorf("first forecast time %v", got)
+	}
+	if got := d.Forecast[23].Time; !got.Equal(time.Date(1980, 12, 1, 0, 0, 0, 0, time.UTC)) {
+		t.Errorf("24th forecast time %v", got)
+	}
+	if err := Render(io.Discard, SVG, d, Options{}); err != nil {
+		t.Fatal(err)
+	}
+
+	o.Times = nil
+	d, err = o.Data()
+	if err != nil || !d.Index || d.Forecast[0].Time.Unix() != int64(len(o.Values)+1) {
+		t.Fatalf("index axis: %v %v", err, d)
+	}
+	var buf bytes.Buffer
+	if err := Render(&buf, SVG, d, Options{}); err != nil || !strings.Contains(buf.String(), ">observation<") {
+		t.Errorf("index axis not labelled: %v", err)
+	}
+	o.Lower = o.Lower[:3]
+	if _, err := o.Data(); !errors.Is(err, ErrShape) {
+		t.Errorf("short bounds: %v", err)
+	}
+	for _, c := range []struct {
+		col  []string
+		want time.Time
+	}{
+		{[]string{"2025-03-04T10:00:00Z", "2025-03-04T10:05:00Z"}, time.Date(2025, 3, 4, 10, 10, 0, 0, time.UTC)},
+		{[]string{"2025-03-04", "2025-03-05"}, time.Date(2025, 3, 6, 0, 0, 0, 0, time.UTC)},
+		{[]string{"1741082400", "1741082460"}, time.Unix(1741082520, 0)},
+		{[]string{"1960.00", "1960.25", "1960.50"}, time.Date(1960, 10, 1, 0, 0, 0, 0, time.UTC)}, // quarterly
+	} {
+		tl, ok := parseTimes(c.col)
+		if !ok || !tl.after(1).Equal(c.want) {
+			t.Errorf("%v: next %v (ok %v), want %v", c.col, tl.after(1), ok, c.want)
+		}
+	}
+	if _, ok := parseTimes([]string{"1", "x"}); ok {
+		t.Error("a non-time cell accepted")
 	}
 }
