@@ -163,3 +163,44 @@ func TestDrawBar(t *testing.T) {
 		t.Errorf("bar %q, want %q", b.String(), want)
 	}
 }
+
+// TestFitAutomatic: `forewarn fit` without --order chooses automatically
+// and lists the candidates. On R's USAccDeaths it finds the model of R
+// 4.2.2 `?arima` and Brockwell & Davis (1991), ARIMA(0,1,1)(0,1,1)[12],
+// with R's loglik −425.44 (testdata/r/arima_refs.json; tolerance 0.01, the
+// arima package's acceptance).
+func TestFitAutomatic(t *testing.T) {
+	var out, errb bytes.Buffer
+	code := runFit([]string{"--period", "12", "--horizon", "2", "--format", "json", datasetPath("USAccDeaths")}, &out, &errb)
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, errb.String())
+	}
+	var got struct {
+		Model      struct{ Spec string }
+		LogLik     float64
+		AICc       float64
+		Candidates []struct {
+			Spec, Transform, Rejected string
+			AICc                      *float64
+		}
+	}
+	if err := json.Unmarshal(out.Bytes(), &got); err != nil {
+		t.Fatal(err)
+	}
+	if got.Model.Spec != "ARIMA(0,1,1)(0,1,1)[12]" || math.Abs(got.LogLik-(-425.44)) > 0.01 {
+		t.Errorf("chose %s loglik %.3f; R: ARIMA(0,1,1)(0,1,1)[12], −425.44", got.Model.Spec, got.LogLik)
+	}
+	found := false
+	for _, c := range got.Candidates {
+		if c.AICc == nil && c.Rejected == "" {
+			t.Errorf("candidate %s has neither AICc nor a reason", c.Spec)
+		}
+		if c.AICc != nil && *c.AICc < got.AICc-1e-6 {
+			t.Errorf("candidate %s AICc %.4f beats the choice %.4f", c.Spec, *c.AICc, got.AICc)
+		}
+		found = found || c.Spec == got.Model.Spec
+	}
+	if !found || len(got.Candidates) < 4 {
+		t.Errorf("candidates %+v lack the choice or the starting models", got.Candidates)
+	}
+}
