@@ -15,6 +15,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"forewarn/engine/arima"
+	"forewarn/engine/auto"
 )
 
 func init() {
@@ -28,7 +29,7 @@ value column is --column NAME, else the last column; an empty cell, NA or NaN
 is a missing value) by exact maximum likelihood and forecasts it.
 
 flags (before or after FILE):
-  --order p,d,q        non-seasonal orders (required until automatic choice lands)
+  --order p,d,q        non-seasonal orders (absent: chosen automatically)
   --seasonal P,D,Q     seasonal orders (default 0,0,0)
   --period s           seasonal period (required with --seasonal)
   --mean yes|no|auto   estimate a mean; auto: a mean when d+D = 0. With d+D = 1,
@@ -182,16 +183,19 @@ func parseTriple(flagName, s string) ([]int, error) {
 	return out, nil
 }
 
-// errAutoPending is returned while automatic model choice is not wired in.
-var errAutoPending = errors.New("automatic model choice is not available yet: give --order p,d,q (and --seasonal P,D,Q --period s for a seasonal model)")
-
 // chooseSpec is the model-choice step: the explicit orders of the request,
-// or (once it lands) an automatic choice on the transformed values w.
-func chooseSpec(w []float64, req fitRequest) (arima.Spec, error) {
+// or, without --order, the automatic choice of engine/auto on the raw
+// values (transform fixed by --transform), with the candidates it tried.
+func chooseSpec(raw []float64, req fitRequest) (arima.Spec, []auto.Candidate, error) {
 	if req.order == nil {
-		return arima.Spec{}, usageError{errAutoPending}
+		c, err := auto.Select(raw, auto.Options{Period: req.period, Transform: req.transform, Mean: req.mean})
+		if err != nil {
+			return arima.Spec{}, nil, fmt.Errorf("%s: automatic model choice: %w", req.file, err)
+		}
+		return c.Spec, c.Tried, nil
 	}
-	return explicitSpec(req)
+	s, err := explicitSpec(req)
+	return s, nil, err
 }
 
 // explicitSpec turns the --order/--seasonal/--period/--mean flags into a
@@ -284,6 +288,8 @@ type fitOutput struct {
 	Converged bool          `json:"converged"`
 	Note      string        `json:"note,omitempty"`
 	Forecast  []fitForecast `json:"forecast"`
+	// Candidates are the fits the automatic choice tried (without --order).
+	Candidates []fitCandidate `json:"candidates,omitempty"`
 
 	coefSE []float64
 	spec   arima.Spec
@@ -345,7 +351,7 @@ func fitFile(req fitRequest) (*fitOutput, error) {
 			return nil, badUsage("%s: observation %d: %v", req.file, i+1, err)
 		}
 	}
-	spec, err := chooseSpec(w, req)
+	spec, tried, err := chooseSpec(raw, req)
 	if err != nil {
 		return nil, err
 	}
@@ -365,7 +371,20 @@ func fitFile(req fitRequest) (*fitOutput, error) {
 	mean := make([]float64, req.horizon)
 	variance := make([]float64, req.horizon)
 	f.Forecast(mean, variance)
-	return buildFitOutput(res, tr, mean, variance, req.levels), nil
+	out := buildFitOutput(res, tr, mean, variance, req.levels)
+	for _, c := range tried {
+		out.Candidates = append(out.Candidates, fitCandidate{c.Spec, c.Transform, jsonFloat(c.AICc), c.Err})
+	}
+	return out, nil
+}
+
+// fitCandidate is one model the automatic choice tried (AICc on the raw
+// scale; rejected ones carry the reason).
+type fitCandidate struct {
+	Spec      string    `json:"spec"`
+	Transform string    `json:"transform"`
+	AICc      jsonFloat `json:"aicc"`
+	Rejected  string    `json:"rejected,omitempty"`
 }
 
 func buildFitOutput(res *arima.Result, tr localTransform, mean, variance, levels []float64) *fitOutput {
@@ -438,6 +457,14 @@ func writeFitTable(w io.Writer, out *fitOutput, levels []float64) {
 		fmt.Fprintf(w, "warning: the optimiser did not converge: %s\n", out.Note)
 	} else if out.Note != "" {
 		fmt.Fprintf(w, "note: %s\n", out.Note)
+	}
+	if len(out.Candidates) > 0 {
+		fmt.Fprintf(w, "\ncandidates tried (AICc on the raw scale):\n")
+		tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+		for _, c := range out.Candidates {
+			fmt.Fprintf(tw, "  %s\t%s\t%s\t%s\n", c.Spec, c.Transform, fmtNum(float64(c.AICc)), c.Rejected)
+		}
+		tw.Flush()
 	}
 	fmt.Fprintln(w)
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)

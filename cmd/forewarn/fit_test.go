@@ -154,7 +154,6 @@ func TestFitErrors(t *testing.T) {
 		{"impossible order", []string{"--order", "1,5,0", dataset("lh")}, exitUsage, []string{"d = 5"}},
 		{"seasonal without period", []string{"--order", "0,1,1", "--seasonal", "0,1,1", dataset("lh")}, exitUsage, []string{"--period"}},
 		{"mean with d=2", []string{"--order", "0,2,1", "--mean", "yes", dataset("lh")}, exitUsage, []string{"d+D = 2"}},
-		{"no order", []string{dataset("lh")}, exitUsage, []string{"--order"}},
 		{"missing file", []string{"--order", "1,0,0", "nope.csv"}, exitUsage, []string{"nope.csv"}},
 		{"no column", []string{"--order", "1,0,0", "--column", "x", dataset("lh")}, exitUsage, []string{`no column named "x"`}},
 		{"bad flag", []string{"--order", "1,0", dataset("lh")}, exitUsage, []string{"--order"}},
