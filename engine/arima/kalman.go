@@ -189,9 +189,12 @@ func steadyRun(w, x []float64, t0 int, a, ax, K, phi, resid []float64, F float64
 		out.syy, out.sxy, out.sxx, out.n = syy, sxy, sxx, len(w)
 		return out
 	}
+	if (r == 2 || r == 3) && resid == nil {
+		return steadySmall(w, x, t0, a, ax, K, phi, inv)
+	}
 	// The regression column is filtered with data-independent gains, so its
 	// prediction errors converge; once one repeats exactly, all later ones
-	// equal it and Σ v_x v = v_x Σ v.
+	// equal it (to rounding) and Σ v_x v = v_x Σ v.
 	xdone := x == nil
 	var vxInf, sumv float64
 	nx := 0
@@ -222,11 +225,11 @@ func steadyRun(w, x []float64, t0 int, a, ax, K, phi, resid []float64, F float64
 		changed := false
 		for j := 0; j < r-1; j++ {
 			nv := ax[j+1] + phi[j]*b0 + K[j]*kx
-			changed = changed || nv != ax[j]
+			changed = changed || !near(nv, ax[j])
 			ax[j] = nv
 		}
 		nv := phi[r-1]*b0 + K[r-1]*kx
-		changed = changed || nv != ax[r-1]
+		changed = changed || !near(nv, ax[r-1])
 		ax[r-1] = nv
 		if !changed && constCol(x, t0+i) {
 			xdone, vxInf = true, vx
@@ -237,6 +240,84 @@ func steadyRun(w, x []float64, t0 int, a, ax, K, phi, resid []float64, F float64
 	out.syy, out.sxy, out.sxx, out.n = syy, sxy, sxx, len(w)
 	return out
 }
+
+// steadySmall is steadyRun for r = 2 or 3 with the state in registers
+// (a[2] = 0 and phi[2] = K[2] = 0 stand in for r = 2), used during
+// optimisation (no residuals).
+func steadySmall(w, x []float64, t0 int, a, ax, K, phi []float64, inv float64) sums {
+	var p0, p1, p2, k0, k1, k2, s0, s1, s2 float64
+	p0, p1, k0, k1 = phi[0], phi[1], K[0]*inv, K[1]*inv
+	s0, s1 = a[0], a[1]
+	r3 := len(a) == 3
+	if r3 {
+		p2, k2, s2 = phi[2], K[2]*inv, a[2]
+	}
+	var syy float64
+	if x == nil {
+		for _, wt := range w {
+			v := wt - s0
+			syy += v * v
+			n0 := s1 + p0*s0 + k0*v
+			n1 := s2 + p1*s0 + k1*v
+			s2 = p2*s0 + k2*v
+			s0, s1 = n0, n1
+		}
+		a[0], a[1] = s0, s1
+		if r3 {
+			a[2] = s2
+		}
+		return sums{syy: syy, n: len(w)}
+	}
+	b0, b1, b2 := ax[0], ax[1], 0.0
+	if r3 {
+		b2 = ax[2]
+	}
+	var sxy, sxx, sumv, vxInf float64
+	i := 0
+	for ; i < len(w); i++ {
+		v := w[i] - s0
+		vx := x[t0+i] - b0
+		syy += v * v
+		sxy += v * vx
+		sxx += vx * vx
+		n0 := s1 + p0*s0 + k0*v
+		n1 := s2 + p1*s0 + k1*v
+		s2 = p2*s0 + k2*v
+		s0, s1 = n0, n1
+		m0 := b1 + p0*b0 + k0*vx
+		m1 := b2 + p1*b0 + k1*vx
+		m2 := p2*b0 + k2*vx
+		same := near(m0, b0) && near(m1, b1) && near(m2, b2)
+		b0, b1, b2 = m0, m1, m2
+		if same && constCol(x, t0+i) {
+			vxInf = vx
+			i++
+			break
+		}
+	}
+	nx := 0
+	for ; i < len(w); i++ {
+		v := w[i] - s0
+		syy += v * v
+		sumv += v
+		nx++
+		n0 := s1 + p0*s0 + k0*v
+		n1 := s2 + p1*s0 + k1*v
+		s2 = p2*s0 + k2*v
+		s0, s1 = n0, n1
+	}
+	sxy += vxInf * sumv
+	sxx += vxInf * vxInf * float64(nx)
+	a[0], a[1], ax[0], ax[1] = s0, s1, b0, b1
+	if r3 {
+		a[2], ax[2] = s2, b2
+	}
+	return sums{syy: syy, sxy: sxy, sxx: sxx, n: len(w)}
+}
+
+// near reports |a − b| ≤ 1e-15 (1 + |b|): the regression column's state has
+// stopped moving (it may alternate in its last bit).
+func near(a, b float64) bool { return math.Abs(a-b) <= 1e-15*(1+math.Abs(b)) }
 
 // constCol reports whether x is constant from index t on (checked once).
 func constCol(x []float64, t int) bool {
