@@ -568,34 +568,43 @@ func waitConsumed(t *testing.T, nc *nats.Conn, timeout time.Duration) {
 		t.Fatal(err)
 	}
 	var last string
-	eventually(t, timeout, "intake stream fully acknowledged ("+streamName+"/"+consumerName+")", func() bool {
-		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
-		defer cancel()
-		s, err := js.Stream(ctx, streamName)
-		if err != nil {
-			last = err.Error()
-			return false
+	deadline := time.Now().Add(timeout)
+	for !consumed(js, &last) {
+		if time.Now().After(deadline) {
+			t.Fatalf("intake stream %s not fully acknowledged by consumer %s within %s: %s", streamName, consumerName, timeout, last)
 		}
-		si, err := s.Info(ctx)
-		if err != nil {
-			last = err.Error()
-			return false
-		}
-		c, err := s.Consumer(ctx, consumerName)
-		if err != nil {
-			last = err.Error()
-			return false
-		}
-		ci, err := c.Info(ctx)
-		if err != nil {
-			last = err.Error()
-			return false
-		}
-		last = fmt.Sprintf("stream last seq %d, ack floor %d, pending %d, ack pending %d",
-			si.State.LastSeq, ci.AckFloor.Stream, ci.NumPending, ci.NumAckPending)
-		return ci.AckFloor.Stream == si.State.LastSeq && ci.NumPending == 0 && ci.NumAckPending == 0
-	})
-	_ = last
+		time.Sleep(20 * time.Millisecond)
+	}
+}
+
+// consumed reports whether the consumer has acknowledged the whole stream,
+// and sets *state to what it saw.
+func consumed(js jetstream.JetStream, state *string) bool {
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+	defer cancel()
+	s, err := js.Stream(ctx, streamName)
+	if err != nil {
+		*state = err.Error()
+		return false
+	}
+	si, err := s.Info(ctx)
+	if err != nil {
+		*state = err.Error()
+		return false
+	}
+	c, err := s.Consumer(ctx, consumerName)
+	if err != nil {
+		*state = err.Error()
+		return false
+	}
+	ci, err := c.Info(ctx)
+	if err != nil {
+		*state = err.Error()
+		return false
+	}
+	*state = fmt.Sprintf("stream last seq %d, ack floor %d, pending %d, ack pending %d",
+		si.State.LastSeq, ci.AckFloor.Stream, ci.NumPending, ci.NumAckPending)
+	return ci.AckFloor.Stream == si.State.LastSeq && ci.NumPending == 0 && ci.NumAckPending == 0
 }
 
 // The stream and consumer names the tests set in every config
