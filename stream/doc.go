@@ -37,6 +37,13 @@
 // crash may lose the last unsynced stretch unless EmbeddedOptions.SyncAlways
 // is set.
 //
+// The stream stores what its publishers send; a publisher that needs
+// every observation kept should publish with JetStream acknowledgements
+// (and retry without one), because under overload the server drops core
+// publications that the stream cannot take in — measured here: a single
+// connection publishing 300 000 small messages as fast as it could got
+// about half of them stored.
+//
 // Plain mode (IntakeOptions.Durable false) uses core subscriptions. It is best
 // effort: messages published while the daemon is down or disconnected are
 // lost, a handler that falls far behind makes the client drop messages
