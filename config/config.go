@@ -185,6 +185,10 @@ type Series struct {
 	MinPoints int
 	// RefitEvery is the number of closed buckets between refits. Zero: 60.
 	RefitEvery int
+	// Period is the seasonal period in steps that automatic model choice
+	// considers (24 for a daily cycle of hourly buckets). Zero: no
+	// seasonal part unless Model names one.
+	Period int
 	// Model is "auto" or a fixed "ARIMA(p,d,q)" or "ARIMA(p,d,q)(P,D,Q)[s]"
 	// (spaces are removed on load). Zero: "auto".
 	Model string

@@ -130,14 +130,14 @@ func TestLoadFull(t *testing.T) {
 	if !reflect.DeepEqual(s0, want0) {
 		t.Errorf("series[0]:\n got %+v\nwant %+v", s0, want0)
 	}
-	if s1 := c.Series[1]; s1.Step != 5*time.Minute || s1.Horizon != 288 || s1.Window != 2000 || s1.Transform != "boxcox(0.5)" || s1.Line != 56 {
+	if s1 := c.Series[1]; s1.Step != 5*time.Minute || s1.Horizon != 288 || s1.Window != 2000 || s1.Transform != "boxcox(0.5)" || s1.Period != 288 || s1.Line != 56 {
 		t.Errorf("series[1]: %+v", s1)
 	}
 	a0, a1 := c.Alerts[0], c.Alerts[1]
-	if v, above := a0.Threshold(); !above || v != 9e11 || a0.Within != 6*time.Hour || a0.ResolveProbability != 0.45 || a0.Line != 62 {
+	if v, above := a0.Threshold(); !above || v != 9e11 || a0.Within != 6*time.Hour || a0.ResolveProbability != 0.45 || a0.Line != 63 {
 		t.Errorf("alerts[0]: %+v", a0)
 	}
-	if v, above := a1.Threshold(); above || v != 100 || a1.ResolveProbability != 0.3 || a1.Line != 67 {
+	if v, above := a1.Threshold(); above || v != 100 || a1.ResolveProbability != 0.3 || a1.Line != 68 {
 		t.Errorf("alerts[1]: %+v", a1)
 	}
 }
@@ -303,6 +303,8 @@ func TestValidationRules(t *testing.T) {
 		{"model D", "series:\n  - model: \"ARIMA(0,1,1)(0,2,1)[12]\"\n", 2, "series[0].model", "D is at most 1"},
 		{"model period", "series:\n  - model: \"ARIMA(0,1,1)(0,1,1)[1]\"\n", 2, "series[0].model", "period s"},
 		{"model needs points", "series:\n  - {model: \"ARIMA(1,1,1)(1,1,1)[168]\", window: 5000}\n", 2, "series[0].min_points", "needs at least 175"},
+		{"period one", "series:\n  - period: 1\n", 2, "series[0].period", "must be 0 (none) or in 2..10000"},
+		{"period against model", "series:\n  - {period: 12, model: \"ARIMA(0,1,1)(0,1,1)[24]\"}\n", 2, "series[0].period", "model has period 24"},
 		{"transform", "series:\n  - transform: sqrt\n", 2, "series[0].transform", "is not one of auto"},
 		{"boxcox lambda", "series:\n  - transform: boxcox(3)\n", 2, "series[0].transform", "λ must be"},
 		{"boxcox lambda nan", "series:\n  - transform: boxcox(NaN)\n", 2, "series[0].transform", "λ must be"},

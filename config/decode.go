@@ -18,8 +18,10 @@ import (
 
 // Decoding bounds, so that no file can make Parse work without end.
 const (
-	maxProblems = 200   // problems listed; the rest are counted in one line
-	maxAliases  = 10000 // alias uses followed in one document
+	maxProblems = 200    // problems listed; the rest are counted in one line
+	maxAliases  = 10000  // alias uses followed in one document
+	maxNodes    = 100000 // values and list items walked in one document
+	maxStored   = 1000   // problems kept while decoding; the rest are counted
 )
 
 // Load reads the YAML file at path and returns the configuration, with
@@ -53,16 +55,27 @@ func Parse(data []byte, name string) (*Config, error) {
 	}
 	cfg.pos, cfg.file = d.pos, name
 	out := cfg.WithDefaults()
-	probs := append(d.probs, out.validate(d.failed)...)
+	probs := d.probs
+	if d.fatal != nil && len(probs) == 0 {
+		probs = []Problem{*d.fatal}
+		d.fatal = nil
+	}
+	if d.dropped == 0 && !d.exhausted {
+		probs = append(probs, out.validate(d.failed)...)
+	}
 	if len(probs) > 0 {
-		return nil, newErrors(name, probs)
+		e := newErrors(name, probs, d.dropped)
+		if d.fatal != nil { // the reason the walk stopped comes first
+			e.Problems = append([]Problem{*d.fatal}, e.Problems...)
+		}
+		return nil, e
 	}
 	return out, nil
 }
 
 // newErrors sorts problems by position (those without one last) and caps
-// their number.
-func newErrors(file string, probs []Problem) *Errors {
+// their number; dropped counts problems already left out.
+func newErrors(file string, probs []Problem, dropped int) *Errors {
 	sort.SliceStable(probs, func(i, j int) bool {
 		a, b := probs[i], probs[j]
 		if (a.Line == 0) != (b.Line == 0) {
@@ -73,27 +86,48 @@ func newErrors(file string, probs []Problem) *Errors {
 		}
 		return a.Column < b.Column
 	})
-	if len(probs) > maxProblems {
-		more := len(probs) - maxProblems
-		probs = append(probs[:maxProblems:maxProblems], Problem{Msg: fmt.Sprintf("and %d more problems", more)})
+	if more := len(probs) - maxProblems + dropped; more > 0 {
+		probs = append(probs[:min(len(probs), maxProblems):maxProblems], Problem{Msg: fmt.Sprintf("and %d more problems", more)})
 	}
 	return &Errors{File: file, Problems: probs}
 }
 
 type decoder struct {
-	probs   []Problem
-	pos     map[string]position // where each decoded value was
-	failed  map[string]bool     // paths whose value could not be decoded
-	aliases int
+	probs []Problem
+	pos   map[string]position // where each decoded value was
+	// failed holds the paths whose value, or a value inside it, could
+	// not be decoded: the failed path and all its ancestors.
+	failed    map[string]bool
+	dropped   int // problems not kept, beyond maxStored
+	aliases   int // alias uses followed
+	nodes     int // nodes walked
+	exhausted bool
+	fatal     *Problem // why the walk stopped early, if it did
+}
+
+// stop ends the walk with a problem that is always listed.
+func (d *decoder) stop(n *yaml.Node, path, format string, args ...any) {
+	d.exhausted = true
+	p := Problem{Path: path, Msg: fmt.Sprintf(format, args...)}
+	if n != nil {
+		p.Line, p.Column = n.Line, n.Column
+	}
+	d.fatal = &p
 }
 
 func (d *decoder) errorf(n *yaml.Node, path, format string, args ...any) {
+	for k := path; k != "" && !d.failed[k]; k = parentPath(k) {
+		d.failed[k] = true
+	}
+	if len(d.probs) >= maxStored {
+		d.dropped++
+		return
+	}
 	p := Problem{Path: path, Msg: fmt.Sprintf(format, args...)}
 	if n != nil {
 		p.Line, p.Column = n.Line, n.Column
 	}
 	d.probs = append(d.probs, p)
-	d.failed[path] = true
 }
 
 var yamlLine = regexp.MustCompile(`^yaml: line (\d+): (.*)$`)
@@ -141,14 +175,20 @@ func (d *decoder) syntax(err error) {
 	d.probs = append(d.probs, Problem{Msg: "YAML syntax: " + strings.TrimPrefix(msg, "yaml: ")})
 }
 
-// resolve follows an alias to its anchored node.
+// resolve follows an alias to its anchored node. Every node walked passes
+// here; past maxNodes it returns nil, which ends the walk.
 func (d *decoder) resolve(n *yaml.Node, path string) *yaml.Node {
+	if d.exhausted {
+		return nil
+	}
+	if d.nodes++; d.nodes > maxNodes {
+		d.stop(n, path, "more than %d values; a configuration is far smaller", maxNodes)
+		return nil
+	}
 	for n != nil && n.Kind == yaml.AliasNode {
 		d.aliases++
 		if d.aliases > maxAliases {
-			if d.aliases == maxAliases+1 {
-				d.errorf(n, path, "more than %d alias uses; expand the document", maxAliases)
-			}
+			d.stop(n, path, "more than %d alias uses; a configuration needs far fewer", maxAliases)
 			return nil
 		}
 		n = n.Alias
@@ -545,6 +585,7 @@ func (d *decoder) top(root *yaml.Node, c *Config) {
 					"window":      d.integer(&s.Window),
 					"min_points":  d.integer(&s.MinPoints),
 					"refit_every": d.integer(&s.RefitEvery),
+					"period":      d.integer(&s.Period),
 					"model":       d.str(&s.Model),
 					"transform":   d.str(&s.Transform),
 					"close_after": d.duration(&s.CloseAfter),

@@ -54,6 +54,7 @@ func TestFingerprintMathsChanges(t *testing.T) {
 		"min_points":  func(s *Series) { s.MinPoints = 51 },
 		"refit_every": func(s *Series) { s.RefitEvery = 59 },
 		"model":       func(s *Series) { s.Model = "ARIMA(1,1,1)" },
+		"period":      func(s *Series) { s.Period = 24 },
 		"transform":   func(s *Series) { s.Transform = "log" },
 		"close_after": func(s *Series) { s.CloseAfter = time.Second },
 	}

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 )
 
@@ -42,4 +43,47 @@ func FuzzParse(f *testing.F) {
 			_ = c.Series[i].Fingerprint()
 		}
 	})
+}
+
+// aliasFlood is a small file whose aliases expand to millions of values.
+func aliasFlood() []byte {
+	var b strings.Builder
+	b.WriteString("series:\n  - {match: \"x.>\", levels: &l [" + strings.Repeat("x, ", 1000) + "x]}\n")
+	for range 3000 {
+		b.WriteString("  - {match: \"y.>\", levels: *l}\n")
+	}
+	return []byte(b.String())
+}
+
+// Work and report size stay bounded whatever the file: the walk stops
+// after maxNodes values, and at most maxProblems problems are listed.
+func TestHostileFilesAreBounded(t *testing.T) {
+	cases := map[string]struct {
+		data []byte
+		msg  string
+	}{
+		"alias flood":    {aliasFlood(), "more than 100000 values"},
+		"deep nesting":   {[]byte(strings.Repeat("[", 5000)), "YAML syntax"},
+		"many bad rules": {[]byte("alerts:\n" + strings.Repeat("  - {name: Bad, match: \"a..b\"}\n", 5000)), "more problems"},
+		"alias chain":    {[]byte("series:\n  - &a {match: \">\"}\n" + strings.Repeat("  - *a\n", 20000)), "more than 10000 alias uses"},
+	}
+	for name, c := range cases {
+		_, err := Parse(c.data, "hostile.yaml")
+		var e *Errors
+		if !errors.As(err, &e) {
+			t.Fatalf("%s: %v", name, err)
+		}
+		// maxProblems, the count of the rest, and why the walk stopped.
+		if len(e.Problems) > maxProblems+2 || !strings.Contains(err.Error(), c.msg) {
+			t.Errorf("%s: %d problems, want at most %d and one containing %q", name, len(e.Problems), maxProblems+2, c.msg)
+		}
+	}
+}
+
+func BenchmarkParseAliasFlood(b *testing.B) {
+	data := aliasFlood()
+	b.ReportAllocs()
+	for b.Loop() {
+		_, _ = Parse(data, "flood.yaml")
+	}
 }

@@ -41,7 +41,7 @@ const (
 // value when c came from Parse or Load.
 func (c *Config) Validate() error {
 	if probs := c.WithDefaults().validate(nil); len(probs) > 0 {
-		return newErrors(c.file, probs)
+		return newErrors(c.file, probs, 0)
 	}
 	return nil
 }
@@ -105,14 +105,7 @@ func (v *validator) add(path, format string, args ...any) {
 
 // isFailed reports whether the value at path, or one inside it, could
 // not be decoded.
-func (v *validator) isFailed(path string) bool {
-	for f := range v.failed {
-		if f == path || strings.HasPrefix(f, path+".") || strings.HasPrefix(f, path+"[") {
-			return true
-		}
-	}
-	return false
-}
+func (v *validator) isFailed(path string) bool { return v.failed[path] }
 
 // parentPath strips the last key or index: "a.b[2]" → "a.b" → "a" → "".
 func parentPath(p string) string {
@@ -375,6 +368,9 @@ func (v *validator) series(i int) {
 	if s.RefitEvery < 1 {
 		v.add(p+".refit_every", "%d is less than 1", s.RefitEvery)
 	}
+	if s.Period != 0 && (s.Period < 2 || s.Period > maxSeasonalPeriod) {
+		v.add(p+".period", "%d must be 0 (none) or in 2..%d", s.Period, maxSeasonalPeriod)
+	}
 	v.model(p, s)
 	v.transform(p+".transform", s.Transform)
 	if s.CloseAfter < 0 {
@@ -424,6 +420,8 @@ func (v *validator) model(p string, s *Series) {
 		v.add(path, "%q: D is at most %d", s.Model, maxSeasonD)
 	case seasonal && (per < 2 || per > maxSeasonalPeriod):
 		v.add(path, "%q: the period s must be in 2..%d", s.Model, maxSeasonalPeriod)
+	case seasonal && s.Period != 0 && s.Period != per:
+		v.add(p+".period", "%d, but the model has period %d; leave period out or make them agree", s.Period, per)
 	default:
 		need := d + per*sd + pp + q + sp + sq + 2
 		if s.MinPoints >= MinMinPoints && s.MinPoints < need {
