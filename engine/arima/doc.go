@@ -64,6 +64,8 @@
 //   - Morf, M., Sidhu, G. S. & Kailath, T. (1974). IEEE Trans. Automatic
 //     Control 19(4), 315–323.
 //   - Herbst, E. (2015). Computational Economics 45(4), 693–705.
+//   - Anderson, B. D. O. & Moore, J. B. (1979). Optimal Filtering.
+//     Prentice-Hall, §6.7 (doubling algorithm).
 //   - Hannan, E. J. & Rissanen, J. (1982). Recursive estimation of mixed
 //     autoregressive-moving average order. Biometrika 69(1), 81–94.
 package arima

@@ -68,7 +68,9 @@ type Filter struct {
 
 // NewFilter returns a filter for m, ready to Step through a series from its
 // first observation, that can forecast up to maxHorizon steps. The AR parts
-// of m must be stationary. It allocates all workspace (16·(r+d+sD)² bytes
+// of m must be stationary, or on the unit circle to within rounding (then
+// the state starts from the PSD doubling sum described at LogLik);
+// otherwise NewFilter returns ErrNonStationary. It allocates all workspace (16·(r+d+sD)² bytes
 // and a few vectors) unless r + d + sD > 256, in which case the
 // levels-in-state workspace is allocated at the first missing value.
 func NewFilter(m *Model, maxHorizon int) (*Filter, error) {
@@ -90,7 +92,7 @@ func NewFilter(m *Model, maxHorizon int) (*Filter, error) {
 	spec := m.Spec
 	s := newSSM(spec)
 	s.setCoefs(expandAR(nil, m.AR, m.SAR, spec.Period), expandMA(nil, m.MA, m.SMA, spec.Period))
-	if err := s.stationaryRow(); err != nil {
+	if err := s.prepare(); err != nil {
 		return nil, fmt.Errorf("arima: new filter %s: %w", spec, err)
 	}
 	r, nd := s.r, s.nd
@@ -152,7 +154,16 @@ func (f *Filter) startKnown() {
 	for i := range f.P {
 		f.P[i] = 0
 	}
-	f.s.stationaryCov(f.P, r)
+	f.s.initCov(f.P, r)
+	f.ready = true
+	if f.s.fallback {
+		// no stationary fixed point: full Riccati updates
+		for i := range f.a {
+			f.a[i] = 0
+		}
+		f.mode = modeFull
+		return
+	}
 	for i := 0; i < r; i++ {
 		f.a[i] = 0
 		next := 0.0
@@ -163,7 +174,6 @@ func (f *Filter) startKnown() {
 	}
 	f.M = -1 / f.s.q0[0]
 	f.mode = modeChandra
-	f.ready = true
 }
 
 // Ready reports whether the d + s·D anchors are known (or, after a
@@ -366,7 +376,7 @@ func (f *Filter) startDiffuse() {
 	for i := range f.Pa {
 		f.Pa[i] = 0
 	}
-	f.s.stationaryCov(f.Pa, mm)
+	f.s.initCov(f.Pa, mm)
 	for i := range f.xa {
 		f.xa[i] = 0
 	}

@@ -488,7 +488,7 @@ func (s *ssm) denseFilter(y, x []float64, aug bool, ws *workspace, resid []float
 	for i := range P {
 		P[i] = 0
 	}
-	s.stationaryCov(P, m)
+	s.initCov(P, m)
 	for i := 0; i < m; i++ {
 		a[i], ax[i] = 0, 0
 		if i >= r {

@@ -151,7 +151,7 @@ func (e *evaluator) eval(ar, ma, sar, sma []float64, beta float64, profile bool,
 	e.phiE = expandAR(e.phiE, ar, sar, e.spec.Period)
 	e.thE = expandMA(e.thE, ma, sma, e.spec.Period)
 	e.s.setCoefs(e.phiE, e.thE)
-	if err := e.s.stationaryRow(); err != nil {
+	if err := e.s.prepare(); err != nil {
 		return out, err
 	}
 	profile = profile && e.xcol != nil
@@ -179,7 +179,11 @@ func (e *evaluator) eval(ar, ma, sar, sma []float64, beta float64, profile bool,
 	}
 	var u sums
 	var err error
-	switch e.path {
+	path := e.path
+	if path == pathChandra && e.s.fallback {
+		path = pathDense // no stationary fixed point for the Chandrasekhar start
+	}
+	switch path {
 	case pathChandra:
 		u, err = e.s.chandrasekhar(d, x, &e.ws, rr)
 		if err != nil {
@@ -238,8 +242,11 @@ func (e *evaluator) eval(ar, ma, sar, sma []float64, beta float64, profile bool,
 //
 //	σ̂² = (1/n) Σ_t v_t²/F_t,   log L = −½ [n log σ̂² + Σ_t log F_t + n + n log 2π].
 //
-// m.Sigma2 is ignored; m.Mean and m.Drift are used as given. The AR parts
-// must be stationary (ErrNonStationary otherwise).
+// m.Sigma2 is ignored; m.Mean and m.Drift are used as given. The ARMA
+// block starts at its exact stationary covariance; an AR part on the unit
+// circle to within rounding starts instead from the truncated doubling sum
+// Σ_{k<2^20} T^k R Rᵀ (Tᵀ)^k, positive semi-definite by construction; an
+// explosive AR part returns ErrNonStationary.
 //
 // References:
 //   - Durbin, J. & Koopman, S. J. (2012). Time Series Analysis by State Space

@@ -1,6 +1,7 @@
 package arima
 
 import (
+	"errors"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -354,5 +355,62 @@ func TestNileLocalLevelVariances(t *testing.T) {
 	eta := s2 * (1 + th) * (1 + th)
 	if math.Abs(eps/15099-1) > 0.002 || math.Abs(eta/1469.1-1) > 0.002 {
 		t.Errorf("σ²_ε = %.1f (D&K 15099), σ²_η = %.2f (D&K 1469.1)", eps, eta)
+	}
+}
+
+// At and near the unit circle the initial covariance falls back to the
+// doubling sum, which is PSD by construction; for a stationary model it
+// equals the exact Q0 (both solve Q0 = T Q0 Tᵀ + R Rᵀ; Anderson & Moore
+// 1979, §6.7). An explosive AR part is still an error.
+func TestUnitRootFallback(t *testing.T) {
+	// doubling sum equals the exact stationary covariance when stationary
+	sp := Spec{P: 2, Q: 1}
+	s := newSSM(sp)
+	s.setCoefs([]float64{0.6, -0.3}, []float64{0.4})
+	if err := s.stationaryRow(); err != nil {
+		t.Fatal(err)
+	}
+	exact := make([]float64, s.r*s.r)
+	s.stationaryCov(exact, s.r)
+	if err := s.doublingCov(); err != nil {
+		t.Fatal(err)
+	}
+	for i := range exact {
+		if math.Abs(exact[i]-s.qfull[i]) > 1e-12*exact[0] {
+			t.Fatalf("doubling %v, exact %v", s.qfull, exact)
+		}
+	}
+	y := simulate(&Model{Spec: Spec{P: 1}, AR: []float64{0.5}, Sigma2: 1}, 200, 9)
+	for _, c := range []struct {
+		ar  []float64
+		ok  bool
+		why string
+	}{
+		{[]float64{1}, true, "unit root"},
+		{[]float64{1e-5, 0.99999 + 1e-12}, true, "partial autocorrelation 1 − 1e-12 (rounds past 1)"},
+		{[]float64{-1}, true, "root at −1"},
+		{[]float64{1.5}, false, "explosive"},
+	} {
+		m := &Model{Spec: Spec{P: len(c.ar), Q: 1}, AR: c.ar, MA: []float64{0.3}, Sigma2: 1}
+		ll, _, _, err := LogLik(y, m)
+		if c.ok && (err != nil || math.IsNaN(ll) || math.IsInf(ll, 0)) {
+			t.Errorf("%s: loglik %v, %v", c.why, ll, err)
+		}
+		if !c.ok && !errors.Is(err, ErrNonStationary) {
+			t.Errorf("%s: error %v, want ErrNonStationary", c.why, err)
+		}
+		f, err := NewFilter(m, 5)
+		if c.ok {
+			if err != nil {
+				t.Fatalf("%s: %v", c.why, err)
+			}
+			f.Steps(y)
+			assertSymPSD(t, c.why, f.P, f.r)
+			mean, v := make([]float64, 5), make([]float64, 5)
+			f.Forecast(mean, v)
+			if math.IsNaN(mean[4]) || !(v[4] > 0) {
+				t.Errorf("%s: forecast %v %v", c.why, mean, v)
+			}
+		}
 	}
 }

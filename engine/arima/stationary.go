@@ -1,6 +1,10 @@
 package arima
 
-import "math"
+import (
+	"math"
+
+	"gonum.org/v1/gonum/mat"
+)
 
 // ssm is the Harvey (1989, §3.4) state-space form of the multiplied-out ARMA
 // part x_t of a model, extended by the differencing block when d+sD > 0:
@@ -39,6 +43,113 @@ type ssm struct {
 	// Workspaces for the stationary covariance.
 	pacf, work, work2, gu, cma, gam, psi []float64
 	q0                                   []float64 // first row of Q0, len r+1 with q0[r] = 0
+
+	// fallback is set by prepare when the AR part sits numerically on the
+	// unit circle; qfull then holds the doubling-sum initial covariance.
+	fallback bool
+	qfull    []float64
+}
+
+// doublingSteps is log2 of the number of terms of the fallback sum.
+const doublingSteps = 20
+
+// prepare computes the initial covariance for the loaded coefficients:
+// the exact stationary one (stationaryRow) when the AR part is
+// stationary in floating point, else — when it lies on the unit circle to
+// within 1e-6 in its partial autocorrelations, as tanh-parametrised
+// optimiser points and models near a unit root can — the truncated sum
+//
+//	P_1 = Σ_{k=0}^{N−1} T^k R Rᵀ (Tᵀ)^k,  N = 2^20,
+//
+// built by doubling (P ← P + A P Aᵀ, A ← A², Anderson & Moore 1979, §6.7).
+// It is positive semi-definite by construction, equals Q0 to rounding for a
+// stationary AR part, and behaves like a diffuse prior of variance ~N at a
+// unit root. With the fallback set, only the full-covariance filter applies.
+// Any other non-stationary AR part returns ErrNonStationary.
+func (s *ssm) prepare() error {
+	s.fallback = false
+	err := s.stationaryRow()
+	if err == nil || !s.nearUnitCircle() {
+		return err
+	}
+	if err := s.doublingCov(); err != nil {
+		return err
+	}
+	s.fallback = true
+	return nil
+}
+
+// nearUnitCircle runs the step-down without stopping and reports whether
+// every partial autocorrelation satisfies |π_k| < 1 + 1e-6.
+func (s *ssm) nearUnitCircle() bool {
+	p := s.p
+	s.work = resize(s.work, p)
+	s.work2 = resize(s.work2, p)
+	cur, nxt := s.work, s.work2
+	copy(cur, s.phi[:p])
+	for k := p; k >= 1; k-- {
+		pk := cur[k-1]
+		if math.IsNaN(pk) || math.Abs(pk) >= 1+1e-6 {
+			return false
+		}
+		den := 1 - pk*pk
+		if math.Abs(den) < 1e-300 {
+			return true // exactly on the circle: the lower orders are undefined
+		}
+		for j := 1; j < k; j++ {
+			nxt[j-1] = (cur[j-1] + pk*cur[k-j-1]) / den
+		}
+		cur, nxt = nxt, cur
+	}
+	return true
+}
+
+// doublingCov fills s.qfull (r×r) with the doubling sum of prepare.
+func (s *ssm) doublingCov() error {
+	r := s.r
+	P := mat.NewDense(r, r, nil)
+	A := mat.NewDense(r, r, nil)
+	for i := 0; i < r; i++ {
+		A.Set(i, 0, s.phi[i])
+		if i+1 < r {
+			A.Set(i, i+1, 1)
+		}
+		for k := 0; k < r; k++ {
+			P.Set(i, k, s.theta[i]*s.theta[k])
+		}
+	}
+	var AP, APA, AA mat.Dense
+	for j := 0; j < doublingSteps; j++ {
+		AP.Mul(A, P)
+		APA.Mul(&AP, A.T())
+		P.Add(P, &APA)
+		AA.Mul(A, A)
+		A.Copy(&AA)
+	}
+	s.qfull = resize(s.qfull, r*r)
+	for i := 0; i < r; i++ {
+		for k := 0; k < r; k++ {
+			v := 0.5 * (P.At(i, k) + P.At(k, i))
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return ErrNonStationary
+			}
+			s.qfull[i*r+k] = v
+		}
+	}
+	return nil
+}
+
+// initCov writes the initial covariance of the ARMA block into the top-left
+// r×r block of dst (leading dimension ld).
+func (s *ssm) initCov(dst []float64, ld int) {
+	if !s.fallback {
+		s.stationaryCov(dst, ld)
+		return
+	}
+	r := s.r
+	for i := 0; i < r; i++ {
+		copy(dst[i*ld:i*ld+r], s.qfull[i*r:(i+1)*r])
+	}
 }
 
 func newSSM(spec Spec) *ssm {
