@@ -28,9 +28,10 @@ func (s *selector) warm() (*Choice, error) {
 
 	best := s.fit(c, spec, w.Params)
 	constant := spec.Mean || spec.Drift
+	fixed := s.o.Model != "" && s.o.Model != "auto" // a fixed order keeps its order
 	for _, dv := range [][2]int{{-1, 0}, {1, 0}, {0, -1}, {0, 1}} {
 		p, q := spec.P+dv[0], spec.Q+dv[1]
-		if !s.inBounds(p, q, spec.SP, spec.SQ) {
+		if fixed || !s.inBounds(p, q, spec.SP, spec.SQ) {
 			continue
 		}
 		nb := s.spec(p, q, spec.SP, spec.SQ, constant)

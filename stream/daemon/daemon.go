@@ -138,6 +138,10 @@ func New(o Options) (*Daemon, error) {
 	for _, s := range c.Series {
 		maxH = max(maxH, s.Horizon)
 	}
+	ev, err := alert.NewEvaluator(maxH, 0)
+	if err != nil {
+		return nil, fmt.Errorf("daemon: %w", err)
+	}
 	d := &Daemon{
 		opt:       o,
 		cfg:       c,
@@ -155,7 +159,7 @@ func New(o Options) (*Daemon, error) {
 		inspect:   make(chan func()),
 		series:    make(map[string]*entry),
 		latest:    make(map[string][]byte),
-		evaluator: alert.NewEvaluator(maxH, 0),
+		evaluator: ev,
 		ready:     make(chan struct{}),
 	}
 	return d, nil
@@ -383,11 +387,13 @@ func (d *Daemon) handle(m *stream.Message) {
 		d.lastSeq = m.Seq
 	}
 	d.sinceSave++
-	topic, err := stream.TopicOf(m.Subject, d.cfg.Intake.Subjects)
-	if err == nil {
-		err = config.ValidTopic(topic)
+	topic, ok := d.cfg.TopicOf(m.Subject)
+	if !ok {
+		d.reject(m.Subject, "", m.Received, "bad_topic",
+			fmt.Sprintf("subject %q carries no topic under the intake subjects", m.Subject))
+		return
 	}
-	if err != nil {
+	if err := config.ValidTopic(topic); err != nil {
 		d.reject(m.Subject, topic, m.Received, "bad_topic", err.Error())
 		return
 	}

@@ -1,0 +1,34 @@
+// Package series is the state machine of one metric series: it buckets
+// observations, carries counter totals through resets, keeps the window of
+// closed buckets, runs the online Kalman step of the fitted model on each
+// closed bucket, and turns model-scale forecasts into raw units.
+//
+// # Data time
+//
+// An observation at unix time t falls into bucket floor(t/step). A bucket
+// closes when an observation of a later bucket arrives (or CloseOpen is
+// called). Buckets without data are missing values, never zeros. Everything
+// depends on data time only: the same sequence of observations gives the
+// same forecasts, whatever the machine's speed, because refits are decided
+// by the count of closed buckets (Settings.RefitEvery) and the forecast at
+// a refit point waits for the refit (Outcome NeedFit, then Install).
+//
+// # Counters
+//
+// For kind "counter" a drop in the raw value is a reset: the raw value
+// starts a new segment and the total carries on through it (the total is
+// raw + offset, and offset grows by the last raw value before the drop).
+// Forecasts and bands of a counter never fall below its last closed value.
+//
+// # Concurrency
+//
+// A Series is owned by one goroutine. FitJob copies what a refit needs, so
+// FitJob.Run may run on another goroutine while the owner holds later
+// observations back; Install is again called by the owner.
+//
+// # Persistence
+//
+// Snapshot returns the plain record of everything needed to resume the
+// series exactly; package state encodes it. Restore rebuilds a series from
+// it; a record made under other settings keeps its window and refits.
+package series

@@ -1,0 +1,442 @@
+package series
+
+import (
+	"fmt"
+	"math"
+	"time"
+
+	"gonum.org/v1/gonum/stat/distuv"
+
+	"forewarn/engine/arima"
+	"forewarn/engine/transform"
+)
+
+// Settings are the per-series settings that shape the maths. They are
+// plain values copied from the configuration by the caller.
+type Settings struct {
+	Kind        string    // "gauge" or "counter"
+	StepSeconds int64     // bucket width, > 0
+	Horizon     int       // steps ahead, > 0
+	Levels      []float64 // central interval levels in percent, ascending
+	Window      int       // closed buckets kept for refits
+	MinPoints   int       // non-missing buckets before the first fit
+	RefitEvery  int       // closed buckets between refits
+	Model       string    // "auto" or an ARIMA spec
+	Period      int       // seasonal period in steps for automatic choice; 0: none
+	Transform   string    // "auto", "none", "log", "boxcox", "boxcox(λ)", "scaled-exp"
+	Fingerprint string    // changes whenever any field above changes
+}
+
+// Outcome says what one observation did to a series.
+type Outcome int
+
+const (
+	// Absorbed: the observation updated the open bucket; nothing closed.
+	Absorbed Outcome = iota
+	// Warming: a bucket closed but the series has no model yet.
+	Warming
+	// Published: a bucket closed and Forecast holds a new forecast.
+	Published
+	// NeedFit: a bucket closed at a refit point. The caller runs FitJob
+	// (on any goroutine) and hands the result to Install before applying
+	// any later observation of this series; Install then yields the
+	// forecast for that bucket.
+	NeedFit
+)
+
+// Series is the state machine of one metric series: buckets, counter
+// resets, the window, the transform, the model and its filter, and the
+// forecast buffers. It is not safe for concurrent use; one owner goroutine
+// drives it. Observe, and Forecast when the model exists, do not allocate.
+type Series struct {
+	set  Settings
+	snap Snapshot
+
+	tr     transform.Transform
+	model  *arima.Model
+	filter *arima.Filter
+
+	mean, variance []float64 // model-scale forecast buffers, len Horizon
+	z              []float64 // standard normal quantiles per level
+	fc             Forecast
+}
+
+// New returns an empty series for topic.
+func New(topic string, set Settings) (*Series, error) {
+	if err := set.check(); err != nil {
+		return nil, err
+	}
+	s := &Series{set: set}
+	s.snap = Snapshot{
+		Topic:       topic,
+		Fingerprint: set.Fingerprint,
+		Kind:        set.Kind,
+		StepSeconds: set.StepSeconds,
+		Transform:   TransformSnapshot{Name: "none", Scale: 1},
+		Window:      make([]float64, 0, set.Window),
+	}
+	s.tr = transform.Transform{Name: transform.None, Scale: 1}
+	s.initBuffers()
+	return s, nil
+}
+
+// Restore rebuilds a series from its snapshot. When the snapshot was made
+// under other settings (a different fingerprint), the window and the
+// counter state are kept, the model is dropped and the series refits at the
+// next closed bucket that has enough data.
+func Restore(snap *Snapshot, set Settings) (*Series, error) {
+	if err := set.check(); err != nil {
+		return nil, err
+	}
+	if snap.Kind != set.Kind || snap.StepSeconds != set.StepSeconds {
+		return nil, fmt.Errorf("%w: %q was %s with step %ds, now %s with step %ds",
+			ErrIncompatible, snap.Topic, snap.Kind, snap.StepSeconds, set.Kind, set.StepSeconds)
+	}
+	s := &Series{set: set, snap: *snap}
+	s.snap.Alerts = append([]AlertSnapshot(nil), snap.Alerts...)
+	w := make([]float64, len(snap.Window), max(set.Window, len(snap.Window)))
+	copy(w, snap.Window)
+	if len(w) > set.Window {
+		w = append(w[:0], w[len(w)-set.Window:]...)
+	}
+	s.snap.Window = w
+	s.initBuffers()
+	s.tr = transform.Transform{Name: transform.None, Scale: 1}
+	if snap.Fingerprint != set.Fingerprint || snap.Model == nil {
+		s.snap.Fingerprint = set.Fingerprint
+		s.snap.Model = nil
+		s.snap.SinceRefit = set.RefitEvery // refit at the next close
+		return s, nil
+	}
+	tr, err := transformFromSnapshot(snap.Transform)
+	if err != nil {
+		return nil, fmt.Errorf("series: restore %q: %w", snap.Topic, err)
+	}
+	m, f, err := modelFromSnapshot(snap.Model, set.Horizon)
+	if err != nil {
+		return nil, fmt.Errorf("series: restore %q: %w", snap.Topic, err)
+	}
+	ms := *snap.Model
+	ms.Params = append([]float64(nil), snap.Model.Params...)
+	ms.Filter = append([]float64(nil), snap.Model.Filter...)
+	s.snap.Model = &ms
+	s.tr, s.model, s.filter = tr, m, f
+	s.setModelInfo()
+	if len(s.snap.Window) > 0 {
+		s.forecast() // the latest forecast is served again at once after a restart
+	}
+	return s, nil
+}
+
+func (set *Settings) check() error {
+	switch {
+	case set.Kind != "gauge" && set.Kind != "counter":
+		return fmt.Errorf("%w: kind %q (want gauge or counter)", ErrSettings, set.Kind)
+	case set.StepSeconds <= 0:
+		return fmt.Errorf("%w: step %ds (want > 0)", ErrSettings, set.StepSeconds)
+	case set.Horizon <= 0:
+		return fmt.Errorf("%w: horizon %d (want > 0)", ErrSettings, set.Horizon)
+	case set.Window < 2 || set.MinPoints < 2 || set.MinPoints > set.Window:
+		return fmt.Errorf("%w: window %d and min_points %d (want 2 <= min_points <= window)", ErrSettings, set.Window, set.MinPoints)
+	case set.RefitEvery < 1:
+		return fmt.Errorf("%w: refit_every %d (want >= 1)", ErrSettings, set.RefitEvery)
+	}
+	for _, l := range set.Levels {
+		if !(l > 0 && l < 100) {
+			return fmt.Errorf("%w: level %g (want 0 < level < 100)", ErrSettings, l)
+		}
+	}
+	return nil
+}
+
+func (s *Series) initBuffers() {
+	h := s.set.Horizon
+	s.mean = make([]float64, h)
+	s.variance = make([]float64, h)
+	s.z = make([]float64, len(s.set.Levels))
+	for i, l := range s.set.Levels {
+		s.z[i] = distuv.UnitNormal.Quantile(0.5 + l/200)
+	}
+	s.fc = Forecast{
+		Topic:       s.snap.Topic,
+		StepSeconds: s.set.StepSeconds,
+		Kind:        s.set.Kind,
+		Levels:      append([]float64(nil), s.set.Levels...),
+		Points:      make([]Point, h),
+	}
+	for i := range s.fc.Points {
+		s.fc.Points[i].Lower = make([]Bound, len(s.set.Levels))
+		s.fc.Points[i].Upper = make([]Bound, len(s.set.Levels))
+	}
+}
+
+// Topic returns the series key.
+func (s *Series) Topic() string { return s.snap.Topic }
+
+// Settings returns the settings the series runs under.
+func (s *Series) Settings() Settings { return s.set }
+
+// Position returns the input stream position the series reflects: the
+// last message applied, wholly or in part, and how many of its
+// observations were applied.
+func (s *Series) Position() (seq uint64, applied uint32) {
+	return s.snap.Seq, s.snap.SeqApplied
+}
+
+// Handled reports whether observation i (0-based) of the message at stream
+// position seq has already been applied to this series, so that a
+// redelivered message has no effect. Position 0 means "no position" (plain
+// subscriptions) and is never handled.
+func (s *Series) Handled(seq uint64, i int) bool {
+	if seq == 0 {
+		return false
+	}
+	return seq < s.snap.Seq || seq == s.snap.Seq && uint32(i) < s.snap.SeqApplied
+}
+
+// Advance records that observation i (0-based) of the message at stream
+// position seq has been applied (or rejected). Positions never move back.
+func (s *Series) Advance(seq uint64, i int) {
+	switch {
+	case seq == 0:
+	case seq > s.snap.Seq:
+		s.snap.Seq, s.snap.SeqApplied = seq, uint32(i+1)
+	case seq == s.snap.Seq && uint32(i+1) > s.snap.SeqApplied:
+		s.snap.SeqApplied = uint32(i + 1)
+	}
+}
+
+// HasModel reports whether the series has a fitted model.
+func (s *Series) HasModel() bool { return s.model != nil }
+
+// Observe applies one observation at unix time t (nanoseconds) with value v
+// in raw units. It returns ErrLate for a bucket that has already closed,
+// and ErrDomain for a value the current transform cannot take; in both
+// cases the series is unchanged. It does not allocate.
+func (s *Series) Observe(t int64, v float64) (Outcome, error) {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return Absorbed, fmt.Errorf("%w: value %v", ErrNotFinite, v)
+	}
+	b := floorDiv(t, s.set.StepSeconds*int64(time.Second))
+	sn := &s.snap
+	if sn.HasOpen && b < sn.OpenBucket || !sn.HasOpen && len(sn.Window) > 0 && b <= sn.WindowEnd {
+		sn.Late++
+		return Absorbed, fmt.Errorf("%w: bucket starting %s has already closed",
+			ErrLate, time.Unix(b*s.set.StepSeconds, 0).UTC().Format(time.RFC3339))
+	}
+	total := v
+	if s.set.Kind == "counter" {
+		total = v + sn.CounterOffset
+		if sn.CounterHasRaw && v < sn.CounterLastRaw {
+			total = v + sn.CounterOffset + sn.CounterLastRaw
+		}
+	}
+	if s.model != nil {
+		if _, err := s.tr.Forward(total); err != nil {
+			return Absorbed, fmt.Errorf("%w: value %g under transform %s", ErrDomain, v, s.tr)
+		}
+	}
+	if s.set.Kind == "counter" {
+		if sn.CounterHasRaw && v < sn.CounterLastRaw {
+			sn.CounterOffset += sn.CounterLastRaw
+			sn.CounterResets++
+		}
+		sn.CounterLastRaw, sn.CounterHasRaw = v, true
+	}
+	out := Absorbed
+	if sn.HasOpen && b > sn.OpenBucket {
+		out = s.closeOpen()
+	}
+	sn.HasOpen, sn.OpenBucket, sn.OpenValue = true, b, total
+	return out, nil
+}
+
+// CloseOpen closes the open bucket without a later observation (the
+// close_after rule). It returns Absorbed when no bucket is open.
+func (s *Series) CloseOpen() Outcome {
+	if !s.snap.HasOpen {
+		return Absorbed
+	}
+	out := s.closeOpen()
+	s.snap.HasOpen = false
+	return out
+}
+
+// closeOpen moves the open bucket into the window, filling any gap with
+// missing values, and steps the filter.
+func (s *Series) closeOpen() Outcome {
+	sn := &s.snap
+	b, v := sn.OpenBucket, sn.OpenValue
+	if len(sn.Window) > 0 {
+		gap := b - sn.WindowEnd - 1
+		if gap >= int64(s.set.Window) {
+			// Nothing of the window would survive the gap: start afresh.
+			sn.Window = sn.Window[:0]
+			s.dropModel()
+		} else {
+			for k := int64(0); k < gap; k++ {
+				s.push(math.NaN())
+			}
+		}
+	}
+	s.push(v)
+	sn.WindowEnd = b
+	sn.Closed++
+	sn.SinceRefit++
+	run := transform.Welford{N: sn.Transform.RunN, Mean: sn.Transform.RunMean, M2: sn.Transform.RunM2}
+	run.Add(v)
+	sn.Transform.RunN, sn.Transform.RunMean, sn.Transform.RunM2 = run.N, run.Mean, run.M2
+
+	if s.model == nil {
+		if sn.SinceRefit >= s.set.RefitEvery || sn.RefitFailures == 0 {
+			if countFinite(sn.Window) >= s.set.MinPoints {
+				return NeedFit
+			}
+		}
+		return Warming
+	}
+	if sn.SinceRefit >= s.set.RefitEvery {
+		return NeedFit
+	}
+	s.forecast()
+	return Published
+}
+
+// push appends one closed bucket value to the window, dropping the oldest
+// when full, and steps the filter when there is a model.
+func (s *Series) push(v float64) {
+	sn := &s.snap
+	if len(sn.Window) == s.set.Window {
+		copy(sn.Window, sn.Window[1:])
+		sn.Window = sn.Window[:len(sn.Window)-1]
+	}
+	sn.Window = append(sn.Window, v)
+	if s.filter != nil {
+		w := math.NaN()
+		if !math.IsNaN(v) {
+			if x, err := s.tr.Forward(v); err == nil {
+				w = x
+			}
+		}
+		s.filter.Step(w)
+	}
+}
+
+func (s *Series) dropModel() {
+	s.model, s.filter, s.snap.Model = nil, nil, nil
+	s.snap.SinceRefit = 0
+}
+
+// Forecast returns the latest forecast. It is valid until the next call
+// that changes the series; callers encode or copy it at once.
+func (s *Series) Forecast() *Forecast { return &s.fc }
+
+// ModelScale returns the latest model-scale forecast means and variances
+// (read-only views, valid until the series changes) and the transform, for
+// threshold probabilities.
+func (s *Series) ModelScale() (mean, variance []float64, tr transform.Transform) {
+	return s.mean, s.variance, s.tr
+}
+
+// Joint fills cov (Horizon×Horizon, row-major) with the joint covariance of
+// the model-scale forecast errors from the current origin.
+func (s *Series) Joint(cov []float64) {
+	if s.filter != nil {
+		s.filter.ForecastJoint(s.mean, cov)
+	}
+}
+
+// forecast fills s.fc from the filter, in raw units.
+//
+// The median and every band endpoint map through the monotone inverse
+// transform; the mean uses the bias-adjusted back-transform. For a counter
+// every value is floored at the last closed value (a total never falls).
+func (s *Series) forecast() {
+	sn := &s.snap
+	s.filter.Forecast(s.mean, s.variance)
+	last := sn.Window[len(sn.Window)-1]
+	step := s.set.StepSeconds
+	s.fc.Origin = time.Unix(sn.WindowEnd*step, 0).UTC()
+	s.fc.LastValue = last
+	counter := s.set.Kind == "counter"
+	inc := s.tr.Increasing()
+	for i := range s.fc.Points {
+		m, v := s.mean[i], s.variance[i]
+		sd := math.Sqrt(math.Max(v, 0))
+		p := &s.fc.Points[i]
+		p.H = i + 1
+		p.Time = time.Unix((sn.WindowEnd+int64(i+1))*step, 0).UTC()
+		p.Median = s.finite(s.tr.Median(m))
+		p.Mean = s.finite(s.tr.Mean(m, v))
+		for j, z := range s.z {
+			lo, lok := s.tr.Inverse(m - z*sd)
+			hi, hok := s.tr.Inverse(m + z*sd)
+			if !inc {
+				lo, lok, hi, hok = hi, hok, lo, lok
+			}
+			p.Lower[j] = Bound{Value: lo, OK: lok}
+			p.Upper[j] = Bound{Value: hi, OK: hok}
+		}
+		if counter {
+			p.Median = math.Max(p.Median, last)
+			p.Mean = math.Max(p.Mean, last)
+			for j := range p.Lower {
+				// An unbounded lower end of a total is bounded by its last value.
+				if !p.Lower[j].OK || p.Lower[j].Value < last {
+					p.Lower[j] = Bound{Value: last, OK: true}
+				}
+				if p.Upper[j].OK && p.Upper[j].Value < last {
+					p.Upper[j].Value = last
+				}
+			}
+		}
+	}
+}
+
+// finite turns an out-of-domain inverse into NaN, which the encoder
+// publishes as null.
+func (s *Series) finite(x float64, ok bool) float64 {
+	if !ok {
+		return math.NaN()
+	}
+	return x
+}
+
+func countFinite(x []float64) int {
+	n := 0
+	for _, v := range x {
+		if !math.IsNaN(v) {
+			n++
+		}
+	}
+	return n
+}
+
+// floorDiv is floor(a/b) for b > 0.
+func floorDiv(a, b int64) int64 {
+	q := a / b
+	if a%b != 0 && a < 0 {
+		q--
+	}
+	return q
+}
+
+// Status is a one-word summary of a series for operators.
+func (s *Series) Status() string {
+	if s.model == nil {
+		return "warming_up"
+	}
+	return "fitted"
+}
+
+// Snapshot returns the series state for persistence. The returned value
+// shares slices with the series: encode it before the series changes.
+func (s *Series) Snapshot() *Snapshot {
+	if s.filter != nil && s.snap.Model != nil {
+		s.snap.Model.Filter = s.filter.AppendState(s.snap.Model.Filter[:0])
+	}
+	return &s.snap
+}
+
+// Alerts returns the alert states, for the caller to update in place.
+func (s *Series) Alerts() *[]AlertSnapshot { return &s.snap.Alerts }
