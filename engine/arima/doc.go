@@ -23,12 +23,23 @@
 //     filtered and the last d + s·D levels are kept as explicit anchors. For
 //     a complete series this is the exact likelihood; R's approximate
 //     diffuse prior (κ = 1e6·σ² on the levels) differs from it by
-//     O(level²/(κσ²)), at most 0.003 in log-likelihood on the reference
-//     cases. When a differenced series has missing values, simple
+//     O(level²/(κσ²)) per level: at most 0.003 in log-likelihood on the
+//     reference datasets, and 4.6 (R lower) for the period-168 benchmark,
+//     where 169 levels carry the prior. When a differenced series has missing values, simple
 //     differencing would discard information, so the levels are put in the
 //     state with R's κ prior and its F < 1e4 counting rule; this reproduces
 //     R's numbers to 1e-8 (see testdata/r/arima_refs.R).
 //   - A missing observation (NaN) is a prediction-only step.
+//
+// # Estimation
+//
+// Fit starts from a conditional-sum-of-squares fit (falling back to zero
+// coefficients, never aborting), keeps every AR block stationary through
+// its partial autocorrelations (tanh, Durbin–Levinson; Jones 1980, Monahan
+// 1984), concentrates σ² and profiles the mean or drift out by GLS,
+// minimises with gonum/optimize BFGS, reflects non-invertible MA roots and
+// takes standard errors from a numerical Hessian. Result.Converged and
+// Result.Note say whether and why not it converged.
 //
 // # Speed
 //
@@ -66,6 +77,4 @@
 //   - Herbst, E. (2015). Computational Economics 45(4), 693–705.
 //   - Anderson, B. D. O. & Moore, J. B. (1979). Optimal Filtering.
 //     Prentice-Hall, §6.7 (doubling algorithm).
-//   - Hannan, E. J. & Rissanen, J. (1982). Recursive estimation of mixed
-//     autoregressive-moving average order. Biometrika 69(1), 81–94.
 package arima

@@ -2,6 +2,7 @@ package arima
 
 import (
 	"math"
+	"strings"
 	"testing"
 )
 
@@ -53,5 +54,63 @@ func TestFitMatchesR(t *testing.T) {
 			}
 			t.Logf("loglik %.5f (R %.5f, diff %+.2g) iters %d note %q", res.LogLik, c.LogLik, res.LogLik-c.LogLik, res.Iterations, res.Note)
 		})
+	}
+}
+
+// A warm start from a previous fit reaches the same optimum; an iteration
+// cap that is too small is reported, with the reason, not hidden.
+func TestFitWarmStartAndConvergenceReport(t *testing.T) {
+	y := loadDataset(t, "USAccDeaths")
+	spec := Spec{D: 1, Q: 1, SD: 1, SQ: 1, Period: 12}
+	cold, err := Fit(y, spec, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	warm, err := Fit(y, spec, &FitOptions{Start: cold.Model.Params()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(warm.LogLik-cold.LogLik) > 1e-6 || warm.Iterations > cold.Iterations {
+		t.Errorf("warm start: loglik %v (cold %v), iterations %d (cold %d)", warm.LogLik, cold.LogLik, warm.Iterations, cold.Iterations)
+	}
+	capped, err := Fit(y, spec, &FitOptions{Start: []float64{0.5, 0.5}, MaxIter: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if capped.Converged || !strings.Contains(capped.Note, "iteration limit") {
+		t.Errorf("capped fit: converged %v, note %q", capped.Converged, capped.Note)
+	}
+}
+
+// Residuals are the standardised one-step prediction errors: NaN for the
+// d+sD burned values and for missing ones, and Σ r_t² = nobs because σ̂² is
+// their mean square (the concentrated σ², Durbin & Koopman 2012, §7.2.1).
+func TestFitResiduals(t *testing.T) {
+	for _, id := range []string{"presidents", "ldeaths_na", "USAccDeaths"} {
+		y := loadDataset(t, id)
+		spec := Spec{P: 1, Mean: true}
+		if id != "presidents" {
+			spec = Spec{P: 1, SD: 1, SQ: 1, Period: 12}
+		}
+		res, err := Fit(y, spec, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(res.Residuals) != len(y) {
+			t.Fatalf("%s: %d residuals for %d values", id, len(res.Residuals), len(y))
+		}
+		ss, n := 0.0, 0
+		for i, r := range res.Residuals {
+			if math.IsNaN(y[i]) && !math.IsNaN(r) {
+				t.Errorf("%s: residual at missing value %d", id, i)
+			}
+			if !math.IsNaN(r) {
+				ss += r * r
+				n++
+			}
+		}
+		if n != res.NObs || math.Abs(ss/float64(n)-1) > 1e-9 {
+			t.Errorf("%s: %d residuals (nobs %d), mean square %v", id, n, res.NObs, ss/float64(n))
+		}
 	}
 }
