@@ -427,3 +427,23 @@ func BenchmarkParseFull(b *testing.B) {
 		}
 	}
 }
+
+// Entries added in Go before the file's (as the demo does) carry no
+// position, and the file's entries keep their own lines.
+func TestPositionsFollowMovedEntries(t *testing.T) {
+	c, err := Parse([]byte("series:\n  - match: \"a.>\"\n  - match: \">\"\n    window: 30\n    min_points: 10\n"), "f.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	c.Series = append([]Series{{Match: "demo.>", Horizon: -1}}, c.Series...)
+	c.Series[2].Window = 5
+	var e *Errors
+	if !errors.As(c.Validate(), &e) || len(e.Problems) != 2 {
+		t.Fatalf("Validate: %v", c.Validate())
+	}
+	got := e.Error()
+	want := "f.yaml:4:13: series[2].window: 5 is less than min_points 10\nf.yaml: series[0].horizon: -1 is outside 1..1000"
+	if got != want {
+		t.Errorf("got:\n%s\nwant:\n%s", got, want)
+	}
+}

@@ -94,13 +94,50 @@ func (v *validator) add(path, format string, args ...any) {
 		return
 	}
 	p := Problem{Path: path, Msg: fmt.Sprintf(format, args...)}
-	for k := path; k != ""; k = parentPath(k) {
+	for k := v.sourcePath(path); k != ""; k = parentPath(k) {
 		if pos, ok := v.c.pos[k]; ok {
 			p.Line, p.Column = pos.line, pos.col
 			break
 		}
 	}
 	v.probs = append(v.probs, p)
+}
+
+// sourcePath maps a path to the key its value had in the file. Entries
+// of series and alerts may have been added, removed or moved in Go after
+// Parse (the demo puts its own entries first); an entry is found in the
+// file by its Line, and one with Line 0 has no position ("" is returned).
+func (v *validator) sourcePath(path string) string {
+	for _, list := range []string{"series", "alerts"} {
+		rest, ok := strings.CutPrefix(path, list+"[")
+		if !ok {
+			continue
+		}
+		idx, tail, ok := strings.Cut(rest, "]")
+		i, err := strconv.Atoi(idx)
+		if !ok || err != nil {
+			return path
+		}
+		line := 0
+		if list == "series" && i < len(v.c.Series) {
+			line = v.c.Series[i].Line
+		} else if list == "alerts" && i < len(v.c.Alerts) {
+			line = v.c.Alerts[i].Line
+		}
+		if line == 0 {
+			return ""
+		}
+		for k := 0; ; k++ {
+			pos, ok := v.c.pos[fmt.Sprintf("%s[%d]", list, k)]
+			if !ok {
+				return ""
+			}
+			if pos.line == line {
+				return fmt.Sprintf("%s[%d]%s", list, k, tail)
+			}
+		}
+	}
+	return path
 }
 
 // isFailed reports whether the value at path, or one inside it, could
