@@ -52,7 +52,7 @@ func Series() []config.Series {
 		{Match: "release.downloads", Kind: "counter", Step: 15 * time.Minute, Horizon: 48,
 			Levels: []float64{80, 95}, Window: 600, MinPoints: 60, RefitEvery: 48, Model: "auto", Transform: "auto"},
 		{Match: "storage.*.used_bytes", Kind: "gauge", Step: 5 * time.Minute, Horizon: 72,
-			Levels: []float64{80, 95}, Window: 600, MinPoints: 60, RefitEvery: 36, Model: "ARIMA(0,1,1)", Transform: "none"},
+			Levels: []float64{80, 95}, Window: 600, MinPoints: 60, RefitEvery: 36, Model: "auto", Transform: "none"},
 		{Match: "shop.orders", Kind: "counter", Step: time.Hour, Horizon: 24,
 			Levels: []float64{80, 95}, Window: 400, MinPoints: 72, RefitEvery: 24, Model: "auto", Transform: "none", Period: 24},
 	}
@@ -66,10 +66,11 @@ func Alerts() []config.Alert {
 }
 
 // Limits returns the limits the simulated clock needs: it runs far ahead
-// of the wall clock, so observation times are not checked against arrival.
+// of the wall clock, so observation times are checked against arrival only
+// loosely (a century either way).
 func Limits(l config.Limits) config.Limits {
-	l.MaxFuture = -1
-	l.MaxPast = -1
+	l.MaxFuture = 100 * 8760 * time.Hour
+	l.MaxPast = 100 * 8760 * time.Hour
 	return l
 }
 
