@@ -72,6 +72,7 @@ type Daemon struct {
 	latest map[string][]byte // latest forecast JSON per topic, for queries
 
 	ready chan struct{}
+	done  chan struct{} // closed when Run returns
 }
 
 // entry is one live series and its bookkeeping on the loop.
@@ -161,6 +162,7 @@ func New(o Options) (*Daemon, error) {
 		latest:    make(map[string][]byte),
 		evaluator: ev,
 		ready:     make(chan struct{}),
+		done:      make(chan struct{}),
 	}
 	return d, nil
 }
@@ -181,7 +183,8 @@ func (d *Daemon) Latest(topic string) ([]byte, bool) {
 }
 
 // Inspect runs fn on the loop goroutine, where it may read (not keep) the
-// series; it returns false when the daemon is not running.
+// series; it returns false when the daemon is not running (or stops) or
+// ctx ends first.
 func (d *Daemon) Inspect(ctx context.Context, fn func(all map[string]*Entry)) bool {
 	done := make(chan struct{})
 	f := func() {
@@ -196,6 +199,8 @@ func (d *Daemon) Inspect(ctx context.Context, fn func(all map[string]*Entry)) bo
 	case d.inspect <- f:
 	case <-ctx.Done():
 		return false
+	case <-d.done:
+		return false
 	}
 	<-done
 	return true
@@ -206,6 +211,7 @@ func (d *Daemon) Inspect(ctx context.Context, fn func(all map[string]*Entry)) bo
 // the intake, finishes refits in flight, applies what waited on them,
 // writes the state and acknowledges it.
 func (d *Daemon) Run(ctx context.Context) error {
+	defer close(d.done)
 	if err := d.load(); err != nil {
 		return err
 	}
@@ -467,7 +473,6 @@ func (d *Daemon) apply(topic string, e *entry, p pendingObs) {
 		case errors.Is(err, series.ErrNotFinite):
 			code = "not_finite"
 		}
-		e.rejects++
 		d.reject(p.subject, topic, p.recv, code, err.Error())
 		return
 	}
@@ -638,6 +643,9 @@ func seedOf(topic, rule string, origin time.Time) uint64 {
 
 func (d *Daemon) reject(subject, topic string, received time.Time, code, reason string) {
 	d.metrics.Rejected.WithLabelValues(code).Inc()
+	if e := d.series[topic]; e != nil {
+		e.rejects++
+	}
 	d.encBuf = stream.AppendReject(d.encBuf[:0], subject, topic, code, reason, received)
 	d.pub.Reject(topic, d.encBuf)
 }
