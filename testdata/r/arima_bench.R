@@ -48,10 +48,10 @@ for (name in names(gen)) {
   tm <- system.time(fit <- arima(y, order = sp$order,
                                  seasonal = list(order = sp$seasonal, period = sp$period), method = "ML"))
   cat(name, "elapsed", tm[["elapsed"]], "loglik", fit$loglik, "\n")
-  out <- c(out, sprintf('  {"id": "%s", "n": %d, "order": [%s], "seasonal": [%s], "period": %d, "elapsed_seconds": %s, "loglik": %s, "coef": [%s]}',
+  out <- c(out, sprintf('  {"id": "%s", "n": %d, "order": [%s], "seasonal": [%s], "period": %d, "elapsed_seconds": %s, "cpu_seconds": %s, "loglik": %s, "coef": [%s]}',
                         name, length(y), paste(sp$order, collapse = ", "), paste(sp$seasonal, collapse = ", "),
                         if (sum(sp$seasonal) > 0) sp$period else 0L,
-                        format(tm[["elapsed"]]), format(fit$loglik, digits = 17),
+                        format(tm[["elapsed"]]), format(tm[["user.self"]] + tm[["sys.self"]]), format(fit$loglik, digits = 17),
                         paste(format(unname(fit$coef), digits = 17), collapse = ", ")))
 }
 con <- file(file.path("testdata", "r", if (quick) "arima_bench_quick.json" else "arima_bench.json"), "w")
