@@ -464,14 +464,21 @@ func (f *Filter) Anchors() []float64 {
 	return f.L
 }
 
-// state returns the current predicted state x (length m) and covariance
-// view: with known anchors x = (a, L) and only the r×r block of P is
-// non-zero.
-func (f *Filter) stateDim() (aug bool, mm int) {
-	if f.mode == modeAug {
-		return true, f.r + f.nd
+// forecastStart fills mean with the point forecasts and returns the
+// covariance the variances are built from (the r×r block with known
+// anchors, the (r+nd)² one with levels in the state) and its dimension.
+// Before Ready it fills mean and other with NaN and returns ok = false.
+func (f *Filter) forecastStart(mean, other []float64) (P []float64, m int, ok bool) {
+	if !f.ready {
+		fillNaN(mean)
+		fillNaN(other)
+		return nil, 0, false
 	}
-	return false, f.r
+	f.forecastMean(mean)
+	if f.mode == modeAug {
+		return f.Pa, f.r + f.nd, true
+	}
+	return f.P, f.r, true
 }
 
 // Forecast writes the h-step forecasts y_{t+1..t+h} (h = len(mean) ≤ the
@@ -490,16 +497,9 @@ func (f *Filter) Forecast(mean, variance []float64) {
 	if len(variance) != h || h > f.maxH {
 		panic(fmt.Sprintf("arima: Forecast: len(mean) = %d, len(variance) = %d, maxHorizon = %d", h, len(variance), f.maxH))
 	}
-	if !f.ready {
-		fillNaN(mean)
-		fillNaN(variance)
+	P, mm, ok := f.forecastStart(mean, variance)
+	if !ok {
 		return
-	}
-	f.forecastMean(mean)
-	aug, mm := f.stateDim()
-	P := f.P
-	if aug {
-		P = f.Pa
 	}
 	g := f.g
 	f.zRow(g)
@@ -520,16 +520,9 @@ func (f *Filter) ForecastJoint(mean, cov []float64) {
 	if len(cov) != h*h || h > f.maxH {
 		panic(fmt.Sprintf("arima: ForecastJoint: len(mean) = %d, len(cov) = %d, maxHorizon = %d", h, len(cov), f.maxH))
 	}
-	if !f.ready {
-		fillNaN(mean)
-		fillNaN(cov)
+	P, mm, ok := f.forecastStart(mean, cov)
+	if !ok {
 		return
-	}
-	f.forecastMean(mean)
-	aug, mm := f.stateDim()
-	P := f.P
-	if aug {
-		P = f.Pa
 	}
 	full := f.r + f.nd
 	g := f.g

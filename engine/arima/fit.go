@@ -121,20 +121,8 @@ func Fit(y []float64, spec Spec, opt *FitOptions) (*Result, error) {
 // checkVariation rejects a differenced series without variation.
 func checkVariation(e *evaluator) error {
 	lo, hi := math.Inf(1), math.Inf(-1)
-	w := e.data
-	if e.path == pathAug {
-		// simple differences where available
-		w = make([]float64, 0, e.n)
-		for t := e.nd; t < e.n; t++ {
-			v := e.data[t]
-			for _, j := range e.s.deltaNZ {
-				v -= e.s.delta[j] * e.data[t-j-1]
-			}
-			w = append(w, v)
-		}
-	}
 	n := 0
-	for _, v := range w {
+	for _, v := range e.diffs {
 		if math.IsNaN(v) {
 			continue
 		}
@@ -364,19 +352,7 @@ const cssMaxObs = 3000
 func (f *fitter) css() ([]float64, bool) {
 	e := f.e
 	s := f.spec
-	var w []float64
-	if e.path == pathAug {
-		w = make([]float64, 0, e.n)
-		for t := e.nd; t < e.n; t++ {
-			v := e.data[t]
-			for _, j := range e.s.deltaNZ {
-				v -= e.s.delta[j] * e.data[t-j-1]
-			}
-			w = append(w, v)
-		}
-	} else {
-		w = append([]float64(nil), e.data...)
-	}
+	w := append([]float64(nil), e.diffs...)
 	// The CSS fit is only a start: on long series its last cssMaxObs
 	// differenced values suffice.
 	if len(w) > cssMaxObs {
@@ -606,16 +582,7 @@ func (f *fitter) stdErr(params []float64) []float64 {
 func (f *fitter) regVar() float64 {
 	e := f.e
 	sum, sq, n := 0.0, 0.0, 0
-	for t := e.nd; t < e.n; t++ {
-		var v float64
-		if e.path == pathAug {
-			v = e.data[t]
-			for _, j := range e.s.deltaNZ {
-				v -= e.s.delta[j] * e.data[t-j-1]
-			}
-		} else {
-			v = e.data[t-e.nd]
-		}
+	for _, v := range e.diffs {
 		if math.IsNaN(v) {
 			continue
 		}

@@ -30,6 +30,7 @@ type evaluator struct {
 	nd    int
 	path  int
 	data  []float64 // w (paths chandra, dense) or y (path aug)
+	diffs []float64 // w_t = y_t − Σ_j δ_j y_{t−j}, t ≥ nd (NaN where it touches a missing y)
 	xcol  []float64 // regression column in the space of data; nil without mean/drift
 	beta0 float64   // preliminary regression coefficient (centering)
 	ndiff float64   // Σ_j j δ_j: the differenced drift regressor
@@ -89,6 +90,7 @@ func newEvaluator(y []float64, spec Spec) (*evaluator, error) {
 		}
 		w[t-nd] = v
 	}
+	e.diffs = w
 	// Preliminary regression coefficient: the mean of w (per unit of the
 	// regressor), ignoring missing values.
 	sum, cnt := 0.0, 0
