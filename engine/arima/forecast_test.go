@@ -65,3 +65,45 @@ func TestForecastMatchesR(t *testing.T) {
 		})
 	}
 }
+
+// Anchors are the last d + s·D observed levels, most recent first; after a
+// missing value they are estimates until the window is observed again, then
+// exact once more.
+func TestAnchors(t *testing.T) {
+	m, _ := NewModel(Spec{D: 1, Q: 1, SD: 1, SQ: 1, Period: 4}, []float64{-0.4, -0.5}, 1)
+	y := simulate(m, 60, 21)
+	f, _ := NewFilter(m, 4)
+	f.Steps(y[:3])
+	if f.Ready() {
+		t.Fatal("ready before d+sD = 5 observations")
+	}
+	f.Steps(y[3:40])
+	checkExact := func(upto int) {
+		t.Helper()
+		a := f.Anchors()
+		if len(a) != 5 {
+			t.Fatalf("%d anchors, want 5", len(a))
+		}
+		for j, v := range a {
+			if v != y[upto-1-j] {
+				t.Fatalf("anchor %d = %v, want y[%d] = %v", j, v, upto-1-j, y[upto-1-j])
+			}
+		}
+	}
+	checkExact(40)
+	f.Step(math.NaN())
+	if a := f.Anchors(); math.IsNaN(a[0]) || f.mode != modeAug {
+		t.Fatalf("after a missing value: anchors %v, mode %d", a, f.mode)
+	}
+	yy := append(append([]float64(nil), y[:40]...), math.NaN())
+	yy = append(yy, y[41:50]...)
+	f.Steps(y[41:50])
+	if f.mode == modeAug {
+		t.Fatal("levels still in the state after the window was observed again")
+	}
+	for j, v := range f.Anchors() {
+		if math.Abs(v-yy[49-j]) > 1e-9*math.Abs(yy[49-j]) {
+			t.Fatalf("anchor %d = %v, want %v", j, v, yy[49-j])
+		}
+	}
+}
