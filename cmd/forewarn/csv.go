@@ -13,9 +13,9 @@ import (
 
 // readSeriesCSV reads one series from a CSV file with a header row
 // (CONTRACT.md §3). The value column is the one named column, or the last
-// column when column is empty; times are the first column when the file has
-// more than one column and the values are not in it, else the row numbers
-// (1, 2, …). An empty cell, NA or NaN is a missing value (NaN). Every error
+// column when column is empty; times are the cells of the first column when
+// the file has more than one column and the values are not in it, else nil
+// (the file has no time column). An empty cell, NA or NaN is a missing value (NaN). Every error
 // names the file and, where there is one, the line.
 func readSeriesCSV(path, column string) (times []string, values []float64, err error) {
 	f, err := os.Open(path)
@@ -81,8 +81,6 @@ func parseSeriesCSV(r io.Reader, path, column string) (times []string, values []
 		values = append(values, v)
 		if tcol >= 0 {
 			times = append(times, strings.TrimSpace(rec[tcol]))
-		} else {
-			times = append(times, strconv.Itoa(len(values)))
 		}
 	}
 	if len(values) == 0 {

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"path/filepath"
 	"sort"
 	"strconv"
 	"strings"
@@ -16,6 +17,8 @@ import (
 
 	"forewarn/engine/arima"
 	"forewarn/engine/auto"
+	"forewarn/engine/transform"
+	"forewarn/stream/web/chart"
 )
 
 func init() {
@@ -34,11 +37,20 @@ flags (before or after FILE):
   --period s           seasonal period (required with --seasonal)
   --mean yes|no|auto   estimate a mean; auto: a mean when d+D = 0. With d+D = 1,
                        yes estimates the mean of the differenced series (a drift)
-  --transform NAME     none | log (default none)
+  --transform NAME     none | log | boxcox | boxcox(λ) | scaled-exp | auto
+                       (default none, so that the fit is that of the values as
+                       they are). boxcox without λ takes Guerrero's λ; auto
+                       chooses by the AICc on the raw scale. The fit, its
+                       loglik, aic and se are on the transformed scale; mean,
+                       median and the bands are in raw units (mean
+                       bias-adjusted; a bound outside the inverse's domain is
+                       null in JSON, - in the table)
   --horizon h          forecast steps (default 10)
   --levels L1,L2       prediction interval levels in percent (default 80,95)
   --format table|json  output format (default table)
   --column NAME        value column
+  --plot FILE          also draw the history, median forecast and bands to
+                       FILE.svg or FILE.png (the CSV's first column as times)
 `
 
 // fitRequest is what the user asked for.
@@ -51,6 +63,7 @@ type fitRequest struct {
 	levels          []float64
 	format          string
 	column          string
+	plot            string // chart file, "" for none
 	file            string
 }
 
@@ -75,6 +88,9 @@ func runFit(args []string, stdout, stderr io.Writer) int {
 		return exitUsage
 	}
 	out, err := fitFile(req)
+	if err == nil && req.plot != "" {
+		err = writePlot(req, out)
+	}
 	if err != nil {
 		fmt.Fprintf(stderr, "forewarn fit: %v\n", err)
 		var ue usageError
@@ -107,6 +123,7 @@ func parseFitArgs(args []string) (req fitRequest, help bool, err error) {
 	levels := fs.String("levels", "80,95", "")
 	fs.StringVar(&req.format, "format", "table", "")
 	fs.StringVar(&req.column, "column", "", "")
+	fs.StringVar(&req.plot, "plot", "", "")
 	var pos []string
 	for {
 		if err := fs.Parse(args); err != nil {
@@ -136,6 +153,9 @@ func parseFitArgs(args []string) (req fitRequest, help bool, err error) {
 		}
 	}
 	if *seasonal != "" {
+		if req.order == nil {
+			return req, false, fmt.Errorf("--seasonal %q needs --order (without --order the model is chosen automatically)", *seasonal)
+		}
 		if req.seasonal, err = parseTriple("--seasonal", *seasonal); err != nil {
 			return req, false, err
 		}
@@ -145,8 +165,10 @@ func parseFitArgs(args []string) (req fitRequest, help bool, err error) {
 	default:
 		return req, false, fmt.Errorf("--mean %q: want yes, no or auto", req.mean)
 	}
-	if _, err := newLocalTransform(req.transform); err != nil {
-		return req, false, err
+	if req.transform != "auto" {
+		if _, err := transform.Parse(req.transform); err != nil {
+			return req, false, fmt.Errorf("--transform %q: want none, log, boxcox, boxcox(λ), scaled-exp or auto", req.transform)
+		}
 	}
 	if req.horizon < 1 || req.horizon > 100000 {
 		return req, false, fmt.Errorf("--horizon %d: want a positive number of steps", req.horizon)
@@ -163,6 +185,11 @@ func parseFitArgs(args []string) (req fitRequest, help bool, err error) {
 	case "table", "json":
 	default:
 		return req, false, fmt.Errorf("--format %q: want table or json", req.format)
+	}
+	if req.plot != "" {
+		if _, err := chart.FormatOf(req.plot); err != nil {
+			return req, false, fmt.Errorf("--plot %q: want a file name ending in .svg or .png", req.plot)
+		}
 	}
 	return req, false, nil
 }
@@ -183,19 +210,99 @@ func parseTriple(flagName, s string) ([]int, error) {
 	return out, nil
 }
 
-// chooseSpec is the model-choice step: the explicit orders of the request,
-// or, without --order, the automatic choice of engine/auto on the raw
-// values (transform fixed by --transform), with the candidates it tried.
-func chooseSpec(raw []float64, req fitRequest) (arima.Spec, []auto.Candidate, error) {
+// fitChoice is the model-choice step:
+//   - without --order, engine/auto chooses the order (and the transform with
+//     --transform auto) and its fit is kept as it is, so that the printed
+//     log-likelihood and AICc are those of the chosen model;
+//   - with --order and --transform auto, engine/auto chooses only the
+//     transform, the spec fixed;
+//   - with --order and a fixed transform, the spec is fitted directly
+//     (no candidate is rejected: the user asked for this model).
+func fitChoice(raw []float64, req fitRequest) (*auto.Choice, error) {
 	if req.order == nil {
-		c, err := auto.Select(raw, auto.Options{Period: req.period, Transform: req.transform, Mean: req.mean})
-		if err != nil {
-			return arima.Spec{}, nil, fmt.Errorf("%s: automatic model choice: %w", req.file, err)
-		}
-		return c.Spec, c.Tried, nil
+		return selectModel(raw, req, auto.Options{Period: req.period, Transform: req.transform, Mean: req.mean})
 	}
-	s, err := explicitSpec(req)
-	return s, nil, err
+	spec, err := explicitSpec(req)
+	if err != nil {
+		return nil, err
+	}
+	if req.transform == "auto" {
+		// The spec string carries the constant (a mean, a drift or "with
+		// zero mean"), so Mean "auto" keeps it as given.
+		return selectModel(raw, req, auto.Options{Period: req.period, Transform: "auto", Model: spec.String(), Mean: "auto"})
+	}
+	tr, err := fixedTransform(raw, req)
+	if err != nil {
+		return nil, err
+	}
+	w, err := forwardSeries(tr, raw, req.file)
+	if err != nil {
+		return nil, err
+	}
+	res, err := arima.Fit(w, spec, nil)
+	if err != nil {
+		return nil, inputOrRuntime(req.file, err)
+	}
+	return &auto.Choice{Spec: spec, Transform: tr, Result: res, RawAICc: math.NaN()}, nil
+}
+
+func selectModel(raw []float64, req fitRequest, o auto.Options) (*auto.Choice, error) {
+	c, err := auto.Select(raw, o)
+	if err != nil {
+		return nil, inputOrRuntime(req.file, fmt.Errorf("automatic choice: %w", err))
+	}
+	return c, nil
+}
+
+// inputOrRuntime prefixes err with the file name and marks the errors that
+// come from the data or the request (exit code 2); the others (a failed
+// optimisation, every candidate rejected) are runtime failures.
+func inputOrRuntime(file string, err error) error {
+	err = fmt.Errorf("%s: %w", file, err)
+	for _, e := range []error{arima.ErrTooShort, arima.ErrConstant, arima.ErrData, arima.ErrSpec,
+		auto.ErrBadOptions, auto.ErrTooShort, auto.ErrDomain, transform.ErrDomain} {
+		if errors.Is(err, e) {
+			return usageError{err}
+		}
+	}
+	return err
+}
+
+// fixedTransform is the --transform of the request made ready for raw: a
+// boxcox without λ gets Guerrero's λ on [−1, 2] (subseries of one period,
+// at least 2, as engine/auto chooses it), a scaled-exp its frozen z-score.
+func fixedTransform(raw []float64, req fitRequest) (transform.Transform, error) {
+	tr, err := transform.Parse(req.transform)
+	if err != nil {
+		return tr, usageError{err}
+	}
+	if tr.Name == transform.BoxCox && math.IsNaN(tr.Lambda) {
+		for i, x := range raw {
+			if x <= 0 {
+				return tr, badUsage("%s: observation %d: %v: boxcox needs values > 0", req.file, i+1, x)
+			}
+		}
+		lam, err := transform.Guerrero(raw, max(req.period, 2), -1, 2)
+		if err != nil {
+			return tr, usageError{fmt.Errorf("%s: choosing the Box-Cox λ: %w", req.file, err)}
+		}
+		tr.Lambda = lam
+	}
+	return transform.Freeze(tr, raw), nil
+}
+
+// forwardSeries maps raw onto the model scale of tr; an error names the
+// observation (counted from 1, missing values included).
+func forwardSeries(tr transform.Transform, raw []float64, file string) ([]float64, error) {
+	w := make([]float64, len(raw))
+	for i, x := range raw {
+		v, err := tr.Forward(x)
+		if err != nil {
+			return nil, usageError{fmt.Errorf("%s: observation %d: %w", file, i+1, err)}
+		}
+		w[i] = v
+	}
+	return w, nil
 }
 
 // explicitSpec turns the --order/--seasonal/--period/--mean flags into a
@@ -231,50 +338,6 @@ func explicitSpec(req fitRequest) (arima.Spec, error) {
 	return s, nil
 }
 
-// localTransform is the small seam through which fit maps raw values onto
-// the model's scale and forecasts back; engine/transform will replace the
-// two implementations below.
-type localTransform interface {
-	Name() string
-	Forward(x float64) (float64, error)
-	// Inverse maps a quantile (median, band endpoint) back to raw units.
-	Inverse(w float64) float64
-	// Mean is the raw-unit mean of a normal forecast N(w, variance).
-	Mean(w, variance float64) float64
-}
-
-func newLocalTransform(name string) (localTransform, error) {
-	switch name {
-	case "none":
-		return identity{}, nil
-	case "log":
-		return logTransform{}, nil
-	}
-	return nil, fmt.Errorf("--transform %q: want none or log", name)
-}
-
-type identity struct{}
-
-func (identity) Name() string                       { return "none" }
-func (identity) Forward(x float64) (float64, error) { return x, nil }
-func (identity) Inverse(w float64) float64          { return w }
-func (identity) Mean(w, _ float64) float64          { return w }
-
-type logTransform struct{}
-
-func (logTransform) Name() string { return "log" }
-func (logTransform) Forward(x float64) (float64, error) {
-	if !(x > 0) {
-		return 0, fmt.Errorf("value %v: log needs positive values", x)
-	}
-	return math.Log(x), nil
-}
-func (logTransform) Inverse(w float64) float64 { return math.Exp(w) }
-
-// Mean is the second-order bias-adjusted back-transform exp(w)(1 + v/2)
-// (NUMERICS-NOTES, Box-Cox with λ = 0).
-func (logTransform) Mean(w, v float64) float64 { return math.Exp(w) * (1 + v/2) }
-
 // fitOutput is the JSON document of CONTRACT.md §3 (plus converged/note).
 type fitOutput struct {
 	Model     fitModel      `json:"model"`
@@ -293,6 +356,8 @@ type fitOutput struct {
 
 	coefSE []float64
 	spec   arima.Spec
+	times  []string  // CSV time column, nil without one
+	values []float64 // raw series
 }
 
 type fitModel struct {
@@ -314,11 +379,12 @@ type fitCoef struct {
 }
 
 type fitForecast struct {
-	H     int                  `json:"h"`
-	Mean  jsonFloat            `json:"mean"`
-	SE    jsonFloat            `json:"se"`
-	Lower map[string]jsonFloat `json:"lower"`
-	Upper map[string]jsonFloat `json:"upper"`
+	H      int                  `json:"h"`
+	Mean   jsonFloat            `json:"mean"`
+	Median jsonFloat            `json:"median"`
+	SE     jsonFloat            `json:"se"`
+	Lower  map[string]jsonFloat `json:"lower"`
+	Upper  map[string]jsonFloat `json:"upper"`
 }
 
 // jsonFloat encodes NaN and ±Inf as null (JSON has neither).
@@ -334,36 +400,21 @@ func (f jsonFloat) MarshalJSON() ([]byte, error) {
 
 func levelKey(l float64) string { return strconv.FormatFloat(l, 'f', -1, 64) }
 
-// fitFile reads, transforms, fits and forecasts.
+// fitFile reads, chooses and fits, and forecasts in raw units.
 func fitFile(req fitRequest) (*fitOutput, error) {
-	_, raw, err := readSeriesCSV(req.file, req.column)
+	times, raw, err := readSeriesCSV(req.file, req.column)
 	if err != nil {
 		return nil, usageError{err}
 	}
-	tr, _ := newLocalTransform(req.transform)
-	w := make([]float64, len(raw))
-	for i, x := range raw {
-		if math.IsNaN(x) {
-			w[i] = x
-			continue
-		}
-		if w[i], err = tr.Forward(x); err != nil {
-			return nil, badUsage("%s: observation %d: %v", req.file, i+1, err)
-		}
-	}
-	spec, tried, err := chooseSpec(raw, req)
+	ch, err := fitChoice(raw, req)
 	if err != nil {
 		return nil, err
 	}
-	res, err := arima.Fit(w, spec, nil)
+	w, err := forwardSeries(ch.Transform, raw, req.file)
 	if err != nil {
-		if errors.Is(err, arima.ErrTooShort) || errors.Is(err, arima.ErrConstant) ||
-			errors.Is(err, arima.ErrData) || errors.Is(err, arima.ErrSpec) {
-			return nil, usageError{fmt.Errorf("%s: %w", req.file, err)}
-		}
-		return nil, fmt.Errorf("%s: %w", req.file, err)
+		return nil, err
 	}
-	f, err := arima.NewFilter(res.Model, req.horizon)
+	f, err := arima.NewFilter(ch.Result.Model, req.horizon)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", req.file, err)
 	}
@@ -371,11 +422,45 @@ func fitFile(req fitRequest) (*fitOutput, error) {
 	mean := make([]float64, req.horizon)
 	variance := make([]float64, req.horizon)
 	f.Forecast(mean, variance)
-	out := buildFitOutput(res, tr, mean, variance, req.levels)
-	for _, c := range tried {
+	out := buildFitOutput(ch.Result, ch.Transform, mean, variance, req.levels)
+	for _, c := range ch.Tried {
 		out.Candidates = append(out.Candidates, fitCandidate{c.Spec, c.Transform, jsonFloat(c.AICc), c.Err})
 	}
+	out.times, out.values = times, raw
 	return out, nil
+}
+
+// writePlot draws the history, the median forecast and one band per level
+// (stream/web/chart) to req.plot, in the format its extension names. Times
+// that go backwards are the input file's fault (exit 2); any other failure,
+// such as an unwritable path, is a runtime failure.
+func writePlot(req fitRequest, out *fitOutput) error {
+	o := chart.Offline{
+		Title:  fmt.Sprintf("%s: %s, transform %s", filepath.Base(req.file), out.Model.Spec, out.Model.Transform),
+		Times:  out.times,
+		Values: out.values,
+		Levels: req.levels,
+	}
+	for _, fc := range out.Forecast {
+		lo, hi := make([]float64, len(req.levels)), make([]float64, len(req.levels))
+		for i, l := range req.levels {
+			lo[i], hi[i] = float64(fc.Lower[levelKey(l)]), float64(fc.Upper[levelKey(l)])
+		}
+		o.Median = append(o.Median, float64(fc.Median))
+		o.Lower = append(o.Lower, lo)
+		o.Upper = append(o.Upper, hi)
+	}
+	d, err := o.Data()
+	if err == nil {
+		err = chart.WriteFile(req.plot, d, chart.Options{})
+	}
+	switch {
+	case errors.Is(err, chart.ErrOrder):
+		return badUsage("%s: --plot: the time column goes backwards: %v", req.file, err)
+	case err != nil:
+		return fmt.Errorf("--plot %s: %w", req.plot, err)
+	}
+	return nil
 }
 
 // fitCandidate is one model the automatic choice tried (AICc on the raw
@@ -387,7 +472,17 @@ type fitCandidate struct {
 	Rejected  string    `json:"rejected,omitempty"`
 }
 
-func buildFitOutput(res *arima.Result, tr localTransform, mean, variance, levels []float64) *fitOutput {
+// buildFitOutput assembles the JSON document from the fit and the
+// model-scale forecast N(mean[h], variance[h]) (CONTRACT.md §3): se stays
+// on the model scale; in raw units, with g the transform,
+//
+//	mean         = E g⁻¹(W), bias-adjusted (transform.Transform.Mean)
+//	median       = g⁻¹(mean[h])
+//	lower, upper = g⁻¹(mean[h] ∓ z·se),  z = Φ⁻¹(½ + level/200)
+//
+// exact because g⁻¹ is monotone (endpoints swap for a decreasing one). A
+// value outside the inverse's domain is NaN, printed as null.
+func buildFitOutput(res *arima.Result, tr transform.Transform, mean, variance, levels []float64) *fitOutput {
 	m := res.Model
 	s := m.Spec
 	orNil := func(x []float64) []float64 {
@@ -398,7 +493,7 @@ func buildFitOutput(res *arima.Result, tr localTransform, mean, variance, levels
 	}
 	out := &fitOutput{
 		Model: fitModel{Spec: s.String(), Order: [3]int{s.P, s.D, s.Q}, Seasonal: [3]int{s.SP, s.SD, s.SQ},
-			Period: s.Period, Mean: s.Mean || s.Drift, Transform: tr.Name()},
+			Period: s.Period, Mean: s.Mean || s.Drift, Transform: tr.String()},
 		Coef:      fitCoef{AR: orNil(m.AR), MA: orNil(m.MA), SAR: orNil(m.SAR), SMA: orNil(m.SMA)},
 		Sigma2:    m.Sigma2,
 		LogLik:    res.LogLik,
@@ -419,15 +514,20 @@ func buildFitOutput(res *arima.Result, tr localTransform, mean, variance, levels
 		v := jsonFloat(m.Drift)
 		out.Coef.Drift = &v
 	}
-	std := distuv.UnitNormal
 	for h := range mean {
 		se := math.Sqrt(variance[h])
-		fc := fitForecast{H: h + 1, Mean: jsonFloat(tr.Mean(mean[h], variance[h])), SE: jsonFloat(se),
-			Lower: map[string]jsonFloat{}, Upper: map[string]jsonFloat{}}
+		fc := fitForecast{H: h + 1,
+			Mean:   jsonFloat(invOrNaN(tr.Mean(mean[h], variance[h]))),
+			Median: jsonFloat(invOrNaN(tr.Median(mean[h]))),
+			SE:     jsonFloat(se),
+			Lower:  map[string]jsonFloat{}, Upper: map[string]jsonFloat{}}
 		for _, l := range levels {
-			z := std.Quantile(0.5 + l/200)
-			fc.Lower[levelKey(l)] = jsonFloat(tr.Inverse(mean[h] - z*se))
-			fc.Upper[levelKey(l)] = jsonFloat(tr.Inverse(mean[h] + z*se))
+			z := distuv.UnitNormal.Quantile(0.5 + l/200)
+			lo, hi := invOrNaN(tr.Inverse(mean[h]-z*se)), invOrNaN(tr.Inverse(mean[h]+z*se))
+			if !tr.Increasing() {
+				lo, hi = hi, lo
+			}
+			fc.Lower[levelKey(l)], fc.Upper[levelKey(l)] = jsonFloat(lo), jsonFloat(hi)
 		}
 		out.Forecast = append(out.Forecast, fc)
 	}
@@ -468,13 +568,13 @@ func writeFitTable(w io.Writer, out *fitOutput, levels []float64) {
 	}
 	fmt.Fprintln(w)
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprint(tw, "h\tmean\tse\t")
+	fmt.Fprint(tw, "h\tmean\tmedian\tse\t")
 	for _, l := range levels {
 		fmt.Fprintf(tw, "lower %s\tupper %s\t", levelKey(l), levelKey(l))
 	}
 	fmt.Fprintln(tw)
 	for _, fc := range out.Forecast {
-		fmt.Fprintf(tw, "%d\t%s\t%s\t", fc.H, fmtNum(float64(fc.Mean)), fmtNum(float64(fc.SE)))
+		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t", fc.H, fmtNum(float64(fc.Mean)), fmtNum(float64(fc.Median)), fmtNum(float64(fc.SE)))
 		for _, l := range levels {
 			fmt.Fprintf(tw, "%s\t%s\t", fmtNum(float64(fc.Lower[levelKey(l)])), fmtNum(float64(fc.Upper[levelKey(l)])))
 		}

@@ -203,7 +203,7 @@ func TestReadSeriesCSV(t *testing.T) {
 	}
 	one := writeTemp(t, "one.csv", "value\n3\nNaN\n")
 	times, v, err = readSeriesCSV(one, "")
-	if err != nil || times[1] != "2" || !math.IsNaN(v[1]) {
+	if err != nil || times != nil || !math.IsNaN(v[1]) {
 		t.Errorf("single column: %v %v %v", times, v, err)
 	}
 	if _, _, err := readSeriesCSV(writeTemp(t, "e.csv", ""), ""); err == nil {
