@@ -33,7 +33,7 @@ is a missing value) by exact maximum likelihood and forecasts it.
 
 flags (before or after FILE):
   --order p,d,q        non-seasonal orders (absent: chosen automatically)
-  --seasonal P,D,Q     seasonal orders (default 0,0,0)
+  --seasonal P,D,Q     seasonal orders, with --order (default 0,0,0)
   --period s           seasonal period (required with --seasonal)
   --mean yes|no|auto   estimate a mean; auto: a mean when d+D = 0. With d+D = 1,
                        yes estimates the mean of the differenced series (a drift)

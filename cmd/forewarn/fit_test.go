@@ -538,3 +538,53 @@ func TestReadSeriesCSV(t *testing.T) {
 		t.Error("empty file accepted")
 	}
 }
+
+// Fit the first-order autoregression of R's lh series (R 4.2.2 ?arima
+// example, ../shared/REFERENCES.md: ar1 0.5739, mean 2.4133, σ² 0.1975,
+// loglik −29.38) and read the JSON; the first forecast's median equals its
+// mean without a transform.
+func Example_fit() {
+	var out bytes.Buffer
+	dispatch([]string{"fit", "--order", "1,0,0", "--horizon", "1", "--format", "json", dataset("lh")}, &out, os.Stderr)
+	var doc fitDoc
+	var coef struct {
+		Coef struct {
+			AR   []float64
+			Mean float64
+		}
+	}
+	json.Unmarshal(out.Bytes(), &doc)
+	json.Unmarshal(out.Bytes(), &coef)
+	fmt.Printf("%s %s ar1 %.4f mean %.4f sigma2 %.4f loglik %.2f\n", doc.Model.Spec, doc.Model.Transform,
+		coef.Coef.AR[0], coef.Coef.Mean, doc.Sigma2, doc.LogLik)
+	fmt.Printf("h=1 mean %.4f median %.4f\n", *doc.Forecast[0].Mean, *doc.Forecast[0].Median)
+	// Output:
+	// ARIMA(1,0,0) none ar1 0.5739 mean 2.4133 sigma2 0.1975 loglik -29.38
+	// h=1 mean 2.6926 median 2.6926
+}
+
+// Whole `forewarn fit` runs (CSV read, fit, forecast, no printing) on
+// AirPassengers: the log airline model with fixed orders, and the automatic
+// choice of transform and orders.
+func BenchmarkFit(b *testing.B) {
+	for _, c := range []struct {
+		name string
+		args []string
+	}{
+		{"log-airline", []string{"--order", "0,1,1", "--seasonal", "0,1,1", "--period", "12", "--transform", "log"}},
+		{"auto", []string{"--period", "12", "--transform", "auto"}},
+	} {
+		b.Run(c.name, func(b *testing.B) {
+			req, _, err := parseFitArgs(append(c.args, "--horizon", "24", dataset("AirPassengers")))
+			if err != nil {
+				b.Fatal(err)
+			}
+			b.ReportAllocs()
+			for b.Loop() {
+				if _, err := fitFile(req); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
