@@ -36,7 +36,10 @@ func (s *Series) FitJob() *FitJob {
 		End:      s.snap.WindowEnd,
 		Settings: s.set,
 	}
-	if s.model != nil {
+	// Warm starts serve the order search. A fixed order is fitted cold, so
+	// that the daemon's model at a refit point is exactly the one an
+	// offline fit of the same window gives.
+	if s.model != nil && (s.set.Model == "" || s.set.Model == "auto") {
 		j.Warm = &auto.Warm{Spec: s.model.Spec, Params: s.model.Params(), Transform: s.tr}
 	}
 	return j

@@ -102,11 +102,14 @@ func Restore(snap *Snapshot, set Settings) (*Series, error) {
 	s.snap.Window = w
 	s.initBuffers()
 	s.tr = transform.Transform{Name: transform.None, Scale: 1}
-	if snap.Fingerprint != set.Fingerprint || snap.Model == nil {
+	if snap.Fingerprint != set.Fingerprint {
 		s.snap.Fingerprint = set.Fingerprint
 		s.snap.Model = nil
-		s.snap.SinceRefit = set.RefitEvery // refit at the next close
+		s.snap.SinceRefit = set.RefitEvery // due at once: refit under the new settings
 		return s, nil
+	}
+	if snap.Model == nil {
+		return s, nil // still warming up, on the same schedule
 	}
 	tr, err := transformFromSnapshot(snap.Transform)
 	if err != nil {
@@ -287,19 +290,32 @@ func (s *Series) closeOpen() Outcome {
 	run.Add(v)
 	sn.Transform.RunN, sn.Transform.RunMean, sn.Transform.RunM2 = run.N, run.Mean, run.M2
 
-	if s.model == nil {
-		if sn.SinceRefit >= s.set.RefitEvery || sn.RefitFailures == 0 {
-			if countFinite(sn.Window) >= s.set.MinPoints {
-				return NeedFit
-			}
-		}
-		return Warming
-	}
-	if sn.SinceRefit >= s.set.RefitEvery {
+	if s.FitDue() {
 		return NeedFit
+	}
+	if s.model == nil {
+		return Warming
 	}
 	s.forecast()
 	return Published
+}
+
+// FitDue reports whether the last closed bucket is a refit point whose
+// refit has not been installed yet: the first fit once MinPoints values
+// are in (retried every RefitEvery closes after a failure), then every
+// RefitEvery closes. A series restored from a record saved while its refit
+// ran is due at once, so the refit happens at the same bucket as in an
+// uninterrupted run.
+func (s *Series) FitDue() bool {
+	sn := &s.snap
+	if len(sn.Window) == 0 {
+		return false
+	}
+	if s.model == nil {
+		return (sn.SinceRefit >= s.set.RefitEvery || sn.RefitFailures == 0) &&
+			countFinite(sn.Window) >= s.set.MinPoints
+	}
+	return sn.SinceRefit >= s.set.RefitEvery
 }
 
 // push appends one closed bucket value to the window, dropping the oldest

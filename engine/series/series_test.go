@@ -221,3 +221,44 @@ func TestRestoreWithOtherSettingsRefits(t *testing.T) {
 		t.Fatalf("first close after restore: %v %v, want NeedFit", o, err)
 	}
 }
+
+// TestResumeAfterFailedFirstFit checks that a series restored while
+// warming up after a failed first fit keeps its retry schedule: a constant
+// stretch makes the first fit fail (arima refuses a constant series).
+func TestResumeAfterFailedFirstFit(t *testing.T) {
+	x := trend(150, 5)
+	for i := range 45 {
+		x[i] = 1000
+	}
+	run := func(split int) []Forecast {
+		var out []Forecast
+		s, _ := New("w", settings())
+		for i, v := range x {
+			if i == split {
+				snap := *s.Snapshot()
+				var err error
+				if s, err = Restore(&snap, settings()); err != nil {
+					t.Fatal(err)
+				}
+			}
+			o, err := s.Observe(at(int64(i)), v)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if o == NeedFit {
+				o, _ = s.Install(s.FitJob().Run())
+			}
+			if o == Published {
+				out = append(out, copyForecast(s.Forecast()))
+			}
+		}
+		if s.Snapshot().RefitFailures == 0 {
+			t.Fatal("the constant stretch did not make the first fit fail")
+		}
+		return out
+	}
+	want := run(-1)
+	if got := run(50); !reflect.DeepEqual(got, want) {
+		t.Fatalf("restored while warming up: %d forecasts, uninterrupted %d (or contents differ)", len(got), len(want))
+	}
+}

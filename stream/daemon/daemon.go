@@ -8,6 +8,7 @@ import (
 	"log/slog"
 	"math"
 	"runtime"
+	"slices"
 	"sync"
 	"time"
 
@@ -59,7 +60,9 @@ type Daemon struct {
 
 	// Loop-owned.
 	series    map[string]*entry
-	busy      int // series waiting for a refit
+	busy      int       // series waiting for a refit
+	due       []string  // restored series whose refit was in flight at the last save
+	queue     []fitTask // refits waiting for a worker (the loop never blocks on the pool)
 	sinceSave int
 	obsBuf    []stream.Observation
 	encBuf    []byte
@@ -156,7 +159,7 @@ func New(o Options) (*Daemon, error) {
 		batches:   make(chan []stream.Message),
 		handled:   make(chan struct{}),
 		results:   make(chan fitDone, 64),
-		jobs:      make(chan fitTask, 1024),
+		jobs:      make(chan fitTask),
 		inspect:   make(chan func()),
 		series:    make(map[string]*entry),
 		latest:    make(map[string][]byte),
@@ -248,6 +251,10 @@ func (d *Daemon) Run(ctx context.Context) error {
 			}
 		})
 	}()
+	for _, t := range d.due {
+		d.outcome(t, d.series[t], series.NeedFit)
+	}
+	d.due = nil
 	close(d.ready)
 
 	flushEvery := d.cfg.State.FlushInterval
@@ -259,7 +266,10 @@ func (d *Daemon) Run(ctx context.Context) error {
 	var runErr error
 loop:
 	for {
+		jobs, next := d.nextJob()
 		select {
+		case jobs <- next:
+			d.queue = d.queue[1:]
 		case <-ctx.Done():
 			break loop
 		case err := <-intakeErr:
@@ -298,7 +308,13 @@ loop:
 		}
 	}
 	for d.busy > 0 {
-		d.finishFit(<-d.results)
+		jobs, next := d.nextJob()
+		select {
+		case jobs <- next:
+			d.queue = d.queue[1:]
+		case r := <-d.results:
+			d.finishFit(r)
+		}
 	}
 	close(d.jobs)
 	wg.Wait()
@@ -311,7 +327,6 @@ loop:
 // affects only its own series, which starts afresh (and, with a durable
 // intake, is rebuilt from what the stream still holds).
 func (d *Daemon) load() error {
-	var minSeq uint64
 	err := d.store.LoadAll(func(topic string, snap *series.Snapshot, err error) error {
 		if err != nil {
 			d.log.Warn("state record unreadable; the series starts afresh", "topic", topic, "err", err)
@@ -334,9 +349,6 @@ func (d *Daemon) load() error {
 		}
 		e := &entry{s: s, rules: d.rulesFor(topic, sc)}
 		d.series[topic] = e
-		if seq, _ := s.Position(); minSeq == 0 || seq < minSeq {
-			minSeq = seq
-		}
 		if s.HasModel() {
 			d.storeLatest(s)
 		}
@@ -346,6 +358,16 @@ func (d *Daemon) load() error {
 		return fmt.Errorf("daemon: load state: %w", err)
 	}
 	d.metrics.Series.Set(float64(len(d.series)))
+	// A record saved while its refit ran resumes with that refit, so the
+	// schedule is the uninterrupted run's. Topics in order: deterministic.
+	topics := make([]string, 0, len(d.series))
+	for t, e := range d.series {
+		if e.s.FitDue() {
+			topics = append(topics, t)
+		}
+	}
+	slices.Sort(topics)
+	d.due = topics
 	return nil
 }
 
@@ -488,8 +510,17 @@ func (d *Daemon) outcome(topic string, e *entry, out series.Outcome) {
 		e.busy = true
 		d.busy++
 		d.metrics.Refitting.Inc()
-		d.jobs <- fitTask{topic: topic, job: e.s.FitJob()}
+		d.queue = append(d.queue, fitTask{topic: topic, job: e.s.FitJob()})
 	}
+}
+
+// nextJob returns the pool's channel and the first waiting refit, or a
+// nil channel (a select case that never fires) when none waits.
+func (d *Daemon) nextJob() (chan<- fitTask, fitTask) {
+	if len(d.queue) == 0 {
+		return nil, fitTask{}
+	}
+	return d.jobs, d.queue[0]
 }
 
 // finishFit installs a refit and then applies what waited on it, in order.

@@ -256,7 +256,9 @@ func TestLiveSeriesAPI(t *testing.T) {
 	if air.LastValue == nil || *air.LastValue != 390 {
 		t.Errorf("air.passengers last closed value %v, want 390", air.LastValue)
 	}
-	if s := byTopic["lab.hormone"]; s.Status != "warming_up" || s.Model != "" || s.Rejects != 1 || s.Late != 1 {
+	// Both rejects count against the series: the message-level not_json
+	// and the observation-level late one.
+	if s := byTopic["lab.hormone"]; s.Status != "warming_up" || s.Model != "" || s.Rejects != 2 || s.Late != 1 {
 		t.Errorf("lab.hormone %+v", s)
 	}
 	_, body = l.get(t, "/api/series/air.passengers")

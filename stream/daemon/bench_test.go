@@ -1,0 +1,352 @@
+package daemon
+
+// End-to-end benchmarks of the daemon (issue 4 "Benchmark", issue 5
+// "Benchmark"). Each one runs an in-process NATS server, a state store
+// under a temporary directory and a Daemon with 10 000 series of a fixed
+// ARIMA(1,1,1) model (transform none, 24-step forecasts at levels 80 and
+// 95), pre-warmed before the timer starts: min_points+1 buckets are
+// published to every series, and the benchmark waits until every series
+// has fitted and published. refit_every is large, so no refit runs in the
+// timed part. One benchmark operation is one observation message. Rates
+// are set against streamtest.RawPubSubRate for messages of the same size,
+// measured on the same server in the same run.
+//
+// Each setup takes some seconds (10 000 first fits), so run with a fixed
+// count, for instance
+//
+//	go test ./stream/daemon -run '^$' -bench . -benchtime 200000x
+//
+// The state store fsyncs at every flush (the default); the flush policy is
+// the config default (every second or every 5000 messages).
+
+import (
+	"context"
+	"slices"
+	"strconv"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"github.com/nats-io/nats.go"
+
+	"forewarn/config"
+	"forewarn/engine/series"
+	"forewarn/state"
+	"forewarn/stream"
+	"forewarn/stream/streamtest"
+)
+
+// BenchmarkIntakeBound: 10 observations per bucket, so one message in ten
+// closes a bucket and publishes a forecast. Reported: obs/s, the rate at
+// which the daemon applied the observations (from the first publication
+// until forewarn_observations_accepted_total counts them all); raw_msgs/s,
+// the raw core-NATS rate for messages of the observations' size; pct_raw,
+// their ratio in percent (target ≥ 50 for plain intake). The durable case
+// runs the JetStream intake against the same core-NATS raw rate.
+func BenchmarkIntakeBound(b *testing.B) {
+	for _, durable := range []bool{false, true} {
+		name := "plain"
+		if durable {
+			name = "durable"
+		}
+		b.Run(name, func(b *testing.B) {
+			r := newRig(b, rigOptions{durable: durable})
+			r.warm()
+			msgs := r.build(b.N, 10)
+			raw := streamtest.RawPubSubRate(b, r.url, len(msgs.data)/max(b.N, 1), max(b.N, 100_000))
+			acc0, pub0, rej0 := counterValue(r.d.metrics.Accepted), counterValue(r.d.metrics.Published), r.rejected()
+			want := acc0 + float64(b.N)
+
+			b.ResetTimer()
+			start := time.Now()
+			r.send(msgs)
+			end := waitUntil(b, 120*time.Second, "every observation applied", func() bool {
+				return counterValue(r.d.metrics.Accepted) >= want
+			})
+			b.StopTimer()
+
+			if got := counterValue(r.d.metrics.Accepted); got != want {
+				b.Fatalf("accepted %v, want %v", got, want)
+			}
+			if got := r.rejected(); got != rej0 {
+				b.Fatalf("%v observations rejected", got-rej0)
+			}
+			// Bucket closes: every series' buckets before its last one.
+			closes := closesOf(b.N, len(r.subjects), 10)
+			waitUntil(b, 30*time.Second, "forecasts of every closed bucket", func() bool {
+				return counterValue(r.d.metrics.Published) >= pub0+float64(closes)
+			})
+			if got := counterValue(r.d.metrics.Published) - pub0; got != float64(closes) {
+				b.Fatalf("published %v forecasts, want %d", got, closes)
+			}
+			rate := float64(b.N) / end.Sub(start).Seconds()
+			b.ReportMetric(rate, "obs/s")
+			b.ReportMetric(raw, "raw_msgs/s")
+			b.ReportMetric(100*rate/raw, "pct_raw")
+		})
+	}
+}
+
+// closesOf counts the bucket closes that n messages sent round-robin over
+// ns series, perBucket per bucket, cause when each series starts with an
+// open bucket of its own.
+func closesOf(n, ns, perBucket int) int {
+	total := 0
+	for i := range min(n, ns) {
+		m := (n - i + ns - 1) / ns // messages to series i
+		total += (m + perBucket - 1) / perBucket
+	}
+	return total
+}
+
+// outputRun is one output-bound measurement.
+type outputRun struct {
+	rate, raw float64
+	size      int
+}
+
+// runOutputBound sends b.N messages that each close a bucket, and counts
+// the forecasts on a subscriber of <prefix>.forecast.> until every one has
+// arrived.
+func runOutputBound(b *testing.B, o rigOptions) outputRun {
+	r := newRig(b, o)
+	r.warm()
+	fc, ok := r.d.Latest(rigTopic(0))
+	if !ok {
+		b.Fatal("no forecast after warm-up")
+	}
+	sc := streamtest.Connect(b, r.url)
+	var got atomic.Int64
+	sub, err := sc.Subscribe(r.cfg.Output.Prefix+".forecast.>", func(*nats.Msg) { got.Add(1) })
+	if err != nil {
+		b.Fatal(err)
+	}
+	if err := sub.SetPendingLimits(-1, -1); err != nil {
+		b.Fatal(err)
+	}
+	if err := sc.Flush(); err != nil {
+		b.Fatal(err)
+	}
+	msgs := r.build(b.N, 1)
+	raw := streamtest.RawPubSubRate(b, r.url, len(fc), max(b.N, 50_000))
+	acc0, pub0 := counterValue(r.d.metrics.Accepted), counterValue(r.d.metrics.Published)
+	want := int64(b.N)
+
+	b.ResetTimer()
+	start := time.Now()
+	r.send(msgs)
+	end := waitUntil(b, 120*time.Second, "every forecast received", func() bool { return got.Load() >= want })
+	b.StopTimer()
+
+	// Exact counts: one accepted observation and one forecast per message,
+	// every forecast received once.
+	if err := r.d.opt.Conn.Flush(); err != nil {
+		b.Fatal(err)
+	}
+	if err := sc.Flush(); err != nil {
+		b.Fatal(err)
+	}
+	if n := got.Load(); n != want {
+		b.Fatalf("received %d forecasts, want %d", n, want)
+	}
+	if d, _ := sub.Dropped(); d != 0 {
+		b.Fatalf("subscriber dropped %d forecasts", d)
+	}
+	if acc := counterValue(r.d.metrics.Accepted) - acc0; acc != float64(want) {
+		b.Fatalf("accepted %v observations, want %d", acc, want)
+	}
+	if pub := counterValue(r.d.metrics.Published) - pub0; pub != float64(want) {
+		b.Fatalf("published %v forecasts, want %d", pub, want)
+	}
+	return outputRun{rate: float64(want) / end.Sub(start).Seconds(), raw: raw, size: len(fc)}
+}
+
+// BenchmarkOutputBound: every message closes a bucket, so every message
+// publishes a 24-step forecast. Reported: forecasts/s as received by a
+// subscriber; raw_msgs/s for messages of the encoded forecast's size
+// (fc_bytes); pct_raw (target ≥ 40). The far_rule case adds an alert rule
+// that matches every series with a threshold far above its forecasts
+// (issue 5: it should cost at most 10 % of the rate).
+func BenchmarkOutputBound(b *testing.B) {
+	for _, alert := range []bool{false, true} {
+		name := "no_rule"
+		if alert {
+			name = "far_rule"
+		}
+		b.Run(name, func(b *testing.B) {
+			o := runOutputBound(b, rigOptions{alert: alert})
+			b.ReportMetric(o.rate, "forecasts/s")
+			b.ReportMetric(o.raw, "raw_msgs/s")
+			b.ReportMetric(float64(o.size), "fc_bytes")
+			b.ReportMetric(100*o.rate/o.raw, "pct_raw")
+		})
+	}
+}
+
+// latencyRate is the offered load of BenchmarkCloseToForecastLatency, in
+// messages per second, well under the output-bound rate so that latency is
+// not the length of a queue.
+const latencyRate = 20_000
+
+// BenchmarkCloseToForecastLatency measures, for every message that closes
+// a bucket, the wall time from just before its publication to the arrival
+// of its forecast at a subscriber (both timestamps taken in this process;
+// per series, forecasts arrive in the order of the messages that caused
+// them, so the k-th forecast of a series belongs to its k-th message).
+// Messages are paced at latencyRate per second. Reported: p50_us, p99_us
+// and max_us.
+func BenchmarkCloseToForecastLatency(b *testing.B) {
+	r := newRig(b, rigOptions{})
+	r.warm()
+	ns := len(r.subjects)
+	sent := make([]int64, b.N)
+	lat := make([]int64, b.N)
+	perSeries := make([]int, ns)
+	var got atomic.Int64
+	prefix := r.cfg.Output.Prefix + ".forecast."
+	sc := streamtest.Connect(b, r.url)
+	sub, err := sc.Subscribe(prefix+">", func(m *nats.Msg) {
+		now := time.Now().UnixNano()
+		i, err := strconv.Atoi(m.Subject[len(prefix)+len("bench.s"):])
+		if err != nil || i >= ns {
+			return
+		}
+		j := perSeries[i]*ns + i
+		perSeries[i]++
+		if j < len(lat) {
+			lat[j] = now - atomic.LoadInt64(&sent[j])
+		}
+		got.Add(1)
+	})
+	if err != nil {
+		b.Fatal(err)
+	}
+	if err := sub.SetPendingLimits(-1, -1); err != nil {
+		b.Fatal(err)
+	}
+	if err := sc.Flush(); err != nil {
+		b.Fatal(err)
+	}
+	msgs := r.build(b.N, 1)
+
+	b.ResetTimer()
+	start := time.Now()
+	for j := range b.N {
+		if due := start.Add(time.Duration(j) * time.Second / latencyRate); time.Until(due) > 0 {
+			time.Sleep(time.Until(due))
+		}
+		atomic.StoreInt64(&sent[j], time.Now().UnixNano())
+		if err := r.pub.Publish(r.subjects[msgs.series[j]], msgs.payload(j)); err != nil {
+			b.Fatal(err)
+		}
+	}
+	waitUntil(b, 120*time.Second, "every forecast received", func() bool { return got.Load() >= int64(b.N) })
+	b.StopTimer()
+	if n := got.Load(); n != int64(b.N) {
+		b.Fatalf("received %d forecasts, want %d", n, b.N)
+	}
+	slices.Sort(lat)
+	q := func(p float64) float64 { return float64(lat[int(p*float64(len(lat)-1))]) / 1e3 }
+	b.ReportMetric(q(0.50), "p50_us")
+	b.ReportMetric(q(0.99), "p99_us")
+	b.ReportMetric(q(1), "max_us")
+}
+
+// BenchmarkStateMemory measures the heap the daemon holds per series with
+// full 2000-bucket windows (target ≤ 64 KiB): the series are written to
+// the store first (one fitted template series, copied under every topic),
+// the daemon loads them (each restored with its model, its latest
+// forecast served at once), one bucket closes in every series, and the
+// heap in use after garbage collection, less the heap before the daemon
+// started, is divided by the number of series. Reported: bytes/series.
+// One operation is one whole measurement.
+func BenchmarkStateMemory(b *testing.B) {
+	const window = 2000
+	for b.Loop() {
+		b.StopTimer()
+		r := newRigStopped(b, rigOptions{window: window})
+		snap := r.template(window)
+		ns := len(r.subjects)
+		store, err := state.Open(r.cfg.State.Dir)
+		if err != nil {
+			b.Fatal(err)
+		}
+		for lo := 0; lo < ns; lo += 1000 {
+			var batch []*series.Snapshot
+			for i := lo; i < min(lo+1000, ns); i++ {
+				s := *snap
+				s.Topic = rigTopic(i)
+				batch = append(batch, &s)
+			}
+			if err := store.Save(batch); err != nil {
+				b.Fatal(err)
+			}
+		}
+		before := heapInUse()
+		b.StartTimer()
+		r.start(streamtest.Connect(b, r.url), store)
+		b.StopTimer()
+		// One close per series: encoder buffers, dirty flags, a flush.
+		r.next = snap.OpenBucket
+		r.send(r.build(ns, 1))
+		waitUntil(b, 60*time.Second, "a forecast per series", func() bool {
+			return counterValue(r.d.metrics.Published) >= float64(ns)
+		})
+		var windows int
+		r.d.Inspect(context.Background(), func(all map[string]*Entry) {
+			for _, e := range all {
+				if len(e.Series().Snapshot().Window) == window {
+					windows++
+				}
+			}
+		})
+		if windows != ns {
+			b.Fatalf("%d of %d series have a full window", windows, ns)
+		}
+		after := heapInUse()
+		b.ReportMetric(float64(after-before)/float64(ns), "bytes/series")
+		b.StartTimer()
+	}
+}
+
+// newRigStopped is newRig without a running daemon: the caller fills the
+// store and calls start.
+func newRigStopped(tb testing.TB, o rigOptions) *rig {
+	tb.Helper()
+	return newRigConfig(tb, o)
+}
+
+// template returns the snapshot of one series that has seen window+1
+// buckets (so its window is full and one bucket is open) and made its
+// first fit at min_points, as the daemon would have built it.
+func (r *rig) template(window int) *series.Snapshot {
+	tb := r.tb
+	sc, ok := r.cfg.SeriesFor(rigTopic(0))
+	if !ok {
+		tb.Fatal("no series entry")
+	}
+	s, err := series.New(rigTopic(0), settingsOf(sc))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	step := int64(rigStep / time.Second)
+	for k := range int64(window + 1) {
+		r.level[0] += r.rng.NormFloat64()
+		out, err := s.Observe((r.t0+k*step)*int64(time.Second), r.level[0])
+		if err != nil {
+			tb.Fatal(err)
+		}
+		if out == series.NeedFit {
+			if _, err := s.Install(s.FitJob().Run()); err != nil {
+				tb.Fatal(err)
+			}
+		}
+	}
+	if !s.HasModel() {
+		tb.Fatal("template series has no model")
+	}
+	return s.Snapshot()
+}
+
+var _ = config.Default
+var _ = stream.AppendForecast

@@ -1,0 +1,319 @@
+package daemon
+
+import (
+	"context"
+	"errors"
+	"io"
+	"log/slog"
+	"math/rand/v2"
+	"runtime"
+	"strconv"
+	"testing"
+	"time"
+
+	"github.com/nats-io/nats.go"
+	"github.com/prometheus/client_golang/prometheus"
+	dto "github.com/prometheus/client_model/go"
+
+	"forewarn/config"
+	"forewarn/state"
+	"forewarn/stream/streamtest"
+)
+
+// The shape of the end-to-end benchmarks (issue 4 "Benchmark"): 10 000
+// series with a fixed, cheap model, 24-step forecasts with two levels.
+const (
+	rigSeries    = 10_000
+	rigHorizon   = 24
+	rigMinPoints = 20
+	rigStep      = 10 * time.Second
+	// rigRefitEvery keeps every refit after the first out of the timed part.
+	rigRefitEvery = 1_000_000
+	// rigFarThreshold is far above every benchmark level (about 1000 ± a
+	// few hundred): the far-from-threshold case of issue 5.
+	rigFarThreshold = 1e9
+)
+
+// rigOptions shape one rig.
+type rigOptions struct {
+	series  int  // number of series (topics bench.s00000 …)
+	durable bool // JetStream intake instead of core subscriptions
+	noSync  bool // state.NoSync(): no fsync per flush
+	alert   bool // one rule far from every threshold, matching every series
+	window  int  // buckets kept; 0: the config default (2000)
+}
+
+// rig is an in-process bus, a state store under a temporary directory and
+// a running Daemon, with a publisher connection and per-series random
+// walks (seeded) that the benchmarks turn into observation messages.
+type rig struct {
+	tb   testing.TB
+	url  string
+	d    *Daemon
+	cfg  *config.Config
+	pub  *nats.Conn
+	opts rigOptions
+
+	subjects []string  // metrics.bench.sNNNNN
+	level    []float64 // random-walk level per series
+	rng      *rand.Rand
+	t0       int64 // unix seconds of bucket 0 (a multiple of the step)
+	next     int64 // first bucket not yet used by any series
+}
+
+func newRig(tb testing.TB, o rigOptions) *rig {
+	tb.Helper()
+	r := newRigConfig(tb, o)
+	var sopts []state.Option
+	if o.noSync {
+		sopts = append(sopts, state.NoSync())
+	}
+	store, err := state.Open(r.cfg.State.Dir, sopts...)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	r.start(streamtest.Connect(tb, r.url), store)
+	return r
+}
+
+// newRigConfig starts the server and the publisher connection and builds
+// the configuration; no store is open and no daemon runs yet.
+func newRigConfig(tb testing.TB, o rigOptions) *rig {
+	tb.Helper()
+	if o.series == 0 {
+		o.series = rigSeries
+	}
+	_, url := streamtest.RunServer(tb)
+	pub := streamtest.Connect(tb, url)
+
+	cfg := config.Default()
+	cfg.State.Dir = tb.TempDir()
+	cfg.HTTP.Listen = ""
+	cfg.Intake.Durable = o.durable
+	cfg.Limits.MaxSeries = max(cfg.Limits.MaxSeries, o.series)
+	cfg.Series = []config.Series{{
+		Match: "bench.>", Step: rigStep, Horizon: rigHorizon, Window: o.window,
+		MinPoints: rigMinPoints, RefitEvery: rigRefitEvery,
+		Model: "ARIMA(1,1,1)", Transform: "none",
+	}}
+	if o.alert {
+		thr := rigFarThreshold
+		cfg.Alerts = []config.Alert{{Name: "far-above", Match: "bench.>", Above: &thr,
+			Within: rigHorizon * rigStep, Probability: 0.9}}
+	}
+	cfg = cfg.WithDefaults()
+	if err := cfg.Validate(); err != nil {
+		tb.Fatal(err)
+	}
+	r := &rig{tb: tb, url: url, cfg: cfg, pub: pub, opts: o,
+		rng: rand.New(rand.NewPCG(20240611, 4))}
+	step := int64(rigStep / time.Second)
+	// Data time starts 12 h back, well inside limits.max_past, so that
+	// a benchmark run never reaches limits.max_future.
+	r.t0 = (time.Now().Add(-12*time.Hour).Unix() / step) * step
+	r.subjects = make([]string, o.series)
+	r.level = make([]float64, o.series)
+	for i := range r.subjects {
+		r.subjects[i] = "metrics." + rigTopic(i)
+		r.level[i] = 1000 + float64(i%97)
+	}
+	return r
+}
+
+func rigTopic(i int) string {
+	s := strconv.Itoa(i)
+	for len(s) < 5 {
+		s = "0" + s
+	}
+	return "bench.s" + s
+}
+
+// start runs a Daemon on nc and store until the test's cleanup.
+func (r *rig) start(nc *nats.Conn, store *state.Store) {
+	tb := r.tb
+	d, err := New(Options{Config: r.cfg, Conn: nc, Store: store,
+		Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- d.Run(ctx) }()
+	tb.Cleanup(func() {
+		cancel()
+		if err := <-done; err != nil && !errors.Is(err, context.Canceled) {
+			tb.Errorf("daemon: %v", err)
+		}
+		store.Close()
+	})
+	select {
+	case <-d.Ready():
+	case err := <-done:
+		tb.Fatalf("daemon stopped: %v", err)
+	case <-time.After(60 * time.Second):
+		tb.Fatal("daemon not ready within 60s")
+	}
+	r.d = d
+}
+
+// appendObs appends one observation of series i at unix time t (seconds)
+// as {"time":T,"value":V}, stepping the series' random walk.
+func (r *rig) appendObs(dst []byte, i int, t int64) []byte {
+	r.level[i] += r.rng.NormFloat64()
+	dst = append(dst, `{"time":`...)
+	dst = strconv.AppendInt(dst, t, 10)
+	dst = append(dst, `,"value":`...)
+	dst = strconv.AppendFloat(dst, r.level[i], 'f', 3, 64)
+	return append(dst, '}')
+}
+
+// warm publishes min_points+1 buckets to every series (one JSON array
+// each), so that every series makes its first fit, and waits until every
+// series has a model and has published its first forecast.
+func (r *rig) warm() {
+	tb := r.tb
+	tb.Helper()
+	step := int64(rigStep / time.Second)
+	var buf []byte
+	for i, subj := range r.subjects {
+		buf = append(buf[:0], '[')
+		for k := int64(0); k <= rigMinPoints; k++ {
+			if k > 0 {
+				buf = append(buf, ',')
+			}
+			buf = r.appendObs(buf, i, r.t0+k*step)
+		}
+		buf = append(buf, ']')
+		if err := r.pub.Publish(subj, buf); err != nil {
+			tb.Fatal(err)
+		}
+	}
+	if err := r.pub.Flush(); err != nil {
+		tb.Fatal(err)
+	}
+	// Bucket rigMinPoints is open in every series.
+	r.next = rigMinPoints
+	n := float64(len(r.subjects))
+	streamtest.Eventually(tb, 120*time.Second, "every series fitted and published", func() bool {
+		return counterValue(r.d.metrics.Published) >= n
+	})
+	fitted := 0
+	if !r.d.Inspect(context.Background(), func(all map[string]*Entry) {
+		for _, e := range all {
+			if e.Series().HasModel() {
+				fitted++
+			}
+		}
+	}) {
+		tb.Fatal("inspect failed")
+	}
+	if fitted != len(r.subjects) {
+		tb.Fatalf("%d of %d series fitted after warm-up", fitted, len(r.subjects))
+	}
+	if got := counterValue(r.d.metrics.Refits); got != n {
+		tb.Fatalf("%v refits after warm-up, want %v", got, n)
+	}
+	// Everything published so far reaches the server before a benchmark
+	// subscribes.
+	if err := r.d.opt.Conn.Flush(); err != nil {
+		tb.Fatal(err)
+	}
+}
+
+// batch is a list of pre-encoded messages: subjects[j] with payload
+// data[off[j]:off[j+1]].
+type batch struct {
+	series []int32
+	off    []int
+	data   []byte
+}
+
+func (b *batch) payload(j int) []byte { return b.data[b.off[j]:b.off[j+1]] }
+
+// build encodes n messages round-robin over the series. perBucket
+// observations go to one bucket of a series before its next bucket opens
+// (1: every message closes a bucket). It continues after the buckets used
+// so far.
+func (r *rig) build(n, perBucket int) *batch {
+	step := int64(rigStep / time.Second)
+	ns := len(r.subjects)
+	b := &batch{series: make([]int32, n), off: make([]int, n+1)}
+	b.data = make([]byte, 0, n*40)
+	var last int64
+	for j := range n {
+		i, c := j%ns, int64(j/ns)
+		var t int64
+		if perBucket == 1 {
+			t = r.t0 + (r.next+1+c)*step
+			last = max(last, r.next+1+c)
+		} else {
+			bk := r.next + 1 + c/int64(perBucket)
+			t = r.t0 + bk*step + c%int64(perBucket)
+			last = max(last, bk)
+		}
+		b.series[j] = int32(i)
+		b.data = r.appendObs(b.data, i, t)
+		b.off[j+1] = len(b.data)
+	}
+	if n > 0 {
+		r.next = last
+	}
+	return b
+}
+
+// send publishes every message of b and flushes.
+func (r *rig) send(b *batch) {
+	for j := range b.series {
+		if err := r.pub.Publish(r.subjects[b.series[j]], b.payload(j)); err != nil {
+			r.tb.Fatal(err)
+		}
+	}
+	if err := r.pub.Flush(); err != nil {
+		r.tb.Fatal(err)
+	}
+}
+
+// rejected sums forewarn_observations_rejected_total over its codes.
+func (r *rig) rejected() float64 {
+	ch := make(chan prometheus.Metric, 64)
+	go func() { r.d.metrics.Rejected.Collect(ch); close(ch) }()
+	var sum float64
+	for m := range ch {
+		var pb dto.Metric
+		if err := m.Write(&pb); err == nil {
+			sum += pb.GetCounter().GetValue()
+		}
+	}
+	return sum
+}
+
+func counterValue(c prometheus.Counter) float64 {
+	var pb dto.Metric
+	if err := c.Write(&pb); err != nil {
+		panic(err)
+	}
+	return pb.GetCounter().GetValue()
+}
+
+// heapInUse returns the heap bytes in use after two collections.
+func heapInUse() uint64 {
+	runtime.GC()
+	runtime.GC()
+	var ms runtime.MemStats
+	runtime.ReadMemStats(&ms)
+	return ms.HeapAlloc
+}
+
+// waitUntil polls cond every 200 µs and returns the time at which it first
+// held, failing tb after timeout.
+func waitUntil(tb testing.TB, timeout time.Duration, what string, cond func() bool) time.Time {
+	tb.Helper()
+	deadline := time.Now().Add(timeout)
+	for !cond() {
+		if time.Now().After(deadline) {
+			tb.Fatalf("not within %s: %s", timeout, what)
+		}
+		time.Sleep(200 * time.Microsecond)
+	}
+	return time.Now()
+}
