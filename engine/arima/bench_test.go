@@ -1,11 +1,10 @@
 package arima
 
 import (
-	"encoding/json"
 	"math"
-	"os"
-	"path/filepath"
 	"testing"
+
+	"forewarn/engine/internal/refdata"
 )
 
 // benchFit is one timed reference fit from testdata/r/arima_bench.json,
@@ -31,16 +30,10 @@ func (b benchFit) spec() Spec {
 
 func loadBench(t testing.TB) map[string]benchFit {
 	t.Helper()
-	b, err := os.ReadFile(filepath.Join("..", "..", "testdata", "r", "arima_bench.json"))
-	if err != nil {
-		t.Fatal(err)
-	}
 	var doc struct {
 		Fits []benchFit `json:"fits"`
 	}
-	if err := json.Unmarshal(b, &doc); err != nil {
-		t.Fatal(err)
-	}
+	refdata.JSON(t, "r/arima_bench.json", &doc)
 	out := map[string]benchFit{}
 	for _, f := range doc.Fits {
 		out[f.ID] = f
@@ -49,7 +42,7 @@ func loadBench(t testing.TB) map[string]benchFit {
 }
 
 func benchSeries(t testing.TB, id string) []float64 {
-	return loadCSV(t, filepath.Join("..", "..", "testdata", "r", "bench_"+id+".csv"))
+	return refdata.Series(t, "r/bench_"+id+".csv")
 }
 
 // Every benchmark fit reaches a log-likelihood no worse than R's (within

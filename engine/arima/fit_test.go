@@ -4,6 +4,8 @@ import (
 	"math"
 	"strings"
 	"testing"
+
+	"forewarn/engine/internal/refdata"
 )
 
 // Fits must agree with R 4.2.2 stats::arima(method = "ML") (values in
@@ -60,7 +62,7 @@ func TestFitMatchesR(t *testing.T) {
 // A warm start from a previous fit reaches the same optimum; an iteration
 // cap that is too small is reported, with the reason, not hidden.
 func TestFitWarmStartAndConvergenceReport(t *testing.T) {
-	y := loadDataset(t, "USAccDeaths")
+	y := refdata.Dataset(t, "USAccDeaths")
 	spec := Spec{D: 1, Q: 1, SD: 1, SQ: 1, Period: 12}
 	cold, err := Fit(y, spec, nil)
 	if err != nil {
@@ -87,7 +89,7 @@ func TestFitWarmStartAndConvergenceReport(t *testing.T) {
 // their mean square (the concentrated σ², Durbin & Koopman 2012, §7.2.1).
 func TestFitResiduals(t *testing.T) {
 	for _, id := range []string{"presidents", "ldeaths_na", "USAccDeaths"} {
-		y := loadDataset(t, id)
+		y := refdata.Dataset(t, id)
 		spec := Spec{P: 1, Mean: true}
 		if id != "presidents" {
 			spec = Spec{P: 1, SD: 1, SQ: 1, Period: 12}

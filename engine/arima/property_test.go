@@ -7,6 +7,8 @@ import (
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
+
+	"forewarn/engine/internal/refdata"
 )
 
 // simulate draws n values of the model (after a burn-in) from a seeded
@@ -345,7 +347,7 @@ func TestForecastJointConsistent(t *testing.T) {
 // σ²_η = σ²(1+θ)² (equating the autocovariances of Δy_t). Tolerance 0.2 %
 // (the book prints five significant digits).
 func TestNileLocalLevelVariances(t *testing.T) {
-	y := loadDataset(t, "Nile")
+	y := refdata.Dataset(t, "Nile")
 	res, err := Fit(y, Spec{D: 1, Q: 1}, nil)
 	if err != nil {
 		t.Fatal(err)

@@ -1,13 +1,10 @@
 package arima
 
 import (
-	"encoding/csv"
-	"encoding/json"
 	"math"
-	"os"
-	"path/filepath"
-	"strconv"
 	"testing"
+
+	"forewarn/engine/internal/refdata"
 )
 
 // rCase is one reference fit from testdata/r/arima_refs.json, written by
@@ -46,7 +43,7 @@ func (c rCase) spec() Spec {
 // series loads the case's data from testdata/datasets (exported by the same
 // R script), applies its holes and transform.
 func (c rCase) series(t testing.TB) []float64 {
-	y := loadDataset(t, c.Data)
+	y := refdata.Dataset(t, c.Data)
 	for _, h := range c.Holes {
 		y[h-1] = math.NaN()
 	}
@@ -63,49 +60,11 @@ func (c rCase) series(t testing.TB) []float64 {
 
 func loadRefs(t testing.TB) []rCase {
 	t.Helper()
-	b, err := os.ReadFile(filepath.Join("..", "..", "testdata", "r", "arima_refs.json"))
-	if err != nil {
-		t.Fatal(err)
-	}
 	var doc struct {
 		Cases []rCase `json:"cases"`
 	}
-	if err := json.Unmarshal(b, &doc); err != nil {
-		t.Fatal(err)
-	}
+	refdata.JSON(t, "r/arima_refs.json", &doc)
 	return doc.Cases
-}
-
-func loadDataset(t testing.TB, name string) []float64 {
-	t.Helper()
-	return loadCSV(t, filepath.Join("..", "..", "testdata", "datasets", name+".csv"))
-}
-
-func loadCSV(t testing.TB, path string) []float64 {
-	t.Helper()
-	f, err := os.Open(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	y := make([]float64, 0, len(rows)-1)
-	for _, r := range rows[1:] {
-		v := r[len(r)-1]
-		if v == "NA" {
-			y = append(y, math.NaN())
-			continue
-		}
-		x, err := strconv.ParseFloat(v, 64)
-		if err != nil {
-			t.Fatal(err)
-		}
-		y = append(y, x)
-	}
-	return y
 }
 
 // modelFromR builds the model with R's coefficients (R calls the mean

@@ -1,44 +1,20 @@
 package auto
 
 import (
-	"encoding/csv"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"os"
-	"path/filepath"
-	"strconv"
 	"testing"
 
 	"forewarn/engine/arima"
+	"forewarn/engine/internal/refdata"
 	"forewarn/engine/transform"
 )
 
-// loadSeries reads testdata/datasets/NAME.csv (R 4.2.2 `datasets`, exported
-// by testdata/r/arima_refs.R; NA = missing).
-func loadSeries(t testing.TB, name string) []float64 {
-	t.Helper()
-	f, err := os.Open(filepath.Join("..", "..", "testdata", "datasets", name+".csv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	y := make([]float64, 0, len(rows)-1)
-	for _, r := range rows[1:] {
-		v, err := strconv.ParseFloat(r[len(r)-1], 64)
-		if err != nil {
-			v = math.NaN()
-		}
-		y = append(y, v)
-	}
-	return y
-}
+// The series are those of R 4.2.2 `datasets`, exported to
+// testdata/datasets/NAME.csv by testdata/r/arima_refs.R (NA = missing) and
+// read with refdata.Dataset.
 
 // rRef is one case of testdata/r/arima_refs.json (R 4.2.2 stats::arima,
 // method "ML").
@@ -52,14 +28,8 @@ type rRef struct {
 
 func loadRefs(t *testing.T) map[string]rRef {
 	t.Helper()
-	raw, err := os.ReadFile(filepath.Join("..", "..", "testdata", "r", "arima_refs.json"))
-	if err != nil {
-		t.Fatal(err)
-	}
 	var doc struct{ Cases []rRef }
-	if err := json.Unmarshal(raw, &doc); err != nil {
-		t.Fatal(err)
-	}
+	refdata.JSON(t, "r/arima_refs.json", &doc)
 	m := map[string]rRef{}
 	for _, c := range doc.Cases {
 		m[c.ID] = c
@@ -87,7 +57,7 @@ func TestFixedModelMatchesR(t *testing.T) {
 		{"WWWusage_111", "ARIMA(1,1,1)", 0, 2},
 	} {
 		ref := refs[tc.id]
-		y := loadSeries(t, ref.Data)
+		y := refdata.Dataset(t, ref.Data)
 		c, err := Select(y, Options{Period: tc.period, Transform: "none", Model: tc.model})
 		if err != nil {
 			t.Fatalf("%s: %v", tc.id, err)
@@ -114,7 +84,7 @@ func TestFixedModelMatchesR(t *testing.T) {
 // (REFERENCES.md).
 func TestRawAICcJacobian(t *testing.T) {
 	refs := loadRefs(t)
-	y := loadSeries(t, "AirPassengers")
+	y := refdata.Dataset(t, "AirPassengers")
 	c, err := Select(y, Options{Period: 12, Transform: "log", Model: "ARIMA(0,1,1)(0,1,1)[12]"})
 	if err != nil {
 		t.Fatal(err)
@@ -140,7 +110,7 @@ func TestRawAICcJacobian(t *testing.T) {
 // transform choice leaves the raw scale for AirPassengers, whose seasonal
 // swings grow with the level (Box & Jenkins 1976, Series G, model the log).
 func TestAirPassengersNotRaw(t *testing.T) {
-	y := loadSeries(t, "AirPassengers")
+	y := refdata.Dataset(t, "AirPassengers")
 	c, err := Select(y, Options{Period: 12, Transform: "auto", Model: "ARIMA(0,1,1)(0,1,1)[12]"})
 	if err != nil {
 		t.Fatal(err)
@@ -290,7 +260,7 @@ func TestStepwiseOnKnownModels(t *testing.T) {
 
 // TestDeterministic: the same data give the same choice, fit for fit.
 func TestDeterministic(t *testing.T) {
-	y := loadSeries(t, "USAccDeaths")
+	y := refdata.Dataset(t, "USAccDeaths")
 	a, err := Select(y, Options{Period: 12})
 	if err != nil {
 		t.Fatal(err)
@@ -313,7 +283,7 @@ func TestDeterministic(t *testing.T) {
 // TestWarm: a warm refit from the cold choice keeps the order and the
 // likelihood, with at most five fits.
 func TestWarm(t *testing.T) {
-	y := loadSeries(t, "USAccDeaths")
+	y := refdata.Dataset(t, "USAccDeaths")
 	cold, err := Select(y, Options{Period: 12})
 	if err != nil {
 		t.Fatal(err)
@@ -399,7 +369,7 @@ func TestConcaveGrowth(t *testing.T) {
 }
 
 func TestErrors(t *testing.T) {
-	y := loadSeries(t, "Nile")
+	y := refdata.Dataset(t, "Nile")
 	neg := append([]float64(nil), y...)
 	neg[3] = -5
 	cases := []struct {
@@ -476,7 +446,7 @@ func TestScaledExpCandidate(t *testing.T) {
 // (testdata/r/arima_refs.R) still gets seasonal and first differences
 // (D = 1 and d = 1, as the airline model of Box & Jenkins 1976, Series G).
 func TestMissingValues(t *testing.T) {
-	y := loadSeries(t, "AirPassengers_na")
+	y := refdata.Dataset(t, "AirPassengers_na")
 	c, err := Select(y, Options{Period: 12})
 	if err != nil {
 		t.Fatal(err)

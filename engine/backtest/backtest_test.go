@@ -1,43 +1,19 @@
 package backtest
 
 import (
-	"encoding/csv"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"math"
-	"os"
-	"path/filepath"
-	"strconv"
 	"testing"
 
 	"gonum.org/v1/gonum/stat"
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"forewarn/engine/internal/refdata"
 )
 
-// loadSeries reads testdata/datasets/NAME.csv (header time,value; NA = missing),
-// written from R 4.2.2 `datasets`.
-func loadSeries(t *testing.T, name string) []float64 {
-	t.Helper()
-	f, err := os.Open(filepath.Join("..", "..", "testdata", "datasets", name+".csv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	y := make([]float64, 0, len(rows)-1)
-	for _, r := range rows[1:] {
-		v, err := strconv.ParseFloat(r[len(r)-1], 64)
-		if err != nil {
-			v = math.NaN()
-		}
-		y = append(y, v)
-	}
-	return y
-}
+// The series are those of R 4.2.2 `datasets` in testdata/datasets/NAME.csv
+// (header time,value; NA = missing), read with refdata.Dataset.
 
 // meanForecaster is the forecaster of testdata/backtest/backtest_refs.R: the
 // training mean, with the normal-sample prediction interval
@@ -82,10 +58,6 @@ func naiveForecaster(m int) Forecaster {
 // TestRunAgainstR checks every score against an independent implementation
 // in R 4.2.2 (testdata/backtest/backtest_refs.R → backtest_refs.json).
 func TestRunAgainstR(t *testing.T) {
-	raw, err := os.ReadFile(filepath.Join("..", "..", "testdata", "backtest", "backtest_refs.json"))
-	if err != nil {
-		t.Fatal(err)
-	}
 	var refs struct {
 		Cases []struct {
 			Name                     string
@@ -96,12 +68,10 @@ func TestRunAgainstR(t *testing.T) {
 			BaselineSMAPE            float64 `json:"baseline_smape"`
 		}
 	}
-	if err := json.Unmarshal(raw, &refs); err != nil {
-		t.Fatal(err)
-	}
+	refdata.JSON(t, "backtest/backtest_refs.json", &refs)
 	const tol = 1e-12 // relative; same arithmetic, different summation order
 	for _, c := range refs.Cases {
-		y := loadSeries(t, c.Name)
+		y := refdata.Dataset(t, c.Name)
 		r, err := Run(y, Options{Horizon: c.Horizon, Origins: c.Origins, Period: c.Period}, meanForecaster, nil)
 		if err != nil {
 			t.Fatalf("%s: %v", c.Name, err)
@@ -126,7 +96,7 @@ func TestRunAgainstR(t *testing.T) {
 // TestSeasonalNaiveEqualsBaseline: a forecaster that is the seasonal-naive
 // method must score exactly as the baseline (a property of the definitions).
 func TestSeasonalNaiveEqualsBaseline(t *testing.T) {
-	y := loadSeries(t, "ldeaths_na") // R `ldeaths` with NA holes (testdata/r/arima_refs.R)
+	y := refdata.Dataset(t, "ldeaths_na") // R `ldeaths` with NA holes (testdata/r/arima_refs.R)
 	r, err := Run(y, Options{Horizon: 12, Origins: 12, Period: 12}, naiveForecaster(12), nil)
 	if err != nil {
 		t.Fatal(err)
@@ -160,7 +130,7 @@ func TestSeasonalNaive(t *testing.T) {
 }
 
 func TestRunErrors(t *testing.T) {
-	y := loadSeries(t, "Nile")
+	y := refdata.Dataset(t, "Nile")
 	cases := []struct {
 		o    Options
 		want error

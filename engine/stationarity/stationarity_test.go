@@ -1,51 +1,18 @@
 package stationarity
 
 import (
-	"encoding/csv"
-	"encoding/json"
 	"errors"
 	"math"
 	"math/rand/v2"
-	"os"
-	"path/filepath"
-	"strconv"
 	"testing"
+
+	"forewarn/engine/internal/refdata"
 )
 
-// loadDataset reads testdata/datasets/NAME.csv (R 4.2.2 `datasets`, exported by
-// testdata/r/stationarity_datasets.R); NA becomes NaN.
-func loadDataset(t testing.TB, name string) []float64 {
-	t.Helper()
-	f, err := os.Open(filepath.Join("..", "..", "testdata", "datasets", name+".csv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	x := make([]float64, 0, len(rows)-1)
-	for _, r := range rows[1:] {
-		v, err := strconv.ParseFloat(r[1], 64)
-		if err != nil {
-			v = math.NaN()
-		}
-		x = append(x, v)
-	}
-	return x
-}
-
-func loadJSON(t *testing.T, path string, v any) {
-	t.Helper()
-	b, err := os.ReadFile(filepath.Join("..", "..", "testdata", path))
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := json.Unmarshal(b, v); err != nil {
-		t.Fatal(err)
-	}
-}
+// The series are those of R 4.2.2 `datasets`, exported to
+// testdata/datasets/NAME.csv by testdata/r/stationarity_datasets.R (NA becomes
+// NaN) and read with refdata.Dataset; reference values are read with
+// refdata.JSON.
 
 // series returns the named case of testdata/py/stationarity_refs.py.
 func series(t *testing.T, name string, takeLog bool) []float64 {
@@ -53,7 +20,7 @@ func series(t *testing.T, name string, takeLog bool) []float64 {
 	if takeLog {
 		file = "AirPassengers"
 	}
-	x := loadDataset(t, file)
+	x := refdata.Dataset(t, file)
 	if takeLog {
 		for i := range x {
 			x[i] = math.Log(x[i])
@@ -108,7 +75,7 @@ type pyRefs struct {
 
 func loadPyRefs(t *testing.T) pyRefs {
 	var r pyRefs
-	loadJSON(t, "py/stationarity_refs.json", &r)
+	refdata.JSON(t, "py/stationarity_refs.json", &r)
 	if len(r.ADF) == 0 || len(r.KPSS) == 0 {
 		t.Fatal("no reference cases")
 	}
@@ -194,8 +161,8 @@ func TestKPSSStatsmodels(t *testing.T) {
 		}
 	}
 	// Table 1 of Kwiatkowski et al. (1992), as printed.
-	lv, _ := KPSS(loadDataset(t, "Nile"), Constant, 4)
-	tr, _ := KPSS(loadDataset(t, "Nile"), Trend, 4)
+	lv, _ := KPSS(refdata.Dataset(t, "Nile"), Constant, 4)
+	tr, _ := KPSS(refdata.Dataset(t, "Nile"), Trend, 4)
 	if lv.Crit10 != 0.347 || lv.Crit5 != 0.463 || lv.Crit2_5 != 0.574 || lv.Crit1 != 0.739 ||
 		tr.Crit10 != 0.119 || tr.Crit5 != 0.146 || tr.Crit2_5 != 0.176 || tr.Crit1 != 0.216 {
 		t.Errorf("critical values %+v %+v", lv, tr)
@@ -214,7 +181,7 @@ func TestLjungBoxR(t *testing.T) {
 			X              []*float64
 		}
 	}
-	loadJSON(t, "r/boxtest.json", &refs)
+	refdata.JSON(t, "r/boxtest.json", &refs)
 	if len(refs.Cases) == 0 {
 		t.Fatal("no cases")
 	}
@@ -246,12 +213,12 @@ func TestSeasonalStrengthR(t *testing.T) {
 			Strength float64
 		}
 	}
-	loadJSON(t, "r/seasonal_strength.json", &refs)
+	refdata.JSON(t, "r/seasonal_strength.json", &refs)
 	inputs := map[string][]float64{
 		"log(AirPassengers)": series(t, "AirPassengers", true),
-		"AirPassengers":      loadDataset(t, "AirPassengers"),
-		"USAccDeaths":        loadDataset(t, "USAccDeaths"),
-		"austres":            loadDataset(t, "austres"),
+		"AirPassengers":      refdata.Dataset(t, "AirPassengers"),
+		"USAccDeaths":        refdata.Dataset(t, "USAccDeaths"),
+		"austres":            refdata.Dataset(t, "austres"),
 	}
 	for _, c := range refs.Cases {
 		x, ok := inputs[c.Name]
@@ -322,8 +289,8 @@ func TestNSDiffs(t *testing.T) {
 		want int
 	}{
 		{"log AirPassengers", series(t, "AirPassengers", true), 12, 1},
-		{"USAccDeaths", loadDataset(t, "USAccDeaths"), 12, 1},
-		{"austres", loadDataset(t, "austres"), 4, 0},
+		{"USAccDeaths", refdata.Dataset(t, "USAccDeaths"), 12, 1},
+		{"austres", refdata.Dataset(t, "austres"), 4, 0},
 	} {
 		if d, err := NSDiffs(c.x, c.s, 1); err != nil || d != c.want {
 			t.Errorf("%s: D = %d, %v; want %d", c.name, d, err, c.want)
@@ -332,7 +299,7 @@ func TestNSDiffs(t *testing.T) {
 }
 
 func TestBadInput(t *testing.T) {
-	nile := loadDataset(t, "Nile")
+	nile := refdata.Dataset(t, "Nile")
 	withNaN := append([]float64{math.NaN()}, nile...)
 	if _, err := ADF(withNaN, 1, Constant); !errors.Is(err, ErrMissing) {
 		t.Errorf("ADF NaN: %v", err)

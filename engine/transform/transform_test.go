@@ -1,43 +1,21 @@
 package transform
 
 import (
-	"encoding/csv"
 	"errors"
 	"math"
 	"math/rand/v2"
-	"os"
-	"path/filepath"
-	"strconv"
 	"testing"
 
 	"gonum.org/v1/gonum/integrate/quad"
 	"gonum.org/v1/gonum/stat"
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"forewarn/engine/internal/refdata"
 )
 
-// loadDataset reads testdata/datasets/NAME.csv (exported from R 4.2.2 `datasets` by
-// testdata/r/stationarity_datasets.R); NA becomes NaN.
-func loadDataset(t *testing.T, name string) []float64 {
-	t.Helper()
-	f, err := os.Open(filepath.Join("..", "..", "testdata", "datasets", name+".csv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	x := make([]float64, 0, len(rows)-1)
-	for _, r := range rows[1:] {
-		v, err := strconv.ParseFloat(r[1], 64)
-		if err != nil {
-			v = math.NaN()
-		}
-		x = append(x, v)
-	}
-	return x
-}
+// The series are those of R 4.2.2 `datasets`, exported to
+// testdata/datasets/NAME.csv by testdata/r/stationarity_datasets.R (NA becomes
+// NaN) and read with refdata.Dataset.
 
 func TestParseString(t *testing.T) {
 	for _, s := range []string{"none", "log", "boxcox", "boxcox(0.3)", "boxcox(-1)", "boxcox(0)", "boxcox(0.1234567890123)", "scaled-exp"} {
@@ -355,7 +333,7 @@ func monteCarloMean(rng *rand.Rand, tr Transform, m, v float64, n int) (mean, se
 // raw scale the two fits are the same model, so loglik + LogJacobian agree, and the Jacobians
 // differ by exactly n·log(ln 10) ≈ 109.26.
 func TestLogJacobianLog10Airline(t *testing.T) {
-	x := loadDataset(t, "AirPassengers")[13:] // the 131 observations in the likelihood
+	x := refdata.Dataset(t, "AirPassengers")[13:] // the 131 observations in the likelihood
 	if len(x) != 131 {
 		t.Fatalf("len = %d", len(x))
 	}
@@ -444,7 +422,7 @@ func TestGuerreroErrors(t *testing.T) {
 	}
 	// AirPassengers (R 4.2.2 `datasets`), monthly: the variance grows with the level, so λ
 	// lies well below 1.
-	lambda, err := Guerrero(loadDataset(t, "AirPassengers"), 12, -1, 2)
+	lambda, err := Guerrero(refdata.Dataset(t, "AirPassengers"), 12, -1, 2)
 	if err != nil || lambda < -1 || lambda > 0.5 {
 		t.Errorf("AirPassengers λ = %v, %v", lambda, err)
 	}
