@@ -6,13 +6,11 @@ import (
 	"flag"
 	"fmt"
 	"io"
-	"math"
 	"os"
 	"strconv"
 	"strings"
 
 	"golang.org/x/term"
-	"gonum.org/v1/gonum/stat/distuv"
 
 	"forewarn/engine/arima"
 	"forewarn/engine/auto"
@@ -186,7 +184,7 @@ func (c *btConfig) forecaster() backtest.Forecaster {
 		if err != nil {
 			return backtest.Forecast{}, err
 		}
-		return rawForecast(ch, train, h, levels)
+		return originForecast(ch, train, h, levels)
 	}
 }
 
@@ -196,11 +194,10 @@ func (c *btConfig) choose(train []float64) (*auto.Choice, error) {
 	return auto.Select(train, c.sel)
 }
 
-// rawForecast runs the chosen model's filter over train and forecasts h
-// steps: the mean is the bias-adjusted back-transformed mean, the bands
-// the model-scale bands w ± z·se mapped through the monotone inverse (an
-// end outside the inverse's domain is NaN: unbounded).
-func rawForecast(ch *auto.Choice, train []float64, h int, levels []float64) (backtest.Forecast, error) {
+// originForecast runs the chosen model's filter over train and forecasts h
+// steps in raw units (toRawUnits: the bias-adjusted mean, the bands mapped
+// through the monotone inverse, NaN for an unbounded end).
+func originForecast(ch *auto.Choice, train []float64, h int, levels []float64) (backtest.Forecast, error) {
 	flt, err := arima.NewFilter(ch.Result.Model, h)
 	if err != nil {
 		return backtest.Forecast{}, err
@@ -212,37 +209,8 @@ func rawForecast(ch *auto.Choice, train []float64, h int, levels []float64) (bac
 	flt.Steps(w)
 	mean, variance := make([]float64, h), make([]float64, h)
 	flt.Forecast(mean, variance)
-	fc := backtest.Forecast{Mean: make([]float64, h)}
-	for j := range mean {
-		if v, ok := ch.Transform.Mean(mean[j], variance[j]); ok {
-			fc.Mean[j] = v
-		} else {
-			fc.Mean[j] = math.NaN()
-		}
-	}
-	tr := ch.Transform
-	for _, l := range levels {
-		z := distuv.UnitNormal.Quantile(0.5 + l/200)
-		lo, hi := make([]float64, h), make([]float64, h)
-		for j := range mean {
-			se := math.Sqrt(variance[j])
-			a, b := invOrNaN(tr.Inverse(mean[j]-z*se)), invOrNaN(tr.Inverse(mean[j]+z*se))
-			if !tr.Increasing() {
-				a, b = b, a
-			}
-			lo[j], hi[j] = a, b
-		}
-		fc.Lower = append(fc.Lower, lo)
-		fc.Upper = append(fc.Upper, hi)
-	}
-	return fc, nil
-}
-
-func invOrNaN(x float64, ok bool) float64 {
-	if !ok {
-		return math.NaN()
-	}
-	return x
+	raw := toRawUnits(ch.Transform, mean, variance, levels)
+	return backtest.Forecast{Mean: raw.Mean, Lower: raw.Lower, Upper: raw.Upper}, nil
 }
 
 func isTerminal(w io.Writer) bool {

@@ -13,8 +13,6 @@ import (
 	"strings"
 	"text/tabwriter"
 
-	"gonum.org/v1/gonum/stat/distuv"
-
 	"forewarn/engine/arima"
 	"forewarn/engine/auto"
 	"forewarn/engine/transform"
@@ -474,14 +472,8 @@ type fitCandidate struct {
 
 // buildFitOutput assembles the JSON document from the fit and the
 // model-scale forecast N(mean[h], variance[h]) (CONTRACT.md §3): se stays
-// on the model scale; in raw units, with g the transform,
-//
-//	mean         = E g⁻¹(W), bias-adjusted (transform.Transform.Mean)
-//	median       = g⁻¹(mean[h])
-//	lower, upper = g⁻¹(mean[h] ∓ z·se),  z = Φ⁻¹(½ + level/200)
-//
-// exact because g⁻¹ is monotone (endpoints swap for a decreasing one). A
-// value outside the inverse's domain is NaN, printed as null.
+// on the model scale; mean, median and bands are in raw units (toRawUnits),
+// a value outside the inverse's domain printed as null.
 func buildFitOutput(res *arima.Result, tr transform.Transform, mean, variance, levels []float64) *fitOutput {
 	m := res.Model
 	s := m.Spec
@@ -514,20 +506,15 @@ func buildFitOutput(res *arima.Result, tr transform.Transform, mean, variance, l
 		v := jsonFloat(m.Drift)
 		out.Coef.Drift = &v
 	}
+	raw := toRawUnits(tr, mean, variance, levels)
 	for h := range mean {
-		se := math.Sqrt(variance[h])
 		fc := fitForecast{H: h + 1,
-			Mean:   jsonFloat(invOrNaN(tr.Mean(mean[h], variance[h]))),
-			Median: jsonFloat(invOrNaN(tr.Median(mean[h]))),
-			SE:     jsonFloat(se),
+			Mean:   jsonFloat(raw.Mean[h]),
+			Median: jsonFloat(raw.Median[h]),
+			SE:     jsonFloat(math.Sqrt(variance[h])),
 			Lower:  map[string]jsonFloat{}, Upper: map[string]jsonFloat{}}
-		for _, l := range levels {
-			z := distuv.UnitNormal.Quantile(0.5 + l/200)
-			lo, hi := invOrNaN(tr.Inverse(mean[h]-z*se)), invOrNaN(tr.Inverse(mean[h]+z*se))
-			if !tr.Increasing() {
-				lo, hi = hi, lo
-			}
-			fc.Lower[levelKey(l)], fc.Upper[levelKey(l)] = jsonFloat(lo), jsonFloat(hi)
+		for i, l := range levels {
+			fc.Lower[levelKey(l)], fc.Upper[levelKey(l)] = jsonFloat(raw.Lower[i][h]), jsonFloat(raw.Upper[i][h])
 		}
 		out.Forecast = append(out.Forecast, fc)
 	}
