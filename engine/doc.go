@@ -13,6 +13,9 @@
 //   - engine/series: the state machine of one metric series.
 //
 // Every subpackage works on plain values (float64 slices, times, small
-// structs), performs no I/O, starts no goroutine, and imports neither
-// stream nor state.
+// structs), performs no I/O, starts no goroutine of its own, and imports
+// neither stream nor state. Two caveats: gonum/optimize, which the ARIMA
+// fit uses, runs its evaluations on goroutines it owns for the duration of
+// one Minimize call; and engine/internal/refdata, support for tests only,
+// reads the committed reference files under testdata/.
 package engine
