@@ -6,11 +6,14 @@ import (
 	"io"
 	"log/slog"
 	"math/rand/v2"
+	"os"
 	"runtime"
+	"runtime/pprof"
 	"strconv"
 	"testing"
 	"time"
 
+	"github.com/nats-io/nats-server/v2/server"
 	"github.com/nats-io/nats.go"
 	"github.com/prometheus/client_golang/prometheus"
 	dto "github.com/prometheus/client_model/go"
@@ -41,6 +44,8 @@ type rigOptions struct {
 	noSync  bool // state.NoSync(): no fsync per flush
 	alert   bool // one rule far from every threshold, matching every series
 	window  int  // buckets kept; 0: the config default (2000)
+	// flushMax is state.flush_max; 0: the config default (5000 messages).
+	flushMax int
 }
 
 // rig is an in-process bus, a state store under a temporary directory and
@@ -48,6 +53,7 @@ type rigOptions struct {
 // walks (seeded) that the benchmarks turn into observation messages.
 type rig struct {
 	tb   testing.TB
+	srv  *server.Server
 	url  string
 	d    *Daemon
 	cfg  *config.Config
@@ -55,7 +61,9 @@ type rig struct {
 	opts rigOptions
 
 	subjects []string  // metrics.bench.sNNNNN
-	level    []float64 // random-walk level per series
+	level    []float64 // level per series
+	diff     []float64 // last first difference per series
+	shock    []float64 // last innovation per series
 	rng      *rand.Rand
 	t0       int64 // unix seconds of bucket 0 (a multiple of the step)
 	next     int64 // first bucket not yet used by any series
@@ -83,13 +91,16 @@ func newRigConfig(tb testing.TB, o rigOptions) *rig {
 	if o.series == 0 {
 		o.series = rigSeries
 	}
-	_, url := streamtest.RunServer(tb)
+	srv, url := streamtest.RunServer(tb)
 	pub := streamtest.Connect(tb, url)
 
 	cfg := config.Default()
 	cfg.State.Dir = tb.TempDir()
 	cfg.HTTP.Listen = ""
 	cfg.Intake.Durable = o.durable
+	if o.flushMax > 0 {
+		cfg.State.FlushMax = o.flushMax
+	}
 	cfg.Limits.MaxSeries = max(cfg.Limits.MaxSeries, o.series)
 	cfg.Series = []config.Series{{
 		Match: "bench.>", Step: rigStep, Horizon: rigHorizon, Window: o.window,
@@ -105,7 +116,7 @@ func newRigConfig(tb testing.TB, o rigOptions) *rig {
 	if err := cfg.Validate(); err != nil {
 		tb.Fatal(err)
 	}
-	r := &rig{tb: tb, url: url, cfg: cfg, pub: pub, opts: o,
+	r := &rig{tb: tb, srv: srv, url: url, cfg: cfg, pub: pub, opts: o,
 		rng: rand.New(rand.NewPCG(20240611, 4))}
 	step := int64(rigStep / time.Second)
 	// Data time starts 12 h back, well inside limits.max_past, so that
@@ -113,6 +124,8 @@ func newRigConfig(tb testing.TB, o rigOptions) *rig {
 	r.t0 = (time.Now().Add(-12*time.Hour).Unix() / step) * step
 	r.subjects = make([]string, o.series)
 	r.level = make([]float64, o.series)
+	r.diff = make([]float64, o.series)
+	r.shock = make([]float64, o.series)
 	for i := range r.subjects {
 		r.subjects[i] = "metrics." + rigTopic(i)
 		r.level[i] = 1000 + float64(i%97)
@@ -154,16 +167,39 @@ func (r *rig) start(nc *nats.Conn, store *state.Store) {
 		tb.Fatal("daemon not ready within 60s")
 	}
 	r.d = d
+	// Ready does not wait for the plain intake's subscriptions to reach
+	// the server: a message published before that is lost. Wait until the
+	// server routes the intake subjects somewhere.
+	streamtest.Eventually(tb, 10*time.Second, "intake subscribed", func() bool {
+		sz, err := r.srv.Subsz(&server.SubszOptions{Subscriptions: true, Test: r.subjects[0]})
+		return err == nil && len(sz.Subs) > 0
+	})
+}
+
+// stepLevel moves series i one step along an ARIMA(1,1,1) path,
+//
+//	Δx_t = φ·Δx_{t−1} + ε_t + θ·ε_{t−1},  φ = 0.6, θ = 0.3, ε_t ~ N(0, 1),
+//
+// so that the benchmark's fixed model fits the data it sees.
+func (r *rig) stepLevel(i int) float64 {
+	e := r.rng.NormFloat64()
+	r.diff[i] = 0.6*r.diff[i] + e + 0.3*r.shock[i]
+	r.shock[i] = e
+	r.level[i] += r.diff[i]
+	return r.level[i]
 }
 
 // appendObs appends one observation of series i at unix time t (seconds)
-// as {"time":T,"value":V}, stepping the series' random walk.
+// as {"time":T,"value":V}, stepping the series' path.
 func (r *rig) appendObs(dst []byte, i int, t int64) []byte {
-	r.level[i] += r.rng.NormFloat64()
+	return r.appendValue(dst, t, r.stepLevel(i))
+}
+
+func (r *rig) appendValue(dst []byte, t int64, v float64) []byte {
 	dst = append(dst, `{"time":`...)
 	dst = strconv.AppendInt(dst, t, 10)
 	dst = append(dst, `,"value":`...)
-	dst = strconv.AppendFloat(dst, r.level[i], 'f', 3, 64)
+	dst = strconv.AppendFloat(dst, v, 'f', 3, 64)
 	return append(dst, '}')
 }
 
@@ -174,14 +210,30 @@ func (r *rig) warm() {
 	tb := r.tb
 	tb.Helper()
 	step := int64(rigStep / time.Second)
+	// Every series gets the same warm-up path (offset by its own level),
+	// one on which the first fit succeeds: on 20 points of an ARIMA(1,1,1)
+	// path, maximum likelihood puts the MA root on the unit circle for
+	// about one series in twelve, and such a series would stay warming up
+	// until its next refit point, after the timed part.
+	path := make([]float64, rigMinPoints+1)
+	base0 := r.level[0]
+	for k := range path {
+		path[k] = r.stepLevel(0) - base0
+	}
+	r.level[0] = base0
 	var buf []byte
 	for i, subj := range r.subjects {
+		base := r.level[i]
 		buf = append(buf[:0], '[')
 		for k := int64(0); k <= rigMinPoints; k++ {
 			if k > 0 {
 				buf = append(buf, ',')
 			}
-			buf = r.appendObs(buf, i, r.t0+k*step)
+			r.level[i] = base + path[k]
+			buf = r.appendValue(buf, r.t0+k*step, r.level[i])
+		}
+		if i > 0 {
+			r.diff[i], r.shock[i] = r.diff[0], r.shock[0]
 		}
 		buf = append(buf, ']')
 		if err := r.pub.Publish(subj, buf); err != nil {
@@ -194,9 +246,15 @@ func (r *rig) warm() {
 	// Bucket rigMinPoints is open in every series.
 	r.next = rigMinPoints
 	n := float64(len(r.subjects))
-	streamtest.Eventually(tb, 120*time.Second, "every series fitted and published", func() bool {
-		return counterValue(r.d.metrics.Published) >= n
-	})
+	deadline := time.Now().Add(120 * time.Second)
+	for counterValue(r.d.metrics.Published) < n {
+		if time.Now().After(deadline) {
+			m := r.d.metrics
+			tb.Fatalf("warm-up not done within 120s: %v of %v series published; accepted %v, rejected %v, refits %v, failed refits %v",
+				counterValue(m.Published), n, counterValue(m.Accepted), r.rejected(), counterValue(m.Refits), counterValue(m.RefitFailures))
+		}
+		time.Sleep(2 * time.Millisecond)
+	}
 	fitted := 0
 	if !r.d.Inspect(context.Background(), func(all map[string]*Entry) {
 		for _, e := range all {
@@ -316,4 +374,25 @@ func waitUntil(tb testing.TB, timeout time.Duration, what string, cond func() bo
 		time.Sleep(200 * time.Microsecond)
 	}
 	return time.Now()
+}
+
+// profileTimed starts a CPU profile of the timed part of a benchmark when
+// FOREWARN_BENCH_CPUPROFILE names a file (the -cpuprofile flag would
+// also profile the warm-up's 10 000 fits); the returned function stops it.
+func profileTimed(tb testing.TB) func() {
+	path := os.Getenv("FOREWARN_BENCH_CPUPROFILE")
+	if path == "" {
+		return func() {}
+	}
+	f, err := os.Create(path)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	if err := pprof.StartCPUProfile(f); err != nil {
+		tb.Fatal(err)
+	}
+	return func() {
+		pprof.StopCPUProfile()
+		f.Close()
+	}
 }
