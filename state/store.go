@@ -6,6 +6,7 @@ import (
 	"io/fs"
 	"os"
 	"path/filepath"
+	"slices"
 	"sync"
 	"time"
 
@@ -65,9 +66,9 @@ type Store struct {
 	path     string
 	readOnly bool
 
-	mu    sync.Mutex // guards arena and keys between Saves
-	arena []byte     // encode buffer reused by Save
-	keys  []int      // record boundaries in arena during one Save
+	mu     sync.Mutex // serialises Commits
+	saveMu sync.Mutex // guards batch between Saves
+	batch  Batch      // reused by Save
 
 	closeOnce sync.Once
 	closeErr  error
@@ -250,58 +251,81 @@ func (s *Store) LoadAll(fn func(topic string, s *series.Snapshot, err error) err
 	return nil
 }
 
-// Save writes every snapshot of batch in one read-write transaction, keyed
-// by its topic: the whole batch is committed (and, by default, fsynced)
-// or none of it is. A later entry for the same topic wins. The records are
-// encoded into one buffer that the Store keeps for the next Save, so a
-// steady flush allocates nothing for encoding; the buffer keeps the size
-// of the largest batch.
-func (s *Store) Save(batch []*series.Snapshot) error {
+// Batch is a set of encoded records ready to be committed together. The
+// daemon fills one on its loop goroutine (Add copies the snapshot into the
+// batch's own bytes, so the series may change at once) and commits it on
+// another (Commit). A Batch is reused after Reset; its buffer keeps the
+// size of the largest batch, so a steady flush allocates nothing. A Batch
+// is not safe for concurrent use.
+type Batch struct {
+	buf  []byte
+	ends []int // per record: end of its key, end of its value
+}
+
+// Reset empties the batch, keeping its buffer.
+func (b *Batch) Reset() { b.buf, b.ends = b.buf[:0], b.ends[:0] }
+
+// Len returns the number of records in the batch.
+func (b *Batch) Len() int { return len(b.ends) / 2 }
+
+// Add encodes snap into the batch under its topic. A later record for the
+// same topic wins at Commit.
+func (b *Batch) Add(snap *series.Snapshot) error {
+	switch {
+	case snap == nil:
+		return fmt.Errorf("%w: save: nil snapshot", ErrInvalid)
+	case snap.Topic == "":
+		return fmt.Errorf("%w: save: empty topic", ErrInvalid)
+	case len(snap.Topic) > bolt.MaxKeySize:
+		return fmt.Errorf("%w: save: topic of %d bytes (at most %d)", ErrTooLarge, len(snap.Topic), bolt.MaxKeySize)
+	}
+	n := EncodedLen(snap)
+	if n > maxRecordLen {
+		return fmt.Errorf("%w: save %q: %d bytes (at most %d)", ErrTooLarge, snap.Topic, n, maxRecordLen)
+	}
+	b.buf = slices.Grow(b.buf, len(snap.Topic)+n)
+	b.buf = append(b.buf, snap.Topic...)
+	b.ends = append(b.ends, len(b.buf))
+	b.buf = Encode(b.buf, snap)
+	b.ends = append(b.ends, len(b.buf))
+	return nil
+}
+
+// Commit writes every record of b in one read-write transaction: the whole
+// batch is committed (and, by default, fsynced) or none of it is. b must
+// not change until Commit returns.
+func (s *Store) Commit(b *Batch) error {
 	s.mu.Lock()
 	defer s.mu.Unlock()
-	total := 0
-	for i, snap := range batch {
-		if snap == nil {
-			return fmt.Errorf("%w: save: batch[%d] is nil", ErrInvalid, i)
-		}
-		if snap.Topic == "" {
-			return fmt.Errorf("%w: save: batch[%d] has an empty topic", ErrInvalid, i)
-		}
-		if len(snap.Topic) > bolt.MaxKeySize {
-			return fmt.Errorf("%w: save: topic of %d bytes (at most %d)", ErrTooLarge, len(snap.Topic), bolt.MaxKeySize)
-		}
-		n := EncodedLen(snap)
-		if n > maxRecordLen {
-			return fmt.Errorf("%w: save %q: %d bytes (at most %d)", ErrTooLarge, snap.Topic, n, maxRecordLen)
-		}
-		total += n + len(snap.Topic)
-	}
-	// bbolt keeps a reference to each value until the commit, so every
-	// record needs its own bytes: size the arena once, then append.
-	if cap(s.arena) < total {
-		s.arena = make([]byte, 0, total)
-	}
-	buf := s.arena[:0]
-	s.keys = s.keys[:0]
-	for _, snap := range batch {
-		buf = append(buf, snap.Topic...)
-		s.keys = append(s.keys, len(buf))
-		buf = Encode(buf, snap)
-		s.keys = append(s.keys, len(buf))
-	}
 	err := s.db.Update(func(tx *bolt.Tx) error {
-		b := tx.Bucket(bucketSeries)
+		bk := tx.Bucket(bucketSeries)
 		start := 0
-		for i := 0; i < len(s.keys); i += 2 {
-			k, v := buf[start:s.keys[i]], buf[s.keys[i]:s.keys[i+1]]
-			if err := b.Put(k, v); err != nil {
+		for i := 0; i < len(b.ends); i += 2 {
+			k, v := b.buf[start:b.ends[i]], b.buf[b.ends[i]:b.ends[i+1]]
+			if err := bk.Put(k, v); err != nil {
 				return fmt.Errorf("state: save %q: %w", k, err)
 			}
-			start = s.keys[i+1]
+			start = b.ends[i+1]
 		}
 		return nil
 	})
 	return wrap("save", err)
+}
+
+// Save writes every snapshot of batch in one read-write transaction, keyed
+// by its topic: the whole batch is committed (and, by default, fsynced)
+// or none of it is. A later entry for the same topic wins. It is Add for
+// each snapshot into a Batch the Store keeps, then Commit.
+func (s *Store) Save(batch []*series.Snapshot) error {
+	s.saveMu.Lock()
+	defer s.saveMu.Unlock()
+	s.batch.Reset()
+	for i, snap := range batch {
+		if err := s.batch.Add(snap); err != nil {
+			return fmt.Errorf("%w (batch[%d])", err, i)
+		}
+	}
+	return s.Commit(&s.batch)
 }
 
 // Delete removes the record of topic. Deleting a topic without a record is

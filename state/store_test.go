@@ -371,3 +371,41 @@ func BenchmarkSave(b *testing.B) {
 		})
 	}
 }
+
+// A Batch holds its own copy of each record: a snapshot changed after Add
+// does not change what Commit writes, and a reset Batch can be refilled.
+func TestBatchCopiesAtAdd(t *testing.T) {
+	s := openTest(t)
+	var b Batch
+	snap := &series.Snapshot{Topic: "shop.orders", Kind: "counter", StepSeconds: 60, Seq: 7, Window: []float64{1, 2, 3}}
+	if err := b.Add(snap); err != nil {
+		t.Fatal(err)
+	}
+	snap.Seq, snap.Window[0] = 8, 99 // the series moves on before the commit
+	if err := s.Commit(&b); err != nil {
+		t.Fatal(err)
+	}
+	got, err := s.Load("shop.orders")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got.Seq != 7 || got.Window[0] != 1 {
+		t.Fatalf("committed seq %d window[0] %g, want the values at Add (7, 1)", got.Seq, got.Window[0])
+	}
+	b.Reset()
+	if b.Len() != 0 {
+		t.Fatalf("Len after Reset = %d", b.Len())
+	}
+	if err := b.Add(snap); err != nil {
+		t.Fatal(err)
+	}
+	if err := s.Commit(&b); err != nil {
+		t.Fatal(err)
+	}
+	if got, _ := s.Load("shop.orders"); got.Seq != 8 {
+		t.Fatalf("second commit: seq %d, want 8", got.Seq)
+	}
+	if err := b.Add(&series.Snapshot{}); !errors.Is(err, ErrInvalid) {
+		t.Fatalf("empty topic: %v, want ErrInvalid", err)
+	}
+}

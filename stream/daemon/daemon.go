@@ -52,11 +52,13 @@ type Daemon struct {
 	limits  stream.Limits
 	metrics *Metrics
 
-	batches chan []stream.Message
-	handled chan struct{}
-	results chan fitDone
-	jobs    chan fitTask
-	inspect chan func()
+	batches   chan []stream.Message
+	handled   chan struct{}
+	results   chan fitDone
+	jobs      chan fitTask
+	inspect   chan func()
+	writes    chan writeJob  // loop → writer: commit d.batch
+	committed chan writeDone // writer → loop
 
 	// Loop-owned.
 	series    map[string]*entry
@@ -68,6 +70,8 @@ type Daemon struct {
 	encBuf    []byte
 	lastSeq   uint64 // highest stream position handled
 	acked     uint64
+	batch     state.Batch // records of the write in flight (owned by the writer while writing)
+	writing   bool
 	evaluator *alert.Evaluator
 	cov       []float64
 
@@ -108,6 +112,13 @@ type rule struct {
 type fitTask struct {
 	topic string
 	job   *series.FitJob
+}
+
+type writeJob struct{ floor uint64 }
+
+type writeDone struct {
+	floor uint64
+	err   error
 }
 
 type fitDone struct {
@@ -161,6 +172,8 @@ func New(o Options) (*Daemon, error) {
 		results:   make(chan fitDone, 64),
 		jobs:      make(chan fitTask),
 		inspect:   make(chan func()),
+		writes:    make(chan writeJob),
+		committed: make(chan writeDone, 1),
 		series:    make(map[string]*entry),
 		latest:    make(map[string][]byte),
 		evaluator: ev,
@@ -238,6 +251,11 @@ func (d *Daemon) Run(ctx context.Context) error {
 		wg.Wait()
 		return err
 	}
+	writerDone := make(chan struct{})
+	go func() {
+		defer close(writerDone)
+		d.writeLoop()
+	}()
 	defer sub.Unsubscribe()
 
 	intakeCtx, stopIntake := context.WithCancel(context.Background())
@@ -284,6 +302,8 @@ loop:
 			}
 		case r := <-d.results:
 			d.finishFit(r)
+		case w := <-d.committed:
+			d.written(w)
 		case <-tick.C:
 			d.closeIdle()
 			d.flush()
@@ -318,7 +338,9 @@ loop:
 	}
 	close(d.jobs)
 	wg.Wait()
-	d.flush()
+	d.syncFlush()
+	close(d.writes)
+	<-writerDone
 	d.pub.Flush()
 	return runErr
 }
@@ -698,41 +720,93 @@ func (d *Daemon) closeIdle() {
 	}
 }
 
-// flush writes every changed series in one transaction, then acknowledges
-// the stream up to the last position whose effect is now on disk: nothing
-// waiting on a refit may be acknowledged.
+// flush starts writing every changed series in one transaction on the
+// writer goroutine. The records are encoded here, on the loop, into the
+// daemon's one Batch, so the series carry on at once; the acknowledgement
+// waits for the commit (written). Only one write is in flight: a flush
+// asked for meanwhile is skipped, and the next trigger writes everything
+// that changed since.
 func (d *Daemon) flush() {
+	if d.writing {
+		return
+	}
 	d.sinceSave = 0
-	var batch []*series.Snapshot
-	for _, e := range d.series {
-		if e.dirty {
-			batch = append(batch, e.s.Snapshot())
+	d.batch.Reset()
+	for topic, e := range d.series {
+		if !e.dirty {
+			continue
 		}
-	}
-	if len(batch) > 0 {
-		if err := d.store.Save(batch); err != nil {
-			d.log.Error("state write failed; will retry at the next flush", "err", err)
+		if err := d.batch.Add(e.s.Snapshot()); err != nil {
+			d.log.Error("series state cannot be stored", "topic", topic, "err", err)
 			d.metrics.StateWriteFailures.Inc()
-			return
+			continue
 		}
-		for _, e := range d.series {
-			e.dirty = false
-		}
+		e.dirty = false
 	}
-	if size, err := d.store.Size(); err == nil {
-		d.metrics.StateBytes.Set(float64(size))
+	floor := d.ackFloor()
+	if d.batch.Len() == 0 {
+		d.ack(floor) // nothing new to store: every earlier write has committed
+		return
 	}
+	d.writing = true
+	d.writes <- writeJob{floor: floor}
+}
+
+// ackFloor is the last stream position whose effect is in memory with
+// nothing at or before it still waiting on a refit.
+func (d *Daemon) ackFloor() uint64 {
 	floor := d.lastSeq
 	for _, e := range d.series {
 		if len(e.pending) > 0 && e.pending[0].seq > 0 && e.pending[0].seq-1 < floor {
 			floor = e.pending[0].seq - 1
 		}
 	}
-	if floor > d.acked {
-		if err := d.intake.Ack(floor); err != nil {
-			d.log.Warn("acknowledgement failed; the stream will redeliver (no effect twice)", "seq", floor, "err", err)
-			return
+	return floor
+}
+
+// written finishes a write: acknowledge what it stored, or, when it
+// failed, mark every series changed so that the next flush writes them.
+func (d *Daemon) written(w writeDone) {
+	d.writing = false
+	if w.err != nil {
+		d.log.Error("state write failed; will retry at the next flush", "err", w.err)
+		d.metrics.StateWriteFailures.Inc()
+		for _, e := range d.series {
+			e.dirty = true
 		}
-		d.acked = floor
+		return
+	}
+	if size, err := d.store.Size(); err == nil {
+		d.metrics.StateBytes.Set(float64(size))
+	}
+	d.ack(w.floor)
+}
+
+func (d *Daemon) ack(floor uint64) {
+	if floor <= d.acked {
+		return
+	}
+	if err := d.intake.Ack(floor); err != nil {
+		d.log.Warn("acknowledgement failed; the stream will redeliver (no effect twice)", "seq", floor, "err", err)
+		return
+	}
+	d.acked = floor
+}
+
+// writeLoop commits batches for the loop, one at a time.
+func (d *Daemon) writeLoop() {
+	for j := range d.writes {
+		d.committed <- writeDone{floor: j.floor, err: d.store.Commit(&d.batch)}
+	}
+}
+
+// syncFlush writes everything and waits for it (shutdown).
+func (d *Daemon) syncFlush() {
+	if d.writing {
+		d.written(<-d.committed)
+	}
+	d.flush()
+	if d.writing {
+		d.written(<-d.committed)
 	}
 }
