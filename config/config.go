@@ -116,7 +116,8 @@ type State struct {
 	// transaction. Zero: 1s.
 	FlushInterval time.Duration
 	// FlushMax forces a write after this many applied messages, whichever
-	// of the two comes first. Zero: 5000.
+	// of the two comes first (a write already in flight defers it). It also
+	// bounds how many messages a crash makes the stream redeliver. Zero: 50000.
 	FlushMax int
 }
 
@@ -292,7 +293,7 @@ func Default() *Config {
 			MaxBytes: 1 << 30,
 		},
 		Output: Output{Prefix: "forewarn"},
-		State:  State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 5000},
+		State:  State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 50000},
 		HTTP:   HTTP{Listen: "127.0.0.1:8714"},
 		Log:    Log{Level: "info", Format: "auto"},
 		Limits: Limits{
