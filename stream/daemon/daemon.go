@@ -57,6 +57,8 @@ type Daemon struct {
 	results   chan fitDone
 	jobs      chan fitTask
 	inspect   chan func()
+	free      chan *slot     // empty forecast slots
+	out       chan *slot     // loop → encoder, in order
 	writes    chan writeJob  // loop → writer: commit d.batch
 	committed chan writeDone // writer → loop
 
@@ -113,6 +115,9 @@ type fitTask struct {
 	topic string
 	job   *series.FitJob
 }
+
+// outSlots bounds the forecasts waiting for the encoder.
+const outSlots = 1024
 
 type writeJob struct{ floor uint64 }
 
@@ -173,6 +178,8 @@ func New(o Options) (*Daemon, error) {
 		jobs:      make(chan fitTask),
 		inspect:   make(chan func()),
 		writes:    make(chan writeJob),
+		free:      make(chan *slot, outSlots),
+		out:       make(chan *slot, outSlots),
 		committed: make(chan writeDone, 1),
 		series:    make(map[string]*entry),
 		latest:    make(map[string][]byte),
@@ -189,13 +196,16 @@ func (d *Daemon) Metrics() *Metrics { return d.metrics }
 // Ready is closed once the state is loaded and intake runs.
 func (d *Daemon) Ready() <-chan struct{} { return d.ready }
 
-// Latest returns the latest forecast message of topic. Safe for
+// Latest returns a copy of the latest forecast message of topic. Safe for
 // concurrent use.
 func (d *Daemon) Latest(topic string) ([]byte, bool) {
 	d.mu.RLock()
+	defer d.mu.RUnlock()
 	b, ok := d.latest[topic]
-	d.mu.RUnlock()
-	return b, ok
+	if !ok {
+		return nil, false
+	}
+	return append([]byte(nil), b...), true // the encoder reuses b
 }
 
 // Inspect runs fn on the loop goroutine, where it may read (not keep) the
@@ -255,6 +265,14 @@ func (d *Daemon) Run(ctx context.Context) error {
 	go func() {
 		defer close(writerDone)
 		d.writeLoop()
+	}()
+	for range outSlots {
+		d.free <- new(slot)
+	}
+	encoderDone := make(chan struct{})
+	go func() {
+		defer close(encoderDone)
+		d.encodeLoop()
 	}()
 	defer sub.Unsubscribe()
 
@@ -338,6 +356,8 @@ loop:
 	}
 	close(d.jobs)
 	wg.Wait()
+	close(d.out)
+	<-encoderDone
 	d.syncFlush()
 	close(d.writes)
 	<-writerDone
@@ -581,18 +601,60 @@ func (d *Daemon) finishFit(r fitDone) {
 func (d *Daemon) publish(topic string, e *entry) {
 	fc := e.s.Forecast()
 	now := d.now()
-	d.encBuf = stream.AppendForecast(d.encBuf[:0], fc, now)
-	d.pub.Forecast(topic, d.encBuf)
-	d.mu.Lock()
-	d.latest[topic] = append(d.latest[topic][:0], d.encBuf...)
-	d.mu.Unlock()
-	d.metrics.Published.Inc()
+	sl := <-d.free // waits only when the encoder is a full queue behind
+	copyForecast(&sl.fc, fc)
+	sl.issued = now
+	d.out <- sl
 	if d.opt.OnForecast != nil {
 		d.opt.OnForecast(fc)
 	}
 	if len(e.rules) > 0 {
 		d.evaluate(topic, e, fc, now)
 	}
+}
+
+// slot carries one forecast from the loop to the encoder; slots circulate
+// between d.free and d.out, so publishing allocates nothing.
+type slot struct {
+	fc     series.Forecast
+	issued time.Time
+}
+
+// encodeLoop encodes and publishes forecasts in the order the loop made
+// them, and keeps the latest one per topic for queries. It runs on its own
+// goroutine so that encoding, the costliest part of a bucket close, uses
+// another core than the loop.
+func (d *Daemon) encodeLoop() {
+	var buf []byte
+	for sl := range d.out {
+		buf = stream.AppendForecast(buf[:0], &sl.fc, sl.issued)
+		if err := d.pub.Forecast(sl.fc.Topic, buf); err != nil {
+			d.log.Warn("forecast not published", "topic", sl.fc.Topic, "err", err)
+		}
+		d.mu.Lock()
+		d.latest[sl.fc.Topic] = append(d.latest[sl.fc.Topic][:0], buf...)
+		d.mu.Unlock()
+		d.metrics.Published.Inc()
+		d.free <- sl
+	}
+}
+
+// copyForecast copies src into dst, reusing dst's slices.
+func copyForecast(dst, src *series.Forecast) {
+	pts, levels := dst.Points, dst.Levels
+	*dst = *src
+	dst.Levels = append(levels[:0], src.Levels...)
+	if cap(pts) < len(src.Points) {
+		pts = append(pts[:cap(pts)], make([]series.Point, len(src.Points)-cap(pts))...)
+	}
+	pts = pts[:len(src.Points)]
+	for i := range src.Points {
+		lo, up := pts[i].Lower, pts[i].Upper
+		pts[i] = src.Points[i]
+		pts[i].Lower = append(lo[:0], src.Points[i].Lower...)
+		pts[i].Upper = append(up[:0], src.Points[i].Upper...)
+	}
+	dst.Points = pts
 }
 
 func (d *Daemon) storeLatest(s *series.Series) {
