@@ -12,6 +12,16 @@
 // model is installed. Other series carry on. Forecasts therefore depend on
 // data time only.
 //
+// # Goroutines
+//
+// Besides the loop: the refit workers (Refit.Workers); one encoder, which
+// encodes, publishes and keeps the latest forecast of each topic in the
+// order the loop made them (forecasts travel in preallocated slots, so a
+// bucket close allocates nothing); and one writer, which commits the
+// records the loop encoded into a state.Batch and hands the result back.
+// Only one write is in flight; a flush asked for meanwhile waits for the
+// next trigger and then writes everything that changed since.
+//
 // # What is acknowledged
 //
 // Each series' record holds the stream position it reflects (message and
@@ -23,5 +33,6 @@
 //
 // When the context is cancelled: stop the intake (the batch in hand is
 // finished), finish the refits in flight and apply what waited on them,
-// write the state, acknowledge, flush the publisher.
+// let the encoder publish what it holds, write the state and wait for the
+// commit, acknowledge, flush the publisher.
 package daemon
