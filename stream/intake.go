@@ -135,6 +135,9 @@ type Intake struct {
 	ready   chan struct{}
 	full    chan struct{}
 
+	subscribed chan struct{} // closed once the first Run's subscriptions are on the server
+	subOnce    sync.Once
+
 	ackMu   sync.Mutex
 	unacked []delivered // delivered, not yet acknowledged, in delivery order
 	head    int
@@ -159,10 +162,11 @@ func NewIntake(nc *nats.Conn, o IntakeOptions) (*Intake, error) {
 	ctx, cancel := context.WithTimeout(context.Background(), o.SetupTimeout)
 	defer cancel()
 	in := &Intake{
-		nc:    nc,
-		o:     o,
-		ready: make(chan struct{}, 1),
-		full:  make(chan struct{}, 1),
+		nc:         nc,
+		o:          o,
+		ready:      make(chan struct{}, 1),
+		full:       make(chan struct{}, 1),
+		subscribed: make(chan struct{}),
 	}
 	in.space = sync.NewCond(&in.mu)
 	if !o.Durable {
@@ -325,6 +329,14 @@ func (in *Intake) Run(ctx context.Context, handle func(batch []Message)) error {
 	if err != nil {
 		return err
 	}
+	// A flush round trip puts the subscriptions on the server before
+	// Subscribed says so (a plain subscription misses what is published
+	// before the server knows of it).
+	if err := in.nc.FlushTimeout(in.o.SetupTimeout); err != nil {
+		stop()
+		return fmt.Errorf("%w: subscribe: %w", ErrIntake, err)
+	}
+	in.subOnce.Do(func() { close(in.subscribed) })
 	var spare []Message
 	deliver := func(b []Message) {
 		for len(b) > 0 {
@@ -361,6 +373,11 @@ func (in *Intake) Run(ctx context.Context, handle func(batch []Message)) error {
 		spare = b
 	}
 }
+
+// Subscribed is closed once Run's subscriptions (or JetStream consumer)
+// are in place on the server: in plain mode, what is published from then
+// on is delivered.
+func (in *Intake) Subscribed() <-chan struct{} { return in.subscribed }
 
 // subscribe starts delivery into the buffer and returns the function that
 // stops it and waits until no more messages can be pushed.

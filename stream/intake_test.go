@@ -411,3 +411,30 @@ func BenchmarkIntakeDurableBacklog(b *testing.B) {
 	<-done
 	b.ReportMetric(float64(n)/el.Seconds(), "msg/s")
 }
+
+// After Subscribed, a plain intake receives everything published, from a
+// connection of its own, with no probing first.
+func TestIntakePlainSubscribed(t *testing.T) {
+	_, url := streamtest.RunServer(t)
+	nc := streamtest.Connect(t, url)
+	in, err := NewIntake(nc, IntakeOptions{Subjects: []string{"metrics.>"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var c collector
+	stop := runIntake(t, in, &c)
+	defer stop()
+	select {
+	case <-in.Subscribed():
+	case <-time.After(5 * time.Second):
+		t.Fatal("Subscribed not closed within 5 s")
+	}
+	pub := streamtest.Connect(t, url)
+	for i := range 100 {
+		if err := pub.Publish("metrics.first", []byte(strconv.Itoa(i))); err != nil {
+			t.Fatal(err)
+		}
+	}
+	_ = pub.Flush()
+	streamtest.Eventually(t, 5*time.Second, "all 100 messages", func() bool { return c.len() == 100 })
+}

@@ -291,6 +291,24 @@ func (d *Daemon) Run(ctx context.Context) error {
 		d.outcome(t, d.series[t], series.NeedFit)
 	}
 	d.due = nil
+	// Ready once the intake is on the server, so that nothing published
+	// after Ready is missed (plain mode has no replay).
+	select {
+	case <-d.intake.Subscribed():
+	case err := <-intakeErr:
+		stopIntake()
+		close(d.jobs)
+		wg.Wait()
+		close(d.out)
+		<-encoderDone
+		close(d.writes)
+		<-writerDone
+		if err == nil {
+			err = errors.New("daemon: intake stopped before it subscribed")
+		}
+		return err
+	case <-ctx.Done():
+	}
 	close(d.ready)
 
 	flushEvery := d.cfg.State.FlushInterval
