@@ -481,9 +481,12 @@ func (d *Daemon) handle(m *stream.Message) {
 			fmt.Sprintf("subject %q carries no topic under the intake subjects", m.Subject))
 		return
 	}
-	if err := config.ValidTopic(topic); err != nil {
-		d.reject(m.Subject, topic, m.Received, "bad_topic", err.Error())
-		return
+	e := d.series[topic]
+	if e == nil { // a known topic was checked when its series began
+		if err := config.ValidTopic(topic); err != nil {
+			d.reject(m.Subject, topic, m.Received, "bad_topic", err.Error())
+			return
+		}
 	}
 	obs, err := stream.ParsePayload(m.Data, m.Received, d.limits, d.obsBuf[:0])
 	d.obsBuf = obs[:0]
@@ -496,7 +499,6 @@ func (d *Daemon) handle(m *stream.Message) {
 		}
 		return
 	}
-	e := d.series[topic]
 	if e == nil {
 		if e = d.create(m, topic); e == nil {
 			return
