@@ -214,3 +214,30 @@ func load(t *testing.T, dir, topic string) *series.Snapshot {
 	}
 	return snap
 }
+
+// With close_after, an open bucket closes after that much wall time
+// without data, without waiting for a later bucket's observation.
+func TestCloseAfterClosesIdleBucket(t *testing.T) {
+	_, url := streamtest.RunServer(t)
+	cfg := testConfig(t.TempDir())
+	cfg.Series[0].CloseAfter = 150 * time.Millisecond
+	r := start(t, url, cfg)
+	defer r.stop(t)
+	publishWalk(t, url, "d.four", 0, 3) // buckets 0 and 1 close; bucket 2 stays open
+	closed := func() uint64 {
+		var n uint64
+		r.d.Inspect(context.Background(), func(all map[string]*Entry) {
+			if e := all["d.four"]; e != nil {
+				n = e.Series().Snapshot().Closed
+			}
+		})
+		return n
+	}
+	streamtest.Eventually(t, 5*time.Second, "3 observations accepted", func() bool {
+		return counter(t, r.d.Metrics().Accepted) == 3
+	})
+	if n := closed(); n > 3 {
+		t.Fatalf("closed %d buckets from 3 observations", n)
+	}
+	streamtest.Eventually(t, 5*time.Second, "the idle bucket closed", func() bool { return closed() == 3 })
+}
