@@ -65,6 +65,7 @@ type Daemon struct {
 	// Loop-owned.
 	series    map[string]*entry
 	busy      int       // series waiting for a refit
+	pending   int       // observations held back behind refits, all series
 	due       []string  // restored series whose refit was in flight at the last save
 	queue     []fitTask // refits waiting for a worker (the loop never blocks on the pool)
 	sinceSave int
@@ -118,6 +119,10 @@ type fitTask struct {
 
 // outSlots bounds the forecasts waiting for the encoder.
 const outSlots = 1024
+
+// maxPending bounds the observations held back behind refits, all series
+// together (about 100 bytes each).
+const maxPending = 1 << 20
 
 type writeJob struct{ floor uint64 }
 
@@ -364,13 +369,7 @@ loop:
 		}
 	}
 	for d.busy > 0 {
-		jobs, next := d.nextJob()
-		select {
-		case jobs <- next:
-			d.queue = d.queue[1:]
-		case r := <-d.results:
-			d.finishFit(r)
-		}
+		d.refitStep()
 	}
 	close(d.jobs)
 	wg.Wait()
@@ -510,8 +509,15 @@ func (d *Daemon) handle(m *stream.Message) {
 			continue // a redelivered message: its effect is already in the state
 		}
 		p := pendingObs{seq: m.Seq, index: i, t: obs[i].Time.UnixNano(), v: obs[i].Value, subject: m.Subject, recv: m.Received}
+		// Observations held back behind refits are bounded: past the
+		// bound the loop waits for refits to finish (the intake, and so
+		// the bus, is held back meanwhile).
+		for e.busy && d.pending >= maxPending {
+			d.refitStep()
+		}
 		if e.busy {
 			e.pending = append(e.pending, p)
+			d.pending++
 			d.metrics.Pending.Inc()
 			continue
 		}
@@ -576,6 +582,18 @@ func (d *Daemon) outcome(topic string, e *entry, out series.Outcome) {
 	}
 }
 
+// refitStep hands one waiting refit to the pool or installs one finished
+// refit, whichever can happen first.
+func (d *Daemon) refitStep() {
+	jobs, next := d.nextJob()
+	select {
+	case jobs <- next:
+		d.queue = d.queue[1:]
+	case r := <-d.results:
+		d.finishFit(r)
+	}
+}
+
 // nextJob returns the pool's channel and the first waiting refit, or a
 // nil channel (a select case that never fires) when none waits.
 func (d *Daemon) nextJob() (chan<- fitTask, fitTask) {
@@ -608,6 +626,7 @@ func (d *Daemon) finishFit(r fitDone) {
 	for len(e.pending) > 0 && !e.busy {
 		p := e.pending[0]
 		e.pending = e.pending[1:]
+		d.pending--
 		d.metrics.Pending.Dec()
 		d.apply(r.topic, e, p)
 	}
