@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"forewarn/engine/arima"
@@ -456,5 +457,29 @@ func TestMissingValues(t *testing.T) {
 	}
 	if c.Result.NObs != 144-6-13 {
 		t.Errorf("nobs %d, want 125 (R 4.2.2, testdata/r/arima_refs.json AirPassengers_na_log_airline)", c.Result.NObs)
+	}
+}
+
+// A fixed order whose fit has a root at the unit circle is kept, with the
+// finding in its note: the root rule only steers the automatic search. A
+// linear trend plus white noise, differenced once, is an MA(1) with θ = −1
+// (over-differencing; common practice), so ARIMA(0,1,1) with drift lands
+// there.
+func TestFixedOrderKeepsUnitRootFit(t *testing.T) {
+	r := rand.New(rand.NewPCG(11, 3))
+	y := make([]float64, 120)
+	for i := range y {
+		y[i] = 100 + 0.5*float64(i) + r.NormFloat64()
+	}
+	c, err := Select(y, Options{Transform: "none", Model: "ARIMA(0,1,1) with drift"})
+	if err != nil {
+		t.Fatalf("fixed ARIMA(0,1,1) with drift on trend plus noise: %v", err)
+	}
+	ma := c.Result.Model.MA[0]
+	if ma > -0.99 {
+		t.Fatalf("ma1 = %.4f: the over-differenced fit did not reach the unit circle", ma)
+	}
+	if !strings.Contains(c.Result.Note, "unit circle") {
+		t.Fatalf("ma1 = %.4f but the note %q does not report the root", ma, c.Result.Note)
 	}
 }

@@ -45,7 +45,8 @@
 // when its log-likelihood is not finite, or when a root of its AR, MA,
 // seasonal AR or seasonal MA polynomial lies within 1.001 of the unit circle
 // (|z| ≤ 1.001; seasonal polynomials in z^s). Roots are the eigenvalues of
-// the companion matrix.
+// the companion matrix. The root rule steers the order search only: with a
+// fixed Model the fit is kept and the finding is added to its Note.
 //
 // # Raw-scale AICc
 //

@@ -343,8 +343,16 @@ func (s *selector) fitOne(c *scaled, spec arima.Spec, start []float64) (*fitted,
 	if math.IsNaN(res.LogLik) || math.IsInf(res.LogLik, 0) || math.IsNaN(res.AICc) || math.IsInf(res.AICc, 0) {
 		return nil, fmt.Errorf("log-likelihood %v is not finite", res.LogLik)
 	}
+	// The root check steers the order search (Hyndman & Khandakar 2008);
+	// an order the user fixed is kept, with the finding in its note.
 	if why := nearUnitRoot(res.Model); why != "" {
-		return nil, fmt.Errorf("%w (%s)", errRoots, why)
+		if s.o.Model == "auto" {
+			return nil, fmt.Errorf("%w (%s)", errRoots, why)
+		}
+		if res.Note != "" {
+			res.Note += "; "
+		}
+		res.Note += errRoots.Error() + " (" + why + ")"
 	}
 	return &fitted{spec: spec, res: res, aicc: res.AICc - 2*c.jac}, nil
 }
