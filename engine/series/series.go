@@ -382,8 +382,8 @@ func (s *Series) forecast() {
 		p := &s.fc.Points[i]
 		p.H = i + 1
 		p.Time = time.Unix((sn.WindowEnd+int64(i+1))*step, 0).UTC()
-		p.Median = s.finite(s.tr.Median(m))
-		p.Mean = s.finite(s.tr.Mean(m, v))
+		p.Median = orNaN(s.tr.Median(m))
+		p.Mean = orNaN(s.tr.Mean(m, v))
 		for j, z := range s.z {
 			lo, lok := s.tr.Inverse(m - z*sd)
 			hi, hok := s.tr.Inverse(m + z*sd)
@@ -409,9 +409,9 @@ func (s *Series) forecast() {
 	}
 }
 
-// finite turns an out-of-domain inverse into NaN, which the encoder
+// orNaN turns an out-of-domain inverse into NaN, which the encoder
 // publishes as null.
-func (s *Series) finite(x float64, ok bool) float64 {
+func orNaN(x float64, ok bool) float64 {
 	if !ok {
 		return math.NaN()
 	}

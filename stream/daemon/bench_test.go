@@ -124,18 +124,8 @@ func runOutputBound(b *testing.B, o rigOptions) outputRun {
 	if !ok {
 		b.Fatal("no forecast after warm-up")
 	}
-	sc := streamtest.Connect(b, r.url)
 	var got atomic.Int64
-	sub, err := sc.Subscribe(r.cfg.Output.Prefix+".forecast.>", func(*nats.Msg) { got.Add(1) })
-	if err != nil {
-		b.Fatal(err)
-	}
-	if err := sub.SetPendingLimits(-1, -1); err != nil {
-		b.Fatal(err)
-	}
-	if err := sc.Flush(); err != nil {
-		b.Fatal(err)
-	}
+	sc, sub := subscribeForecasts(b, r, func(*nats.Msg) { got.Add(1) })
 	msgs := r.build(b.N, 1)
 	raw := streamtest.RawPubSubRate(b, r.url, len(fc), max(b.N, 50_000))
 	acc0, pub0 := counterValue(r.d.metrics.Accepted), counterValue(r.d.metrics.Published)
@@ -215,8 +205,7 @@ func BenchmarkCloseToForecastLatency(b *testing.B) {
 	perSeries := make([]int, ns)
 	var got atomic.Int64
 	prefix := r.cfg.Output.Prefix + ".forecast."
-	sc := streamtest.Connect(b, r.url)
-	sub, err := sc.Subscribe(prefix+">", func(m *nats.Msg) {
+	subscribeForecasts(b, r, func(m *nats.Msg) {
 		now := time.Now().UnixNano()
 		i, err := strconv.Atoi(m.Subject[len(prefix)+len("bench.s"):])
 		if err != nil || i >= ns {
@@ -229,15 +218,6 @@ func BenchmarkCloseToForecastLatency(b *testing.B) {
 		}
 		got.Add(1)
 	})
-	if err != nil {
-		b.Fatal(err)
-	}
-	if err := sub.SetPendingLimits(-1, -1); err != nil {
-		b.Fatal(err)
-	}
-	if err := sc.Flush(); err != nil {
-		b.Fatal(err)
-	}
 	msgs := r.build(b.N, 1)
 
 	b.ResetTimer()
@@ -420,4 +400,24 @@ func BenchmarkClosePath(b *testing.B) {
 			}
 		})
 	}
+}
+
+// subscribeForecasts counts on every forecast subject with fn, without a
+// pending limit (so nothing is dropped on the client side), and returns
+// once the server routes them. It returns the subscriber's connection and
+// subscription.
+func subscribeForecasts(b *testing.B, r *rig, fn nats.MsgHandler) (*nats.Conn, *nats.Subscription) {
+	b.Helper()
+	sc := streamtest.Connect(b, r.url)
+	sub, err := sc.Subscribe(r.cfg.Output.Prefix+".forecast.>", fn)
+	if err != nil {
+		b.Fatal(err)
+	}
+	if err := sub.SetPendingLimits(-1, -1); err != nil {
+		b.Fatal(err)
+	}
+	if err := sc.Flush(); err != nil {
+		b.Fatal(err)
+	}
+	return sc, sub
 }

@@ -709,21 +709,16 @@ func (d *Daemon) evaluate(topic string, e *entry, fc *series.Forecast, now time.
 	states := e.s.Alerts()
 	for _, r := range e.rules {
 		thr, above := r.cfg.Threshold()
-		c, ok := tr.Forward(thr)
-		dir := alert.Above
-		if !above {
-			dir = alert.Below
-		}
-		if !tr.Increasing() {
-			if dir == alert.Above {
-				dir = alert.Below
-			} else {
-				dir = alert.Above
-			}
+		c, ferr := tr.Forward(thr)
+		// On the model scale "above" stays above under an increasing
+		// transform and turns into "below" under a decreasing one.
+		dir := alert.Below
+		if above == tr.Increasing() {
+			dir = alert.Above
 		}
 		var p float64
 		var eta int
-		if ok != nil {
+		if ferr != nil {
 			// The threshold lies outside the transform's domain (e.g. a
 			// non-positive level under log): every value is above it.
 			if above {
