@@ -117,7 +117,10 @@ type State struct {
 	FlushInterval time.Duration
 	// FlushMax forces a write after this many applied messages, whichever
 	// of the two comes first (a write already in flight defers it). It also
-	// bounds how many messages a crash makes the stream redeliver. Zero: 50000.
+	// bounds how many messages a crash makes the stream redeliver. Zero:
+	// 150000, under the durable intake's 200000 unacknowledged messages, so
+	// that acknowledgements flow before the server stops delivering; at
+	// rates below that many messages a second the interval decides.
 	FlushMax int
 }
 
@@ -293,7 +296,7 @@ func Default() *Config {
 			MaxBytes: 1 << 30,
 		},
 		Output: Output{Prefix: "forewarn"},
-		State:  State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 50000},
+		State:  State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 150000},
 		HTTP:   HTTP{Listen: "127.0.0.1:8714"},
 		Log:    Log{Level: "info", Format: "auto"},
 		Limits: Limits{

@@ -59,7 +59,9 @@
 //
 // Output JSON has the keys of CONTRACT.md §2 in a fixed order and no white
 // space. Times are RFC 3339 in UTC, with a fraction only when the time is
-// not a whole second. Numbers are the shortest decimal that reads back as
-// the same float64; JSON has no NaN or infinity, so a non-finite number, or
-// a band bound outside the inverse transform's domain, is null.
+// not a whole second. The numbers in a forecast's points carry 12
+// significant digits (never crossing the message's last_value, see
+// AppendForecast); every other number is the shortest decimal that reads
+// back as the same float64. JSON has no NaN or infinity, so a non-finite
+// number, or a band bound outside the inverse transform's domain, is null.
 package stream

@@ -19,8 +19,14 @@ import (
 // Keys come in this order, without white space. Times are RFC 3339 in UTC:
 // whole seconds without a fraction, otherwise with as many fractional digits
 // as the nanoseconds need (time.RFC3339Nano). A zero FittedAt is null.
-// Numbers are the shortest decimal that reads back as the same float64
-// (strconv 'g', -1); a non-finite number, and a Bound with OK false, is
+// last_value and aicc are the shortest decimal that reads back as the same
+// float64 (strconv 'g', -1). The points' numbers (mean, median, bounds)
+// carry 12 significant digits (strconv 'g', 12: within 5e-13 relative of
+// the float64, far inside any forecast's uncertainty), with one exception
+// that keeps the message's order against last_value as the floats have
+// it: a number equal to last_value, and one whose rounded form would read
+// back on the other side of last_value, is written as last_value is (so a
+// counter's clamped bounds read back as exactly its last value). A non-finite number, and a Bound with OK false, is
 // null. Level keys are the level in plain decimal ("80", "97.5"). Lower[i]
 // and Upper[i] are paired with f.Levels[i]; missing entries are null.
 //
@@ -35,7 +41,9 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 	dst = append(dst, `,"step_seconds":`...)
 	dst = strconv.AppendInt(dst, f.StepSeconds, 10)
 	dst = append(dst, `,"last_value":`...)
+	pf := pointFormat{last: f.LastValue, at: len(dst)}
 	dst = appendFloat(dst, f.LastValue)
+	pf.end = len(dst)
 	dst = append(dst, `,"kind":`...)
 	dst = appendString(dst, f.Kind)
 	dst = append(dst, `,"model":{"spec":`...)
@@ -63,19 +71,43 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 		dst = append(dst, `,"time":`...)
 		dst = appendTime(dst, pt.Time)
 		dst = append(dst, `,"mean":`...)
-		dst = appendFloat(dst, pt.Mean)
+		dst = pf.append(dst, pt.Mean)
 		dst = append(dst, `,"median":`...)
-		dst = appendFloat(dst, pt.Median)
+		dst = pf.append(dst, pt.Median)
 		dst = append(dst, `,"lower":`...)
-		dst = appendBounds(dst, f.Levels, pt.Lower)
+		dst = pf.appendBounds(dst, f.Levels, pt.Lower)
 		dst = append(dst, `,"upper":`...)
-		dst = appendBounds(dst, f.Levels, pt.Upper)
+		dst = pf.appendBounds(dst, f.Levels, pt.Upper)
 		dst = append(dst, '}')
 	}
 	return append(dst, "]}"...)
 }
 
-func appendBounds(dst []byte, levels []float64, b []series.Bound) []byte {
+// pointFormat writes the numbers of a forecast's points (see
+// AppendForecast). dst[at:end] is last_value as written.
+type pointFormat struct {
+	last    float64
+	at, end int
+}
+
+func (p *pointFormat) append(dst []byte, v float64) []byte {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return append(dst, "null"...)
+	}
+	n := len(dst)
+	dst = appendG12(dst, v)
+	// Rounding to 12 digits moves v by at most 5e-12 of itself, so it can
+	// only cross last_value from this close.
+	if math.Abs(v-p.last) <= 1e-11*math.Abs(p.last) {
+		r, err := strconv.ParseFloat(string(dst[n:]), 64)
+		if err != nil || v == p.last || (v > p.last && r < p.last) || (v < p.last && r > p.last) {
+			dst = append(dst[:n], dst[p.at:p.end]...)
+		}
+	}
+	return dst
+}
+
+func (p *pointFormat) appendBounds(dst []byte, levels []float64, b []series.Bound) []byte {
 	dst = append(dst, '{')
 	for i, l := range levels {
 		if i > 0 {
@@ -85,7 +117,7 @@ func appendBounds(dst []byte, levels []float64, b []series.Bound) []byte {
 		dst = appendLevel(dst, l)
 		dst = append(dst, `":`...)
 		if i < len(b) && b[i].OK {
-			dst = appendFloat(dst, b[i].Value)
+			dst = p.append(dst, b[i].Value)
 		} else {
 			dst = append(dst, "null"...)
 		}

@@ -90,14 +90,31 @@ func refNum(v float64) any {
 	return v
 }
 
+// refPoint is a point's number as AppendForecast promises it: strconv
+// 'g' with 12 digits read back, or last itself when the number is last or
+// its rounded form would be on the other side of last.
+func refPoint(v, last float64) any {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return nil
+	}
+	r, err := strconv.ParseFloat(strconv.FormatFloat(v, 'g', 12, 64), 64)
+	if err != nil {
+		panic(err)
+	}
+	if v == last || (v > last && r < last) || (v < last && r > last) {
+		return last
+	}
+	return r
+}
+
 func refTime(t time.Time) string { return t.UTC().Format(time.RFC3339Nano) }
 
-func refBounds(levels []float64, b []series.Bound) map[string]any {
+func refBounds(levels []float64, b []series.Bound, last float64) map[string]any {
 	m := map[string]any{}
 	for i, l := range levels {
 		var v any
 		if i < len(b) && b[i].OK {
-			v = refNum(b[i].Value)
+			v = refPoint(b[i].Value, last)
 		}
 		m[strconv.FormatFloat(l, 'f', -1, 64)] = v
 	}
@@ -112,8 +129,8 @@ func refForecast(f *series.Forecast, issued time.Time) []byte {
 	points := []any{}
 	for _, p := range f.Points {
 		points = append(points, map[string]any{
-			"h": p.H, "time": refTime(p.Time), "mean": refNum(p.Mean), "median": refNum(p.Median),
-			"lower": refBounds(f.Levels, p.Lower), "upper": refBounds(f.Levels, p.Upper),
+			"h": p.H, "time": refTime(p.Time), "mean": refPoint(p.Mean, f.LastValue), "median": refPoint(p.Median, f.LastValue),
+			"lower": refBounds(f.Levels, p.Lower, f.LastValue), "upper": refBounds(f.Levels, p.Upper, f.LastValue),
 		})
 	}
 	b, err := json.Marshal(map[string]any{

@@ -43,5 +43,5 @@ func ExampleAppendForecast() {
 	}
 	fmt.Println(string(stream.AppendForecast(nil, f, origin.Add(2*time.Second))))
 	// Output:
-	// {"topic":"storage.vol1.used_bytes","issued":"2024-05-01T12:00:02Z","origin":"2024-05-01T12:00:00Z","step_seconds":3600,"last_value":8.1e+11,"kind":"gauge","model":{"spec":"ARIMA(0,1,1)","transform":"none","fitted_at":"2024-05-01T12:00:00Z","nobs":200,"aicc":4012.25},"points":[{"h":1,"time":"2024-05-01T13:00:00Z","mean":8.2e+11,"median":8.2e+11,"lower":{"80":8.15e+11,"95":8.1e+11},"upper":{"80":8.25e+11,"95":null}}]}
+	// {"topic":"storage.vol1.used_bytes","issued":"2024-05-01T12:00:02Z","origin":"2024-05-01T12:00:00Z","step_seconds":3600,"last_value":8.1e+11,"kind":"gauge","model":{"spec":"ARIMA(0,1,1)","transform":"none","fitted_at":"2024-05-01T12:00:00Z","nobs":200,"aicc":4012.25},"points":[{"h":1,"time":"2024-05-01T13:00:00Z","mean":820000000000,"median":820000000000,"lower":{"80":815000000000,"95":8.1e+11},"upper":{"80":825000000000,"95":null}}]}
 }

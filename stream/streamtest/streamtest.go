@@ -76,17 +76,33 @@ func Eventually(tb testing.TB, timeout time.Duration, msg string, cond func() bo
 // RawPubSubRate publishes n messages of size bytes from one connection to
 // url and receives them on a subscription of another, and returns the
 // messages per second from the first publication to the last reception.
-// It is the reference rate "raw NATS publish→subscribe" of the daemon's
-// benchmarks. The subscription's client-side limits are lifted so that
-// nothing is dropped; a drop fails tb.
+// Every message goes to one subject, so the server's subject matching is
+// always a cache hit: it is the best case of "raw NATS publish→subscribe".
+// The subscription's client-side limits are lifted so that nothing is
+// dropped; a drop fails tb.
 func RawPubSubRate(tb testing.TB, url string, size, n int) float64 {
 	tb.Helper()
+	const subj = "streamtest.raw"
+	return RawFanInRate(tb, url, []string{subj}, subj, size, n)
+}
+
+// RawFanInRate is RawPubSubRate for a traffic shape: the n messages go
+// round-robin to subjects, and one subscription on filter (which must
+// match every subject, and nothing else that is being published) receives
+// them. With the subjects and message size of a daemon's intake or output,
+// it is the raw rate of that same traffic without the daemon: the server
+// matches as many distinct subjects as it would for the daemon (its match
+// cache holds about a thousand, so 10 000 subjects in turn miss it).
+func RawFanInRate(tb testing.TB, url string, subjects []string, filter string, size, n int) float64 {
+	tb.Helper()
+	if len(subjects) == 0 {
+		tb.Fatal("streamtest: no subjects")
+	}
 	pub := Connect(tb, url)
 	sub := Connect(tb, url)
 	var got atomic.Int64
 	done := make(chan struct{})
-	subj := "streamtest.raw"
-	s, err := sub.Subscribe(subj, func(*nats.Msg) {
+	s, err := sub.Subscribe(filter, func(*nats.Msg) {
 		if got.Add(1) == int64(n) {
 			close(done)
 		}
@@ -106,8 +122,8 @@ func RawPubSubRate(tb testing.TB, url string, size, n int) float64 {
 		payload[i] = 'a' + byte(i%26)
 	}
 	start := time.Now()
-	for range n {
-		if err := pub.Publish(subj, payload); err != nil {
+	for i := range n {
+		if err := pub.Publish(subjects[i%len(subjects)], payload); err != nil {
 			tb.Fatalf("streamtest: publish: %v", err)
 		}
 	}
@@ -122,6 +138,9 @@ func RawPubSubRate(tb testing.TB, url string, size, n int) float64 {
 	el := time.Since(start)
 	if d, _ := s.Dropped(); d > 0 {
 		tb.Fatalf("streamtest: %d messages dropped", d)
+	}
+	if g := got.Load(); g != int64(n) {
+		tb.Fatalf("streamtest: received %d messages, sent %d", g, n)
 	}
 	return float64(n) / el.Seconds()
 }
