@@ -61,6 +61,7 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 	dst = append(dst, `,"aicc":`...)
 	dst = appendFloat(dst, f.Model.AICc)
 	dst = append(dst, `},"points":[`...)
+	var days dayCache
 	for i := range f.Points {
 		pt := &f.Points[i]
 		if i > 0 {
@@ -69,7 +70,7 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 		dst = append(dst, `{"h":`...)
 		dst = strconv.AppendInt(dst, int64(pt.H), 10)
 		dst = append(dst, `,"time":`...)
-		dst = appendTime(dst, pt.Time)
+		dst = days.appendTime(dst, pt.Time)
 		dst = append(dst, `,"mean":`...)
 		dst = pf.append(dst, pt.Mean)
 		dst = append(dst, `,"median":`...)
@@ -197,6 +198,38 @@ func appendLevel(dst []byte, l float64) []byte {
 		return strconv.AppendInt(dst, int64(l), 10) // the common case, cheaper
 	}
 	return strconv.AppendFloat(dst, l, 'f', -1, 64)
+}
+
+// dayCache writes the points' times, which run through few days: a whole
+// second on the day of the previous one reuses that day's
+// "YYYY-MM-DDT" and writes only the time of day. The bytes are those of
+// appendTime.
+type dayCache struct {
+	day  int64 // Unix day of date; valid when set
+	set  bool
+	date [11]byte
+}
+
+func (c *dayCache) appendTime(dst []byte, t time.Time) []byte {
+	sec := t.Unix()
+	day, tod := sec/86400, sec%86400
+	if tod < 0 {
+		day, tod = day-1, tod+86400
+	}
+	if t.Nanosecond() != 0 || !c.set || day != c.day {
+		n := len(dst)
+		dst = appendTime(dst, t)
+		if t.Nanosecond() == 0 && len(dst)-n == len(`"2006-01-02T15:04:05Z"`) {
+			copy(c.date[:], dst[n+1:])
+			c.day, c.set = day, true
+		}
+		return dst
+	}
+	h, m, s := tod/3600, tod/60%60, tod%60
+	dst = append(dst, '"')
+	dst = append(dst, c.date[:]...)
+	return append(dst, byte('0'+h/10), byte('0'+h%10), ':', byte('0'+m/10), byte('0'+m%10), ':',
+		byte('0'+s/10), byte('0'+s%10), 'Z', '"')
 }
 
 func appendTime(dst []byte, t time.Time) []byte {

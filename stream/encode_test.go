@@ -271,3 +271,39 @@ func BenchmarkAppendForecast(b *testing.B) {
 		buf = AppendForecast(buf[:0], f, issued)
 	}
 }
+
+// Points' times by the day cache against time.RFC3339Nano (the standard
+// library as reference): consecutive steps across midnights, before 1970,
+// with fractions, and in another zone.
+func TestPointTimesMatchRFC3339(t *testing.T) {
+	zone := time.FixedZone("west", -7*3600)
+	for _, c := range []struct {
+		origin time.Time
+		step   time.Duration
+	}{
+		{time.Date(2026, 12, 1, 23, 59, 30, 0, time.UTC), time.Second},
+		{time.Date(2026, 12, 31, 22, 0, 0, 0, time.UTC), 7 * time.Minute},
+		{time.Date(2024, 2, 28, 12, 0, 0, 0, time.UTC), time.Hour},
+		{time.Date(1969, 12, 31, 23, 0, 0, 0, time.UTC), 13 * time.Minute},
+		{time.Date(1900, 2, 28, 0, 0, 0, 0, time.UTC), 24 * time.Hour},
+		{time.Date(2026, 6, 1, 0, 0, 0, 0, zone), 37 * time.Minute},
+		{time.Date(2026, 6, 1, 23, 59, 59, 500_000_000, time.UTC), 250 * time.Millisecond},
+		{time.Date(9999, 12, 31, 23, 0, 0, 0, time.UTC), 10 * time.Minute},
+	} {
+		f := &series.Forecast{Topic: "t", Origin: c.origin, StepSeconds: 1, Kind: "gauge"}
+		for h := 1; h <= 60; h++ {
+			f.Points = append(f.Points, series.Point{H: h, Time: c.origin.Add(time.Duration(h) * c.step)})
+		}
+		var got struct {
+			Points []struct{ Time string }
+		}
+		if err := json.Unmarshal(AppendForecast(nil, f, c.origin), &got); err != nil {
+			t.Fatal(err)
+		}
+		for i, p := range got.Points {
+			if want := refTime(f.Points[i].Time); p.Time != want {
+				t.Fatalf("origin %v step %v point %d: time %q, want %q", c.origin, c.step, i+1, p.Time, want)
+			}
+		}
+	}
+}

@@ -2,6 +2,7 @@ package stream
 
 import (
 	"math"
+	"slices"
 	"strconv"
 )
 
@@ -49,8 +50,8 @@ func appendG12(dst []byte, v float64) []byte {
 		x = a / s
 		res = math.FMA(-x, s, a)
 	}
-	fl := math.Floor(x)
-	m := uint64(fl)
+	m := uint64(x) // x is in [1e11, 1e12]: truncation is floor
+	fl := float64(m)
 	// d is exact, and when it is not zero it is at least one unit in the
 	// last place of x, more than the true value's distance from x.
 	if d := (x - fl) - 0.5; d > 0 || (d == 0 && (res > 0 || (res == 0 && m&1 == 1))) {
@@ -60,60 +61,68 @@ func appendG12(dst []byte, v float64) []byte {
 		m /= 10
 		e10++
 	}
-	// Twelve digits as two halves of six, two digits at a time, so that
-	// the halves' divisions overlap.
-	var digits [pointDigits]byte
-	hi, lo := uint32(m/1e6), uint32(m%1e6)
-	for i := 4; i >= 0; i -= 2 {
-		h, l := 2*(hi%100), 2*(lo%100)
-		digits[i], digits[i+1] = digitPairs[h], digitPairs[h+1]
-		digits[6+i], digits[7+i] = digitPairs[l], digitPairs[l+1]
-		hi /= 100
-		lo /= 100
-	}
+	// Twelve digits as three groups of four, two at a time; the groups'
+	// divisions do not wait on each other. The array is longer than the
+	// digits so that the output can take them in whole 16-byte moves.
+	var digits [32]byte
+	g0, g1, g2 := uint32(m/1e8), uint32(m/1e4%1e4), uint32(m%1e4)
+	putPair(digits[0:2], g0/100)
+	putPair(digits[2:4], g0%100)
+	putPair(digits[4:6], g1/100)
+	putPair(digits[6:8], g1%100)
+	putPair(digits[8:10], g2/100)
+	putPair(digits[10:12], g2%100)
 	nd := pointDigits
 	for nd > 1 && digits[nd-1] == '0' {
 		nd--
 	}
+	// Room for the longest form: sign, 0.0000 or 12 digits, point, e±dd.
+	n := len(dst)
+	dst = slices.Grow(dst, 40)[:n+40]
+	out := dst[n:]
+	k := 0
 	if v < 0 {
-		dst = append(dst, '-')
+		out[0] = '-'
+		k = 1
 	}
-	if e10 < -4 || e10 >= pointDigits {
-		dst = append(dst, digits[0])
+	switch {
+	case e10 < -4 || e10 >= pointDigits: // d.ddde±XX
+		out[k] = digits[0]
+		k++
 		if nd > 1 {
-			dst = append(dst, '.')
-			dst = append(dst, digits[1:nd]...)
+			out[k] = '.'
+			*(*[16]byte)(out[k+1:]) = *(*[16]byte)(digits[1:])
+			k += nd
 		}
-		dst = append(dst, 'e')
-		if e10 < 0 {
-			dst = append(dst, '-')
-			e10 = -e10
-		} else {
-			dst = append(dst, '+')
+		out[k] = 'e'
+		out[k+1] = '+'
+		x := e10
+		if x < 0 {
+			out[k+1] = '-'
+			x = -x
 		}
-		if e10 < 10 {
-			dst = append(dst, '0')
-		}
-		return strconv.AppendInt(dst, int64(e10), 10)
+		putPair(out[k+2:k+4], uint32(x)) // |e10| ≤ 33 here
+		k += 4
+	case e10 < 0: // 0.000ddd
+		out[k], out[k+1], out[k+2], out[k+3], out[k+4] = '0', '.', '0', '0', '0'
+		k += 1 - e10 // "0." and −e10−1 zeros
+		*(*[16]byte)(out[k:]) = *(*[16]byte)(digits[:])
+		k += nd
+	case nd <= e10+1: // an integer: ddd000
+		*(*[16]byte)(out[k:]) = *(*[16]byte)(digits[:])
+		k += e10 + 1 // digits past nd are the zeros of digits[nd:12]
+	default: // ddd.ddd
+		ip := e10 + 1
+		*(*[16]byte)(out[k:]) = *(*[16]byte)(digits[:])
+		out[k+ip] = '.'
+		*(*[16]byte)(out[k+ip+1:]) = *(*[16]byte)(digits[ip:])
+		k += nd + 1
 	}
-	if e10 < 0 {
-		dst = append(dst, '0', '.')
-		for range -e10 - 1 {
-			dst = append(dst, '0')
-		}
-		return append(dst, digits[:nd]...)
-	}
-	ip := e10 + 1 // digits before the point
-	if nd <= ip {
-		dst = append(dst, digits[:nd]...)
-		for range ip - nd {
-			dst = append(dst, '0')
-		}
-		return dst
-	}
-	dst = append(dst, digits[:ip]...)
-	dst = append(dst, '.')
-	return append(dst, digits[ip:nd]...)
+	return dst[:n+k]
+}
+
+func putPair(b []byte, v uint32) {
+	b[0], b[1] = digitPairs[2*v], digitPairs[2*v+1]
 }
 
 // digitPairs is "00" "01" … "99".

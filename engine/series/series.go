@@ -59,6 +59,10 @@ type Series struct {
 	mean, variance []float64 // model-scale forecast buffers, len Horizon
 	z              []float64 // standard normal quantiles per level
 	fc             Forecast
+	// One point's median and band ends, model scale (w) and raw (x, ok):
+	// the median, then lower and upper end per level.
+	ptW, ptX []float64
+	ptOK     []bool
 }
 
 // New returns an empty series for topic.
@@ -157,6 +161,8 @@ func (s *Series) initBuffers() {
 	s.mean = make([]float64, h)
 	s.variance = make([]float64, h)
 	s.z = make([]float64, len(s.set.Levels))
+	n := 1 + 2*len(s.set.Levels)
+	s.ptW, s.ptX, s.ptOK = make([]float64, n), make([]float64, n), make([]bool, n)
 	for i, l := range s.set.Levels {
 		s.z[i] = distuv.UnitNormal.Quantile(0.5 + l/200)
 	}
@@ -382,11 +388,16 @@ func (s *Series) forecast() {
 		p := &s.fc.Points[i]
 		p.H = i + 1
 		p.Time = time.Unix((sn.WindowEnd+int64(i+1))*step, 0).UTC()
-		p.Median = orNaN(s.tr.Median(m))
-		p.Mean = orNaN(s.tr.Mean(m, v))
+		s.ptW[0] = m
 		for j, z := range s.z {
-			lo, lok := s.tr.Inverse(m - z*sd)
-			hi, hok := s.tr.Inverse(m + z*sd)
+			s.ptW[1+2*j], s.ptW[2+2*j] = m-z*sd, m+z*sd
+		}
+		s.tr.InverseSlice(s.ptX, s.ptOK, s.ptW) // the median is Inverse(m)
+		p.Median = orNaN(s.ptX[0], s.ptOK[0])
+		p.Mean = orNaN(s.tr.Mean(m, v))
+		for j := range s.z {
+			lo, lok := s.ptX[1+2*j], s.ptOK[1+2*j]
+			hi, hok := s.ptX[2+2*j], s.ptOK[2+2*j]
 			if !inc {
 				lo, lok, hi, hok = hi, hok, lo, lok
 			}

@@ -149,34 +149,74 @@ func (t Transform) ForwardSlice(dst, x []float64) error {
 // ok is false when w is outside the inverse's domain, when the result is not a finite
 // float64, or when w is NaN; x is then meaningless (NaN). Inverse never returns NaN with ok.
 func (t Transform) Inverse(w float64) (x float64, ok bool) {
-	if math.IsNaN(w) {
-		return math.NaN(), false
+	s := t.scale()
+	switch t.Name {
+	case None:
+		return finite(t.Loc + s*w)
+	case Log:
+		return finite(math.Exp(t.Loc + s*w))
+	case BoxCox:
+		return t.invBoxCox(s, w)
+	case ScaledExp:
+		return t.invScaledExp(s, w)
+	}
+	return math.NaN(), false
+}
+
+// InverseSlice sets x[i], ok[i] = Inverse(w[i]) for every i, choosing
+// the formula once for the whole slice (a forecast maps some hundred
+// values at each bucket close). A length mismatch is a programmer error
+// and panics.
+func (t Transform) InverseSlice(x []float64, ok []bool, w []float64) {
+	if len(x) != len(w) || len(ok) != len(w) {
+		panic("transform: InverseSlice: lengths differ")
 	}
 	s := t.scale()
 	switch t.Name {
 	case None:
-		x = t.Loc + s*w
+		for i, v := range w {
+			x[i], ok[i] = finite(t.Loc + s*v)
+		}
 	case Log:
-		x = math.Exp(t.Loc + s*w)
+		for i, v := range w {
+			x[i], ok[i] = finite(math.Exp(t.Loc + s*v))
+		}
 	case BoxCox:
-		u := t.Loc + s*w
-		if t.Lambda == 0 {
-			x = math.Exp(u)
-			break
+		for i, v := range w {
+			x[i], ok[i] = t.invBoxCox(s, v)
 		}
-		b := t.Lambda*u + 1
-		if !(b > 0) {
-			return math.NaN(), false
-		}
-		x = math.Exp(math.Log1p(t.Lambda*u) / t.Lambda)
 	case ScaledExp:
-		if !(w > 0) {
-			return math.NaN(), false
+		for i, v := range w {
+			x[i], ok[i] = t.invScaledExp(s, v)
 		}
-		x = t.Loc + s*math.Log(w)
 	default:
+		for i := range w {
+			x[i], ok[i] = math.NaN(), false
+		}
+	}
+}
+
+func (t Transform) invBoxCox(s, w float64) (float64, bool) {
+	u := t.Loc + s*w
+	if t.Lambda == 0 {
+		return finite(math.Exp(u))
+	}
+	if !(t.Lambda*u+1 > 0) { // also false for NaN
 		return math.NaN(), false
 	}
+	return finite(math.Exp(math.Log1p(t.Lambda*u) / t.Lambda))
+}
+
+func (t Transform) invScaledExp(s, w float64) (float64, bool) {
+	if !(w > 0) { // also false for NaN
+		return math.NaN(), false
+	}
+	return finite(t.Loc + s*math.Log(w))
+}
+
+// finite returns x, true for a finite x and NaN, false otherwise (a NaN
+// w propagates to a NaN x, so it lands here too).
+func finite(x float64) (float64, bool) {
 	if math.IsNaN(x) || math.IsInf(x, 0) {
 		return math.NaN(), false
 	}
@@ -247,7 +287,8 @@ func (t Transform) Mean(w, variance float64) (float64, bool) {
 		}
 		sd := math.Sqrt(variance)
 		var e float64
-		for i, z := range ghX {
+		for i := range ghX {
+			z := ghX[i]
 			v := w + sd*z
 			if !(v > 0) {
 				return math.NaN(), false

@@ -678,7 +678,10 @@ func (d *Daemon) encodeLoop() {
 	}
 }
 
-// copyForecast copies src into dst, reusing dst's slices.
+// copyForecast copies src into dst, reusing dst's slices. Points are
+// copied field by field and bounds with copy, so that no slice header is
+// written twice (each such pointer write costs a write barrier while the
+// collector runs).
 func copyForecast(dst, src *series.Forecast) {
 	pts, levels := dst.Points, dst.Levels
 	*dst = *src
@@ -688,10 +691,16 @@ func copyForecast(dst, src *series.Forecast) {
 	}
 	pts = pts[:len(src.Points)]
 	for i := range src.Points {
-		lo, up := pts[i].Lower, pts[i].Upper
-		pts[i] = src.Points[i]
-		pts[i].Lower = append(lo[:0], src.Points[i].Lower...)
-		pts[i].Upper = append(up[:0], src.Points[i].Upper...)
+		d, s := &pts[i], &src.Points[i]
+		d.H, d.Time, d.Mean, d.Median = s.H, s.Time, s.Mean, s.Median
+		if len(d.Lower) != len(s.Lower) {
+			d.Lower = make([]series.Bound, len(s.Lower))
+		}
+		if len(d.Upper) != len(s.Upper) {
+			d.Upper = make([]series.Bound, len(s.Upper))
+		}
+		copy(d.Lower, s.Lower)
+		copy(d.Upper, s.Upper)
 	}
 	dst.Points = pts
 }
