@@ -68,7 +68,7 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 			dst = append(dst, ',')
 		}
 		dst = append(dst, `{"h":`...)
-		dst = strconv.AppendInt(dst, int64(pt.H), 10)
+		dst = appendInt(dst, pt.H)
 		dst = append(dst, `,"time":`...)
 		dst = days.appendTime(dst, pt.Time)
 		dst = append(dst, `,"mean":`...)
@@ -192,10 +192,22 @@ func AppendError(dst []byte, msg string) []byte {
 	return append(dst, '}')
 }
 
+// appendInt writes n in decimal; below 100, the common case of steps
+// ahead and levels, without a call.
+func appendInt(dst []byte, n int) []byte {
+	switch {
+	case n >= 0 && n < 10:
+		return append(dst, byte('0'+n))
+	case n >= 10 && n < 100:
+		return append(dst, byte('0'+n/10), byte('0'+n%10))
+	}
+	return strconv.AppendInt(dst, int64(n), 10)
+}
+
 // appendLevel writes an interval level in plain decimal: "80", "97.5".
 func appendLevel(dst []byte, l float64) []byte {
 	if l == math.Trunc(l) && l >= 0 && l < 1e15 {
-		return strconv.AppendInt(dst, int64(l), 10) // the common case, cheaper
+		return appendInt(dst, int(l)) // the common case, cheaper
 	}
 	return strconv.AppendFloat(dst, l, 'f', -1, 64)
 }

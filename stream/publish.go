@@ -36,10 +36,20 @@ func (p *Publisher) publish(kind, topic string, payload []byte) error {
 	return nil
 }
 
-// Forecast publishes an encoded forecast on <prefix>.forecast.<topic>. The
-// connection copies payload before Forecast returns.
-func (p *Publisher) Forecast(topic string, payload []byte) error {
-	return p.publish(".forecast.", topic, payload)
+// ForecastSubject returns <prefix>.forecast.<topic>. A caller that
+// publishes many forecasts of a topic keeps it and passes it to Forecast.
+func (p *Publisher) ForecastSubject(topic string) string {
+	return p.prefix + ".forecast." + topic
+}
+
+// Forecast publishes an encoded forecast on subject, which
+// ForecastSubject made. The connection copies payload before Forecast
+// returns.
+func (p *Publisher) Forecast(subject string, payload []byte) error {
+	if err := p.nc.Publish(subject, payload); err != nil {
+		return fmt.Errorf("stream: publish on %q: %w", subject, err)
+	}
+	return nil
 }
 
 // Alert publishes an encoded alert event on <prefix>.alert.<topic>.

@@ -29,7 +29,7 @@ func TestPublisherSubjects(t *testing.T) {
 	_ = sub.Flush()
 	p := NewPublisher(nc, "fw")
 	for _, err := range []error{
-		p.Forecast("shop.orders", []byte("f")), p.Alert("shop.orders", []byte("a")),
+		p.Forecast(p.ForecastSubject("shop.orders"), []byte("f")), p.Alert("shop.orders", []byte("a")),
 		p.Reject("shop.orders", []byte("r")), p.Reject("", []byte("r0")), p.Flush(),
 	} {
 		if err != nil {

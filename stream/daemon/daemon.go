@@ -88,6 +88,7 @@ type Daemon struct {
 // entry is one live series and its bookkeeping on the loop.
 type entry struct {
 	s       *series.Series
+	subject string // where its forecasts go
 	rules   []rule
 	busy    bool
 	pending []pendingObs
@@ -406,7 +407,7 @@ func (d *Daemon) load() error {
 				return rerr
 			}
 		}
-		e := &entry{s: s, rules: d.rulesFor(topic, sc)}
+		e := &entry{s: s, subject: d.pub.ForecastSubject(topic), rules: d.rulesFor(topic, sc)}
 		d.series[topic] = e
 		if s.HasModel() {
 			d.storeLatest(s)
@@ -542,7 +543,7 @@ func (d *Daemon) create(m *stream.Message, topic string) *entry {
 		d.reject(m.Subject, topic, m.Received, "bad_settings", err.Error())
 		return nil
 	}
-	e := &entry{s: s, rules: d.rulesFor(topic, sc)}
+	e := &entry{s: s, subject: d.pub.ForecastSubject(topic), rules: d.rulesFor(topic, sc)}
 	d.series[topic] = e
 	d.metrics.Series.Set(float64(len(d.series)))
 	return e
@@ -642,7 +643,7 @@ func (d *Daemon) publish(topic string, e *entry) {
 	now := d.now()
 	sl := <-d.free // waits only when the encoder is a full queue behind
 	copyForecast(&sl.fc, fc)
-	sl.issued = now
+	sl.issued, sl.subject = now, e.subject
 	d.out <- sl
 	if d.opt.OnForecast != nil {
 		d.opt.OnForecast(fc)
@@ -655,8 +656,9 @@ func (d *Daemon) publish(topic string, e *entry) {
 // slot carries one forecast from the loop to the encoder; slots circulate
 // between d.free and d.out, so publishing allocates nothing.
 type slot struct {
-	fc     series.Forecast
-	issued time.Time
+	fc      series.Forecast
+	issued  time.Time
+	subject string
 }
 
 // encodeLoop encodes and publishes forecasts in the order the loop made
@@ -667,11 +669,13 @@ func (d *Daemon) encodeLoop() {
 	var buf []byte
 	for sl := range d.out {
 		buf = stream.AppendForecast(buf[:0], &sl.fc, sl.issued)
-		if err := d.pub.Forecast(sl.fc.Topic, buf); err != nil {
+		if err := d.pub.Forecast(sl.subject, buf); err != nil {
 			d.log.Warn("forecast not published", "topic", sl.fc.Topic, "err", err)
 		}
+		// The message becomes the topic's latest, and the one it replaces
+		// the next encoding buffer: no copy.
 		d.mu.Lock()
-		d.latest[sl.fc.Topic] = append(d.latest[sl.fc.Topic][:0], buf...)
+		buf, d.latest[sl.fc.Topic] = d.latest[sl.fc.Topic], buf
 		d.mu.Unlock()
 		d.metrics.Published.Inc()
 		d.free <- sl
