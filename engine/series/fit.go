@@ -131,7 +131,8 @@ func (s *Series) install(c *auto.Choice, end int64) error {
 
 func (s *Series) setModelInfo() {
 	ms := s.snap.Model
-	s.fc.Model = ModelInfo{
+	s.fcStale = true
+	s.mf.Model = ModelInfo{
 		Spec:      ms.Spec,
 		Transform: s.tr.String(),
 		FittedAt:  time.Unix(ms.FittedAt*s.set.StepSeconds, 0).UTC(),

@@ -56,13 +56,11 @@ type Series struct {
 	model  *arima.Model
 	filter *arima.Filter
 
-	mean, variance []float64 // model-scale forecast buffers, len Horizon
-	z              []float64 // standard normal quantiles per level
-	fc             Forecast
-	// One point's median and band ends, model scale (w) and raw (x, ok):
-	// the median, then lower and upper end per level.
-	ptW, ptX []float64
-	ptOK     []bool
+	// mf is the latest forecast on the model scale; fc is it in raw
+	// units, filled from mf when asked for (stale until then).
+	mf      ModelForecast
+	fc      Forecast
+	fcStale bool
 }
 
 // New returns an empty series for topic.
@@ -158,25 +156,25 @@ func (set *Settings) check() error {
 
 func (s *Series) initBuffers() {
 	h := s.set.Horizon
-	s.mean = make([]float64, h)
-	s.variance = make([]float64, h)
-	s.z = make([]float64, len(s.set.Levels))
-	n := 1 + 2*len(s.set.Levels)
-	s.ptW, s.ptX, s.ptOK = make([]float64, n), make([]float64, n), make([]bool, n)
-	for i, l := range s.set.Levels {
-		s.z[i] = distuv.UnitNormal.Quantile(0.5 + l/200)
-	}
-	s.fc = Forecast{
+	s.mf = ModelForecast{
 		Topic:       s.snap.Topic,
-		StepSeconds: s.set.StepSeconds,
 		Kind:        s.set.Kind,
+		StepSeconds: s.set.StepSeconds,
 		Levels:      append([]float64(nil), s.set.Levels...),
-		Points:      make([]Point, h),
+		Z:           make([]float64, len(s.set.Levels)),
+		Mean:        make([]float64, h),
+		Variance:    make([]float64, h),
 	}
+	for i, l := range s.set.Levels {
+		s.mf.Z[i] = distuv.UnitNormal.Quantile(0.5 + l/200)
+	}
+	// Shaped now, so that filling it never allocates.
+	s.fc = Forecast{Levels: make([]float64, 0, len(s.set.Levels)), Points: make([]Point, h)}
 	for i := range s.fc.Points {
 		s.fc.Points[i].Lower = make([]Bound, len(s.set.Levels))
 		s.fc.Points[i].Upper = make([]Bound, len(s.set.Levels))
 	}
+	s.mf.Fill(&s.fc) // the scratch too
 }
 
 // Topic returns the series key.
@@ -349,84 +347,47 @@ func (s *Series) dropModel() {
 	s.snap.SinceRefit = 0
 }
 
-// Forecast returns the latest forecast. It is valid until the next call
-// that changes the series; callers encode or copy it at once.
-func (s *Series) Forecast() *Forecast { return &s.fc }
+// Forecast returns the latest forecast in raw units, filling it from the
+// model-scale forecast on the first call after it changed. It is valid
+// until the next call that changes the series; callers encode or copy it
+// at once.
+func (s *Series) Forecast() *Forecast {
+	if s.fcStale {
+		s.mf.Fill(&s.fc)
+		s.fcStale = false
+	}
+	return &s.fc
+}
+
+// ModelForecast returns the latest forecast on the model scale, with what
+// its raw-unit form needs (read-only, valid until the series changes):
+// ModelForecast().Fill gives what Forecast returns. A publisher copies it
+// and fills the copy elsewhere.
+func (s *Series) ModelForecast() *ModelForecast { return &s.mf }
 
 // ModelScale returns the latest model-scale forecast means and variances
 // (read-only views, valid until the series changes) and the transform, for
 // threshold probabilities.
 func (s *Series) ModelScale() (mean, variance []float64, tr transform.Transform) {
-	return s.mean, s.variance, s.tr
+	return s.mf.Mean, s.mf.Variance, s.tr
 }
 
 // Joint fills cov (Horizon×Horizon, row-major) with the joint covariance of
 // the model-scale forecast errors from the current origin.
 func (s *Series) Joint(cov []float64) {
 	if s.filter != nil {
-		s.filter.ForecastJoint(s.mean, cov)
+		s.filter.ForecastJoint(s.mf.Mean, cov)
 	}
 }
 
-// forecast fills s.fc from the filter, in raw units.
-//
-// The median and every band endpoint map through the monotone inverse
-// transform; the mean uses the bias-adjusted back-transform. For a counter
-// every value is floored at the last closed value (a total never falls).
+// forecast computes the model-scale forecast from the filter at the new
+// origin; the raw-unit one follows when asked for (Forecast).
 func (s *Series) forecast() {
-	sn := &s.snap
-	s.filter.Forecast(s.mean, s.variance)
-	last := sn.Window[len(sn.Window)-1]
-	step := s.set.StepSeconds
-	s.fc.Origin = time.Unix(sn.WindowEnd*step, 0).UTC()
-	s.fc.LastValue = last
-	counter := s.set.Kind == "counter"
-	inc := s.tr.Increasing()
-	for i := range s.fc.Points {
-		m, v := s.mean[i], s.variance[i]
-		sd := math.Sqrt(math.Max(v, 0))
-		p := &s.fc.Points[i]
-		p.H = i + 1
-		p.Time = time.Unix((sn.WindowEnd+int64(i+1))*step, 0).UTC()
-		s.ptW[0] = m
-		for j, z := range s.z {
-			s.ptW[1+2*j], s.ptW[2+2*j] = m-z*sd, m+z*sd
-		}
-		s.tr.InverseSlice(s.ptX, s.ptOK, s.ptW) // the median is Inverse(m)
-		p.Median = orNaN(s.ptX[0], s.ptOK[0])
-		p.Mean = orNaN(s.tr.Mean(m, v))
-		for j := range s.z {
-			lo, lok := s.ptX[1+2*j], s.ptOK[1+2*j]
-			hi, hok := s.ptX[2+2*j], s.ptOK[2+2*j]
-			if !inc {
-				lo, lok, hi, hok = hi, hok, lo, lok
-			}
-			p.Lower[j] = Bound{Value: lo, OK: lok}
-			p.Upper[j] = Bound{Value: hi, OK: hok}
-		}
-		if counter {
-			p.Median = math.Max(p.Median, last)
-			p.Mean = math.Max(p.Mean, last)
-			for j := range p.Lower {
-				// An unbounded lower end of a total is bounded by its last value.
-				if !p.Lower[j].OK || p.Lower[j].Value < last {
-					p.Lower[j] = Bound{Value: last, OK: true}
-				}
-				if p.Upper[j].OK && p.Upper[j].Value < last {
-					p.Upper[j].Value = last
-				}
-			}
-		}
-	}
-}
-
-// orNaN turns an out-of-domain inverse into NaN, which the encoder
-// publishes as null.
-func orNaN(x float64, ok bool) float64 {
-	if !ok {
-		return math.NaN()
-	}
-	return x
+	s.filter.Forecast(s.mf.Mean, s.mf.Variance)
+	s.mf.End = s.snap.WindowEnd
+	s.mf.Last = s.snap.Window[len(s.snap.Window)-1]
+	s.mf.Transform = s.tr
+	s.fcStale = true
 }
 
 func countFinite(x []float64) int {

@@ -262,3 +262,46 @@ func TestResumeAfterFailedFirstFit(t *testing.T) {
 		t.Fatalf("restored while warming up: %d forecasts, uninterrupted %d (or contents differ)", len(got), len(want))
 	}
 }
+
+// A copy of the model-scale forecast, filled into a forecast of another
+// shape (as the daemon's encoder does with a slot that served another
+// series), gives exactly what Series.Forecast gives (a property of the
+// code: Fill reads only the copy). Gauge and counter, log transform, three
+// levels.
+func TestModelForecastCopyFillsTheSame(t *testing.T) {
+	for _, kind := range []string{"gauge", "counter"} {
+		set := settings()
+		set.Kind, set.Transform, set.Levels = kind, "log", []float64{50, 80, 95}
+		s, err := New("c", set)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var other ModelForecast
+		var got Forecast
+		// A slot shaped by another series: longer horizon, one level.
+		got.Points = make([]Point, 2*set.Horizon)
+		for i := range got.Points {
+			got.Points[i].Lower, got.Points[i].Upper = make([]Bound, 1), make([]Bound, 1)
+		}
+		x := trend(150, 3)
+		for i, v := range x {
+			o, err := s.Observe(at(int64(i)), v)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if o == NeedFit {
+				if o, err = s.Install(s.FitJob().Run()); err != nil {
+					t.Fatal(err)
+				}
+			}
+			if o != Published {
+				continue
+			}
+			other.CopyFrom(s.ModelForecast())
+			other.Fill(&got)
+			if want := s.Forecast(); !reflect.DeepEqual(copyForecast(&got), copyForecast(want)) {
+				t.Fatalf("%s, bucket %d: filled copy\n%+v\nSeries.Forecast\n%+v", kind, i, got, *want)
+			}
+		}
+	}
+}

@@ -419,10 +419,9 @@ func BenchmarkClosePath(b *testing.B) {
 				if err != nil || out != series.Published {
 					b.Fatalf("outcome %v, %v", out, err)
 				}
-				fc := s.Forecast()
-				buf = stream.AppendForecast(buf[:0], fc, now)
+				buf = stream.AppendForecast(buf[:0], s.Forecast(), now)
 				if len(e.rules) > 0 {
-					d.evaluate(topic, e, fc, now)
+					d.evaluate(topic, e, s.ModelForecast(), now)
 				}
 			}
 			if withRule && d.evaluator.LastMethod() != alert.MethodSkip {

@@ -639,35 +639,40 @@ func (d *Daemon) finishFit(r fitDone) {
 // publish encodes and publishes the series' latest forecast, then
 // evaluates its alert rules.
 func (d *Daemon) publish(topic string, e *entry) {
-	fc := e.s.Forecast()
+	mf := e.s.ModelForecast()
 	now := d.now()
 	sl := <-d.free // waits only when the encoder is a full queue behind
-	copyForecast(&sl.fc, fc)
+	sl.mf.CopyFrom(mf)
 	sl.issued, sl.subject = now, e.subject
 	d.out <- sl
 	if d.opt.OnForecast != nil {
-		d.opt.OnForecast(fc)
+		d.opt.OnForecast(e.s.Forecast())
 	}
 	if len(e.rules) > 0 {
-		d.evaluate(topic, e, fc, now)
+		d.evaluate(topic, e, mf, now)
 	}
 }
 
-// slot carries one forecast from the loop to the encoder; slots circulate
-// between d.free and d.out, so publishing allocates nothing.
+// slot carries one forecast from the loop to the encoder, on the model
+// scale; the encoder fills its raw-unit form. Slots circulate between
+// d.free and d.out, so publishing allocates nothing.
 type slot struct {
+	mf      series.ModelForecast
 	fc      series.Forecast
 	issued  time.Time
 	subject string
 }
 
-// encodeLoop encodes and publishes forecasts in the order the loop made
-// them, and keeps the latest one per topic for queries. It runs on its own
-// goroutine so that encoding, the costliest part of a bucket close, uses
-// another core than the loop.
+// encodeLoop turns forecasts into raw units, encodes and publishes them in
+// the order the loop made them, and keeps the latest one per topic for
+// queries. It runs on its own goroutine so that this, the costliest part
+// of a bucket close, uses another core than the loop. Filling a copy of
+// the series' model-scale forecast gives exactly what Series.Forecast
+// gives (ModelForecast.Fill is a function of the copy alone).
 func (d *Daemon) encodeLoop() {
 	var buf []byte
 	for sl := range d.out {
+		sl.mf.Fill(&sl.fc)
 		buf = stream.AppendForecast(buf[:0], &sl.fc, sl.issued)
 		if err := d.pub.Forecast(sl.subject, buf); err != nil {
 			d.log.Warn("forecast not published", "topic", sl.fc.Topic, "err", err)
@@ -682,33 +687,6 @@ func (d *Daemon) encodeLoop() {
 	}
 }
 
-// copyForecast copies src into dst, reusing dst's slices. Points are
-// copied field by field and bounds with copy, so that no slice header is
-// written twice (each such pointer write costs a write barrier while the
-// collector runs).
-func copyForecast(dst, src *series.Forecast) {
-	pts, levels := dst.Points, dst.Levels
-	*dst = *src
-	dst.Levels = append(levels[:0], src.Levels...)
-	if cap(pts) < len(src.Points) {
-		pts = append(pts[:cap(pts)], make([]series.Point, len(src.Points)-cap(pts))...)
-	}
-	pts = pts[:len(src.Points)]
-	for i := range src.Points {
-		d, s := &pts[i], &src.Points[i]
-		d.H, d.Time, d.Mean, d.Median = s.H, s.Time, s.Mean, s.Median
-		if len(d.Lower) != len(s.Lower) {
-			d.Lower = make([]series.Bound, len(s.Lower))
-		}
-		if len(d.Upper) != len(s.Upper) {
-			d.Upper = make([]series.Bound, len(s.Upper))
-		}
-		copy(d.Lower, s.Lower)
-		copy(d.Upper, s.Upper)
-	}
-	dst.Points = pts
-}
-
 func (d *Daemon) storeLatest(s *series.Series) {
 	b := stream.AppendForecast(nil, s.Forecast(), d.now())
 	d.mu.Lock()
@@ -717,7 +695,8 @@ func (d *Daemon) storeLatest(s *series.Series) {
 }
 
 // evaluate updates every alert rule of the series from its latest forecast.
-func (d *Daemon) evaluate(topic string, e *entry, fc *series.Forecast, now time.Time) {
+func (d *Daemon) evaluate(topic string, e *entry, fc *series.ModelForecast, now time.Time) {
+	origin := fc.Origin()
 	mean, variance, tr := e.s.ModelScale()
 	states := e.s.Alerts()
 	for _, r := range e.rules {
@@ -742,7 +721,7 @@ func (d *Daemon) evaluate(topic string, e *entry, fc *series.Forecast, now time.
 			p, eta, err = d.evaluator.Probability(&alert.Query{
 				Mean: mean, Variance: variance, Threshold: c, Direction: dir,
 				Window: r.window, Monotone: e.s.Settings().Kind == "counter",
-				Seed: seedOf(topic, r.cfg.Name, fc.Origin),
+				Seed: seedOf(topic, r.cfg.Name, origin),
 			}, func(cov []float64) { e.s.Joint(cov) })
 			if err != nil {
 				d.log.Warn("alert evaluation failed", "topic", topic, "rule", r.cfg.Name, "err", err)
@@ -756,17 +735,17 @@ func (d *Daemon) evaluate(topic string, e *entry, fc *series.Forecast, now time.
 			continue
 		}
 		st.Firing = firing
-		st.Since = fc.Origin.Unix() / fc.StepSeconds
+		st.Since = fc.End
 		ev := series.AlertEvent{
 			Topic: topic, Rule: r.cfg.Name, Firing: firing, Threshold: thr,
-			Probability: p, WithinSeconds: int64(r.cfg.Within / time.Second), Origin: fc.Origin,
+			Probability: p, WithinSeconds: int64(r.cfg.Within / time.Second), Origin: origin,
 		}
 		ev.Direction = "below"
 		if above {
 			ev.Direction = "above"
 		}
 		if eta > 0 {
-			ev.ETA, ev.HasETA = fc.Points[eta-1].Time, true
+			ev.ETA, ev.HasETA = fc.TimeAt(eta), true
 		}
 		d.encBuf = stream.AppendAlert(d.encBuf[:0], &ev, now)
 		d.pub.Alert(topic, d.encBuf)

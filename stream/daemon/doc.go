@@ -15,9 +15,10 @@
 // # Goroutines
 //
 // Besides the loop: the refit workers (Refit.Workers); one encoder, which
-// encodes, publishes and keeps the latest forecast of each topic in the
-// order the loop made them (forecasts travel in preallocated slots, so a
-// bucket close allocates nothing); and one writer, which commits the
+// turns forecasts into raw units, encodes, publishes and keeps the latest
+// forecast of each topic, in the order the loop made them (forecasts
+// travel on the model scale in preallocated slots, so a bucket close
+// allocates nothing); and one writer, which commits the
 // records the loop encoded into a state.Batch and hands the result back.
 // Only one write is in flight; a flush asked for meanwhile waits for the
 // next trigger and then writes everything that changed since.
