@@ -5,6 +5,7 @@ import (
 	"strconv"
 	"time"
 	"unicode/utf8"
+	"unsafe"
 
 	"forewarn/engine/series"
 )
@@ -21,13 +22,13 @@ import (
 // as the nanoseconds need (time.RFC3339Nano). A zero FittedAt is null.
 // last_value and aicc are the shortest decimal that reads back as the same
 // float64 (strconv 'g', -1). The points' numbers (mean, median, bounds)
-// carry 12 significant digits (strconv 'g', 12: within 5e-13 relative of
+// carry 12 significant digits (strconv 'g', 12: within 5e-12 relative of
 // the float64, far inside any forecast's uncertainty), with one exception
 // that keeps the message's order against last_value as the floats have
 // it: a number equal to last_value, and one whose rounded form would read
 // back on the other side of last_value, is written as last_value is (so a
-// counter's clamped bounds read back as exactly its last value). A non-finite number, and a Bound with OK false, is
-// null. Level keys are the level in plain decimal ("80", "97.5"). Lower[i]
+// counter's clamped bounds read back as exactly its last value). A
+// non-finite number, and a Bound with OK false, is null. Level keys are the level in plain decimal ("80", "97.5"). Lower[i]
 // and Upper[i] are paired with f.Levels[i]; missing entries are null.
 //
 // With a dst of enough capacity AppendForecast does not allocate.
@@ -95,13 +96,16 @@ func (p *pointFormat) append(dst []byte, v float64) []byte {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return append(dst, "null"...)
 	}
+	if v == p.last { // a counter's clamped bound, typically
+		return append(dst, dst[p.at:p.end]...)
+	}
 	n := len(dst)
 	dst = appendG12(dst, v)
 	// Rounding to 12 digits moves v by at most 5e-12 of itself, so it can
 	// only cross last_value from this close.
 	if math.Abs(v-p.last) <= 1e-11*math.Abs(p.last) {
-		r, err := strconv.ParseFloat(string(dst[n:]), 64)
-		if err != nil || v == p.last || (v > p.last && r < p.last) || (v < p.last && r > p.last) {
+		r, err := strconv.ParseFloat(unsafe.String(&dst[n], len(dst)-n), 64)
+		if err != nil || (v > p.last && r < p.last) || (v < p.last && r > p.last) {
 			dst = append(dst[:n], dst[p.at:p.end]...)
 		}
 	}

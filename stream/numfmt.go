@@ -14,7 +14,7 @@ import (
 // the general way was most of the encoder's time.
 
 // pointDigits is the count of significant digits of the numbers in a
-// forecast's points. Twelve keep every value within 5e-13 relative of the
+// forecast's points. Twelve keep every value within 5e-12 relative of the
 // float64 it stands for, far below any forecast's uncertainty, and make
 // the messages about a seventh shorter than the shortest round-trip form.
 const pointDigits = 12
