@@ -61,7 +61,9 @@ type IntakeOptions struct {
 	// Default 1024.
 	BatchSize int
 	// BatchWait is how long a batch may wait to fill up once its first
-	// message is there. Default 2 ms; negative: hand over at once.
+	// message is there, when the batch before it held at least
+	// BatchSize/64 messages (under load; otherwise messages are handed
+	// over at once). Default 2 ms; negative: always hand over at once.
 	BatchWait time.Duration
 	// Buffer bounds the messages held between the bus and the handler;
 	// when it is full the Intake stops taking messages from the client
@@ -358,7 +360,11 @@ func (in *Intake) Run(ctx context.Context, handle func(batch []Message)) error {
 			deliver(b)
 			return nil
 		}
-		if in.o.BatchWait > 0 && in.buffered() < in.o.BatchSize {
+		// Wait for a batch to fill only under load, when the last batch
+		// held at least a sixty-fourth of BatchSize: at low rates a
+		// message goes through at once, and a high rate still gets full
+		// batches.
+		if in.o.BatchWait > 0 && len(spare) >= in.o.BatchSize/64 && in.buffered() < in.o.BatchSize {
 			t := time.NewTimer(in.o.BatchWait)
 			select {
 			case <-in.full:

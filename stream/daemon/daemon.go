@@ -75,8 +75,13 @@ type Daemon struct {
 	acked     uint64
 	batch     state.Batch // records of the write in flight (owned by the writer while writing)
 	writing   bool
-	evaluator *alert.Evaluator
-	cov       []float64
+	// A flush in progress encodes its records a chunk at a time between
+	// messages (flushStep), so that it never stalls the loop for long.
+	toFlush    []*entry // the flush's series; toFlush[flushed:] still to encode
+	flushed    int
+	flushFloor uint64
+	evaluator  *alert.Evaluator
+	cov        []float64
 
 	mu     sync.RWMutex
 	latest map[string][]byte // latest forecast JSON per topic, for queries
@@ -327,7 +332,13 @@ func (d *Daemon) Run(ctx context.Context) error {
 loop:
 	for {
 		jobs, next := d.nextJob()
+		var flushing <-chan struct{} // ready while a flush is being encoded
+		if len(d.toFlush) > 0 {
+			flushing = alwaysReady
+		}
 		select {
+		case <-flushing:
+			d.flushStep()
 		case jobs <- next:
 			d.queue = d.queue[1:]
 		case <-ctx.Done():
@@ -809,35 +820,60 @@ func (d *Daemon) closeIdle() {
 }
 
 // flush starts writing every changed series in one transaction on the
-// writer goroutine. The records are encoded here, on the loop, into the
-// daemon's one Batch, so the series carry on at once; the acknowledgement
-// waits for the commit (written). Only one write is in flight: a flush
-// asked for meanwhile is skipped, and the next trigger writes everything
-// that changed since.
+// writer goroutine. The records are encoded on the loop into the daemon's
+// one Batch, flushChunk at a time between messages (flushStep), and the
+// series carry on meanwhile; the acknowledgement waits for the commit
+// (written). The acknowledgement floor is taken when the flush starts:
+// every record encoded afterwards reflects at least that position. Only
+// one flush is in flight: one asked for meanwhile is skipped, and the next
+// trigger writes everything that changed since.
 func (d *Daemon) flush() {
-	if d.writing {
+	if d.writing || len(d.toFlush) > 0 {
 		return
 	}
 	d.sinceSave = 0
 	d.batch.Reset()
-	for topic, e := range d.series {
-		if !e.dirty {
-			continue
+	for _, e := range d.series {
+		if e.dirty {
+			d.toFlush = append(d.toFlush, e)
 		}
+	}
+	d.flushFloor = d.ackFloor()
+	if len(d.toFlush) == 0 {
+		d.ack(d.flushFloor) // nothing new to store: every earlier write has committed
+		return
+	}
+	d.flushStep()
+}
+
+// flushChunk is how many records one flushStep encodes: with records of a
+// few kilobytes, well under a millisecond of the loop.
+const flushChunk = 256
+
+// flushStep encodes the next chunk of the flush in progress and, after the
+// last one, hands the batch to the writer.
+func (d *Daemon) flushStep() {
+	end := min(d.flushed+flushChunk, len(d.toFlush))
+	for _, e := range d.toFlush[d.flushed:end] {
 		if err := d.batch.Add(e.s.Snapshot()); err != nil {
-			d.log.Error("series state cannot be stored", "topic", topic, "err", err)
+			d.log.Error("series state cannot be stored", "topic", e.s.Topic(), "err", err)
 			d.metrics.StateWriteFailures.Inc()
 			continue
 		}
 		e.dirty = false
 	}
-	floor := d.ackFloor()
+	d.flushed = end
+	if end < len(d.toFlush) {
+		return
+	}
+	clear(d.toFlush)
+	d.toFlush, d.flushed = d.toFlush[:0], 0
 	if d.batch.Len() == 0 {
-		d.ack(floor) // nothing new to store: every earlier write has committed
+		d.ack(d.flushFloor)
 		return
 	}
 	d.writing = true
-	d.writes <- writeJob{floor: floor}
+	d.writes <- writeJob{floor: d.flushFloor}
 }
 
 // ackFloor is the last stream position whose effect is in memory with
@@ -888,13 +924,28 @@ func (d *Daemon) writeLoop() {
 	}
 }
 
-// syncFlush writes everything and waits for it (shutdown).
+// syncFlush writes everything and waits for it (shutdown): the flush in
+// progress, if any, then one of everything that changed since.
 func (d *Daemon) syncFlush() {
-	if d.writing {
-		d.written(<-d.committed)
-	}
+	d.finishFlush()
 	d.flush()
+	d.finishFlush()
+}
+
+// finishFlush encodes the rest of the flush in progress and waits for its
+// write.
+func (d *Daemon) finishFlush() {
+	for len(d.toFlush) > 0 {
+		d.flushStep()
+	}
 	if d.writing {
 		d.written(<-d.committed)
 	}
 }
+
+// alwaysReady is a channel a select can always receive from.
+var alwaysReady = func() <-chan struct{} {
+	c := make(chan struct{})
+	close(c)
+	return c
+}()
