@@ -19,10 +19,6 @@ import (
 // the messages about a seventh shorter than the shortest round-trip form.
 const pointDigits = 12
 
-// pow10 holds the powers of ten that are exact in float64.
-var pow10 = [...]float64{1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10,
-	1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22}
-
 // appendG12 appends v as strconv.AppendFloat(dst, v, 'g', 12, 64) does:
 // twelve significant digits, rounded to nearest with ties to even, trailing
 // zeros removed, and the exponent form when the decimal exponent is below
@@ -42,11 +38,11 @@ func appendG12(dst []byte, v float64) []byte {
 	e10 := decimalExponent(a)
 	var x, res float64 // x: the scaled value as rounded; res: the sign of the true value − x
 	if e10 <= 11 {
-		s := pow10[11-e10]
+		s := pow10At(11 - e10) // 10^0 … 10^22: exact
 		x = a * s
 		res = math.FMA(a, s, -x)
 	} else {
-		s := pow10[e10-11]
+		s := pow10At(e10 - 11)
 		x = a / s
 		res = math.FMA(-x, s, a)
 	}
@@ -148,9 +144,9 @@ func decimalExponent(a float64) int {
 }
 
 // pow10At returns the float64 nearest to 10^k for −12 ≤ k ≤ 34 (each
-// entry is a constant, which Go rounds to nearest). When that float64 is
-// above 10^k it is the least float64 at or above it, so decimalExponent
-// never returns too small an exponent.
+// entry is a constant, which Go rounds to nearest): exact for 0 ≤ k ≤ 22.
+// When that float64 is above 10^k it is the least float64 at or above it,
+// so decimalExponent never returns too small an exponent.
 func pow10At(k int) float64 { return pow10Near[k+12] }
 
 var pow10Near = [...]float64{1e-12, 1e-11, 1e-10, 1e-9, 1e-8, 1e-7, 1e-6, 1e-5,

@@ -152,9 +152,9 @@ func (t Transform) Inverse(w float64) (x float64, ok bool) {
 	s := t.scale()
 	switch t.Name {
 	case None:
-		return finite(t.Loc + s*w)
+		return t.invNone(s, w)
 	case Log:
-		return finite(math.Exp(t.Loc + s*w))
+		return t.invLog(s, w)
 	case BoxCox:
 		return t.invBoxCox(s, w)
 	case ScaledExp:
@@ -175,11 +175,11 @@ func (t Transform) InverseSlice(x []float64, ok []bool, w []float64) {
 	switch t.Name {
 	case None:
 		for i, v := range w {
-			x[i], ok[i] = finite(t.Loc + s*v)
+			x[i], ok[i] = t.invNone(s, v)
 		}
 	case Log:
 		for i, v := range w {
-			x[i], ok[i] = finite(math.Exp(t.Loc + s*v))
+			x[i], ok[i] = t.invLog(s, v)
 		}
 	case BoxCox:
 		for i, v := range w {
@@ -195,6 +195,10 @@ func (t Transform) InverseSlice(x []float64, ok []bool, w []float64) {
 		}
 	}
 }
+
+func (t Transform) invNone(s, w float64) (float64, bool) { return finite(t.Loc + s*w) }
+
+func (t Transform) invLog(s, w float64) (float64, bool) { return finite(math.Exp(t.Loc + s*w)) }
 
 func (t Transform) invBoxCox(s, w float64) (float64, bool) {
 	u := t.Loc + s*w
