@@ -440,6 +440,15 @@ func (in *Intake) subscribePlain() (func(), error) {
 		sub.SetClosedHandler(func(string) { wg.Done() })
 		subs = append(subs, sub)
 	}
+	// Core subscriptions hold no backlog: wait until the server has
+	// registered them, so that whatever is published once the intake has
+	// started reaches it.
+	if err := in.nc.Flush(); err != nil {
+		for _, u := range subs {
+			_ = u.Unsubscribe()
+		}
+		return nil, fmt.Errorf("%w: register subscriptions: %w", ErrIntake, err)
+	}
 	return func() {
 		for _, s := range subs {
 			if d, err := s.Dropped(); err == nil {

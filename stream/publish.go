@@ -110,5 +110,11 @@ func ServeQueries(nc *nats.Conn, prefix string, lookup func(topic string) ([]byt
 	if err != nil {
 		return nil, fmt.Errorf("stream: serve queries on %q: %w", base+">", err)
 	}
+	// The round trip makes the server register the subscription before we
+	// return, so a query sent on another connection right after finds it.
+	if err := nc.Flush(); err != nil {
+		_ = sub.Unsubscribe()
+		return nil, fmt.Errorf("stream: serve queries on %q: %w", base+">", err)
+	}
 	return sub, nil
 }
