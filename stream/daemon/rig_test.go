@@ -169,13 +169,14 @@ func (r *rig) start(nc *nats.Conn, store *state.Store) {
 		tb.Fatal("daemon not ready within 60s")
 	}
 	r.d = d
-	// Ready does not wait for the plain intake's subscriptions to reach
-	// the server: a message published before that is lost. Wait until the
-	// server routes the intake subjects somewhere.
-	streamtest.Eventually(tb, 10*time.Second, "intake subscribed", func() bool {
-		sz, err := r.srv.Subsz(&server.SubszOptions{Subscriptions: true, Test: r.subjects[0]})
-		return err == nil && len(sz.Subs) > 0
-	})
+	// Ready waits until the server has registered the intake's
+	// subscriptions (a plain subscription has no replay, so a message
+	// published before that would be lost): the server routes the intake
+	// subjects already.
+	sz, err := r.srv.Subsz(&server.SubszOptions{Subscriptions: true, Test: r.subjects[0]})
+	if err != nil || len(sz.Subs) == 0 {
+		tb.Fatalf("daemon ready, but the server routes %s nowhere (%v)", r.subjects[0], err)
+	}
 }
 
 // stepLevel moves series i one step along an ARIMA(1,1,1) path,
