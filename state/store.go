@@ -6,7 +6,6 @@ import (
 	"io/fs"
 	"os"
 	"path/filepath"
-	"slices"
 	"sync"
 	"time"
 
@@ -254,19 +253,57 @@ func (s *Store) LoadAll(fn func(topic string, s *series.Snapshot, err error) err
 // Batch is a set of encoded records ready to be committed together. The
 // daemon fills one on its loop goroutine (Add copies the snapshot into the
 // batch's own bytes, so the series may change at once) and commits it on
-// another (Commit). A Batch is reused after Reset; its buffer keeps the
-// size of the largest batch, so a steady flush allocates nothing. A Batch
-// is not safe for concurrent use.
+// another (Commit). A Batch is not safe for concurrent use.
+//
+// The records are stored whole in chunks of batchChunk bytes (a larger
+// record gets a chunk of its own), so that adding a record never moves
+// the ones before it: a flush of thousands of full windows is some
+// hundred megabytes, and one growing buffer would copy it several times
+// over as it grew. Reset keeps the chunks, so a steady flush allocates
+// nothing.
 type Batch struct {
-	buf  []byte
-	ends []int // per record: end of its key, end of its value
+	chunks [][]byte // chunks[:used] hold this batch's records
+	used   int
+	recs   []batchRecord
 }
 
-// Reset empties the batch, keeping its buffer.
-func (b *Batch) Reset() { b.buf, b.ends = b.buf[:0], b.ends[:0] }
+// batchRecord is one record of a Batch: its key and value, in a chunk.
+type batchRecord struct{ key, value []byte }
+
+// batchChunk is the size of a Batch's chunks: large enough that a chunk
+// holds dozens of full records, small enough that a half-empty last one
+// wastes little.
+const batchChunk = 1 << 20
+
+// Reset empties the batch, keeping its chunks.
+func (b *Batch) Reset() {
+	for i := range b.chunks[:b.used] {
+		b.chunks[i] = b.chunks[i][:0]
+	}
+	b.used = 0
+	clear(b.recs) // drop the references into the chunks
+	b.recs = b.recs[:0]
+}
 
 // Len returns the number of records in the batch.
-func (b *Batch) Len() int { return len(b.ends) / 2 }
+func (b *Batch) Len() int { return len(b.recs) }
+
+// room makes the chunk at b.used-1 one with n free bytes and returns it.
+func (b *Batch) room(n int) []byte {
+	if b.used > 0 {
+		if c := b.chunks[b.used-1]; cap(c)-len(c) >= n {
+			return c
+		}
+	}
+	if b.used == len(b.chunks) {
+		b.chunks = append(b.chunks, nil)
+	}
+	if cap(b.chunks[b.used]) < n {
+		b.chunks[b.used] = make([]byte, 0, max(n, batchChunk))
+	}
+	b.used++
+	return b.chunks[b.used-1]
+}
 
 // Add encodes snap into the batch under its topic. A later record for the
 // same topic wins at Commit.
@@ -283,11 +320,13 @@ func (b *Batch) Add(snap *series.Snapshot) error {
 	if n > maxRecordLen {
 		return fmt.Errorf("%w: save %q: %d bytes (at most %d)", ErrTooLarge, snap.Topic, n, maxRecordLen)
 	}
-	b.buf = slices.Grow(b.buf, len(snap.Topic)+n)
-	b.buf = append(b.buf, snap.Topic...)
-	b.ends = append(b.ends, len(b.buf))
-	b.buf = Encode(b.buf, snap)
-	b.ends = append(b.ends, len(b.buf))
+	c := b.room(len(snap.Topic) + n)
+	start := len(c)
+	c = append(c, snap.Topic...)
+	k := len(c)
+	c = Encode(c, snap) // within the chunk's capacity: EncodedLen is exact
+	b.chunks[b.used-1] = c
+	b.recs = append(b.recs, batchRecord{key: c[start:k:k], value: c[k:len(c):len(c)]})
 	return nil
 }
 
@@ -299,13 +338,10 @@ func (s *Store) Commit(b *Batch) error {
 	defer s.mu.Unlock()
 	err := s.db.Update(func(tx *bolt.Tx) error {
 		bk := tx.Bucket(bucketSeries)
-		start := 0
-		for i := 0; i < len(b.ends); i += 2 {
-			k, v := b.buf[start:b.ends[i]], b.buf[b.ends[i]:b.ends[i+1]]
-			if err := bk.Put(k, v); err != nil {
-				return fmt.Errorf("state: save %q: %w", k, err)
+		for _, r := range b.recs {
+			if err := bk.Put(r.key, r.value); err != nil {
+				return fmt.Errorf("state: save %q: %w", r.key, err)
 			}
-			start = b.ends[i+1]
 		}
 		return nil
 	})

@@ -1,7 +1,9 @@
 package state
 
 import (
+	"bytes"
 	"errors"
+	"fmt"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -407,5 +409,56 @@ func TestBatchCopiesAtAdd(t *testing.T) {
 	}
 	if err := b.Add(&series.Snapshot{}); !errors.Is(err, ErrInvalid) {
 		t.Fatalf("empty topic: %v, want ErrInvalid", err)
+	}
+}
+
+// A Batch larger than one chunk: records spread over several chunks, one
+// larger than a chunk gets its own, each commits intact, and refilling
+// the batch after Reset allocates nothing.
+func TestBatchChunks(t *testing.T) {
+	s := openTest(t)
+	var snaps []*series.Snapshot
+	for i := range 300 { // about 16 KB each: several chunks
+		snap := *window2000()
+		snap.Topic = fmt.Sprintf("disk.vol%03d.used", i)
+		snap.Seq = uint64(i)
+		snaps = append(snaps, &snap)
+		if i == 150 {
+			big := *window2000()
+			big.Topic = "disk.big.used"
+			big.Window = make([]float64, 3*batchChunk/8) // over a chunk on its own
+			for k := range big.Window {
+				big.Window[k] = float64(k)
+			}
+			snaps = append(snaps, &big)
+		}
+	}
+	var b Batch
+	fill := func() {
+		b.Reset()
+		for _, snap := range snaps {
+			if err := b.Add(snap); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	fill()
+	if b.Len() != len(snaps) || b.used < 5 {
+		t.Fatalf("Len %d (want %d), %d chunks in use (want at least 5)", b.Len(), len(snaps), b.used)
+	}
+	if err := s.Commit(&b); err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range snaps {
+		got, err := s.Load(want.Topic)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Equal(Encode(nil, got), Encode(nil, want)) {
+			t.Fatalf("%s: the committed record differs from the snapshot", want.Topic)
+		}
+	}
+	if allocs := testing.AllocsPerRun(3, fill); allocs != 0 {
+		t.Fatalf("refilling a reset batch: %v allocations, want 0", allocs)
 	}
 }

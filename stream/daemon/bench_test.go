@@ -64,18 +64,30 @@ import (
 // about once a second whatever the rate (instead of every 150 000
 // messages): the difference is what the extra writes cost when 10 000
 // series take turns, every one of them dirty at every write.
+//
+// The plain_full_window case starts every series from a stored record
+// with a full 2000-bucket window (as a daemon finds them after running for
+// a while), instead of the warm-up's 21 buckets: each flush then rewrites
+// records of about 16 KB, and each close shifts a full window.
 func BenchmarkIntakeBound(b *testing.B) {
 	for _, c := range []struct {
 		name string
 		o    rigOptions
+		full bool // start from full windows (newRigFull) instead of warm
 	}{
-		{"plain", rigOptions{}},
-		{"durable", rigOptions{durable: true}},
-		{"plain_flush_1s", rigOptions{flushMax: 1_000_000}},
+		{"plain", rigOptions{}, false},
+		{"durable", rigOptions{durable: true}, false},
+		{"plain_flush_1s", rigOptions{flushMax: 1_000_000}, false},
+		{"plain_full_window", rigOptions{window: fullWindow}, true},
 	} {
 		b.Run(c.name, func(b *testing.B) {
-			r := newRig(b, c.o)
-			r.warm()
+			var r *rig
+			if c.full {
+				r = newRigFull(b, c.o)
+			} else {
+				r = newRig(b, c.o)
+				r.warm()
+			}
 			msgs := r.build(b.N, 10)
 			size := len(msgs.data) / max(b.N, 1)
 			twins, filter := rawTwins(r.subjects)
@@ -285,33 +297,19 @@ func BenchmarkCloseToForecastLatency(b *testing.B) {
 // started, is divided by the number of series. Reported: bytes/series.
 // One operation is one whole measurement.
 func BenchmarkStateMemory(b *testing.B) {
-	const window = 2000
+	const window = fullWindow
 	for b.Loop() {
 		b.StopTimer()
-		r := newRigStopped(b, rigOptions{window: window})
+		r := newRigConfig(b, rigOptions{window: window})
 		snap := r.template(window)
 		ns := len(r.subjects)
-		store, err := state.Open(r.cfg.State.Dir)
-		if err != nil {
-			b.Fatal(err)
-		}
-		for lo := 0; lo < ns; lo += 1000 {
-			var batch []*series.Snapshot
-			for i := lo; i < min(lo+1000, ns); i++ {
-				s := *snap
-				s.Topic = rigTopic(i)
-				batch = append(batch, &s)
-			}
-			if err := store.Save(batch); err != nil {
-				b.Fatal(err)
-			}
-		}
+		store := r.seed(snap)
 		before := heapInUse()
 		b.StartTimer()
 		r.start(streamtest.Connect(b, r.url), store)
 		b.StopTimer()
 		// One close per series: encoder buffers, dirty flags, a flush.
-		r.next = snap.OpenBucket - r.t0/int64(rigStep/time.Second) // relative to r.t0
+		r.resumeAfter(snap)
 		r.send(r.build(ns, 1))
 		waitUntil(b, 60*time.Second, "a forecast per series", func() bool {
 			return counterValue(r.d.metrics.Published) >= float64(ns)
@@ -333,11 +331,57 @@ func BenchmarkStateMemory(b *testing.B) {
 	}
 }
 
-// newRigStopped is newRig without a running daemon: the caller fills the
-// store and calls start.
-func newRigStopped(tb testing.TB, o rigOptions) *rig {
+// fullWindow is the window of the full-window benchmarks: the config
+// default, the size the state-memory target names.
+const fullWindow = 2000
+
+// newRigFull is newRig for series that have run for a while: every series
+// is restored from a stored copy of one fitted template series whose
+// window (o.window buckets) is full, and the rig's paths continue the
+// template's. Like warm, it returns once the state is quiet.
+func newRigFull(tb testing.TB, o rigOptions) *rig {
 	tb.Helper()
-	return newRigConfig(tb, o)
+	r := newRigConfig(tb, o)
+	snap := r.template(o.window)
+	r.start(streamtest.Connect(tb, r.url), r.seed(snap))
+	r.resumeAfter(snap)
+	r.quiesce()
+	return r
+}
+
+// seed opens the rig's store and writes snap to it under every rig topic,
+// 1000 records per transaction. No daemon has the store yet.
+func (r *rig) seed(snap *series.Snapshot) *state.Store {
+	tb := r.tb
+	tb.Helper()
+	store, err := state.Open(r.cfg.State.Dir)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	ns := len(r.subjects)
+	for lo := 0; lo < ns; lo += 1000 {
+		var batch []*series.Snapshot
+		for i := lo; i < min(lo+1000, ns); i++ {
+			s := *snap
+			s.Topic = rigTopic(i)
+			batch = append(batch, &s)
+		}
+		if err := store.Save(batch); err != nil {
+			tb.Fatal(err)
+		}
+	}
+	return store
+}
+
+// resumeAfter makes the rig's next messages follow the seeded template:
+// the first goes into its open bucket, and every series' path continues
+// from the template's last level, difference and innovation (template
+// stepped series 0's path).
+func (r *rig) resumeAfter(snap *series.Snapshot) {
+	r.next = snap.OpenBucket - r.t0/int64(rigStep/time.Second) // relative to r.t0
+	for i := range r.subjects {
+		r.level[i], r.diff[i], r.shock[i] = r.level[0], r.diff[0], r.shock[0]
+	}
 }
 
 // template returns the snapshot of one series that has seen window+1
