@@ -183,6 +183,77 @@ func TestCounterNeverBelowLast(t *testing.T) {
 
 // TestSnapshotResume checks that a series restored from its snapshot at any
 // point produces exactly the forecasts of an uninterrupted one.
+// The window keeps the last Window closed buckets in order, however far
+// it has moved along its buffer, across a restore (from a window longer
+// than the new setting) and after a gap that empties it; pushing a bucket
+// into a full window allocates nothing. Expected values are the plain
+// last-n slice of everything observed.
+func TestWindowSlides(t *testing.T) {
+	set := settings()
+	set.Model, set.MinPoints, set.Window, set.RefitEvery = "ARIMA(0,1,0)", 8, 16, 1<<30
+	s, err := New("w", set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var all []float64
+	b := int64(0)
+	observe := func(s *Series, n int) {
+		t.Helper()
+		for range n {
+			v := float64(b) + math.Sin(float64(b)) // not constant after differencing
+			o, err := s.Observe(at(b), v)
+			if err == nil && o == NeedFit {
+				_, err = s.Install(s.FitJob().Run())
+			}
+			if err != nil {
+				t.Fatal(err)
+			}
+			all = append(all, v)
+			b++
+		}
+	}
+	check := func(s *Series, what string) {
+		t.Helper()
+		closed := all[:len(all)-1] // the last observation is the open bucket
+		want := closed[max(0, len(closed)-set.Window):]
+		if got := s.Snapshot().Window; !reflect.DeepEqual(got, want) {
+			t.Fatalf("%s: window %v, want %v", what, got, want)
+		}
+	}
+	observe(s, 5)
+	check(s, "filling")
+	observe(s, 3*windowCap(set.Window)+7) // slides back to the buffer's start several times
+	check(s, "after sliding")
+
+	long := *s.Snapshot()
+	long.Window = append([]float64(nil), long.Window...)
+	short := set
+	short.Window = 12
+	r, err := Restore(&long, short)
+	if err != nil {
+		t.Fatal(err)
+	}
+	set.Window = short.Window
+	check(r, "restored into a shorter window")
+	observe(r, 25)
+	check(r, "after sliding, restored")
+
+	b += int64(set.Window) + 3 // a gap longer than the window: it starts afresh
+	all = all[:0]
+	observe(r, 12)
+	check(r, "after a gap")
+	observe(r, 30)
+	// One run is 100 closes (AllocsPerRun rounds the average per run down).
+	if allocs := testing.AllocsPerRun(1, func() {
+		for range 100 {
+			observe(r, 1)
+			all = all[:len(all)-1]
+		}
+	}); allocs != 0 {
+		t.Fatalf("100 closes into a full window: %v allocations, want 0", allocs)
+	}
+}
+
 func TestSnapshotResume(t *testing.T) {
 	x := trend(160, 3)
 	whole, _ := New("r", settings())
