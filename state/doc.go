@@ -4,11 +4,14 @@
 //
 // # What it owns
 //
-// The file <dir>/forewarn.db (mode 0600, directory 0700) with two buckets:
+// The file <dir>/forewarn.db (mode 0600, directory 0700) with two buckets,
+// and a third once a record has been set aside:
 //
-//	series  topic bytes → one record (below), the encoding of a series.Snapshot
-//	meta    "format"  → uint16 little-endian, StoreVersion of the layout
-//	        "created" → RFC 3339 time (UTC) at which the file was created
+//	series     topic bytes → one record (below), the encoding of a series.Snapshot
+//	meta       "format"  → uint16 little-endian, StoreVersion of the layout
+//	           "created" → RFC 3339 time (UTC) at which the file was created
+//	set-aside  topic bytes, 0x00, uint64 big-endian Unix nanoseconds →
+//	           a record exactly as it was found in series (Store.SetAside)
 //
 // state persists and never computes: it knows nothing of models or
 // transforms beyond the plain fields of series.Snapshot. Package engine
@@ -119,13 +122,18 @@
 // (a field the old version lacks gets its documented default). A record of
 // a version above FormatVersion is refused with ErrVersion, never guessed
 // at. Each version's layout stays documented here. The store layout (the
-// buckets and meta keys) has its own StoreVersion under the same rule.
+// buckets and meta keys) has its own StoreVersion under the same rule,
+// except for a bucket that a build without it can ignore without misreading
+// anything: set-aside came that way, in StoreVersion 1, and a build that
+// does not know it leaves it alone.
 //
 // # Caveats
 //
 // A record damaged on disk affects only its own topic: LoadAll hands its
 // error to the caller for that topic and loads the others, and the daemon
-// resets that one series. Save keeps its encode buffer between calls, so
-// its memory stays at the size of the largest batch (about 16 KB per series
-// with a 2000-bucket window).
+// sets that record aside and resets that one series. Nothing in this
+// package deletes a set-aside record; `forewarn state check` lists them.
+// Save keeps its encode chunks between calls, so its memory stays at the
+// size of the largest batch (about 16 KB per series with a 2000-bucket
+// window).
 package state

@@ -1,6 +1,7 @@
 package state
 
 import (
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"io/fs"
@@ -28,10 +29,11 @@ const StoreVersion uint16 = 1
 const DefaultLockTimeout = time.Second
 
 var (
-	bucketSeries = []byte("series")
-	bucketMeta   = []byte("meta")
-	keyFormat    = []byte("format")
-	keyCreated   = []byte("created")
+	bucketSeries   = []byte("series")
+	bucketMeta     = []byte("meta")
+	bucketSetAside = []byte("set-aside")
+	keyFormat      = []byte("format")
+	keyCreated     = []byte("created")
 )
 
 // Option is an optional knob of Open.
@@ -406,13 +408,98 @@ func (s *Store) Check() error {
 	return errors.Join(problems...)
 }
 
+// SetAside moves the record of topic, byte for byte, out of the series
+// bucket into the set-aside bucket, under the topic and the time at:
+// the daemon does so with a record it will not continue from (unreadable,
+// of a newer format, or of another kind or step), before the topic starts
+// afresh, so that its next flush does not overwrite the only copy. It
+// reports whether topic had a record.
+func (s *Store) SetAside(topic string, at time.Time) (bool, error) {
+	key := setAsideKey(topic, at)
+	if len(key) > bolt.MaxKeySize {
+		return false, fmt.Errorf("%w: set aside: topic of %d bytes", ErrTooLarge, len(topic))
+	}
+	moved := false
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		series := tx.Bucket(bucketSeries)
+		v := series.Get([]byte(topic))
+		if v == nil {
+			return nil
+		}
+		aside, err := tx.CreateBucketIfNotExists(bucketSetAside)
+		if err != nil {
+			return fmt.Errorf("state: create set-aside bucket: %w", err)
+		}
+		if err := aside.Put(key, v); err != nil {
+			return fmt.Errorf("state: set aside %q: %w", topic, err)
+		}
+		moved = true
+		return series.Delete([]byte(topic))
+	})
+	if err != nil {
+		return false, wrap("set aside", err)
+	}
+	return moved, nil
+}
+
+// SetAsideRecord is one record in the set-aside bucket.
+type SetAsideRecord struct {
+	Topic string
+	At    time.Time // when it was set aside
+	Bytes int       // size of the record as it was found
+	Err   error     // why it does not decode now (nil if it does)
+}
+
+// SetAsideRecords lists the set-aside bucket in topic order, then by time.
+func (s *Store) SetAsideRecords() ([]SetAsideRecord, error) {
+	var out []SetAsideRecord
+	err := s.db.View(func(tx *bolt.Tx) error {
+		aside := tx.Bucket(bucketSetAside)
+		if aside == nil {
+			return nil
+		}
+		return aside.ForEach(func(k, v []byte) error {
+			topic, at, ok := parseSetAsideKey(k)
+			if !ok {
+				return fmt.Errorf("%w: set-aside key %q", ErrNotState, k)
+			}
+			_, derr := decodeFor(topic, v)
+			out = append(out, SetAsideRecord{Topic: topic, At: at, Bytes: len(v), Err: derr})
+			return nil
+		})
+	})
+	if err != nil {
+		return nil, wrap("set-aside records", err)
+	}
+	return out, nil
+}
+
+// setAsideKey is topic, a zero byte (which no topic holds) and the time as
+// big-endian Unix nanoseconds, so that keys sort by topic, then by time.
+func setAsideKey(topic string, at time.Time) []byte {
+	k := make([]byte, 0, len(topic)+9)
+	k = append(k, topic...)
+	k = append(k, 0)
+	return binary.BigEndian.AppendUint64(k, uint64(at.UnixNano()))
+}
+
+func parseSetAsideKey(k []byte) (topic string, at time.Time, ok bool) {
+	if len(k) < 10 || k[len(k)-9] != 0 {
+		return "", time.Time{}, false
+	}
+	ns := int64(binary.BigEndian.Uint64(k[len(k)-8:]))
+	return string(k[:len(k)-9]), time.Unix(0, ns).UTC(), true
+}
+
 // Info describes a state file.
 type Info struct {
 	Path    string
 	Format  uint16    // StoreVersion of the file
 	Created time.Time // when the file was created (zero if unreadable)
 	Series  int       // number of records
-	Bytes   int64     // file size
+	// SetAside is the number of records set aside (Store.SetAside).
+	SetAside int
+	Bytes    int64 // file size
 }
 
 // Info returns the store's meta data, record count and file size.
@@ -425,6 +512,9 @@ func (s *Store) Info() (Info, error) {
 		}
 		info.Created, _ = time.Parse(time.RFC3339Nano, string(meta.Get(keyCreated)))
 		info.Series = tx.Bucket(bucketSeries).Stats().KeyN
+		if aside := tx.Bucket(bucketSetAside); aside != nil {
+			info.SetAside = aside.Stats().KeyN
+		}
 		return nil
 	})
 	if err != nil {

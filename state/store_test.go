@@ -462,3 +462,80 @@ func TestBatchChunks(t *testing.T) {
 		t.Fatalf("refilling a reset batch: %v allocations, want 0", allocs)
 	}
 }
+
+// SetAside moves a record byte for byte into the set-aside bucket: the
+// topic then has no record (a fresh series may take it), the set-aside
+// copy keeps the bytes and tells why they do not decode, and a second
+// set-aside of the same topic keeps the first. The file stays a valid
+// store for Check and for a read-only open.
+func TestSetAside(t *testing.T) {
+	dir := t.TempDir()
+	s := openTestIn(t, dir)
+	good := &series.Snapshot{Topic: "disk.vol1.used", Kind: "gauge", StepSeconds: 300, Seq: 5, Window: []float64{1, 2}}
+	bad := &series.Snapshot{Topic: "shop.orders", Kind: "counter", StepSeconds: 60, Seq: 9}
+	if err := s.Save([]*series.Snapshot{good, bad}); err != nil {
+		t.Fatal(err)
+	}
+	broken := Encode(nil, bad)
+	broken[len(broken)/2] ^= 0xff
+	if err := s.db.Update(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketSeries).Put([]byte(bad.Topic), broken)
+	}); err != nil {
+		t.Fatal(err)
+	}
+	t1 := time.Date(2026, 11, 3, 4, 5, 6, 7, time.UTC)
+	if moved, err := s.SetAside(bad.Topic, t1); err != nil || !moved {
+		t.Fatalf("SetAside: moved %v, %v", moved, err)
+	}
+	if moved, err := s.SetAside("no.such.topic", t1); err != nil || moved {
+		t.Fatalf("SetAside of a topic without a record: moved %v, %v", moved, err)
+	}
+	if _, err := s.Load(bad.Topic); !errors.Is(err, ErrNotFound) {
+		t.Fatalf("Load after SetAside: %v, want ErrNotFound", err)
+	}
+	// The topic starts afresh and is set aside again later: both copies stay.
+	again := *bad
+	again.Seq = 10
+	if err := s.Save([]*series.Snapshot{&again}); err != nil {
+		t.Fatal(err)
+	}
+	t2 := t1.Add(time.Hour)
+	if _, err := s.SetAside(bad.Topic, t2); err != nil {
+		t.Fatal(err)
+	}
+	recs, err := s.SetAsideRecords()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(recs) != 2 || recs[0].Topic != bad.Topic || !recs[0].At.Equal(t1) || !recs[1].At.Equal(t2) {
+		t.Fatalf("set-aside records %+v, want %s at %v and at %v", recs, bad.Topic, t1, t2)
+	}
+	if recs[0].Bytes != len(broken) || !errors.Is(recs[0].Err, ErrCorrupt) || recs[1].Err != nil {
+		t.Fatalf("set-aside records %+v: want the broken one (%d bytes, corrupt) then the readable one", recs, len(broken))
+	}
+	var stored []byte
+	if err := s.db.View(func(tx *bolt.Tx) error {
+		stored = append(stored, tx.Bucket(bucketSetAside).Get(setAsideKey(bad.Topic, t1))...)
+		return nil
+	}); err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(stored, broken) {
+		t.Fatal("the set-aside copy differs from the record as it was found")
+	}
+	if err := s.Check(); err != nil {
+		t.Fatalf("Check after SetAside: %v", err)
+	}
+	info, err := s.Info()
+	if err != nil || info.Series != 1 || info.SetAside != 2 {
+		t.Fatalf("Info %+v, %v: want 1 series, 2 set aside", info, err)
+	}
+	s.Close()
+	ro := openTestIn(t, dir, ReadOnly())
+	if got, err := ro.Load(good.Topic); err != nil || got.Seq != 5 {
+		t.Fatalf("read-only Load of the intact record: %+v, %v", got, err)
+	}
+	if _, err := ro.SetAside(good.Topic, t2); err == nil {
+		t.Fatal("SetAside on a read-only store succeeded")
+	}
+}

@@ -144,6 +144,9 @@ func stateList(st *state.Store, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "forewarn: %v\n", err)
 		return exitFailure
 	}
+	if info, err := st.Info(); err == nil && info.SetAside > 0 {
+		fmt.Fprintf(stderr, "forewarn state list: %d record(s) set aside; 'forewarn state check' lists them\n", info.SetAside)
+	}
 	if n+len(bad) == 0 {
 		fmt.Fprintf(stdout, "no series in %s\n", st.Path())
 		return exitOK
@@ -202,9 +205,13 @@ func stateCheck(st *state.Store, stdout, stderr io.Writer) int {
 			fmt.Fprintf(stderr, "forewarn: %v\n", ierr)
 			return exitFailure
 		}
-		fmt.Fprintf(stdout, "ok: %s: %d series, store format %d, created %s, %d bytes\n",
-			info.Path, info.Series, info.Format, info.Created.Format(time.RFC3339), info.Bytes)
-		return exitOK
+		aside := ""
+		if info.SetAside > 0 {
+			aside = fmt.Sprintf(", %d set aside", info.SetAside)
+		}
+		fmt.Fprintf(stdout, "ok: %s: %d series%s, store format %d, created %s, %d bytes\n",
+			info.Path, info.Series, aside, info.Format, info.Created.Format(time.RFC3339), info.Bytes)
+		return listSetAside(st, stdout, stderr, exitOK)
 	}
 	problems := []error{err}
 	if j, ok := err.(interface{ Unwrap() []error }); ok {
@@ -214,7 +221,28 @@ func stateCheck(st *state.Store, stdout, stderr io.Writer) int {
 		fmt.Fprintln(stdout, p)
 	}
 	fmt.Fprintf(stderr, "forewarn state check: %d problem(s) in %s\n", len(problems), st.Path())
-	return exitFailure
+	return listSetAside(st, stdout, stderr, exitFailure)
+}
+
+// listSetAside prints one line per record the daemon set aside (records
+// it would not continue from, kept as they were found) and returns code,
+// or exitFailure if the list cannot be read. Set-aside records are not
+// problems of the live state: they are what an operator may want to look
+// at, or restore with a build that reads them.
+func listSetAside(st *state.Store, stdout, stderr io.Writer, code int) int {
+	recs, err := st.SetAsideRecords()
+	if err != nil {
+		fmt.Fprintf(stderr, "forewarn: %v\n", err)
+		return exitFailure
+	}
+	for _, r := range recs {
+		why := "readable (set aside for another kind or step)"
+		if r.Err != nil {
+			why = r.Err.Error()
+		}
+		fmt.Fprintf(stdout, "set aside: %q at %s, %d bytes: %s\n", r.Topic, r.At.Format(time.RFC3339), r.Bytes, why)
+	}
+	return code
 }
 
 // jsonNumber is a float64 written as null when it is NaN or infinite

@@ -6,8 +6,10 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
+	"time"
 
 	bolt "go.etcd.io/bbolt"
 
@@ -158,6 +160,34 @@ func TestStateCheck(t *testing.T) {
 	if code != exitFailure || !strings.Contains(out, "storage.vol1.used_bytes") ||
 		!strings.Contains(out, "unreadable record") || !strings.Contains(errOut, "2 unreadable") {
 		t.Fatalf("list of damaged file: exit %d\n%s\n%s", code, out, errOut)
+	}
+}
+
+// Records the daemon set aside are listed by check (which still passes:
+// they are not damage to the live state) and counted by list.
+func TestStateSetAside(t *testing.T) {
+	dir := stateFixture(t)
+	st, err := state.Open(dir, state.NoSync())
+	if err != nil {
+		t.Fatal(err)
+	}
+	at := time.Date(2026, 11, 30, 8, 0, 0, 0, time.UTC)
+	if moved, err := st.SetAside("storage.vol1.used_bytes", at); err != nil || !moved {
+		t.Fatalf("SetAside: %v, %v", moved, err)
+	}
+	st.Close()
+
+	code, out, errOut := runStateArgs("check", "--data", dir)
+	lines := strings.Split(strings.TrimSpace(out), "\n")
+	if code != exitOK || len(lines) != 2 || !strings.Contains(lines[0], "1 series, 1 set aside") ||
+		lines[1] != `set aside: "storage.vol1.used_bytes" at 2026-11-30T08:00:00Z, `+
+			strconv.Itoa(state.EncodedLen(&series.Snapshot{Topic: "storage.vol1.used_bytes", Kind: "gauge", StepSeconds: 5400, Seq: 7, Closed: 3, Window: []float64{1, 2, 3}}))+
+			` bytes: readable (set aside for another kind or step)` {
+		t.Fatalf("check: exit %d, stdout\n%s\nstderr %s", code, out, errOut)
+	}
+	code, out, errOut = runStateArgs("list", "--data", dir)
+	if code != exitOK || strings.Contains(out, "storage.vol1") || !strings.Contains(errOut, "1 record(s) set aside") {
+		t.Fatalf("list: exit %d, stdout\n%s\nstderr %s", code, out, errOut)
 	}
 }
 

@@ -396,12 +396,15 @@ loop:
 
 // load restores every persisted series. A record that cannot be read
 // affects only its own series, which starts afresh (and, with a durable
-// intake, is rebuilt from what the stream still holds).
+// intake, is rebuilt from what the stream still holds); the record is set
+// aside first, so that the fresh series' first flush does not overwrite
+// it. So is a record of another kind or step than the config now gives.
 func (d *Daemon) load() error {
 	err := d.store.LoadAll(func(topic string, snap *series.Snapshot, err error) error {
 		if err != nil {
-			d.log.Warn("state record unreadable; the series starts afresh", "topic", topic, "err", err)
+			d.log.Warn("state record unreadable; set aside, and the series starts afresh", "topic", topic, "err", err)
 			d.metrics.StateResets.Inc()
+			d.setAside(topic)
 			return nil
 		}
 		sc, ok := d.cfg.SeriesFor(topic)
@@ -411,8 +414,9 @@ func (d *Daemon) load() error {
 		}
 		s, rerr := series.Restore(snap, settingsOf(sc))
 		if rerr != nil {
-			d.log.Warn("state record does not fit the settings; the series starts afresh", "topic", topic, "err", rerr)
+			d.log.Warn("state record does not fit the settings; set aside, and the series starts afresh", "topic", topic, "err", rerr)
 			d.metrics.StateResets.Inc()
+			d.setAside(topic)
 			s, rerr = series.New(topic, settingsOf(sc))
 			if rerr != nil {
 				return rerr
@@ -440,6 +444,16 @@ func (d *Daemon) load() error {
 	slices.Sort(topics)
 	d.due = topics
 	return nil
+}
+
+// setAside moves topic's stored record to the state file's set-aside
+// bucket. If that fails, the record stays where it is until the series'
+// first flush replaces it; the error is logged and counted.
+func (d *Daemon) setAside(topic string) {
+	if _, err := d.store.SetAside(topic, time.Now()); err != nil {
+		d.log.Error("state record could not be set aside; the series' next flush replaces it", "topic", topic, "err", err)
+		d.metrics.StateWriteFailures.Inc()
+	}
 }
 
 // settingsOf copies the maths-relevant settings out of a config entry.

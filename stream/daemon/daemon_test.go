@@ -2,6 +2,7 @@ package daemon
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"log/slog"
 	"math"
@@ -106,7 +107,8 @@ func publishWalk(t *testing.T, url, topic string, from, n int) {
 
 // A record that cannot be read affects only its own series: the others
 // resume where they were, the broken one starts afresh, and the reset is
-// counted (issue 6).
+// counted (issue 6). The broken record is set aside as it was found, so
+// the fresh series' records do not overwrite it.
 func TestCorruptRecordResetsOnlyItsSeries(t *testing.T) {
 	_, url := streamtest.RunServer(t)
 	dir := t.TempDir()
@@ -125,11 +127,12 @@ func TestCorruptRecordResetsOnlyItsSeries(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	var broken []byte
 	err = db.Update(func(tx *bolt.Tx) error {
 		b := tx.Bucket([]byte("series"))
-		v := append([]byte(nil), b.Get([]byte("b.two"))...)
-		v[len(v)/2] ^= 0xff
-		return b.Put([]byte("b.two"), v)
+		broken = append([]byte(nil), b.Get([]byte("b.two"))...)
+		broken[len(broken)/2] ^= 0xff
+		return b.Put([]byte("b.two"), broken)
 	})
 	db.Close()
 	if err != nil {
@@ -137,7 +140,6 @@ func TestCorruptRecordResetsOnlyItsSeries(t *testing.T) {
 	}
 
 	r = start(t, url, cfg)
-	defer r.stop(t)
 	if got := counter(t, r.d.Metrics().StateResets); got != 1 {
 		t.Fatalf("state resets %v, want 1", got)
 	}
@@ -164,6 +166,23 @@ func TestCorruptRecordResetsOnlyItsSeries(t *testing.T) {
 	})
 	if _, ok := r.d.Latest("a.one"); !ok {
 		t.Error("the intact series serves no forecast after the restart")
+	}
+	r.stop(t)
+
+	st, err := state.Open(dir, state.ReadOnly())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	recs, err := st.SetAsideRecords()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(recs) != 1 || recs[0].Topic != "b.two" || recs[0].Bytes != len(broken) || !errors.Is(recs[0].Err, state.ErrCorrupt) {
+		t.Fatalf("set-aside records %+v, want b.two's broken record (%d bytes)", recs, len(broken))
+	}
+	if snap, err := st.Load("b.two"); err != nil || snap.Closed != 0 {
+		t.Fatalf("b.two's new record: %v (closed %v), want the fresh series' (0 closed)", err, snap)
 	}
 }
 
