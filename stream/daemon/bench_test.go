@@ -292,9 +292,12 @@ func BenchmarkCloseToForecastLatency(b *testing.B) {
 // full 2000-bucket windows (target ≤ 64 KiB): the series are written to
 // the store first (one fitted template series, copied under every topic),
 // the daemon loads them (each restored with its model, its latest
-// forecast served at once), one bucket closes in every series, and the
-// heap in use after garbage collection, less the heap before the daemon
-// started, is divided by the number of series. Reported: bytes/series.
+// forecast served at once), one bucket closes in every series, the flush
+// of all of them is committed (so the daemon's flush batch holds one
+// record per series, as it keeps doing once every series is busy), and
+// the heap in use after garbage collection, less the heap before the
+// daemon started, is divided by the number of series. Reported:
+// bytes/series.
 // One operation is one whole measurement.
 func BenchmarkStateMemory(b *testing.B) {
 	const window = fullWindow
@@ -308,7 +311,7 @@ func BenchmarkStateMemory(b *testing.B) {
 		b.StartTimer()
 		r.start(streamtest.Connect(b, r.url), store)
 		b.StopTimer()
-		// One close per series: encoder buffers, dirty flags, a flush.
+		// One close per series: encoder buffers, dirty flags, then a flush.
 		r.resumeAfter(snap)
 		r.send(r.build(ns, 1))
 		waitUntil(b, 60*time.Second, "a forecast per series", func() bool {
@@ -325,6 +328,7 @@ func BenchmarkStateMemory(b *testing.B) {
 		if windows != ns {
 			b.Fatalf("%d of %d series have a full window", windows, ns)
 		}
+		r.quiesce() // the flush of every series is written: the batch holds them all
 		after := heapInUse()
 		b.ReportMetric(float64(after-before)/float64(ns), "bytes/series")
 		b.StartTimer()
