@@ -59,7 +59,10 @@ import (
 // ratios in percent to the raw core-NATS rates for messages of the
 // observations' size (see the top of this file): pct_raw (target ≥ 50 for
 // plain intake) and pct_raw1. The durable case runs the JetStream intake
-// against the same core-NATS raw rates. The plain_flush_1s case sets
+// against the same core-NATS raw rates, and also against the same traffic
+// through JetStream without the daemon (streamtest.RawDurableRate: a file
+// stream, a durable AckAll consumer, a publisher waiting for its
+// acknowledgements): rawjs_msgs/s and pct_rawjs. The plain_flush_1s case sets
 // state.flush_max to its highest value, so that the state is written
 // about once a second whatever the rate (instead of every 150 000
 // messages): the difference is what the extra writes cost when 10 000
@@ -93,6 +96,12 @@ func BenchmarkIntakeBound(b *testing.B) {
 			twins, filter := rawTwins(r.subjects)
 			raw := medianOf3(func() float64 { return streamtest.RawFanInRate(b, r.url, twins, filter, size, max(b.N, 100_000)) })
 			raw1 := medianOf3(func() float64 { return streamtest.RawPubSubRate(b, r.url, size, max(b.N, 100_000)) })
+			var rawJS float64
+			if c.o.durable {
+				rawJS = medianOf3(func() float64 {
+					return streamtest.RawDurableRate(b, r.url, twins, filter, size, max(b.N, 100_000))
+				})
+			}
 			acc0, pub0, rej0 := counterValue(r.d.metrics.Accepted), counterValue(r.d.metrics.Published), r.rejected()
 			want := acc0 + float64(b.N)
 			runtime.GC() // the raw runs' garbage is not the daemon's to collect
@@ -127,6 +136,10 @@ func BenchmarkIntakeBound(b *testing.B) {
 			b.ReportMetric(100*rate/raw, "pct_raw")
 			b.ReportMetric(raw1, "raw1_msgs/s")
 			b.ReportMetric(100*rate/raw1, "pct_raw1")
+			if rawJS > 0 {
+				b.ReportMetric(rawJS, "rawjs_msgs/s")
+				b.ReportMetric(100*rate/rawJS, "pct_rawjs")
+			}
 		})
 	}
 }

@@ -1,12 +1,15 @@
 package streamtest
 
 import (
+	"context"
+	"fmt"
 	"sync/atomic"
 	"testing"
 	"time"
 
 	"github.com/nats-io/nats-server/v2/server"
 	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
 )
 
 // Options returns the server options RunServer uses, for a test that needs
@@ -144,3 +147,92 @@ func RawFanInRate(tb testing.TB, url string, subjects []string, filter string, s
 	}
 	return float64(n) / el.Seconds()
 }
+
+// RawDurableRate is RawFanInRate through JetStream, the way the daemon's
+// durable intake gets its messages: a file-storage stream on filter (limits
+// retention, oldest discarded first), a durable pull consumer that
+// acknowledges all up to a message (AckAll, at most 200 000 unacknowledged,
+// pulls of up to 16 384), and a publisher that publishes asynchronously and
+// waits for every acknowledgement (at most 8192 in flight). The consumer
+// acknowledges every 1000th message and the last. It returns the messages
+// per second from the first publication until the consumer has received
+// them all, and deletes the stream.
+func RawDurableRate(tb testing.TB, url string, subjects []string, filter string, size, n int) float64 {
+	tb.Helper()
+	if len(subjects) == 0 {
+		tb.Fatal("streamtest: no subjects")
+	}
+	ctx := context.Background()
+	pub, sub := Connect(tb, url), Connect(tb, url)
+	jsSub, err := jetstream.New(sub)
+	if err != nil {
+		tb.Fatalf("streamtest: jetstream: %v", err)
+	}
+	name := fmt.Sprintf("STREAMTEST_RAW_%d", rawStreams.Add(1))
+	st, err := jsSub.CreateStream(ctx, jetstream.StreamConfig{
+		Name: name, Subjects: []string{filter}, Storage: jetstream.FileStorage,
+		Retention: jetstream.LimitsPolicy, Discard: jetstream.DiscardOld, MaxMsgs: -1, Replicas: 1,
+	})
+	if err != nil {
+		tb.Fatalf("streamtest: create stream: %v", err)
+	}
+	defer func() { _ = jsSub.DeleteStream(ctx, name) }()
+	cons, err := st.CreateOrUpdateConsumer(ctx, jetstream.ConsumerConfig{
+		Durable: "raw", AckPolicy: jetstream.AckAllPolicy, DeliverPolicy: jetstream.DeliverAllPolicy,
+		MaxAckPending: 200_000, MaxDeliver: -1,
+	})
+	if err != nil {
+		tb.Fatalf("streamtest: create consumer: %v", err)
+	}
+	var got atomic.Int64
+	done := make(chan struct{})
+	cc, err := cons.Consume(func(m jetstream.Msg) {
+		k := got.Add(1)
+		if k%1000 == 0 || k == int64(n) {
+			_ = m.Ack()
+		}
+		if k == int64(n) {
+			close(done)
+		}
+	}, jetstream.PullMaxMessages(16384))
+	if err != nil {
+		tb.Fatalf("streamtest: consume: %v", err)
+	}
+	defer cc.Stop()
+
+	var failed atomic.Int64
+	js, err := jetstream.New(pub, jetstream.WithPublishAsyncMaxPending(8192),
+		jetstream.WithPublishAsyncErrHandler(func(jetstream.JetStream, *nats.Msg, error) { failed.Add(1) }))
+	if err != nil {
+		tb.Fatalf("streamtest: jetstream: %v", err)
+	}
+	payload := make([]byte, size)
+	for i := range payload {
+		payload[i] = 'a' + byte(i%26)
+	}
+	start := time.Now()
+	for i := range n {
+		if _, err := js.PublishAsync(subjects[i%len(subjects)], payload); err != nil {
+			tb.Fatalf("streamtest: publish: %v", err)
+		}
+	}
+	select {
+	case <-js.PublishAsyncComplete():
+	case <-time.After(120 * time.Second):
+		tb.Fatalf("streamtest: %d publications unacknowledged after 120s", js.PublishAsyncPending())
+	}
+	select {
+	case <-done:
+	case <-time.After(120 * time.Second):
+		tb.Fatalf("streamtest: consumed %d of %d messages within 120s", got.Load(), n)
+	}
+	el := time.Since(start)
+	if f := failed.Load(); f > 0 {
+		tb.Fatalf("streamtest: %d publications failed", f)
+	}
+	return float64(n) / el.Seconds()
+}
+
+// rawStreams numbers RawDurableRate's streams, so that runs on one server
+// never share one.
+var rawStreams atomic.Int64
