@@ -10,13 +10,11 @@ import (
 	"runtime"
 	"runtime/pprof"
 	"strconv"
-	"sync/atomic"
 	"testing"
 	"time"
 
 	"github.com/nats-io/nats-server/v2/server"
 	"github.com/nats-io/nats.go"
-	"github.com/nats-io/nats.go/jetstream"
 	"github.com/prometheus/client_golang/prometheus"
 	dto "github.com/prometheus/client_model/go"
 
@@ -359,7 +357,9 @@ func (r *rig) build(n, perBucket int) *batch {
 // publications would lose observations before the daemon sees them.
 func (r *rig) send(b *batch) {
 	if r.opts.durable {
-		r.sendDurable(b)
+		streamtest.PublishAcked(r.tb, r.pub, len(b.series), func(j int) (string, []byte) {
+			return r.subjects[b.series[j]], b.payload(j)
+		})
 		return
 	}
 	for j := range b.series {
@@ -369,28 +369,6 @@ func (r *rig) send(b *batch) {
 	}
 	if err := r.pub.Flush(); err != nil {
 		r.tb.Fatal(err)
-	}
-}
-
-func (r *rig) sendDurable(b *batch) {
-	var failed atomic.Int64
-	js, err := jetstream.New(r.pub, jetstream.WithPublishAsyncMaxPending(8192),
-		jetstream.WithPublishAsyncErrHandler(func(jetstream.JetStream, *nats.Msg, error) { failed.Add(1) }))
-	if err != nil {
-		r.tb.Fatal(err)
-	}
-	for j := range b.series {
-		if _, err := js.PublishAsync(r.subjects[b.series[j]], b.payload(j)); err != nil {
-			r.tb.Fatal(err)
-		}
-	}
-	select {
-	case <-js.PublishAsyncComplete():
-	case <-time.After(120 * time.Second):
-		r.tb.Fatalf("%d publications unacknowledged after 120s", js.PublishAsyncPending())
-	}
-	if n := failed.Load(); n > 0 {
-		r.tb.Fatalf("%d publications failed", n)
 	}
 }
 
