@@ -424,16 +424,20 @@ func (in *Intake) subscribePlain() (func(), error) {
 	handler := func(m *nats.Msg) {
 		in.push(Message{Subject: m.Subject, Data: m.Data, Received: time.Now()})
 	}
+	unsubscribeAll := func() {
+		for _, u := range subs {
+			_ = u.Unsubscribe()
+		}
+	}
 	for _, s := range in.o.Subjects {
 		sub, err := in.nc.Subscribe(s, handler)
 		if err != nil {
-			for _, u := range subs {
-				_ = u.Unsubscribe()
-			}
+			unsubscribeAll()
 			return nil, fmt.Errorf("%w: subscribe to %q: %w", ErrIntake, s, err)
 		}
 		if err := sub.SetPendingLimits(in.o.PendingMsgs, in.o.PendingBytes); err != nil {
 			_ = sub.Unsubscribe()
+			unsubscribeAll()
 			return nil, fmt.Errorf("%w: subscribe to %q: %w", ErrIntake, s, err)
 		}
 		wg.Add(1)
@@ -444,9 +448,7 @@ func (in *Intake) subscribePlain() (func(), error) {
 	// registered them, so that whatever is published once the intake has
 	// started reaches it.
 	if err := in.nc.Flush(); err != nil {
-		for _, u := range subs {
-			_ = u.Unsubscribe()
-		}
+		unsubscribeAll()
 		return nil, fmt.Errorf("%w: register subscriptions: %w", ErrIntake, err)
 	}
 	return func() {

@@ -29,9 +29,12 @@ func NewPublisher(nc *nats.Conn, prefix string) *Publisher {
 func (p *Publisher) Prefix() string { return p.prefix }
 
 func (p *Publisher) publish(kind, topic string, payload []byte) error {
-	subj := p.prefix + kind + topic
-	if err := p.nc.Publish(subj, payload); err != nil {
-		return fmt.Errorf("stream: publish on %q: %w", subj, err)
+	return p.publishOn(p.prefix+kind+topic, payload)
+}
+
+func (p *Publisher) publishOn(subject string, payload []byte) error {
+	if err := p.nc.Publish(subject, payload); err != nil {
+		return fmt.Errorf("stream: publish on %q: %w", subject, err)
 	}
 	return nil
 }
@@ -46,10 +49,7 @@ func (p *Publisher) ForecastSubject(topic string) string {
 // ForecastSubject made. The connection copies payload before Forecast
 // returns.
 func (p *Publisher) Forecast(subject string, payload []byte) error {
-	if err := p.nc.Publish(subject, payload); err != nil {
-		return fmt.Errorf("stream: publish on %q: %w", subject, err)
-	}
-	return nil
+	return p.publishOn(subject, payload)
 }
 
 // Alert publishes an encoded alert event on <prefix>.alert.<topic>.
@@ -62,11 +62,7 @@ func (p *Publisher) Alert(topic string, payload []byte) error {
 // <prefix>.reject with topic "" in the payload: pass topic "".
 func (p *Publisher) Reject(topic string, payload []byte) error {
 	if topic == "" {
-		subj := p.prefix + ".reject"
-		if err := p.nc.Publish(subj, payload); err != nil {
-			return fmt.Errorf("stream: publish on %q: %w", subj, err)
-		}
-		return nil
+		return p.publishOn(p.prefix+".reject", payload)
 	}
 	return p.publish(".reject.", topic, payload)
 }

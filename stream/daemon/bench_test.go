@@ -177,7 +177,7 @@ func runOutputBound(b *testing.B, o rigOptions) outputRun {
 	msgs := r.build(b.N, 1)
 	fcSubjects := make([]string, len(r.subjects))
 	for i := range fcSubjects {
-		fcSubjects[i] = r.cfg.Output.Prefix + ".forecast." + rigTopic(i)
+		fcSubjects[i] = r.d.pub.ForecastSubject(rigTopic(i))
 	}
 	twins, filter := rawTwins(fcSubjects)
 	raw := medianOf3(func() float64 { return streamtest.RawFanInRate(b, r.url, twins, filter, len(fc), max(b.N, 50_000)) })
