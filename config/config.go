@@ -207,8 +207,9 @@ type Series struct {
 	Line int
 }
 
-// Alert is a rule that fires when a topic's forecast is likely to cross a
-// threshold within a look-ahead window.
+// Alert is a rule that is raised when a topic's forecast is likely to
+// cross a threshold within a look-ahead window, and cleared when that
+// becomes unlikely (the alarm states of ITU-T X.733).
 type Alert struct {
 	// Name identifies the rule: [a-z0-9_-]+, at most 64 bytes, unique.
 	Name string
@@ -219,12 +220,13 @@ type Alert struct {
 	// Within is the look-ahead window, > 0. The daemon checks, per series,
 	// that it does not exceed Horizon·Step.
 	Within time.Duration
-	// Probability fires the rule once the chance of crossing within the
+	// Probability raises the rule once the chance of crossing within the
 	// window reaches it, in (0, 1]. Required.
 	Probability float64
-	// ResolveProbability resolves a firing rule once the chance falls
-	// below it, in (0, Probability). Zero: Probability/2.
-	ResolveProbability float64
+	// ClearProbability clears a raised rule once the chance falls below
+	// it, in (0, Probability). Zero: Probability/2. Key
+	// clear_probability; the old key resolve_probability is refused.
+	ClearProbability float64
 	// Line is the source line of the rule; 0 when not from a file.
 	Line int
 }
@@ -370,7 +372,7 @@ func (c *Config) WithDefaults() *Config {
 	}
 	for i := range d.Alerts {
 		a := &d.Alerts[i]
-		setZero(&a.ResolveProbability, a.Probability/2)
+		setZero(&a.ClearProbability, a.Probability/2)
 	}
 	return d
 }

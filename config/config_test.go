@@ -134,10 +134,10 @@ func TestLoadFull(t *testing.T) {
 		t.Errorf("series[1]: %+v", s1)
 	}
 	a0, a1 := c.Alerts[0], c.Alerts[1]
-	if v, above := a0.Threshold(); !above || v != 9e11 || a0.Within != 6*time.Hour || a0.ResolveProbability != 0.45 || a0.Line != 63 {
+	if v, above := a0.Threshold(); !above || v != 9e11 || a0.Within != 6*time.Hour || a0.ClearProbability != 0.45 || a0.Line != 63 {
 		t.Errorf("alerts[0]: %+v", a0)
 	}
-	if v, above := a1.Threshold(); above || v != 100 || a1.ResolveProbability != 0.3 || a1.Line != 68 {
+	if v, above := a1.Threshold(); above || v != 100 || a1.ClearProbability != 0.3 || a1.Line != 68 {
 		t.Errorf("alerts[1]: %+v", a1)
 	}
 }
@@ -322,8 +322,9 @@ func TestValidationRules(t *testing.T) {
 		{"alert within beyond horizon", "alerts:\n  - {name: a, match: x.y, above: 1, within: 2h, probability: 0.5}\n", 2, "alerts[0].within", "beyond every matching series' horizon (at most 1h0m0s)"},
 		{"alert probability zero", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 0}\n", 2, "alerts[0].probability", "outside (0, 1]"},
 		{"alert probability above 1", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 1.01}\n", 2, "alerts[0].probability", "outside (0, 1]"},
-		{"alert resolve above fire", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 0.5, resolve_probability: 0.5}\n", 2, "alerts[0].resolve_probability", "outside (0, probability 0.5)"},
-		{"alert resolve negative", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 0.5, resolve_probability: -0.1}\n", 2, "alerts[0].resolve_probability", "outside"},
+		{"alert clear at raise", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 0.5, clear_probability: 0.5}\n", 2, "alerts[0].clear_probability", "outside (0, probability 0.5)"},
+		{"alert clear negative", "alerts:\n  - {name: a, match: x.y, above: 1, within: 1m, probability: 0.5, clear_probability: -0.1}\n", 2, "alerts[0].clear_probability", "outside"},
+		{"alert resolve_probability renamed", "alerts:\n  - name: a\n    match: x.y\n    above: 1\n    within: 1m\n    probability: 0.5\n    resolve_probability: 0.2\n", 7, "alerts[0].resolve_probability", "was renamed: write clear_probability"},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {

@@ -384,6 +384,22 @@ func (d *decoder) number(n *yaml.Node, path string) (float64, bool) {
 	return v, true
 }
 
+// renamed refuses a key that an earlier release knew under this name,
+// with a problem "was renamed: <hint>", the hint naming the new spelling.
+// Unlike a value that cannot be decoded, it leaves the enclosing entry
+// whole (only the key's own path counts as failed), so that the entry's
+// other problems are reported in the same run.
+func (d *decoder) renamed(hint string) func(*yaml.Node, string) {
+	return func(n *yaml.Node, path string) {
+		d.failed[path] = true
+		if len(d.probs) >= maxStored {
+			d.dropped++
+			return
+		}
+		d.probs = append(d.probs, Problem{Path: path, Msg: "was renamed: " + hint, Line: n.Line, Column: n.Column})
+	}
+}
+
 func (d *decoder) float(dst *float64) func(*yaml.Node, string) {
 	return func(n *yaml.Node, path string) {
 		if v, ok := d.number(n, path); ok {
@@ -604,7 +620,8 @@ func (d *decoder) top(root *yaml.Node, c *Config) {
 					"below":               d.floatPtr(&a.Below),
 					"within":              d.duration(&a.Within),
 					"probability":         d.float(&a.Probability),
-					"resolve_probability": d.float(&a.ResolveProbability),
+					"clear_probability":   d.float(&a.ClearProbability),
+					"resolve_probability": d.renamed("write clear_probability"),
 				})
 				c.Alerts = append(c.Alerts, a)
 			})

@@ -26,7 +26,7 @@ alerts:
 	fmt.Println(topic, s.Kind, s.Step, s.Horizon, s.Levels)
 	for _, a := range cfg.AlertsFor(topic) {
 		v, above := a.Threshold()
-		fmt.Println(a.Name, above, v, a.Within, a.Probability, a.ResolveProbability)
+		fmt.Println(a.Name, above, v, a.Within, a.Probability, a.ClearProbability)
 	}
 
 	_, err = config.Parse([]byte("series:\n  - step: 90\n    horizon: 5000\n"), "bad.yaml")

@@ -515,8 +515,8 @@ func (v *validator) alert(i int, names map[string]int) {
 	}
 	if !(a.Probability > 0 && a.Probability <= 1) {
 		v.add(p+".probability", "%v is outside (0, 1]", a.Probability)
-	} else if !(a.ResolveProbability > 0 && a.ResolveProbability < a.Probability) {
-		v.add(p+".resolve_probability", "%v is outside (0, probability %v)", a.ResolveProbability, a.Probability)
+	} else if !(a.ClearProbability > 0 && a.ClearProbability < a.Probability) {
+		v.add(p+".clear_probability", "%v is outside (0, probability %v)", a.ClearProbability, a.Probability)
 	}
 }
 

@@ -95,7 +95,7 @@
 //	LastRefitNote      string
 //	alert count        uint32, then per alert:
 //	  Rule             string
-//	  Firing           bool
+//	  Raised           bool
 //	  Since            int64
 //	  Probability      float64
 //

@@ -134,7 +134,7 @@ func randomSnapshot(r *rand.Rand, maxWindow int) *series.Snapshot {
 	for range r.IntN(4) {
 		s.Alerts = append(s.Alerts, series.AlertSnapshot{
 			Rule:        randomString(r, 20),
-			Firing:      r.IntN(2) == 0,
+			Raised:      r.IntN(2) == 0,
 			Since:       r.Int64(),
 			Probability: randomFloat(r),
 		})

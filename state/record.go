@@ -46,7 +46,7 @@ const (
 		4 // alert count
 	fixedTransform = 8 + 8 + 8 + 8 + 8 + 8     // Lambda, Loc, Scale, RunN, RunMean, RunM2
 	fixedModel     = 1 + 1 + 8 + 8 + 8 + 8 + 8 // Mean, Drift, Sigma2, LogLik, AICc, NObs, FittedAt
-	alertMinLen    = strHead + 1 + 8 + 8       // empty Rule, Firing, Since, Probability
+	alertMinLen    = strHead + 1 + 8 + 8       // empty Rule, Raised, Since, Probability
 )
 
 // EncodedLen returns the number of bytes Encode appends for s.
@@ -135,7 +135,7 @@ func Encode(dst []byte, s *series.Snapshot) []byte {
 	for i := range s.Alerts {
 		a := &s.Alerts[i]
 		dst = appendString(dst, a.Rule)
-		dst = appendBool(dst, a.Firing)
+		dst = appendBool(dst, a.Raised)
 		dst = le.AppendUint64(dst, uint64(a.Since))
 		dst = appendFloat(dst, a.Probability)
 	}
@@ -368,7 +368,7 @@ func decodeV1(body []byte) (*series.Snapshot, error) {
 			for i := range s.Alerts {
 				a := &s.Alerts[i]
 				a.Rule = r.str("alert rule")
-				a.Firing = r.bool("alert firing flag")
+				a.Raised = r.bool("alert raised flag")
 				a.Since = r.i64("alert since")
 				a.Probability = r.f64("alert probability")
 			}

@@ -14,22 +14,28 @@ import (
 // issued at the wall time issued, to dst and returns the extended buffer:
 //
 //	{"topic":…,"issued":…,"origin":…,"step_seconds":…,"last_value":…,"kind":…,
-//	 "model":{"spec":…,"transform":…,"fitted_at":…,"nobs":…,"aicc":…},
-//	 "points":[{"h":…,"time":…,"mean":…,"median":…,"lower":{"80":…},"upper":{"80":…}},…]}
+//	 "model":{"label":…,"transform":…,"fitted_at":…,"observations_used":…,"aicc":…},
+//	 "points":[{"h":…,"time":…,"mean":…,"median":…,
+//	            "bands":[{"level":50,"low":…,"high":…},{"level":90,"low":…,"high":…}]},…]}
 //
 // Keys come in this order, without white space. Times are RFC 3339 in UTC:
 // whole seconds without a fraction, otherwise with as many fractional digits
 // as the nanoseconds need (time.RFC3339Nano). A zero FittedAt is null.
+// label is f.Model.Spec, the model's label as package arima renders it.
 // last_value and aicc are the shortest decimal that reads back as the same
-// float64 (strconv 'g', -1). The points' numbers (mean, median, bounds)
+// float64 (strconv 'g', -1). The points' numbers (mean, median, low, high)
 // carry 12 significant digits (strconv 'g', 12: within 5e-12 relative of
 // the float64, far inside any forecast's uncertainty), with one exception
 // that keeps the message's order against last_value as the floats have
 // it: a number equal to last_value, and one whose rounded form would read
 // back on the other side of last_value, is written as last_value is (so a
 // counter's clamped bounds read back as exactly its last value). A
-// non-finite number, and a Bound with OK false, is null. Level keys are the level in plain decimal ("80", "97.5"). Lower[i]
-// and Upper[i] are paired with f.Levels[i]; missing entries are null.
+// non-finite number, and a Bound with OK false, is null.
+//
+// Each point has one band per level of f.Levels, in ascending order of
+// level whatever the order of f.Levels; a level is in plain decimal (80,
+// 97.5). Lower[i] and Upper[i] are the low and high of f.Levels[i];
+// missing entries are null.
 //
 // With a dst of enough capacity AppendForecast does not allocate.
 func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
@@ -47,7 +53,7 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 	pf.end = len(dst)
 	dst = append(dst, `,"kind":`...)
 	dst = appendString(dst, f.Kind)
-	dst = append(dst, `,"model":{"spec":`...)
+	dst = append(dst, `,"model":{"label":`...)
 	dst = appendString(dst, f.Model.Spec)
 	dst = append(dst, `,"transform":`...)
 	dst = appendString(dst, f.Model.Transform)
@@ -57,11 +63,12 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 	} else {
 		dst = appendTime(dst, f.Model.FittedAt)
 	}
-	dst = append(dst, `,"nobs":`...)
+	dst = append(dst, `,"observations_used":`...)
 	dst = strconv.AppendInt(dst, int64(f.Model.NObs), 10)
 	dst = append(dst, `,"aicc":`...)
 	dst = appendFloat(dst, f.Model.AICc)
 	dst = append(dst, `},"points":[`...)
+	ascending := levelsAscending(f.Levels)
 	var days dayCache
 	for i := range f.Points {
 		pt := &f.Points[i]
@@ -76,11 +83,15 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 		dst = pf.append(dst, pt.Mean)
 		dst = append(dst, `,"median":`...)
 		dst = pf.append(dst, pt.Median)
-		dst = append(dst, `,"lower":`...)
-		dst = pf.appendBounds(dst, f.Levels, pt.Lower)
-		dst = append(dst, `,"upper":`...)
-		dst = pf.appendBounds(dst, f.Levels, pt.Upper)
-		dst = append(dst, '}')
+		dst = append(dst, `,"bands":[`...)
+		if ascending {
+			for j := range f.Levels {
+				dst = pf.appendBand(dst, j, j, f.Levels, pt)
+			}
+		} else {
+			dst = pf.appendBandsSorted(dst, f.Levels, pt)
+		}
+		dst = append(dst, "]}"...)
 	}
 	return append(dst, "]}"...)
 }
@@ -112,28 +123,77 @@ func (p *pointFormat) append(dst []byte, v float64) []byte {
 	return dst
 }
 
-func (p *pointFormat) appendBounds(dst []byte, levels []float64, b []series.Bound) []byte {
-	dst = append(dst, '{')
-	for i, l := range levels {
-		if i > 0 {
-			dst = append(dst, ',')
+// appendBand writes the k-th band of a point (counting from 0): that of
+// levels[j] at pt.
+func (p *pointFormat) appendBand(dst []byte, k, j int, levels []float64, pt *series.Point) []byte {
+	if k > 0 {
+		dst = append(dst, ',')
+	}
+	dst = append(dst, `{"level":`...)
+	dst = appendLevel(dst, levels[j])
+	dst = append(dst, `,"low":`...)
+	dst = p.appendBound(dst, pt.Lower, j)
+	dst = append(dst, `,"high":`...)
+	dst = p.appendBound(dst, pt.Upper, j)
+	return append(dst, '}')
+}
+
+func (p *pointFormat) appendBound(dst []byte, b []series.Bound, j int) []byte {
+	if j < len(b) && b[j].OK {
+		return p.append(dst, b[j].Value)
+	}
+	return append(dst, "null"...)
+}
+
+// appendBandsSorted writes the bands of levels that are out of order in
+// ascending order: each round picks the first level, in levelBefore's
+// order, after the one written last. Levels are few (config allows ten),
+// so the quadratic search costs little, and it does not allocate.
+func (p *pointFormat) appendBandsSorted(dst []byte, levels []float64, pt *series.Point) []byte {
+	last := -1
+	for k := range levels {
+		next := -1
+		for j, l := range levels {
+			if last >= 0 && !levelBefore(levels[last], last, l, j) {
+				continue
+			}
+			if next < 0 || levelBefore(l, j, levels[next], next) {
+				next = j
+			}
 		}
-		dst = append(dst, '"')
-		dst = appendLevel(dst, l)
-		dst = append(dst, `":`...)
-		if i < len(b) && b[i].OK {
-			dst = p.append(dst, b[i].Value)
-		} else {
-			dst = append(dst, "null"...)
+		dst = p.appendBand(dst, k, next, levels, pt)
+		last = next
+	}
+	return dst
+}
+
+// levelBefore is the strict total order of the bands: level a at index i
+// comes before level b at index j if a < b, or if they are equal and i <
+// j. A NaN level (written as null) comes after every number.
+func levelBefore(a float64, i int, b float64, j int) bool {
+	if an, bn := a != a, b != b; an != bn {
+		return bn
+	} else if !an && a != b {
+		return a < b
+	}
+	return i < j
+}
+
+// levelsAscending reports whether levels are in ascending order, with no
+// NaN.
+func levelsAscending(levels []float64) bool {
+	for i := 1; i < len(levels); i++ {
+		if !(levels[i-1] <= levels[i]) {
+			return false
 		}
 	}
-	return append(dst, '}')
+	return len(levels) == 0 || levels[0] == levels[0]
 }
 
 // AppendAlert appends the JSON alert message of CONTRACT.md §2 for e,
 // issued at the wall time issued:
 //
-//	{"topic":…,"rule":…,"state":"firing"|"resolved","direction":…,"threshold":…,
+//	{"topic":…,"rule":…,"state":"raised"|"cleared","direction":…,"threshold":…,
 //	 "probability":…,"within_seconds":…,"eta":…|null,"issued":…,"origin":…}
 //
 // with the number and time conventions of AppendForecast. It does not
@@ -143,10 +203,10 @@ func AppendAlert(dst []byte, e *series.AlertEvent, issued time.Time) []byte {
 	dst = appendString(dst, e.Topic)
 	dst = append(dst, `,"rule":`...)
 	dst = appendString(dst, e.Rule)
-	if e.Firing {
-		dst = append(dst, `,"state":"firing"`...)
+	if e.Raised {
+		dst = append(dst, `,"state":"raised"`...)
 	} else {
-		dst = append(dst, `,"state":"resolved"`...)
+		dst = append(dst, `,"state":"cleared"`...)
 	}
 	dst = append(dst, `,"direction":`...)
 	dst = appendString(dst, e.Direction)
@@ -208,8 +268,12 @@ func appendInt(dst []byte, n int) []byte {
 	return strconv.AppendInt(dst, int64(n), 10)
 }
 
-// appendLevel writes an interval level in plain decimal: "80", "97.5".
+// appendLevel writes an interval level as a plain decimal number: 80,
+// 97.5; a non-finite level is null.
 func appendLevel(dst []byte, l float64) []byte {
+	if math.IsNaN(l) || math.IsInf(l, 0) {
+		return append(dst, "null"...)
+	}
 	if l == math.Trunc(l) && l >= 0 && l < 1e15 {
 		return appendInt(dst, int(l)) // the common case, cheaper
 	}

@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"reflect"
+	"sort"
 	"strconv"
 	"testing"
 	"time"
@@ -51,7 +52,8 @@ func randTime(r *rand.Rand) time.Time {
 }
 
 func randForecast(r *rand.Rand) *series.Forecast {
-	levels := [][]float64{{80, 95}, {50, 80, 95, 97.5}, {99.9}, {}}[r.IntN(4)]
+	// Some level lists out of order: the bands still come out ascending.
+	levels := [][]float64{{80, 95}, {50, 80, 95, 97.5}, {99.9}, {}, {95, 50, 80}, {90, 50}}[r.IntN(6)]
 	f := &series.Forecast{
 		Topic:       oddStrings[r.IntN(len(oddStrings))],
 		Origin:      randTime(r),
@@ -59,7 +61,7 @@ func randForecast(r *rand.Rand) *series.Forecast {
 		LastValue:   randFloat(r),
 		Kind:        []string{"gauge", "counter"}[r.IntN(2)],
 		Model: series.ModelInfo{
-			Spec:      fmt.Sprintf("ARIMA(%d,%d,%d)(0,1,1)[24]", r.IntN(3), r.IntN(2), r.IntN(3)),
+			Spec:      fmt.Sprintf("ARIMA %d,%d,%d × 0,1,1 s=24", r.IntN(3), r.IntN(2), r.IntN(3)),
 			Transform: []string{"none", "log", "boxcox(0.25)", "scaled-exp"}[r.IntN(4)],
 			NObs:      r.IntN(5000),
 			AICc:      randFloat(r),
@@ -109,16 +111,26 @@ func refPoint(v, last float64) any {
 
 func refTime(t time.Time) string { return t.UTC().Format(time.RFC3339Nano) }
 
-func refBounds(levels []float64, b []series.Bound, last float64) map[string]any {
-	m := map[string]any{}
-	for i, l := range levels {
-		var v any
+// refBands is a point's bands as CONTRACT.md §2 has them: one
+// {"level","low","high"} per level, in ascending order of level (sorted
+// here with package sort, whatever the order of levels).
+func refBands(levels []float64, p series.Point, last float64) []any {
+	bound := func(b []series.Bound, i int) any {
 		if i < len(b) && b[i].OK {
-			v = refPoint(b[i].Value, last)
+			return refPoint(b[i].Value, last)
 		}
-		m[strconv.FormatFloat(l, 'f', -1, 64)] = v
+		return nil
 	}
-	return m
+	idx := make([]int, len(levels))
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.SliceStable(idx, func(a, b int) bool { return levels[idx[a]] < levels[idx[b]] })
+	bands := []any{}
+	for _, i := range idx {
+		bands = append(bands, map[string]any{"level": levels[i], "low": bound(p.Lower, i), "high": bound(p.Upper, i)})
+	}
+	return bands
 }
 
 func refForecast(f *series.Forecast, issued time.Time) []byte {
@@ -130,15 +142,15 @@ func refForecast(f *series.Forecast, issued time.Time) []byte {
 	for _, p := range f.Points {
 		points = append(points, map[string]any{
 			"h": p.H, "time": refTime(p.Time), "mean": refPoint(p.Mean, f.LastValue), "median": refPoint(p.Median, f.LastValue),
-			"lower": refBounds(f.Levels, p.Lower, f.LastValue), "upper": refBounds(f.Levels, p.Upper, f.LastValue),
+			"bands": refBands(f.Levels, p, f.LastValue),
 		})
 	}
 	b, err := json.Marshal(map[string]any{
 		"topic": f.Topic, "issued": refTime(issued), "origin": refTime(f.Origin),
 		"step_seconds": f.StepSeconds, "last_value": refNum(f.LastValue), "kind": f.Kind,
 		"model": map[string]any{
-			"spec": f.Model.Spec, "transform": f.Model.Transform, "fitted_at": fitted,
-			"nobs": f.Model.NObs, "aicc": refNum(f.Model.AICc),
+			"label": f.Model.Spec, "transform": f.Model.Transform, "fitted_at": fitted,
+			"observations_used": f.Model.NObs, "aicc": refNum(f.Model.AICc),
 		},
 		"points": points,
 	})
@@ -178,7 +190,7 @@ func TestAppendForecastExact(t *testing.T) {
 	origin := time.Date(2024, 5, 1, 12, 0, 0, 0, time.UTC)
 	f := &series.Forecast{
 		Topic: "shop.orders", Origin: origin, StepSeconds: 60, LastValue: 1834, Kind: "counter",
-		Model:  series.ModelInfo{Spec: "ARIMA(1,1,1)(0,1,1)[24]", Transform: "log", FittedAt: origin.Add(-time.Hour), NObs: 480, AICc: -1234.5},
+		Model:  series.ModelInfo{Spec: "ARIMA 1,1,1 × 0,1,1 s=24", Transform: "log", FittedAt: origin.Add(-time.Hour), NObs: 480, AICc: -1234.5},
 		Levels: []float64{80, 97.5},
 		Points: []series.Point{{H: 1, Time: origin.Add(time.Minute), Mean: 1840.2, Median: 1839.9,
 			Lower: []series.Bound{{Value: 1830.1, OK: true}, {Value: 0, OK: false}},
@@ -186,12 +198,22 @@ func TestAppendForecastExact(t *testing.T) {
 	}
 	got := string(AppendForecast(nil, f, origin.Add(1500*time.Millisecond)))
 	want := `{"topic":"shop.orders","issued":"2024-05-01T12:00:01.5Z","origin":"2024-05-01T12:00:00Z",` +
-		`"step_seconds":60,"last_value":1834,"kind":"counter","model":{"spec":"ARIMA(1,1,1)(0,1,1)[24]",` +
-		`"transform":"log","fitted_at":"2024-05-01T11:00:00Z","nobs":480,"aicc":-1234.5},"points":[{"h":1,` +
-		`"time":"2024-05-01T12:01:00Z","mean":1840.2,"median":1839.9,"lower":{"80":1830.1,"97.5":null},` +
-		`"upper":{"80":1849.8,"97.5":null}}]}`
+		`"step_seconds":60,"last_value":1834,"kind":"counter","model":{"label":"ARIMA 1,1,1 × 0,1,1 s=24",` +
+		`"transform":"log","fitted_at":"2024-05-01T11:00:00Z","observations_used":480,"aicc":-1234.5},"points":[{"h":1,` +
+		`"time":"2024-05-01T12:01:00Z","mean":1840.2,"median":1839.9,"bands":[{"level":80,"low":1830.1,"high":1849.8},` +
+		`{"level":97.5,"low":null,"high":null}]}]}`
 	if got != want {
 		t.Fatalf("got\n%s\nwant\n%s", got, want)
+	}
+
+	// The same forecast with its levels out of order: the bands are
+	// ascending all the same (CONTRACT.md §2), each with its own bounds.
+	f.Levels = []float64{97.5, 80}
+	p := &f.Points[0]
+	p.Lower[0], p.Lower[1] = p.Lower[1], p.Lower[0]
+	p.Upper[0], p.Upper[1] = p.Upper[1], p.Upper[0]
+	if got := string(AppendForecast(nil, f, origin.Add(1500*time.Millisecond))); got != want {
+		t.Fatalf("levels [97.5 80]: got\n%s\nwant\n%s", got, want)
 	}
 }
 
@@ -201,14 +223,14 @@ func TestAppendAlertAndRejectMatchReference(t *testing.T) {
 	for range 300 {
 		e := &series.AlertEvent{
 			Topic: oddStrings[r.IntN(len(oddStrings))], Rule: oddStrings[r.IntN(len(oddStrings))],
-			Firing: r.IntN(2) == 0, Direction: []string{"above", "below"}[r.IntN(2)],
+			Raised: r.IntN(2) == 0, Direction: []string{"above", "below"}[r.IntN(2)],
 			Threshold: randFloat(r), Probability: r.Float64(), WithinSeconds: r.Int64N(1e6),
 			ETA: randTime(r), HasETA: r.IntN(2) == 0, Origin: randTime(r),
 		}
 		issued := randTime(r)
-		state := "resolved"
-		if e.Firing {
-			state = "firing"
+		state := "cleared" // ITU-T X.733 alarm states, CONTRACT.md §2
+		if e.Raised {
+			state = "raised"
 		}
 		var eta any
 		if e.HasETA {
@@ -233,7 +255,7 @@ func benchForecast() *series.Forecast {
 	origin := time.Date(2024, 5, 1, 12, 0, 0, 0, time.UTC)
 	f := &series.Forecast{
 		Topic: "shop.orders", Origin: origin, StepSeconds: 3600, LastValue: 183412.5, Kind: "counter",
-		Model:  series.ModelInfo{Spec: "ARIMA(1,1,1)(0,1,1)[24]", Transform: "log", FittedAt: origin, NObs: 480, AICc: -1234.5678},
+		Model:  series.ModelInfo{Spec: "ARIMA 1,1,1 × 0,1,1 s=24", Transform: "log", FittedAt: origin, NObs: 480, AICc: -1234.5678},
 		Levels: []float64{80, 95},
 	}
 	for h := 1; h <= 24; h++ {

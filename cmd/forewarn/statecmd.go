@@ -315,7 +315,7 @@ type modelView struct {
 
 type alertView struct {
 	Rule        string     `json:"rule"`
-	Firing      bool       `json:"firing"`
+	Raised      bool       `json:"raised"`
 	Since       int64      `json:"since"`
 	Probability jsonNumber `json:"probability"`
 }
@@ -344,7 +344,7 @@ func newSnapshotView(s *series.Snapshot) snapshotView {
 		}
 	}
 	for i, a := range s.Alerts {
-		v.Alerts[i] = alertView{Rule: a.Rule, Firing: a.Firing, Since: a.Since, Probability: jsonNumber(a.Probability)}
+		v.Alerts[i] = alertView{Rule: a.Rule, Raised: a.Raised, Since: a.Since, Probability: jsonNumber(a.Probability)}
 	}
 	return v
 }

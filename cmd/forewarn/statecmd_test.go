@@ -33,7 +33,7 @@ func stateFixture(t *testing.T) string {
 			Transform: series.TransformSnapshot{Name: "log", Scale: math.Inf(1)},
 			Model: &series.ModelSnapshot{Spec: "ARIMA(1,1,1)(0,1,1)[24]", Params: []float64{0.5, -0.25, -0.5},
 				Sigma2: 0.0625, NObs: 455, Filter: []float64{1, 2}},
-			Alerts: []series.AlertSnapshot{{Rule: "orders-dropping", Firing: true, Since: 28000000, Probability: 0.75}},
+			Alerts: []series.AlertSnapshot{{Rule: "orders-dropping", Raised: true, Since: 28000000, Probability: 0.75}},
 		},
 		{Topic: "storage.vol1.used_bytes", Kind: "gauge", StepSeconds: 5400, Seq: 7, Closed: 3, Window: []float64{1, 2, 3}},
 	}
@@ -101,7 +101,7 @@ func TestStateShow(t *testing.T) {
 	if model["spec"] != "ARIMA(1,1,1)(0,1,1)[24]" || model["sigma2"] != 0.0625 || model["nobs"] != 455.0 {
 		t.Errorf("model = %v", model)
 	}
-	if a := got["alerts"].([]any)[0].(map[string]any); a["rule"] != "orders-dropping" || a["firing"] != true || a["probability"] != 0.75 {
+	if a := got["alerts"].([]any)[0].(map[string]any); a["rule"] != "orders-dropping" || a["raised"] != true || a["probability"] != 0.75 {
 		t.Errorf("alerts = %v", got["alerts"])
 	}
 	if got["seq"] != 19283.0 || got["step_seconds"] != 60.0 {

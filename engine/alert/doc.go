@@ -1,7 +1,8 @@
 // Package alert turns a Gaussian forecast into the probability that a
 // series crosses a threshold within a window, finds the first step at which
 // the median forecast is beyond the threshold (eta), and runs the
-// hysteresis that decides when an alert rule fires and resolves.
+// hysteresis that decides when an alert rule is raised and cleared (the
+// alarm states of ITU-T X.733).
 //
 // It is pure computation: no I/O, no goroutines, and it imports neither
 // stream nor state. An Evaluator owns its workspaces and is not safe for
@@ -77,9 +78,9 @@
 //
 // # Hysteresis
 //
-// Next implements two levels, Fire and Resolve < Fire (default
-// Resolve = Fire/2): a resolved rule fires when p ≥ Fire, a firing rule
-// resolves when p < Resolve.
+// Next implements two levels, Raise and Clear < Raise (default
+// Clear = Raise/2): a cleared rule is raised when p ≥ Raise, a raised rule
+// is cleared when p < Clear.
 //
 // # Caveats
 //
@@ -100,6 +101,8 @@
 //     R's mvtnorm::pmvnorm).
 //   - Glasserman, P. (2004). Monte Carlo Methods in Financial Engineering,
 //     §4.1 (control variates, the regression estimator β̂ = cov/var).
+//   - ITU-T Recommendation X.733 (1992). Systems Management: Alarm
+//     reporting function (the alarm states raised and cleared).
 //   - Gordon, R. D. (1941). Values of Mills' ratio of area to bounding
 //     ordinate and of the normal probability integral for large values of
 //     the argument. Ann. Math. Statist. 12(3), 364–366.

@@ -29,6 +29,6 @@ var (
 	ErrPaths = errors.New("alert: too few simulation paths for a 1% Monte Carlo error")
 	// ErrMaxHorizon is returned by NewEvaluator when the maximum horizon is not positive.
 	ErrMaxHorizon = errors.New("alert: maximum horizon must be positive")
-	// ErrRule is returned by Rule.Validate when the levels are not 0 < Resolve < Fire <= 1.
-	ErrRule = errors.New("alert: rule levels must satisfy 0 < resolve < fire <= 1")
+	// ErrRule is returned by Rule.Validate when the levels are not 0 < Clear < Raise <= 1.
+	ErrRule = errors.New("alert: rule levels must satisfy 0 < clear < raise <= 1")
 )

@@ -51,18 +51,18 @@ func ExampleEvaluator_Probability() {
 	// far: p below 1e-06: true, by skip
 }
 
-// Hysteresis of a rule firing at 0.9 and resolving below 0.45.
+// Hysteresis of a rule raised at 0.9 and cleared below 0.45.
 func ExampleNext() {
-	r := alert.Rule{Fire: 0.9}.WithDefaults()
-	firing := false
+	r := alert.Rule{Raise: 0.9}.WithDefaults()
+	raised := false
 	for _, p := range []float64{0.5, 0.92, 0.97, 0.6, 0.93, 0.3} {
 		var changed bool
-		firing, changed = alert.Next(firing, p, r)
+		raised, changed = alert.Next(raised, p, r)
 		if changed {
-			fmt.Printf("p=%.2f firing=%v\n", p, firing)
+			fmt.Printf("p=%.2f raised=%v\n", p, raised)
 		}
 	}
 	// Output:
-	// p=0.92 firing=true
-	// p=0.30 firing=false
+	// p=0.92 raised=true
+	// p=0.30 raised=false
 }

@@ -5,47 +5,48 @@ import (
 	"math"
 )
 
-// Rule holds the two levels of an alert's hysteresis.
+// Rule holds the two levels of an alert's hysteresis. The states are
+// those of an ITU-T X.733 alarm: raised and cleared.
 type Rule struct {
-	// Fire: a resolved rule starts firing when p ≥ Fire.
-	Fire float64
-	// Resolve: a firing rule resolves when p < Resolve. Zero means
-	// Fire/2 (see WithDefaults).
-	Resolve float64
+	// Raise: a cleared rule is raised when p ≥ Raise.
+	Raise float64
+	// Clear: a raised rule is cleared when p < Clear. Zero means
+	// Raise/2 (see WithDefaults).
+	Clear float64
 }
 
-// WithDefaults returns r with a zero Resolve replaced by Fire/2.
+// WithDefaults returns r with a zero Clear replaced by Raise/2.
 func (r Rule) WithDefaults() Rule {
-	if r.Resolve == 0 {
-		r.Resolve = r.Fire / 2
+	if r.Clear == 0 {
+		r.Clear = r.Raise / 2
 	}
 	return r
 }
 
-// Validate reports whether 0 < Resolve < Fire ≤ 1.
+// Validate reports whether 0 < Clear < Raise ≤ 1.
 func (r Rule) Validate() error {
-	if math.IsNaN(r.Fire) || math.IsNaN(r.Resolve) || !(0 < r.Resolve && r.Resolve < r.Fire && r.Fire <= 1) {
-		return fmt.Errorf("alert: rule fire %v resolve %v: %w", r.Fire, r.Resolve, ErrRule)
+	if math.IsNaN(r.Raise) || math.IsNaN(r.Clear) || !(0 < r.Clear && r.Clear < r.Raise && r.Raise <= 1) {
+		return fmt.Errorf("alert: rule raise %v clear %v: %w", r.Raise, r.Clear, ErrRule)
 	}
 	return nil
 }
 
 // Next is the two-state hysteresis machine of an alert rule:
 //
-//	resolved → firing   when p ≥ Fire
-//	firing   → resolved when p < Resolve
+//	cleared → raised  when p ≥ Raise
+//	raised  → cleared when p < Clear
 //
-// and no change otherwise; with Resolve < Fire a probability that hovers
+// and no change otherwise; with Clear < Raise a probability that hovers
 // about either level does not flap. changed is true on a transition (the
 // moment to publish an alert message). A NaN probability changes nothing.
-func Next(firing bool, p float64, r Rule) (firingNow, changed bool) {
-	if firing {
-		if p < r.Resolve {
+func Next(raised bool, p float64, r Rule) (raisedNow, changed bool) {
+	if raised {
+		if p < r.Clear {
 			return false, true
 		}
 		return true, false
 	}
-	if p >= r.Fire {
+	if p >= r.Raise {
 		return true, true
 	}
 	return false, false

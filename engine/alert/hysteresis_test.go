@@ -6,49 +6,50 @@ import (
 	"testing"
 )
 
-// Two-level hysteresis (common practice for alerting: fire at one level,
-// clear at a lower one so a value hovering near the firing level does not
-// flap). The sequence fires once, stays firing while p ≥ Resolve, resolves
-// below Resolve, and fires again.
+// Two-level hysteresis (common practice for alerting: raise at one level,
+// clear at a lower one so a value hovering near the raise level does not
+// flap; the states are ITU-T X.733's raised and cleared). The sequence is
+// raised once, stays raised while p ≥ Clear, is cleared below Clear, and
+// is raised again.
 func TestNextHysteresis(t *testing.T) {
-	r := Rule{Fire: 0.9}.WithDefaults()
-	if r.Resolve != 0.45 {
-		t.Fatalf("default resolve %v, want Fire/2 = 0.45", r.Resolve)
+	r := Rule{Raise: 0.9}.WithDefaults()
+	if r.Clear != 0.45 {
+		t.Fatalf("default clear %v, want Raise/2 = 0.45", r.Clear)
 	}
 	steps := []struct {
 		p              float64
-		firing, change bool
+		raised, change bool
 	}{
 		{0.10, false, false},
 		{0.89, false, false},
-		{0.90, true, true}, // p ≥ Fire fires
+		{0.90, true, true}, // p ≥ Raise raises
 		{0.95, true, false},
-		{0.50, true, false}, // between levels: no repeat, no resolve
-		{0.91, true, false}, // above Fire again: no repeat
-		{0.45, true, false}, // exactly Resolve: still firing
-		{0.44, false, true}, // p < Resolve resolves
+		{0.50, true, false}, // between levels: no repeat, no clear
+		{0.91, true, false}, // above Raise again: no repeat
+		{0.45, true, false}, // exactly Clear: still raised
+		{0.44, false, true}, // p < Clear clears
 		{0.60, false, false},
 		{math.NaN(), false, false},
-		{1.00, true, true}, // re-fires
+		{1.00, true, true}, // raised again
 		{math.NaN(), true, false},
 		{0.00, false, true},
 	}
-	firing, fires, resolves := false, 0, 0
+	raised, raises, clears := false, 0, 0
 	for i, s := range steps {
 		var changed bool
-		firing, changed = Next(firing, s.p, r)
-		if firing != s.firing || changed != s.change {
-			t.Errorf("step %d p=%v: firing %v changed %v, want %v %v", i, s.p, firing, changed, s.firing, s.change)
+		raised, changed = Next(raised, s.p, r)
+		if raised != s.raised || changed != s.change {
+			t.Errorf("step %d p=%v: raised %v changed %v, want %v %v", i, s.p, raised, changed, s.raised, s.change)
 		}
-		if changed && firing {
-			fires++
+		if changed && raised {
+			raises++
 		}
-		if changed && !firing {
-			resolves++
+		if changed && !raised {
+			clears++
 		}
 	}
-	if fires != 2 || resolves != 2 {
-		t.Errorf("fires %d resolves %d, want 2 and 2", fires, resolves)
+	if raises != 2 || clears != 2 {
+		t.Errorf("raises %d clears %d, want 2 and 2", raises, clears)
 	}
 }
 

@@ -19,7 +19,7 @@ type Forecast struct {
 
 // ModelInfo describes the model a forecast came from.
 type ModelInfo struct {
-	Spec      string // e.g. "ARIMA(1,1,1)(0,1,1)[24]"
+	Spec      string // the model's label (arima.Spec.Label), e.g. "ARIMA 1,1,1 × 0,1,1 s=24"
 	Transform string // e.g. "log", "boxcox(0.25)"
 	FittedAt  time.Time
 	NObs      int
@@ -48,7 +48,7 @@ type Bound struct {
 type AlertEvent struct {
 	Topic         string
 	Rule          string
-	Firing        bool   // true: "firing"; false: "resolved"
+	Raised        bool   // true: "raised"; false: "cleared" (ITU-T X.733 alarm states)
 	Direction     string // "above" or "below"
 	Threshold     float64
 	Probability   float64 // chance of crossing within the window

@@ -488,7 +488,7 @@ func BenchmarkClosePath(b *testing.B) {
 			if withRule && d.evaluator.LastMethod() != alert.MethodSkip {
 				b.Fatalf("rule evaluated by %v, want the skip bound", d.evaluator.LastMethod())
 			}
-			if st := *s.Alerts(); withRule && (len(st) != 1 || st[0].Firing) {
+			if st := *s.Alerts(); withRule && (len(st) != 1 || st[0].Raised) {
 				b.Fatalf("alert states %+v", st)
 			}
 		})

@@ -754,15 +754,15 @@ func (d *Daemon) evaluate(topic string, e *entry, fc *series.ModelForecast, now 
 			}
 		}
 		st := findState(states, r.cfg.Name)
-		firing, changed := alert.Next(st.Firing, p, alert.Rule{Fire: r.cfg.Probability, Resolve: r.cfg.ResolveProbability})
+		raised, changed := alert.Next(st.Raised, p, alert.Rule{Raise: r.cfg.Probability, Clear: r.cfg.ClearProbability})
 		st.Probability = p
 		if !changed {
 			continue
 		}
-		st.Firing = firing
+		st.Raised = raised
 		st.Since = fc.End
 		ev := series.AlertEvent{
-			Topic: topic, Rule: r.cfg.Name, Firing: firing, Threshold: thr,
+			Topic: topic, Rule: r.cfg.Name, Raised: raised, Threshold: thr,
 			Probability: p, WithinSeconds: int64(r.cfg.Within / time.Second), Origin: origin,
 		}
 		ev.Direction = "below"

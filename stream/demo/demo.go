@@ -198,7 +198,7 @@ func ForecastLine(f *series.Forecast) string {
 // AlertLine is the demo's one readable line for an alert state change.
 func AlertLine(e *series.AlertEvent) string {
 	state := "RESOLVED"
-	if e.Firing {
+	if e.Raised {
 		state = "FIRING"
 	}
 	eta := "beyond the horizon"

@@ -83,7 +83,7 @@ type Summary struct {
 // AlertSummary is the state of one alert rule in a Summary.
 type AlertSummary struct {
 	Rule        string   `json:"rule"`
-	State       string   `json:"state"` // "firing" or "ok"
+	State       string   `json:"state"` // "raised" or "cleared" (ITU-T X.733)
 	Direction   string   `json:"direction"`
 	Threshold   float64  `json:"threshold"`
 	Probability *float64 `json:"probability"`
@@ -110,11 +110,13 @@ func Summarize(v *View) Summary {
 	return sm
 }
 
-func stateWord(firing bool) string {
-	if firing {
-		return "firing"
+// stateWord names an alert rule's state with the alarm states of ITU-T
+// X.733: "raised" or "cleared".
+func stateWord(raised bool) string {
+	if raised {
+		return "raised"
 	}
-	return "ok"
+	return "cleared"
 }
 
 func direction(above bool) string {

@@ -65,7 +65,8 @@ func TestSeriesJSON(t *testing.T) {
 	if air.LastValue == nil || *air.LastValue != 432 || air.Rejects != 3 || air.Late != 1 || air.Status != "fitted" {
 		t.Errorf("air.passengers summary %+v", air)
 	}
-	if len(air.Alerts) != 2 || air.Alerts[0].State != "firing" || air.Alerts[1].Probability != nil {
+	// Alert states are ITU-T X.733's alarm states (CONTRACT.md §2).
+	if len(air.Alerts) != 2 || air.Alerts[0].State != "raised" || air.Alerts[1].State != "cleared" || air.Alerts[1].Probability != nil {
 		t.Errorf("alerts %+v", air.Alerts)
 	}
 	if list[1].Model != "" || list[1].Status != "warming_up" || !list[1].Origin.IsZero() {
@@ -130,8 +131,8 @@ func TestPages(t *testing.T) {
 		`<a href="series/air.passengers">air.passengers</a>`,
 		`src="api/series/air.passengers/chart.svg?w=360&amp;h=110"`,
 		`<span class="st st-warming_up">warming up</span>`,
-		`<div class="firing">busy-summer: firing</div>`,
-		`<div class="ok">quiet: ok</div>`,
+		`<div class="raised">busy-summer: raised</div>`,
+		`<div class="cleared">quiet: cleared</div>`,
 		`3 <span class="muted">(1 late)</span>`,
 		`Reading <code>metrics.&gt;</code>; publishing under <code>forewarn.</code>`,
 	} {
