@@ -80,7 +80,7 @@ type ModelSnapshot struct {
 // AlertSnapshot is the persisted state of one alert rule on one series.
 type AlertSnapshot struct {
 	Rule        string
-	Raised      bool // the rule is raised (ITU-T X.733); false: cleared
+	Raised      bool    // the rule is raised (ITU-T X.733); false: cleared
 	Since       int64   // bucket index of the last state change
 	Probability float64 // probability at the last evaluation
 }
