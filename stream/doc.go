@@ -64,4 +64,5 @@
 // AppendForecast); every other number is the shortest decimal that reads
 // back as the same float64. JSON has no NaN or infinity, so a non-finite
 // number, or a band bound outside the inverse transform's domain, is null.
+// A forecast point's bands come in ascending order of level.
 package stream

@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"reflect"
+	"slices"
 	"sort"
 	"strconv"
 	"testing"
@@ -217,6 +218,49 @@ func TestAppendForecastExact(t *testing.T) {
 	}
 }
 
+// Levels that config would refuse (NaN, infinite, repeated) still give
+// valid JSON with the bands ascending: numbers first, in order of level
+// then of position, a non-finite level as null, NaN last. Each band keeps
+// its own bounds (low i is the bound of Levels[i]). Property test.
+func TestAppendForecastOddLevels(t *testing.T) {
+	f := &series.Forecast{Topic: "t", Kind: "gauge", LastValue: -1,
+		Levels: []float64{95, math.NaN(), 50, math.Inf(1), 50}}
+	p := series.Point{H: 1}
+	for i := range f.Levels {
+		p.Lower = append(p.Lower, series.Bound{Value: float64(i), OK: true})
+		p.Upper = append(p.Upper, series.Bound{Value: float64(10 + i), OK: true})
+	}
+	f.Points = []series.Point{p}
+	var got struct {
+		Points []struct {
+			Bands []struct {
+				Level     *float64
+				Low, High float64
+			}
+		}
+	}
+	b := AppendForecast(nil, f, time.Unix(0, 0))
+	if err := json.Unmarshal(b, &got); err != nil {
+		t.Fatalf("%v\n%s", err, b)
+	}
+	var levels []any
+	var lows []float64
+	for _, band := range got.Points[0].Bands {
+		if band.Level == nil {
+			levels = append(levels, nil)
+		} else {
+			levels = append(levels, *band.Level)
+		}
+		lows = append(lows, band.Low)
+		if band.High != band.Low+10 {
+			t.Errorf("band %v: low %v high %v, not the same level's bounds", levels[len(levels)-1], band.Low, band.High)
+		}
+	}
+	if !reflect.DeepEqual(levels, []any{50.0, 50.0, 95.0, nil, nil}) || !reflect.DeepEqual(lows, []float64{2, 4, 0, 3, 1}) {
+		t.Errorf("levels %v lows %v, want [50 50 95 null null] and [2 4 0 3 1]\n%s", levels, lows, b)
+	}
+}
+
 func TestAppendAlertAndRejectMatchReference(t *testing.T) {
 	r := rand.New(rand.NewPCG(3, 4))
 	var buf []byte
@@ -273,6 +317,11 @@ func TestAppendAllocs(t *testing.T) {
 	buf := make([]byte, 0, 8192)
 	if a := testing.AllocsPerRun(100, func() { buf = AppendForecast(buf[:0], f, issued) }); a != 0 {
 		t.Errorf("AppendForecast: %v allocations, want 0", a)
+	}
+	// Levels out of order take the sorting path, which does not allocate either.
+	slices.Reverse(f.Levels)
+	if a := testing.AllocsPerRun(100, func() { buf = AppendForecast(buf[:0], f, issued) }); a != 0 {
+		t.Errorf("AppendForecast, levels %v: %v allocations, want 0", f.Levels, a)
 	}
 	e := &series.AlertEvent{Topic: "x", Rule: "r", Direction: "above", HasETA: true}
 	if a := testing.AllocsPerRun(100, func() { buf = AppendAlert(buf[:0], e, issued) }); a != 0 {
