@@ -22,7 +22,7 @@ type ModelInfo struct {
 	Spec      string // the model's label (arima.Spec.Label), e.g. "ARIMA 1,1,1 × 0,1,1 s=24"
 	Transform string // e.g. "log", "boxcox(0.25)"
 	FittedAt  time.Time
-	NObs      int
+	NObs      int // observations the fit used: non-missing, less d + sD (model.observations_used)
 	AICc      float64
 }
 
