@@ -189,10 +189,10 @@ func wouldChange(t *testing.T, s *Series, m message) {
 	}
 }
 
-// A gauge's open bucket takes the last value (CONTRACT.md §1, "a bucket
-// closes when an observation of a later bucket arrives"; last value wins,
-// as TestLateAndSameBucket checks). A redelivered message with another
-// value for the open bucket must not overwrite the later one.
+// A gauge's open bucket takes the last value (Observe; TestLateAndSameBucket)
+// until an observation of a later bucket closes it (CONTRACT.md §2,
+// Intake). A redelivered message with another value for the open bucket
+// must not overwrite the later one.
 func TestRedeliveryInOpenBucket(t *testing.T) {
 	s, _ := New("g", settings())
 	msgs := append(singles(1, 0, []float64{5, 6, 7}),

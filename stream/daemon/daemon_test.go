@@ -207,7 +207,8 @@ type at struct {
 const bucket0 = 1_700_000_040 / 60
 
 // intakeMsg is the message at stream position seq on metrics.<topic>: one
-// observation as a JSON object, several as a JSON array (CONTRACT.md §1).
+// observation as a JSON object, several as a JSON array (CONTRACT.md §2,
+// Intake).
 func intakeMsg(topic string, seq uint64, obs ...at) stream.Message {
 	var data []byte
 	if len(obs) > 1 {
@@ -255,13 +256,13 @@ func snapshotDiff(got, want *series.Snapshot) string {
 // state if it were applied:
 //
 //   - g.open: a message with another value for the still open bucket
-//     (the open bucket takes the last value, CONTRACT.md §1);
+//     (the open bucket takes the last value: series.Observe);
 //   - cnt.x, a counter: raw values of the open bucket around a reset,
 //     alone and in an array (a drop is a reset: a replayed higher value
 //     makes the next one another reset);
 //   - s.straddle: one array whose third observation closes the bucket of
 //     the first fit, so that the rest waits for the refit. Its record as
-//     saved while that refit ran (position: message 20, 3 observations)
+//     saved while that refit ran (position: the array, 3 observations)
 //     is put back in the state file, as after a crash before the refit
 //     was written; restarted and handed the whole stream again, the
 //     series must end exactly as in the uninterrupted run: nothing
@@ -487,11 +488,12 @@ func (c *clock) set(t time.Time) {
 
 // With close_after, an open bucket closes after that much wall time
 // without data, without waiting for a later bucket's observation
-// (CONTRACT.md §1), and not before. The daemon's clock (Options.Now) stands
-// still at the test's start until the test moves it past close_after, so
-// the test waits on events, never on the wall clock: the flush tick,
-// which checks for idle buckets before it writes, must leave the bucket
-// open; the first tick after the clock has moved must close it.
+// (CONTRACT.md §2, Intake), and not before. The daemon's clock
+// (Options.Now) stands still at the test's start until the test moves it
+// past close_after, so the test waits on events, never on the wall clock:
+// the flush tick, which checks for idle buckets before it writes, must
+// leave the bucket open; the first tick after the clock has moved must
+// close it.
 func TestCloseAfterClosesIdleBucket(t *testing.T) {
 	_, url := streamtest.RunServer(t)
 	cfg := testConfig(t.TempDir())
