@@ -215,13 +215,19 @@ func TestGaugeCrossingAgainstReferences(t *testing.T) {
 
 // Reflection principle (Bachelier 1900; Lévy 1948), sanity bound only: for a
 // driftless walk the discrete-step crossing probability lies between the
-// end-of-window marginal and 2·P(X_k > c).
+// end-of-window marginal and 2·P(X_k > c). crossing.csv holds one
+// driftless walk (rw_driftless); the others do not apply and are counted
+// as skipped.
 func TestReflectionSanityBound(t *testing.T) {
 	e := newEval(t, 60, 0)
-	for _, c := range loadCases(t) {
+	cases := loadCases(t)
+	checked, skipped := 0, 0
+	for _, c := range cases {
 		if c.kind != "rw" || c.a != 0 {
+			skipped++
 			continue
 		}
+		checked++
 		_, _, joint := c.moments()
 		p, _, err := e.Probability(c.query(false), joint)
 		if err != nil {
@@ -232,16 +238,25 @@ func TestReflectionSanityBound(t *testing.T) {
 			t.Errorf("%s: p = %.5f outside [%.5f, %.5f]", c.name, p, end, 2*end)
 		}
 	}
+	if checked < 1 || checked+skipped != len(cases) {
+		t.Fatalf("checked %d driftless walks, skipped %d of %d cases; want at least 1 checked", checked, skipped, len(cases))
+	}
 }
 
 // eta lies within one step of the analytic median crossing time (c − x₀)/μ
 // of the drifting random walk (mean x₀ + jμ; common practice: the first
-// integer step with x₀ + jμ > c is ⌊(c − x₀)/μ⌋ + 1).
+// integer step with x₀ + jμ > c is ⌊(c − x₀)/μ⌋ + 1). crossing.csv holds
+// four drifting walks: three cross inside the horizon (rw_drift_down_below
+// at 50 of 60 steps, rw_one_step at 7.5 of 10, rw_short_window at 20 of
+// 60) and one beyond it (rw_drift_up, 70 of 60), whose eta must be 0; the
+// other cases do not apply and are counted as skipped.
 func TestEtaMedianCrossing(t *testing.T) {
 	e := newEval(t, 60, 0)
-	checked := 0
-	for _, c := range loadCases(t) {
+	cases := loadCases(t)
+	inside, beyond, skipped := 0, 0, 0
+	for _, c := range cases {
 		if c.kind != "rw" || c.a == 0 {
+			skipped++
 			continue
 		}
 		_, eta, err := e.Probability(c.query(true), nil)
@@ -253,15 +268,17 @@ func TestEtaMedianCrossing(t *testing.T) {
 			if eta != 0 {
 				t.Errorf("%s: eta %d, analytic %.2f beyond horizon %d", c.name, eta, tStar, c.h)
 			}
+			beyond++
 			continue
 		}
 		if math.Abs(float64(eta)-tStar) > 1 {
 			t.Errorf("%s: eta %d, analytic %.2f", c.name, eta, tStar)
 		}
-		checked++
+		inside++
 	}
-	if checked < 2 {
-		t.Fatalf("only %d cases with a crossing inside the horizon", checked)
+	if inside < 3 || beyond < 1 || inside+beyond+skipped != len(cases) {
+		t.Fatalf("checked %d crossings inside the horizon and %d beyond it, skipped %d of %d cases; want at least 3 and 1",
+			inside, beyond, skipped, len(cases))
 	}
 	// Never beyond within the horizon: 0.
 	q := &Query{Mean: []float64{1, 2, 3}, Variance: []float64{1, 2, 3}, Threshold: 3, Direction: Above, Window: 3, Monotone: true}

@@ -281,8 +281,10 @@ func TestDeterministic(t *testing.T) {
 	}
 }
 
-// TestWarm: a warm refit from the cold choice keeps the order and the
-// likelihood, with at most five fits.
+// TestWarm: a warm refit from the cold choice, on the same data, keeps the
+// order (spec, mean and drift), the transform and the likelihood, with at
+// most five fits (a property: the cold choice is the best of its
+// neighbourhood, and the warm search tries only that neighbourhood).
 func TestWarm(t *testing.T) {
 	y := refdata.Dataset(t, "USAccDeaths")
 	cold, err := Select(y, Options{Period: 12})
@@ -297,6 +299,17 @@ func TestWarm(t *testing.T) {
 	if len(warm.Tried) > 5 {
 		t.Errorf("warm refit tried %d fits, want ≤ 5", len(warm.Tried))
 	}
+	if warm.Spec != cold.Spec {
+		t.Errorf("warm refit chose %v (%+v), cold %v (%+v): the order changed", warm.Spec, warm.Spec, cold.Spec, cold.Spec)
+	}
+	if warm.Transform.String() != cold.Transform.String() {
+		t.Errorf("warm refit transform %v, cold %v", warm.Transform, cold.Transform)
+	}
+	if d := warm.Result.LogLik - cold.Result.LogLik; math.Abs(d) > 0.01 {
+		t.Errorf("warm loglik %.4f, cold %.4f", warm.Result.LogLik, cold.Result.LogLik)
+	}
+	t.Logf("cold %v %v loglik %.4f AICc %.4f; warm loglik %.4f AICc %.4f in %d fits",
+		cold.Spec, cold.Transform, cold.Result.LogLik, cold.RawAICc, warm.Result.LogLik, warm.RawAICc, len(warm.Tried))
 	if warm.RawAICc > cold.RawAICc+0.01 {
 		t.Errorf("warm AICc %.4f worse than cold %.4f", warm.RawAICc, cold.RawAICc)
 	}

@@ -181,8 +181,6 @@ func TestCounterNeverBelowLast(t *testing.T) {
 	}
 }
 
-// TestSnapshotResume checks that a series restored from its snapshot at any
-// point produces exactly the forecasts of an uninterrupted one.
 // The window keeps the last Window closed buckets in order, however far
 // it has moved along its buffer, across a restore (from a window longer
 // than the new setting) and after a gap that empties it; pushing a bucket
@@ -254,6 +252,8 @@ func TestWindowSlides(t *testing.T) {
 	}
 }
 
+// TestSnapshotResume checks that a series restored from its snapshot at any
+// point produces exactly the forecasts of an uninterrupted one.
 func TestSnapshotResume(t *testing.T) {
 	x := trend(160, 3)
 	whole, _ := New("r", settings())
