@@ -568,6 +568,12 @@ func TestOfflineData(t *testing.T) {
 		{[]string{"2025-03-04", "2025-03-05"}, time.Date(2025, 3, 6, 0, 0, 0, 0, time.UTC)},
 		{[]string{"1741082400", "1741082460"}, time.Unix(1741082520, 0)},
 		{[]string{"1960.00", "1960.25", "1960.50"}, time.Date(1960, 10, 1, 0, 0, 0, 0, time.UTC)}, // quarterly
+		// Dates on the first of the month step by calendar months (31,
+		// 28, 31 days apart here), quarters too.
+		{[]string{"1973-01-01", "1973-02-01", "1973-03-01"}, time.Date(1973, 4, 1, 0, 0, 0, 0, time.UTC)},
+		{[]string{"1960-01-01", "1960-04-01", "1960-07-01"}, time.Date(1960, 10, 1, 0, 0, 0, 0, time.UTC)},
+		// Mid-month dates are not a month grid: the median gap, 31 days.
+		{[]string{"1973-01-15", "1973-02-15", "1973-03-15", "1973-04-15"}, time.Date(1973, 5, 16, 0, 0, 0, 0, time.UTC)},
 	} {
 		tl, ok := parseTimes(c.col)
 		if !ok || !tl.after(1).Equal(c.want) {
@@ -576,5 +582,82 @@ func TestOfflineData(t *testing.T) {
 	}
 	if _, ok := parseTimes([]string{"1", "x"}); ok {
 		t.Error("a non-time cell accepted")
+	}
+}
+
+// Durations are written as a person writes them; every form without a
+// day unit reads back through Go's time.ParseDuration to the same
+// duration, and one with a day unit does after "d" is taken as 24h (the
+// unit forewarn's config accepts beside Go's).
+func TestFormatDuration(t *testing.T) {
+	cases := []struct {
+		d    time.Duration
+		want string
+	}{
+		{12 * time.Hour, "12h"},
+		{6*time.Hour + 30*time.Minute, "6h30m"},
+		{45 * time.Minute, "45m"},
+		{90 * time.Second, "1m30s"},
+		{24 * time.Hour, "24h"},
+		{36 * time.Hour, "36h"},
+		{48 * time.Hour, "2d"},
+		{60 * time.Hour, "60h"},
+		{84 * time.Hour, "3d12h"},
+		{744 * time.Hour, "31d"},
+		{-2 * time.Hour, "-2h"},
+	}
+	for _, c := range cases {
+		got := formatDuration(c.d)
+		if got != c.want {
+			t.Errorf("formatDuration(%v) = %q, want %q", c.d, got, c.want)
+			continue
+		}
+		s := got
+		var days time.Duration
+		if i := strings.Index(s, "d"); i >= 0 {
+			n, err := strconv.Atoi(s[:i])
+			if err != nil {
+				t.Fatalf("%q: %v", got, err)
+			}
+			days, s = time.Duration(n)*24*time.Hour, s[i+1:]
+		}
+		back := time.Duration(0)
+		if s != "" {
+			var err error
+			if back, err = time.ParseDuration(s); err != nil {
+				t.Fatalf("%q does not parse: %v", got, err)
+			}
+		}
+		if days+back != c.d {
+			t.Errorf("%q reads back as %v, want %v", got, days+back, c.d)
+		}
+	}
+}
+
+// The median path's legend names the horizon: the span from the last
+// history bucket to the last forecast step, in calendar months on a month
+// grid, as a duration otherwise, in steps on an observation axis.
+func TestHorizon(t *testing.T) {
+	air := refForecast(t, "AirPassengers_na_log_airline", []float64{50, 90}) // 24 months after Dec 1960
+	mins := synthetic(100, 2)                                                // 60 one-minute steps
+	idx := &Data{Index: true, Times: []time.Time{time.Unix(1, 0)}, Values: []float64{1},
+		Forecast: []Point{{Time: time.Unix(2, 0)}, {Time: time.Unix(3, 0)}}}
+	q := &Data{Times: []time.Time{time.Date(1960, 10, 1, 0, 0, 0, 0, time.UTC)}, Values: []float64{1}}
+	for h := 1; h <= 12; h++ {
+		q.Forecast = append(q.Forecast, Point{Time: time.Date(1960, time.Month(10+3*h), 1, 0, 0, 0, 0, time.UTC)})
+	}
+	for _, c := range []struct {
+		d    *Data
+		want string
+	}{
+		{air, "median path, next 24 months"},
+		{mins, "median path, next 1h"},
+		{idx, "median path, next 2 steps"},
+		{q, "median path, next 3 years"},
+		{&Data{Forecast: []Point{{Time: time.Unix(60, 0)}}}, "median path"},
+	} {
+		if got := medianLabel(c.d, newFan(c.d)); got != c.want {
+			t.Errorf("%q, want %q", got, c.want)
+		}
 	}
 }
