@@ -104,7 +104,8 @@ func (f *fan) band(d *Data, li int, r valueRange) *plotter.Polygon {
 	return &plotter.Polygon{XYs: []plotter.XYs{ring}}
 }
 
-// xRange spans the history and the forecast's steps.
+// xRange spans the history and the forecast's steps; without a forecast
+// it leaves 1.5 % of the span free on the right.
 func xRange(d *Data, f *fan) (x0, x1 float64, ok bool) {
 	x0, x1 = math.Inf(1), math.Inf(-1)
 	if n := len(d.Times); n > 0 {
@@ -119,6 +120,10 @@ func xRange(d *Data, f *fan) (x0, x1 float64, ok bool) {
 	}
 	if x0 == x1 {
 		x0, x1 = x0-1800, x1+1800
+	}
+	if f == nil {
+		// Room on the right for the dot on the last closed bucket.
+		x1 += 0.015 * (x1 - x0)
 	}
 	return x0, x1, true
 }
