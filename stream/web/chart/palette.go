@@ -25,7 +25,7 @@ var (
 	colHistory = rgb(0x3e4c59) // slate, ours
 	colMedian  = rgb(0xaa4499) // [Tol] muted "purple"
 	colRaised  = rgb(0xcc3311) // [Tol] vibrant "red"
-	colCleared = rgb(0x737373) // neutral grey, ours
+	colCleared = rgb(0x707070) // neutral grey, ours
 	colOrigin  = rgb(0x8794a1) // light slate, ours
 	colRefit   = rgb(0x5f6b77) // mid slate, ours
 	colGrid    = rgb(0xe6e1d8) // warm paper grey, ours

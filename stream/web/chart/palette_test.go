@@ -45,7 +45,7 @@ var white = color.RGBA{R: 0xff, G: 0xff, B: 0xff, A: 0xff}
 // white is 21:1, equal colours 1:1), and the palette meets the contrast
 // WCAG 2.x Success Criterion 1.4.11 (Non-text Contrast) asks of graphical
 // objects, 3:1 against adjacent colours: every line against the white
-// background, and the median path and a raised rule's line against every
+// background, and the median path and the rules' lines against every
 // band they cross. The bands themselves step in lightness from the
 // narrowest (darkest) to the widest and to the background, so they stay
 // apart in greyscale.
@@ -72,6 +72,9 @@ func TestPaletteContrast(t *testing.T) {
 			}
 			if got := contrast(colRaised, b); got < nonText {
 				t.Errorf("raised rule on band %d of %d: %.2f:1, want at least %v:1", i, n, got, nonText)
+			}
+			if got := contrast(colCleared, b); got < nonText {
+				t.Errorf("cleared rule on band %d of %d: %.2f:1, want at least %v:1", i, n, got, nonText)
 			}
 			// Narrower bands are darker; the widest is darker than white.
 			lighter := white
