@@ -141,9 +141,16 @@ func TestFanSteps(t *testing.T) {
 		t.Fatalf("band outline has %d vertices, want 4 per step", len(ring))
 	}
 	for i, p := range d.Forecast {
-		up, lo := ring[2*i], ring[len(ring)-1-2*i]
-		if up.Y != p.Upper[1] || ring[2*i+1].Y != p.Upper[1] || lo.Y != p.Lower[1] {
-			t.Errorf("step %d: outline at %v…%v, want the bounds %v…%v", i, lo.Y, up.Y, p.Lower[1], p.Upper[1])
+		// Upper edge forward: (left, upper), (right, upper); lower edge
+		// backward: (right, lower), (left, lower).
+		ul, ur := ring[2*i], ring[2*i+1]
+		lr, ll := ring[len(ring)-2-2*i], ring[len(ring)-1-2*i]
+		if ul.Y != p.Upper[1] || ur.Y != p.Upper[1] || lr.Y != p.Lower[1] || ll.Y != p.Lower[1] {
+			t.Errorf("step %d: outline at %v…%v, want the bounds %v…%v", i, ll.Y, ul.Y, p.Lower[1], p.Upper[1])
+		}
+		if ul.X != f.left[i] || ur.X != f.right[i] || lr.X != f.right[i] || ll.X != f.left[i] {
+			t.Errorf("step %d: outline spans x %v…%v (upper) and %v…%v (lower), want the step %v…%v",
+				i, ul.X, ur.X, ll.X, lr.X, f.left[i], f.right[i])
 		}
 	}
 	if x0, x1, _ := xRange(d, f); x0 != secs(d.Times[0]) || x1 != f.right[len(f.right)-1] {
