@@ -124,7 +124,7 @@ func yearTicks(lo, hi float64, k int) []plot.Tick {
 }
 
 // valueTicker places ticks like plot.DefaultTicks and labels them with
-// formatValue, so large values read "1.5M" rather than "1.5e+06".
+// formatValue, so large values read "1.5 M" rather than "1.5e+06".
 type valueTicker struct{}
 
 // Ticks implements plot.Ticker.
@@ -171,7 +171,7 @@ func (valueTicker) Ticks(lo, hi float64) []plot.Tick {
 // writtenExactly reports whether formatValue(v, step, mag) loses nothing
 // of v beyond a millionth of the step.
 func writtenExactly(v, step, mag float64) bool {
-	back, err := strconv.ParseFloat(strings.TrimRight(formatValue(v, step, mag), "kMGTP"), 64)
+	back, err := strconv.ParseFloat(strings.TrimRight(formatValue(v, step, mag), " kMGTP"), 64)
 	if err != nil {
 		return false
 	}
@@ -188,8 +188,9 @@ func writtenExactly(v, step, mag float64) bool {
 }
 
 // formatValue writes v with as many decimals as the tick step needs and,
-// from 10 000 on, a decimal-multiple suffix (k, M, G, T, P; common
-// practice for operator dashboards).
+// from 10 000 on, a decimal-multiple prefix symbol after a space (k, M, G,
+// T, P: the SI prefixes, written with a space as a number and its unit
+// are, BIPM SI Brochure 9th ed. 2019, §5.4.3), so 9.03e11 reads "903 G".
 func formatValue(v, step, mag float64) string {
 	if v == 0 {
 		return "0"
@@ -242,4 +243,87 @@ func formatExact(v float64) string {
 var suffixes = []struct {
 	f float64
 	s string
-}{{1e15, "P"}, {1e12, "T"}, {1e9, "G"}, {1e6, "M"}, {1e3, "k"}}
+}{{1e15, " P"}, {1e12, " T"}, {1e9, " G"}, {1e6, " M"}, {1e3, " k"}}
+
+// horizon is how far the forecast reaches past the last history bucket,
+// as a person writes it: "12h", "6h30m", "3d", "24 months", or "24
+// steps" on an observation-number axis. Empty when there is no forecast.
+func horizon(d *Data, f *fan) string {
+	n := len(d.Forecast)
+	if f == nil || n == 0 {
+		return ""
+	}
+	if d.Index {
+		if n == 1 {
+			return "step"
+		}
+		return strconv.Itoa(n) + " steps"
+	}
+	last := d.Forecast[n-1].Time.UTC()
+	// prev is the time before the first step (see newFan), here exact.
+	first := d.Forecast[0].Time.UTC()
+	var prev time.Time
+	for i := len(d.Times) - 1; i >= 0; i-- {
+		if d.Times[i].Before(d.Forecast[0].Time) {
+			prev = d.Times[i].UTC()
+			break
+		}
+	}
+	if prev.IsZero() {
+		if n < 2 {
+			return ""
+		}
+		prev = first.Add(-d.Forecast[1].Time.Sub(first))
+	}
+	if m, ok := wholeMonths(prev, last); ok {
+		switch {
+		case m%12 == 0 && m >= 36:
+			return strconv.Itoa(m/12) + " years"
+		case m == 1:
+			return "month"
+		}
+		return strconv.Itoa(m) + " months"
+	}
+	return formatDuration(last.Sub(prev))
+}
+
+// wholeMonths reports the number of calendar months from a to b when both
+// fall on midnight of a month's first day.
+func wholeMonths(a, b time.Time) (int, bool) {
+	onFirst := func(t time.Time) bool {
+		return t.Day() == 1 && t.Hour() == 0 && t.Minute() == 0 && t.Second() == 0 && t.Nanosecond() == 0
+	}
+	if !onFirst(a) || !onFirst(b) || !b.After(a) {
+		return 0, false
+	}
+	return (b.Year()-a.Year())*12 + int(b.Month()) - int(a.Month()), true
+}
+
+// formatDuration writes a duration as a person does: "45s", "12h",
+// "6h30m", "36h", "3d", "4d6h" (the units d = 24h as forewarn's config
+// reads them). Whole days from two days on are written in days; under
+// three days the hours are kept; below a second, Go's own form.
+func formatDuration(d time.Duration) string {
+	if d < 0 {
+		return "-" + formatDuration(-d)
+	}
+	if d < time.Second {
+		return d.String()
+	}
+	const dayDur = 24 * time.Hour
+	var b strings.Builder
+	if d >= 2*dayDur && (d%dayDur == 0 || d >= 3*dayDur) {
+		b.WriteString(strconv.FormatInt(int64(d/dayDur), 10) + "d")
+		d %= dayDur
+	}
+	for _, u := range []struct {
+		d time.Duration
+		s string
+	}{{time.Hour, "h"}, {time.Minute, "m"}, {time.Second, "s"}} {
+		if k := d / u.d; k > 0 {
+			b.WriteString(strconv.FormatInt(int64(k), 10) + u.s)
+			d -= k * u.d
+		}
+	}
+	return b.String()
+}

@@ -3,18 +3,13 @@ package chart
 import (
 	"bytes"
 	"fmt"
-	"image/color"
 	"io"
 	"math"
 	"os"
 	"path/filepath"
-	"slices"
 	"strings"
 	"time"
 
-	"gonum.org/v1/plot"
-	"gonum.org/v1/plot/font"
-	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
 	"gonum.org/v1/plot/vg/vgimg"
@@ -35,7 +30,7 @@ type Data struct {
 	// Forecast holds the forecast points, nearest first.
 	Forecast []Point
 
-	// Levels are the central interval levels in percent, e.g. [80 95];
+	// Levels are the central interval levels in percent, e.g. [50 90];
 	// Point.Lower[i] and Point.Upper[i] belong to Levels[i].
 	Levels []float64
 
@@ -61,10 +56,12 @@ type Point struct {
 
 // Threshold is the line of one alert rule.
 type Threshold struct {
-	Name   string
-	Value  float64
-	Above  bool // the rule fires when the series goes above Value
-	Firing bool
+	Name  string
+	Value float64
+	Above bool // the rule watches for the series going above Value
+	// Raised is the rule's alarm state (ITU-T X.733): true while the
+	// alert is raised, false while it is cleared.
+	Raised bool
 }
 
 // Format is an output format.
@@ -211,238 +208,6 @@ func check(d *Data) error {
 	return nil
 }
 
-// Colours of our own palette.
-var (
-	colHistory  = color.RGBA{R: 0x2b, G: 0x2b, B: 0x2b, A: 0xff}
-	colMedian   = color.RGBA{R: 0x0b, G: 0x4f, B: 0x9c, A: 0xff}
-	colBandDark = color.RGBA{R: 0x8f, G: 0xb8, B: 0xe0, A: 0xff} // narrowest band
-	colBandPale = color.RGBA{R: 0xd4, G: 0xe4, B: 0xf4, A: 0xff} // widest band
-	colFiring   = color.RGBA{R: 0xc6, G: 0x28, B: 0x28, A: 0xff}
-	colOK       = color.RGBA{R: 0xd9, G: 0x8c, B: 0x00, A: 0xff}
-	colRefit    = color.RGBA{R: 0x7a, G: 0x7a, B: 0x7a, A: 0xff}
-	colGrid     = color.RGBA{R: 0xe6, G: 0xe6, B: 0xe6, A: 0xff}
-)
-
-// MedianColor is the colour of the median forecast line.
-func MedianColor() color.RGBA { return colMedian }
-
-// BandColor returns the fill colour of the band at rank i of n, i = 0
-// being the narrowest (lowest level). With two levels the 80 % band is
-// colBandDark and the 95 % band colBandPale; the HTTP surface's browser
-// test looks for these colours in a screenshot.
-func BandColor(i, n int) color.RGBA {
-	if n <= 1 {
-		return colBandDark
-	}
-	t := float64(i) / float64(n-1)
-	mix := func(a, b uint8) uint8 { return uint8(math.Round(float64(a) + t*(float64(b)-float64(a)))) }
-	return color.RGBA{R: mix(colBandDark.R, colBandPale.R), G: mix(colBandDark.G, colBandPale.G),
-		B: mix(colBandDark.B, colBandPale.B), A: 0xff}
-}
-
-var sans = font.Font{Typeface: "Liberation", Variant: "Sans"}
-
-func secs(t time.Time) float64 { return float64(t.UnixNano()) / 1e9 }
-
-func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
-
-// draw1 lays the chart out on c: plot on the left, legend on the right.
-func draw1(c draw.Canvas, d *Data, wpx int) {
-	compact := wpx < CompactWidth
-	c.SetColor(color.White)
-	c.Fill(c.Rectangle.Path())
-
-	p := plot.New()
-	tick, label := vg.Length(9), vg.Length(10)
-	if compact {
-		tick = 7
-	}
-	p.Title.TextStyle.Font = font.From(sans, 12)
-	p.X.Tick.Label.Font = font.From(sans, tick)
-	p.Y.Tick.Label.Font = font.From(sans, tick)
-	p.X.Label.TextStyle.Font = font.From(sans, label)
-	p.Y.Label.TextStyle.Font = font.From(sans, label)
-	p.X.Padding, p.Y.Padding = 0, 0
-	if !compact {
-		p.Title.Text = d.Title
-		p.X.Label.Text = "time (UTC)"
-		p.Title.Padding = 6
-	}
-
-	x0, x1, hasX := xRange(d)
-	r := yRange(d)
-	if !hasX {
-		p.Title.Text = strings.TrimSpace(d.Title + " — no data yet")
-		x0, x1 = 0, 1
-		p.X.Tick.Marker = plot.ConstantTicks(nil)
-		p.Y.Tick.Marker = plot.ConstantTicks(nil)
-	} else {
-		p.X.Tick.Marker = timeTicker{maxLabels: max(2, wpx/120)}
-		p.Y.Tick.Marker = valueTicker{}
-		if d.Index {
-			p.X.Tick.Marker = valueTicker{}
-			if !compact {
-				p.X.Label.Text = "observation"
-			}
-		}
-	}
-	g := plotter.NewGrid()
-	g.Vertical.Color, g.Horizontal.Color = colGrid, colGrid
-	g.Vertical.Width, g.Horizontal.Width = vg.Points(0.5), vg.Points(0.5)
-	p.Add(g)
-
-	leg := plot.NewLegend()
-	leg.TextStyle.Font = font.From(sans, 9)
-	leg.Top, leg.Left = true, true
-	leg.ThumbnailWidth = 18
-	leg.Padding = 3
-	nleg := 0
-	legend := func(name string, th ...plot.Thumbnailer) { leg.Add(name, th...); nleg++ }
-
-	// Bands, widest first so narrower ones lie on top.
-	order := make([]int, len(d.Levels))
-	for i := range order {
-		order[i] = i
-	}
-	slices.SortFunc(order, func(a, b int) int { return -cmpFloat(d.Levels[a], d.Levels[b]) })
-	ax, ay, anchored := anchor(d)
-	for rank, li := range order {
-		poly := bandPolygon(d, li, r, ax, ay, anchored)
-		if poly == nil {
-			continue
-		}
-		poly.Color = BandColor(len(order)-1-rank, len(order))
-		poly.LineStyle.Width = 0
-		p.Add(poly)
-	}
-	for i := range order { // legend narrowest first
-		li := order[len(order)-1-i]
-		legend(fmt.Sprintf("%s %% interval", formatLevel(d.Levels[li])),
-			&plotter.Polygon{Color: BandColor(i, len(order))})
-	}
-
-	// Refit markers.
-	refit := draw.LineStyle{Color: colRefit, Width: vg.Points(0.8), Dashes: []vg.Length{vg.Points(2), vg.Points(2)}}
-	nref := 0
-	for _, t := range d.Refits {
-		x := secs(t)
-		if x < x0 || x > x1 {
-			continue
-		}
-		l := &plotter.Line{XYs: plotter.XYs{{X: x, Y: r.lo}, {X: x, Y: r.hi}}, LineStyle: refit}
-		p.Add(l)
-		if nref == 0 {
-			legend("refit", l)
-		}
-		nref++
-	}
-
-	// History.
-	if len(d.Times) > 0 {
-		h := newHistory(d, wpx, x0, x1)
-		h.style = draw.LineStyle{Color: colHistory, Width: vg.Points(1)}
-		p.Add(h)
-		legend("history", &plotter.Line{LineStyle: h.style})
-	}
-
-	// Median forecast.
-	if n := len(d.Forecast); n > 0 {
-		var xy plotter.XYs
-		if anchored {
-			xy = append(xy, plotter.XY{X: ax, Y: ay})
-		}
-		for _, pt := range d.Forecast {
-			if finite(pt.Median) {
-				xy = append(xy, plotter.XY{X: secs(pt.Time), Y: pt.Median})
-			}
-		}
-		med := &plotter.Line{XYs: xy, LineStyle: draw.LineStyle{Color: colMedian, Width: vg.Points(1.4)}}
-		p.Add(med)
-		legend("median forecast", med)
-	}
-
-	// Thresholds.
-	for _, th := range d.Thresholds {
-		if !finite(th.Value) {
-			continue
-		}
-		col := colOK
-		if th.Firing {
-			col = colFiring
-		}
-		st := draw.LineStyle{Color: col, Width: vg.Points(1.2), Dashes: []vg.Length{vg.Points(5), vg.Points(3)}}
-		l := &plotter.Line{XYs: plotter.XYs{{X: x0, Y: th.Value}, {X: x1, Y: th.Value}}, LineStyle: st}
-		dir := "above"
-		if !th.Above {
-			dir = "below"
-		}
-		name := fmt.Sprintf("%s: %s %s", th.Name, dir, formatExact(th.Value))
-		if th.Firing {
-			name += ", firing"
-		}
-		if th.Value < r.lo || th.Value > r.hi {
-			name += " (off chart)"
-		} else {
-			p.Add(l)
-		}
-		legend(name, l)
-	}
-
-	p.X.Min, p.X.Max = x0, x1
-	p.Y.Min, p.Y.Max = r.lo, r.hi
-
-	if compact || nleg == 0 {
-		p.Draw(c)
-		return
-	}
-	lw := leg.Rectangle(c).Size().X + 12
-	if lw > c.Size().X/3 {
-		lw = c.Size().X / 3
-	}
-	p.Draw(draw.Crop(c, 0, -lw, 0, 0))
-	top := vg.Length(8)
-	if p.Title.Text != "" {
-		top += p.Title.TextStyle.Rectangle(p.Title.Text).Size().Y + p.Title.Padding
-	}
-	leg.Draw(draw.Crop(c, c.Size().X-lw+8, 0, 0, -top))
-}
-
-func cmpFloat(a, b float64) int {
-	switch {
-	case a < b:
-		return -1
-	case a > b:
-		return 1
-	}
-	return 0
-}
-
-func formatLevel(l float64) string {
-	if l == math.Trunc(l) {
-		return fmt.Sprintf("%.0f", l)
-	}
-	return fmt.Sprintf("%g", l)
-}
-
-// xRange spans the history and the forecast.
-func xRange(d *Data) (x0, x1 float64, ok bool) {
-	x0, x1 = math.Inf(1), math.Inf(-1)
-	if n := len(d.Times); n > 0 {
-		x0, x1 = secs(d.Times[0]), secs(d.Times[n-1])
-	}
-	if n := len(d.Forecast); n > 0 {
-		x0 = math.Min(x0, secs(d.Forecast[0].Time))
-		x1 = math.Max(x1, secs(d.Forecast[n-1].Time))
-	}
-	if x0 > x1 {
-		return 0, 0, false
-	}
-	if x0 == x1 {
-		x0, x1 = x0-1800, x1+1800
-	}
-	return x0, x1, true
-}
-
 type valueRange struct{ lo, hi float64 }
 
 // yRange: the history and the median set the core span; bands and
@@ -500,53 +265,4 @@ func yRange(d *Data) valueRange {
 		lo = 0
 	}
 	return valueRange{lo, hi}
-}
-
-// anchor is the last finite history point when it comes before the first
-// forecast point: the median and the bands start from it.
-func anchor(d *Data) (x, y float64, ok bool) {
-	if len(d.Forecast) == 0 {
-		return 0, 0, false
-	}
-	first := d.Forecast[0].Time
-	for i := len(d.Values) - 1; i >= 0; i-- {
-		if !d.Times[i].Before(first) {
-			continue
-		}
-		if finite(d.Values[i]) {
-			return secs(d.Times[i]), d.Values[i], true
-		}
-		return 0, 0, false // the last bucket is missing: no anchor
-	}
-	return 0, 0, false
-}
-
-// bandPolygon is the closed outline upper(t) forward, lower(t) backward;
-// unbounded endpoints run to the edge of the value range.
-func bandPolygon(d *Data, li int, r valueRange, ax, ay float64, anchored bool) *plotter.Polygon {
-	n := len(d.Forecast)
-	if n == 0 {
-		return nil
-	}
-	ring := make(plotter.XYs, 0, 2*n+2)
-	if anchored {
-		ring = append(ring, plotter.XY{X: ax, Y: ay})
-	}
-	clamp := func(v, edge float64) float64 {
-		if !finite(v) {
-			return edge
-		}
-		return math.Max(r.lo, math.Min(r.hi, v))
-	}
-	for _, p := range d.Forecast {
-		ring = append(ring, plotter.XY{X: secs(p.Time), Y: clamp(p.Upper[li], r.hi)})
-	}
-	for i := n - 1; i >= 0; i-- {
-		p := d.Forecast[i]
-		ring = append(ring, plotter.XY{X: secs(p.Time), Y: clamp(p.Lower[li], r.lo)})
-	}
-	if len(ring) < 3 {
-		return nil
-	}
-	return &plotter.Polygon{XYs: []plotter.XYs{ring}}
 }

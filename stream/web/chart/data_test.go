@@ -27,7 +27,7 @@ func refForecast(t testing.TB, id string, levels []float64) *Data {
 func synthetic(n int, seed uint64) *Data {
 	rng := rand.New(rand.NewPCG(seed, 1))
 	t0 := time.Date(2025, 3, 4, 0, 0, 0, 0, time.UTC)
-	d := &Data{Title: "synthetic", Levels: []float64{80, 95}}
+	d := &Data{Title: "synthetic", Levels: []float64{50, 90}}
 	level := 1000.0
 	for i := range n {
 		level += rng.NormFloat64() * 3
@@ -39,8 +39,8 @@ func synthetic(n int, seed uint64) *Data {
 		s := 3 * math.Sqrt(float64(h))
 		d.Forecast = append(d.Forecast, Point{
 			Time: d.Times[n-1].Add(time.Duration(h) * time.Minute), Median: last,
-			Lower: []float64{last - 1.2816*s, last - 1.96*s},
-			Upper: []float64{last + 1.2816*s, last + 1.96*s},
+			Lower: []float64{last - 0.6745*s, last - 1.6449*s},
+			Upper: []float64{last + 0.6745*s, last + 1.6449*s},
 		})
 	}
 	d.Thresholds = []Threshold{{Name: "high", Value: last + 150, Above: true}}

@@ -1,7 +1,10 @@
 // Package chart draws the picture of one series that operators look at:
-// the recent history, the median forecast, the central prediction
-// intervals as filled bands, the thresholds of the alert rules that watch
-// the series and markers where the model was refitted.
+// the recent history, the median path of the forecast, one band per
+// central prediction interval level, the thresholds of the alert rules
+// that watch the series with their state, the forecast origin and markers
+// where the model was refitted. DESIGN.md describes the look: palette,
+// band rendering, legend wording, and how greyscale and colour-blind
+// readability are checked.
 //
 // # Contract
 //
@@ -15,12 +18,21 @@
 // # Units and conventions
 //
 //   - Times are instants; the time axis is labelled in UTC.
-//   - Values are in raw units. A missing history value is NaN and breaks
-//     the history line; it is never drawn as zero.
+//   - Values are in raw units; from 10 000 on, axis labels and thresholds
+//     carry an SI prefix symbol after a space ("903 G", "1.93 M").
+//   - A missing history value is NaN and breaks the history line; it is
+//     never drawn as zero.
 //   - Point.Lower[i] and Point.Upper[i] bound the central interval at
-//     Data.Levels[i] percent. NaN or an infinity marks an unbounded
-//     endpoint (outside the inverse transform's domain): the band then
-//     runs to the edge of the plotting area.
+//     Data.Levels[i] percent; any number of levels may be given. NaN or an
+//     infinity marks an unbounded endpoint (outside the inverse
+//     transform's domain): the band then runs to the edge of the plotting
+//     area.
+//   - Each forecast step is drawn as a flat step of its band, centred on
+//     its time and reaching half-way to its neighbours; the first step
+//     begins half-way between the last history bucket and the first
+//     forecast time, where the origin rule stands.
+//   - Threshold.Raised is the alert's state in the ITU-T X.733 words the
+//     legend uses: raised or cleared.
 //   - The value axis covers the history and the median forecast; bands
 //     and thresholds widen it by at most one and a half times the span of
 //     history and median on either side. Thresholds beyond that are named

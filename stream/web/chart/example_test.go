@@ -17,12 +17,12 @@ func ExampleRender() {
 		Title:  "shop.orders",
 		Times:  []time.Time{t0, t0.Add(time.Minute), t0.Add(2 * time.Minute)},
 		Values: []float64{10, 12, 11},
-		Levels: []float64{80, 95},
+		Levels: []float64{50, 90},
 		Forecast: []chart.Point{
-			{Time: t0.Add(3 * time.Minute), Median: 11.5, Lower: []float64{10, 9}, Upper: []float64{13, 14}},
-			{Time: t0.Add(4 * time.Minute), Median: 11.8, Lower: []float64{9.5, 8}, Upper: []float64{14, 16}},
+			{Time: t0.Add(3 * time.Minute), Median: 11.5, Lower: []float64{10.5, 9}, Upper: []float64{12.5, 14}},
+			{Time: t0.Add(4 * time.Minute), Median: 11.8, Lower: []float64{10.3, 8}, Upper: []float64{13.3, 16}},
 		},
-		Thresholds: []chart.Threshold{{Name: "busy", Value: 15, Above: true}},
+		Thresholds: []chart.Threshold{{Name: "busy", Value: 15, Above: true, Raised: true}},
 	}
 	var buf bytes.Buffer
 	if err := chart.Render(&buf, chart.SVG, d, chart.Options{Width: 600, Height: 300}); err != nil {
@@ -31,10 +31,14 @@ func ExampleRender() {
 	}
 	svg := buf.String()
 	fmt.Println(strings.Contains(svg, `width="450pt" height="225pt"`))
-	fmt.Println(strings.Contains(svg, "busy: above 15"))
+	for _, entry := range []string{"median path, next 2m", "50 % band", "busy: above 15 (raised)"} {
+		fmt.Println(entry, strings.Contains(svg, ">"+entry+"<"))
+	}
 	// Output:
 	// true
-	// true
+	// median path, next 2m true
+	// 50 % band true
+	// busy: above 15 (raised) true
 }
 
 func ExampleFormatOf() {

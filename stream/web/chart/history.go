@@ -1,6 +1,7 @@
 package chart
 
 import (
+	"image/color"
 	"math"
 
 	"gonum.org/v1/plot"
@@ -13,6 +14,10 @@ import (
 type history struct {
 	x, y  []float64 // NaN in y breaks the line
 	style draw.LineStyle
+	// last is the last finite value (the last closed bucket with a
+	// value), marked with a dot; ok is false when there is none.
+	lastX, lastY float64
+	ok           bool
 }
 
 // newHistory copies the history of d, thinned to at most two points per
@@ -24,6 +29,12 @@ func newHistory(d *Data, wpx int, x0, x1 float64) *history {
 		x[i] = secs(t)
 	}
 	h := &history{x: x, y: d.Values}
+	for i := n - 1; i >= 0; i-- {
+		if finite(d.Values[i]) {
+			h.lastX, h.lastY, h.ok = x[i], d.Values[i], true
+			break
+		}
+	}
 	if n > 2*wpx {
 		h.x, h.y = decimate(x, d.Values, wpx, x0, x1)
 	}
@@ -107,4 +118,24 @@ func (h *history) Plot(c draw.Canvas, plt *plot.Plot) {
 		run = append(run, vg.Point{X: trX(x), Y: trY(h.y[i])})
 	}
 	end()
+	if h.ok {
+		p := vg.Point{X: trX(h.lastX), Y: trY(h.lastY)}
+		if c.Contains(p) {
+			h.dot(&c, p)
+		}
+	}
+}
+
+// dot marks the last closed bucket: a slate disc in a white ring that
+// keeps it apart from the lines it sits on.
+func (h *history) dot(c *draw.Canvas, p vg.Point) {
+	c.DrawGlyph(draw.GlyphStyle{Color: color.White, Radius: vg.Points(3.4), Shape: draw.CircleGlyph{}}, p)
+	c.DrawGlyph(draw.GlyphStyle{Color: h.style.Color, Radius: vg.Points(2.4), Shape: draw.CircleGlyph{}}, p)
+}
+
+// Thumbnail implements plot.Thumbnailer: the line with its end dot.
+func (h *history) Thumbnail(c *draw.Canvas) {
+	y := c.Center().Y
+	c.StrokeLine2(h.style, c.Min.X, y, c.Max.X, y)
+	h.dot(c, vg.Point{X: c.Max.X - vg.Points(3.4), Y: y})
 }

@@ -26,8 +26,10 @@ type Offline struct {
 }
 
 // Data turns o into chart data. Forecast step h lies h steps after the
-// last observation, the step being the calendar month (or quarter) for
-// monthly (quarterly) decimal years and the median spacing otherwise.
+// last observation. On a month grid (every time at midnight UTC on a
+// month's first day: monthly or quarterly decimal years, or dates such as
+// 1973-01-01) the step is a whole number of calendar months; otherwise it
+// is the median spacing.
 func (o *Offline) Data() (*Data, error) {
 	if len(o.Lower) != len(o.Median) || len(o.Upper) != len(o.Median) {
 		return nil, fmt.Errorf("%w: %d medians, %d lower and %d upper bound rows", ErrShape,
@@ -77,15 +79,14 @@ func parseTimes(col []string) (*timeline, bool) {
 		return nil, false
 	}
 	tl := &timeline{times: make([]time.Time, len(col))}
-	months := -1 // decimal years on a month grid: months per step
 	for i, s := range col {
 		s = strings.TrimSpace(s)
 		if t, err := time.Parse(time.RFC3339, s); err == nil {
-			tl.times[i], months = t, 0
+			tl.times[i] = t
 			continue
 		}
 		if t, err := time.Parse(time.DateOnly, s); err == nil {
-			tl.times[i], months = t, 0
+			tl.times[i] = t
 			continue
 		}
 		x, err := strconv.ParseFloat(s, 64)
@@ -93,7 +94,7 @@ func parseTimes(col []string) (*timeline, bool) {
 			return nil, false
 		}
 		if x >= 1e8 { // Unix seconds (after 1973)
-			tl.times[i], months = time.Unix(int64(x), int64((x-math.Floor(x))*1e9)).UTC(), 0
+			tl.times[i] = time.Unix(int64(x), int64((x-math.Floor(x))*1e9)).UTC()
 			continue
 		}
 		if x < 1 || x > 9999 {
@@ -103,14 +104,18 @@ func parseTimes(col []string) (*timeline, bool) {
 		m := (x - yr) * 12
 		if math.Abs(m-math.Round(m)) < 1e-4 {
 			tl.times[i] = time.Date(int(yr), time.Month(1+int(math.Round(m))), 1, 0, 0, 0, 0, time.UTC)
-			if months != 0 {
-				months = 1
-			}
 			continue
 		}
 		start := time.Date(int(yr), 1, 1, 0, 0, 0, 0, time.UTC)
 		tl.times[i] = start.Add(time.Duration((x - yr) * float64(start.AddDate(1, 0, 0).Sub(start))))
-		months = 0
+	}
+	// A month grid: every time is midnight UTC on a month's first day
+	// (R's decimal years of a monthly or quarterly series, or dates such as
+	// 1973-01-01).
+	months := true
+	for _, t := range tl.times {
+		u := t.UTC()
+		months = months && u.Day() == 1 && u.Hour() == 0 && u.Minute() == 0 && u.Second() == 0 && u.Nanosecond() == 0
 	}
 	for i := 1; i < len(tl.times); i++ {
 		if tl.times[i].Before(tl.times[i-1]) {
@@ -127,8 +132,8 @@ func parseTimes(col []string) (*timeline, bool) {
 	}
 	sort.Slice(gaps, func(i, j int) bool { return gaps[i] < gaps[j] })
 	tl.step = gaps[len(gaps)/2]
-	if months == 1 {
-		// Month grid: a step of about 3 months is quarterly, else monthly.
+	if months {
+		// Month grid: the step in whole calendar months (3 for quarterly).
 		tl.months = int(math.Max(1, math.Round(tl.step.Hours()/24/30.44)))
 	}
 	if tl.step <= 0 {
