@@ -129,7 +129,7 @@ func (v *View) ChartData(points int) *chart.Data {
 		}
 	}
 	for _, r := range v.Rules {
-		d.Thresholds = append(d.Thresholds, chart.Threshold{Name: r.Name, Value: r.Threshold, Above: r.Above, Firing: r.Firing})
+		d.Thresholds = append(d.Thresholds, chart.Threshold{Name: r.Name, Value: r.Threshold, Above: r.Above, Raised: r.Firing})
 	}
 	if len(d.Times) > 0 {
 		for _, t := range v.Refits {
