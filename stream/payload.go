@@ -11,20 +11,6 @@ import (
 	"unsafe"
 )
 
-// Reject codes set in Reject.Code by ParsePayload (CONTRACT.md §2). The
-// daemon adds codes of its own (late, bad_topic, too_many_series, …).
-const (
-	CodeNotJSON      = "not_json"      // not valid JSON and not a bare number
-	CodeNotFinite    = "not_finite"    // NaN, Inf, or a number beyond the float64 range
-	CodeBadTime      = "bad_time"      // unparseable time, or too far from arrival
-	CodeBadValue     = "bad_value"     // a value of the wrong JSON type
-	CodeMissingValue = "missing_value" // an object without "value"
-	CodeBadField     = "bad_field"     // an unknown or repeated key
-	CodeTooLarge     = "too_large"     // payload over MaxPayload bytes or batch over MaxBatch
-	CodeTooDeep      = "too_deep"      // nesting deeper than an object inside an array
-	CodeEmpty        = "empty"         // an empty payload or an empty array
-)
-
 // Reject is the error ParsePayload returns for a payload it does not
 // accept. Code is one of the Code… constants; Reason is a sentence that
 // names the offending part of the payload and says what to send instead.

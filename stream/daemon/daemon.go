@@ -502,25 +502,26 @@ func (d *Daemon) handle(m *stream.Message) {
 	d.sinceSave++
 	topic, ok := d.cfg.TopicOf(m.Subject)
 	if !ok {
-		d.reject(m.Subject, "", m.Received, "bad_topic",
+		d.reject(m.Subject, "", m.Received, stream.CodeBadTopic,
 			fmt.Sprintf("subject %q carries no topic under the intake subjects", m.Subject))
 		return
 	}
 	e := d.series[topic]
 	if e == nil { // a known topic was checked when its series began
 		if err := config.ValidTopic(topic); err != nil {
-			d.reject(m.Subject, topic, m.Received, "bad_topic", err.Error())
+			d.reject(m.Subject, topic, m.Received, stream.CodeBadTopic, err.Error())
 			return
 		}
 	}
 	obs, err := stream.ParsePayload(m.Data, m.Received, d.limits, d.obsBuf[:0])
 	d.obsBuf = obs[:0]
 	if err != nil {
+		// ParsePayload's errors are always a *Reject.
 		var rj *stream.Reject
 		if errors.As(err, &rj) {
 			d.reject(m.Subject, topic, m.Received, rj.Code, rj.Reason)
 		} else {
-			d.reject(m.Subject, topic, m.Received, "bad_payload", err.Error())
+			d.reject(m.Subject, topic, m.Received, stream.CodeNotJSON, err.Error())
 		}
 		return
 	}
@@ -553,19 +554,19 @@ func (d *Daemon) handle(m *stream.Message) {
 
 func (d *Daemon) create(m *stream.Message, topic string) *entry {
 	if len(d.series) >= d.cfg.Limits.MaxSeries {
-		d.reject(m.Subject, topic, m.Received, "too_many_series",
+		d.reject(m.Subject, topic, m.Received, stream.CodeTooManySeries,
 			fmt.Sprintf("the daemon already tracks %d series (limits.max_series); new topic %q is not accepted", len(d.series), topic))
 		return nil
 	}
 	sc, ok := d.cfg.SeriesFor(topic)
 	if !ok {
-		d.reject(m.Subject, topic, m.Received, "no_series_entry",
+		d.reject(m.Subject, topic, m.Received, stream.CodeNoSeriesEntry,
 			fmt.Sprintf("no series entry in the configuration matches topic %q", topic))
 		return nil
 	}
 	s, err := series.New(topic, settingsOf(sc))
 	if err != nil {
-		d.reject(m.Subject, topic, m.Received, "bad_settings", err.Error())
+		d.reject(m.Subject, topic, m.Received, stream.CodeBadSettings, err.Error())
 		return nil
 	}
 	e := &entry{s: s, subject: d.pub.ForecastSubject(topic), rules: d.rulesFor(topic, sc)}
@@ -580,14 +581,14 @@ func (d *Daemon) apply(topic string, e *entry, p pendingObs) {
 	e.s.Advance(p.seq, p.index)
 	e.dirty = true
 	if err != nil {
-		code := "bad_value"
+		code := stream.CodeBadValue
 		switch {
 		case errors.Is(err, series.ErrLate):
-			code = "late"
+			code = stream.CodeLate
 		case errors.Is(err, series.ErrDomain):
-			code = "out_of_domain"
+			code = stream.CodeOutOfDomain
 		case errors.Is(err, series.ErrNotFinite):
-			code = "not_finite"
+			code = stream.CodeNotFinite
 		}
 		d.reject(p.subject, topic, p.recv, code, err.Error())
 		return
@@ -807,6 +808,8 @@ func seedOf(topic, rule string, origin time.Time) uint64 {
 	return h.Sum64()
 }
 
+// reject counts and publishes one reject; code is one of stream's Code…
+// constants.
 func (d *Daemon) reject(subject, topic string, received time.Time, code, reason string) {
 	d.metrics.Rejected.WithLabelValues(code).Inc()
 	if e := d.series[topic]; e != nil {
