@@ -7,7 +7,6 @@ import (
 	"hash/fnv"
 	"log/slog"
 	"math"
-	"runtime"
 	"slices"
 	"sync"
 	"time"
@@ -81,7 +80,6 @@ type Daemon struct {
 	flushed    int
 	flushFloor uint64
 	evaluator  *alert.Evaluator
-	cov        []float64
 
 	mu     sync.RWMutex
 	latest map[string][]byte // latest forecast JSON per topic, for queries
@@ -181,7 +179,7 @@ func New(o Options) (*Daemon, error) {
 		store:     o.Store,
 		pub:       stream.NewPublisher(o.Conn, c.Output.Prefix),
 		intake:    in,
-		limits:    stream.Limits{MaxPayload: c.Limits.MaxPayloadBytes, MaxBatch: c.Limits.MaxBatch, MaxFuture: c.Limits.MaxFuture, MaxPast: c.Limits.MaxPast},
+		limits:    stream.LimitsOf(c.Limits),
 		metrics:   NewMetrics(),
 		batches:   make(chan []stream.Message),
 		handled:   make(chan struct{}),
@@ -252,12 +250,8 @@ func (d *Daemon) Run(ctx context.Context) error {
 	if err := d.load(); err != nil {
 		return err
 	}
-	workers := d.cfg.Refit.Workers
-	if workers <= 0 {
-		workers = runtime.NumCPU()
-	}
 	var wg sync.WaitGroup
-	for range workers {
+	for range d.cfg.Refit.WorkerCount() {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
@@ -476,13 +470,13 @@ func settingsOf(sc *config.Series) series.Settings {
 func (d *Daemon) rulesFor(topic string, sc *config.Series) []rule {
 	var rs []rule
 	for _, a := range d.cfg.AlertsFor(topic) {
-		_, above := a.Threshold()
-		k := int(math.Ceil(float64(a.Within) / float64(sc.Step)))
-		if k > sc.Horizon {
+		if err := a.CheckSeries(sc); err != nil {
 			d.log.Warn("alert window longer than the series horizon; rule skipped for this series",
-				"topic", topic, "rule", a.Name, "within", a.Within, "horizon_steps", sc.Horizon)
+				"topic", topic, "rule", a.Name, "err", err)
 			continue
 		}
+		_, above := a.Threshold()
+		k := int(math.Ceil(float64(a.Within) / float64(sc.Step))) // ≤ Horizon after CheckSeries
 		rs = append(rs, rule{cfg: a, above: above, window: max(k, 1)})
 	}
 	return rs
