@@ -23,6 +23,7 @@ import (
 // Options are the parts a Daemon runs on. Config, Conn and Store are
 // required.
 type Options struct {
+	// Config's zero fields take their defaults (config.Config.WithDefaults).
 	Config *config.Config
 	Conn   *nats.Conn
 	Store  *state.Store
@@ -151,7 +152,7 @@ func New(o Options) (*Daemon, error) {
 	if o.Now == nil {
 		o.Now = time.Now
 	}
-	c := o.Config
+	c := o.Config.WithDefaults()
 	in, err := stream.NewIntake(o.Conn, stream.IntakeOptions{
 		Subjects: c.Intake.Subjects,
 		Durable:  c.Intake.Durable,
@@ -316,11 +317,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 	}
 	close(d.ready)
 
-	flushEvery := d.cfg.State.FlushInterval
-	if flushEvery <= 0 {
-		flushEvery = time.Second
-	}
-	tick := time.NewTicker(flushEvery)
+	tick := time.NewTicker(d.cfg.State.FlushInterval)
 	defer tick.Stop()
 	var runErr error
 loop:
