@@ -301,15 +301,22 @@ func Default() *Config {
 		State:  State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 150000},
 		HTTP:   HTTP{Listen: "127.0.0.1:8714"},
 		Log:    Log{Level: "info", Format: "auto"},
-		Limits: Limits{
-			MaxSeries:       10000,
-			MaxPayloadBytes: 65536,
-			MaxBatch:        1000,
-			MaxWindow:       20000,
-			MaxFuture:       24 * time.Hour,
-			MaxPast:         8760 * time.Hour,
-		},
+		Limits: DefaultLimits(),
 		Series: []Series{DefaultSeries()},
+	}
+}
+
+// DefaultLimits returns the default limits, those of Default. They are
+// also the defaults of the payload limits of package stream
+// (stream.DefaultLimits).
+func DefaultLimits() Limits {
+	return Limits{
+		MaxSeries:       10000,
+		MaxPayloadBytes: 65536,
+		MaxBatch:        1000,
+		MaxWindow:       20000,
+		MaxFuture:       24 * time.Hour,
+		MaxPast:         8760 * time.Hour,
 	}
 }
 

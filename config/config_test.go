@@ -5,6 +5,7 @@ import (
 	"flag"
 	"os"
 	"reflect"
+	"runtime"
 	"strings"
 	"testing"
 	"time"
@@ -411,8 +412,9 @@ func TestWorkerCount(t *testing.T) {
 	if n := (Refit{Workers: 3}).WorkerCount(); n != 3 {
 		t.Errorf("WorkerCount(3) = %d", n)
 	}
-	if n := (Refit{}).WorkerCount(); n < 1 {
-		t.Errorf("WorkerCount(0) = %d", n)
+	// Zero means one worker per CPU (the field's documented default).
+	if n := (Refit{}).WorkerCount(); n != runtime.NumCPU() {
+		t.Errorf("WorkerCount(0) = %d, want runtime.NumCPU() = %d", n, runtime.NumCPU())
 	}
 }
 

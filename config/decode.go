@@ -7,7 +7,6 @@ import (
 	"io"
 	"math"
 	"os"
-	"regexp"
 	"sort"
 	"strconv"
 	"strings"
@@ -130,7 +129,7 @@ func (d *decoder) errorf(n *yaml.Node, path, format string, args ...any) {
 	d.probs = append(d.probs, p)
 }
 
-var yamlLine = regexp.MustCompile(`^yaml: line (\d+): (.*)$`)
+var yamlLine = lazyRegexp(`^yaml: line (\d+): (.*)$`)
 
 // parse returns the root node of the single document in data, or nil if
 // the document is empty or cannot be parsed (a problem is recorded).
@@ -167,7 +166,7 @@ func (d *decoder) parse(data []byte) (root *yaml.Node) {
 
 func (d *decoder) syntax(err error) {
 	msg := err.Error()
-	if m := yamlLine.FindStringSubmatch(msg); m != nil {
+	if m := yamlLine().FindStringSubmatch(msg); m != nil {
 		line, _ := strconv.Atoi(m[1])
 		d.probs = append(d.probs, Problem{Line: line, Msg: "YAML syntax: " + m[2]})
 		return
@@ -442,7 +441,7 @@ func (d *decoder) duration(dst *time.Duration) func(*yaml.Node, string) {
 	}
 }
 
-var sizeRE = regexp.MustCompile(`^([0-9]+)\s*([KMGT]i?B|B)?$`)
+var sizeRE = lazyRegexp(`^([0-9]+)\s*([KMGT]i?B|B)?$`)
 
 var sizeUnits = map[string]int64{
 	"": 1, "B": 1,
@@ -453,7 +452,7 @@ var sizeUnits = map[string]int64{
 // parseSize reads "65536", "64KiB", "1 GB"; ok is false on a bad form or
 // a value above 1<<50 bytes.
 func parseSize(s string) (int64, bool) {
-	m := sizeRE.FindStringSubmatch(strings.TrimSpace(s))
+	m := sizeRE().FindStringSubmatch(strings.TrimSpace(s))
 	if m == nil {
 		return 0, false
 	}

@@ -9,6 +9,7 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+	"sync"
 	"time"
 	"unicode"
 )
@@ -363,11 +364,19 @@ func (v *validator) limits() {
 	v.positive("limits.max_past", l.MaxPast)
 }
 
+// The patterns are compiled on first use, not at package initialisation:
+// the offline commands link this package but never validate a config.
 var (
-	modelRE     = regexp.MustCompile(`^ARIMA\((\d{1,5}),(\d{1,5}),(\d{1,5})\)(?:\((\d{1,5}),(\d{1,5}),(\d{1,5})\)\[(\d{1,5})\])?$`)
-	boxCoxRE    = regexp.MustCompile(`^boxcox\(([^()]*)\)$`)
-	alertNameRE = regexp.MustCompile(`^[a-z0-9_-]+$`)
+	modelRE     = lazyRegexp(`^ARIMA\((\d{1,5}),(\d{1,5}),(\d{1,5})\)(?:\((\d{1,5}),(\d{1,5}),(\d{1,5})\)\[(\d{1,5})\])?$`)
+	boxCoxRE    = lazyRegexp(`^boxcox\(([^()]*)\)$`)
+	alertNameRE = lazyRegexp(`^[a-z0-9_-]+$`)
 )
+
+// lazyRegexp returns a function that compiles expr on its first call and
+// returns that one *regexp.Regexp ever after; safe for concurrent use.
+func lazyRegexp(expr string) func() *regexp.Regexp {
+	return sync.OnceValue(func() *regexp.Regexp { return regexp.MustCompile(expr) })
+}
 
 func (v *validator) series(i int) {
 	s := &v.c.Series[i]
@@ -437,7 +446,7 @@ func (v *validator) model(p string, s *Series) {
 		return
 	}
 	path := p + ".model"
-	m := modelRE.FindStringSubmatch(s.Model)
+	m := modelRE().FindStringSubmatch(s.Model)
 	if m == nil {
 		v.add(path, "%q is not auto, ARIMA(p,d,q) or ARIMA(p,d,q)(P,D,Q)[s]", clip(s.Model))
 		return
@@ -472,7 +481,7 @@ func (v *validator) transform(path, t string) {
 	case "auto", "none", "log", "boxcox", "scaled-exp":
 		return
 	}
-	m := boxCoxRE.FindStringSubmatch(t)
+	m := boxCoxRE().FindStringSubmatch(t)
 	if m == nil {
 		v.add(path, "%q is not one of auto, none, log, boxcox, boxcox(λ), scaled-exp", clip(t))
 		return
@@ -489,7 +498,7 @@ func (v *validator) alert(i int, names map[string]int) {
 	switch {
 	case a.Name == "":
 		v.add(p+".name", "required")
-	case len(a.Name) > maxNameLen || !alertNameRE.MatchString(a.Name):
+	case len(a.Name) > maxNameLen || !alertNameRE().MatchString(a.Name):
 		v.add(p+".name", "%q must be 1..%d of a-z, 0-9, _ and -", clip(a.Name), maxNameLen)
 	default:
 		if j, dup := names[a.Name]; dup {

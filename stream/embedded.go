@@ -7,12 +7,15 @@ import (
 	"time"
 
 	"github.com/nats-io/nats-server/v2/server"
+
+	"forewarn/config"
 )
 
 // EmbeddedOptions configure the NATS server that forewarn runs in its own
 // process when no external server is named.
 type EmbeddedOptions struct {
-	// Listen is the client address, "host:port". Default "127.0.0.1:4222".
+	// Listen is the client address, "host:port". Default: the
+	// configuration's nats.listen, "127.0.0.1:4222".
 	// Port 0 or -1 picks a free port (for tests).
 	Listen string
 
@@ -43,7 +46,7 @@ type EmbeddedOptions struct {
 func StartEmbedded(o EmbeddedOptions) (*server.Server, string, error) {
 	listen := o.Listen
 	if listen == "" {
-		listen = "127.0.0.1:4222"
+		listen = config.Default().NATS.Listen
 	}
 	host, portStr, err := net.SplitHostPort(listen)
 	if err != nil {

@@ -22,8 +22,4 @@ var (
 
 	// ErrRunning is returned by Run when the Intake is already running.
 	ErrRunning = errors.New("stream: intake is already running")
-
-	// ErrBadSubject is returned by TopicOf when a subject does not carry a
-	// valid topic under the given prefix.
-	ErrBadSubject = errors.New("stream: subject has no valid topic")
 )

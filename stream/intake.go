@@ -10,6 +10,8 @@ import (
 
 	"github.com/nats-io/nats.go"
 	"github.com/nats-io/nats.go/jetstream"
+
+	"forewarn/config"
 )
 
 // Message is one intake message as handed to the handler.
@@ -26,7 +28,8 @@ type Message struct {
 }
 
 // IntakeOptions configure an Intake. A zero field takes the default given
-// in its comment.
+// in its comment; those of Subjects, Stream, Consumer, MaxAge and MaxBytes
+// are the configuration's (config.Default().Intake).
 type IntakeOptions struct {
 	// Subjects to take in. Default ["metrics.>"].
 	Subjects []string
@@ -77,20 +80,21 @@ type IntakeOptions struct {
 }
 
 func (o IntakeOptions) withDefaults() IntakeOptions {
+	def := config.Default().Intake // one source for the defaults the config documents
 	if len(o.Subjects) == 0 {
-		o.Subjects = []string{"metrics.>"}
+		o.Subjects = def.Subjects
 	}
 	if o.Stream == "" {
-		o.Stream = "FOREWARN_INTAKE"
+		o.Stream = def.Stream
 	}
 	if o.Consumer == "" {
-		o.Consumer = "forewarn"
+		o.Consumer = def.Consumer
 	}
 	if o.MaxAge == 0 {
-		o.MaxAge = 7 * 24 * time.Hour
+		o.MaxAge = def.MaxAge
 	}
 	if o.MaxBytes == 0 {
-		o.MaxBytes = 1 << 30
+		o.MaxBytes = def.MaxBytes
 	}
 	if o.MaxAckPending == 0 {
 		o.MaxAckPending = 200_000

@@ -9,20 +9,8 @@ import (
 	"unicode/utf16"
 	"unicode/utf8"
 	"unsafe"
-)
 
-// Reject codes set in Reject.Code by ParsePayload (CONTRACT.md §2). The
-// daemon adds codes of its own (late, bad_topic, too_many_series, …).
-const (
-	CodeNotJSON      = "not_json"      // not valid JSON and not a bare number
-	CodeNotFinite    = "not_finite"    // NaN, Inf, or a number beyond the float64 range
-	CodeBadTime      = "bad_time"      // unparseable time, or too far from arrival
-	CodeBadValue     = "bad_value"     // a value of the wrong JSON type
-	CodeMissingValue = "missing_value" // an object without "value"
-	CodeBadField     = "bad_field"     // an unknown or repeated key
-	CodeTooLarge     = "too_large"     // payload over MaxPayload bytes or batch over MaxBatch
-	CodeTooDeep      = "too_deep"      // nesting deeper than an object inside an array
-	CodeEmpty        = "empty"         // an empty payload or an empty array
+	"forewarn/config"
 )
 
 // Reject is the error ParsePayload returns for a payload it does not
@@ -46,21 +34,20 @@ type Observation struct {
 // Limits bound what ParsePayload accepts. A zero field takes the default of
 // DefaultLimits; a negative MaxFuture or MaxPast turns that check off.
 type Limits struct {
-	MaxPayload int           // bytes; default 64 KiB
-	MaxBatch   int           // observations in one array; default 1000
-	MaxFuture  time.Duration // how far a time may lie ahead of arrival; default 1 h
-	MaxPast    time.Duration // how far a time may lie behind arrival; default 366 days
+	MaxPayload int           // bytes (the config's limits.max_payload_bytes)
+	MaxBatch   int           // observations in one array (limits.max_batch)
+	MaxFuture  time.Duration // how far a time may lie ahead of arrival (limits.max_future)
+	MaxPast    time.Duration // how far a time may lie behind arrival (limits.max_past)
 }
 
-// DefaultLimits returns the limits used for zero fields of Limits.
-func DefaultLimits() Limits {
-	return Limits{
-		MaxPayload: 64 << 10,
-		MaxBatch:   1000,
-		MaxFuture:  time.Hour,
-		MaxPast:    366 * 24 * time.Hour,
-	}
+// LimitsOf returns the payload limits a configuration's limits set.
+func LimitsOf(l config.Limits) Limits {
+	return Limits{MaxPayload: l.MaxPayloadBytes, MaxBatch: l.MaxBatch, MaxFuture: l.MaxFuture, MaxPast: l.MaxPast}
 }
+
+// DefaultLimits returns the limits used for zero fields of Limits: those
+// of the configuration's defaults (config.DefaultLimits).
+func DefaultLimits() Limits { return LimitsOf(config.DefaultLimits()) }
 
 func (l Limits) withDefaults() Limits {
 	d := DefaultLimits()
@@ -735,50 +722,4 @@ func excerpt(b []byte) string {
 		return strconv.Quote(string(b[:max])) + "…"
 	}
 	return strconv.Quote(string(b))
-}
-
-// TopicOf returns the topic that subject carries: the subject without its
-// first token ("metrics.shop.orders" → "shop.orders", CONTRACT.md §2). The
-// subject must match one of the intake patterns (the bus's "*" and ">"
-// wildcards); a narrower pattern such as "metrics.shop.>" keeps the same
-// topic names. TopicOf checks only the shape; the daemon validates the
-// topic itself (config.ValidTopic). Errors wrap ErrBadSubject.
-func TopicOf(subject string, patterns []string) (string, error) {
-	matched := false
-	for _, p := range patterns {
-		if SubjectMatches(p, subject) {
-			matched = true
-			break
-		}
-	}
-	if !matched {
-		return "", fmt.Errorf("%w: subject %q matches none of the intake subjects %q", ErrBadSubject, subject, patterns)
-	}
-	_, topic, ok := strings.Cut(subject, ".")
-	if !ok || topic == "" {
-		return "", fmt.Errorf("%w: subject %q has no topic after its first token (send on e.g. \"metrics.shop.orders\")", ErrBadSubject, subject)
-	}
-	return topic, nil
-}
-
-// SubjectMatches reports whether subject matches pattern, token by token:
-// "*" matches one token, a final ">" one or more.
-func SubjectMatches(pattern, subject string) bool {
-	for {
-		pt, prest, pmore := strings.Cut(pattern, ".")
-		if pt == ">" && !pmore {
-			return subject != ""
-		}
-		st, srest, smore := strings.Cut(subject, ".")
-		if pt != "*" && pt != st {
-			return false
-		}
-		if st == "" && pt == "*" {
-			return false
-		}
-		if !pmore || !smore {
-			return pmore == smore
-		}
-		pattern, subject = prest, srest
-	}
 }

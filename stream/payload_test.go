@@ -216,27 +216,6 @@ func TestParsePayloadAllocs(t *testing.T) {
 	}
 }
 
-func TestTopicOf(t *testing.T) {
-	pats := []string{"metrics.>", "app.*.gauge"}
-	for subj, want := range map[string]string{
-		"metrics.shop.orders": "shop.orders",
-		"metrics.x":           "x",
-		"app.web.gauge":       "web.gauge",
-	} {
-		if got, err := TopicOf(subj, pats); err != nil || got != want {
-			t.Errorf("%q: got %q, %v; want %q", subj, got, err, want)
-		}
-	}
-	for _, s := range []string{"metrics", "other.a", "app.web.gauge.x", "app.gauge", "metricsx.a", ""} {
-		if got, err := TopicOf(s, pats); !errors.Is(err, ErrBadSubject) {
-			t.Errorf("%q: got %q, %v; want ErrBadSubject", s, got, err)
-		}
-	}
-	if _, err := TopicOf("metrics", []string{">"}); !errors.Is(err, ErrBadSubject) {
-		t.Errorf("a one-token subject has no topic: %v", err)
-	}
-}
-
 func FuzzParsePayload(f *testing.F) {
 	for _, s := range []string{
 		`12345.5`, `{"value": 1}`, `{"time": "2024-05-01T11:59:00Z", "value": 1.5}`,

@@ -5,6 +5,8 @@ import (
 	"strings"
 
 	"github.com/nats-io/nats.go"
+
+	"forewarn/config"
 )
 
 // Publisher publishes the daemon's output messages under a subject prefix
@@ -17,10 +19,11 @@ type Publisher struct {
 	prefix string
 }
 
-// NewPublisher returns a Publisher on nc under prefix ("" → "forewarn").
+// NewPublisher returns a Publisher on nc under prefix ("" → the
+// configuration's default output.prefix, "forewarn").
 func NewPublisher(nc *nats.Conn, prefix string) *Publisher {
 	if prefix == "" {
-		prefix = "forewarn"
+		prefix = config.Default().Output.Prefix
 	}
 	return &Publisher{nc: nc, prefix: prefix}
 }
@@ -89,7 +92,7 @@ func NoForecastReason(topic string) string {
 // subscription to stop.
 func ServeQueries(nc *nats.Conn, prefix string, lookup func(topic string) ([]byte, bool)) (*nats.Subscription, error) {
 	if prefix == "" {
-		prefix = "forewarn"
+		prefix = config.Default().Output.Prefix
 	}
 	base := prefix + ".query."
 	sub, err := nc.Subscribe(base+">", func(m *nats.Msg) {

@@ -29,8 +29,9 @@ func runQuery(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintln(stderr, "\nflags:")
 		fs.PrintDefaults()
 	}
-	url := fs.String("nats", "nats://127.0.0.1:4222", "NATS server `URL` the daemon is on")
-	prefix := fs.String("prefix", "forewarn", "the daemon's output subject `prefix` (output.prefix)")
+	def := config.Default()
+	url := fs.String("nats", "nats://"+def.NATS.Listen, "NATS server `URL` the daemon is on")
+	prefix := fs.String("prefix", def.Output.Prefix, "the daemon's output subject `prefix` (output.prefix)")
 	timeout := fs.Duration("timeout", 2*time.Second, "how long to wait for the reply")
 	var a stream.Auth
 	fs.StringVar(&a.User, "user", "", "NATS user")

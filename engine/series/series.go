@@ -55,6 +55,10 @@ type Series struct {
 	tr     transform.Transform
 	model  *arima.Model
 	filter *arima.Filter
+	// fixed is the transform the settings fix when its domain is not
+	// every value (log, boxcox, boxcox(λ)): it bounds what Observe takes
+	// before the first fit, as tr does after. Its Name is "" otherwise.
+	fixed transform.Transform
 
 	// win is the buffer the window lives in: Window plus some slack
 	// (windowCap), so that a full window moves along it by reslicing and
@@ -73,7 +77,7 @@ func New(topic string, set Settings) (*Series, error) {
 	if err := set.check(); err != nil {
 		return nil, err
 	}
-	s := &Series{set: set}
+	s := &Series{set: set, fixed: fixedDomain(set.Transform)}
 	s.snap = Snapshot{
 		Topic:       topic,
 		Fingerprint: set.Fingerprint,
@@ -100,7 +104,7 @@ func Restore(snap *Snapshot, set Settings) (*Series, error) {
 		return nil, fmt.Errorf("%w: %q was %s with step %ds, now %s with step %ds",
 			ErrIncompatible, snap.Topic, snap.Kind, snap.StepSeconds, set.Kind, set.StepSeconds)
 	}
-	s := &Series{set: set, snap: *snap}
+	s := &Series{set: set, snap: *snap, fixed: fixedDomain(set.Transform)}
 	s.snap.Alerts = append([]AlertSnapshot(nil), snap.Alerts...)
 	s.win = make([]float64, windowCap(set.Window))
 	s.snap.Window = s.win[:copy(s.win, snap.Window[max(0, len(snap.Window)-set.Window):])]
@@ -133,6 +137,18 @@ func Restore(snap *Snapshot, set Settings) (*Series, error) {
 		s.forecast() // the latest forecast is served again at once after a restart
 	}
 	return s, nil
+}
+
+// fixedDomain returns the transform that name fixes if it takes only
+// positive values (log, and boxcox with or without λ: x > 0), else the
+// zero Transform: auto leaves the choice to the fit, and none and
+// scaled-exp take every finite value.
+func fixedDomain(name string) transform.Transform {
+	tr, err := transform.Parse(name)
+	if err != nil || tr.Name != transform.Log && tr.Name != transform.BoxCox {
+		return transform.Transform{}
+	}
+	return tr
 }
 
 func (set *Settings) check() error {
@@ -220,8 +236,9 @@ func (s *Series) HasModel() bool { return s.model != nil }
 
 // Observe applies one observation at unix time t (nanoseconds) with value v
 // in raw units. It returns ErrLate for a bucket that has already closed,
-// and ErrDomain for a value the current transform cannot take; in both
-// cases the series is unchanged. It does not allocate.
+// and ErrDomain for a value the current transform cannot take (before the
+// first fit, the transform the settings fix, if any); in both cases the
+// series is unchanged. It does not allocate.
 func (s *Series) Observe(t int64, v float64) (Outcome, error) {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return Absorbed, fmt.Errorf("%w: value %v", ErrNotFinite, v)
@@ -244,6 +261,8 @@ func (s *Series) Observe(t int64, v float64) (Outcome, error) {
 		if _, err := s.tr.Forward(total); err != nil {
 			return Absorbed, fmt.Errorf("%w: value %g under transform %s", ErrDomain, v, s.tr)
 		}
+	} else if s.fixed.Name != "" && !(total > 0) {
+		return Absorbed, fmt.Errorf("%w: value %g under transform %s", ErrDomain, v, s.fixed)
 	}
 	if s.set.Kind == "counter" {
 		if sn.CounterHasRaw && v < sn.CounterLastRaw {

@@ -7,7 +7,6 @@ import (
 	"hash/fnv"
 	"log/slog"
 	"math"
-	"runtime"
 	"slices"
 	"sync"
 	"time"
@@ -24,6 +23,7 @@ import (
 // Options are the parts a Daemon runs on. Config, Conn and Store are
 // required.
 type Options struct {
+	// Config's zero fields take their defaults (config.Config.WithDefaults).
 	Config *config.Config
 	Conn   *nats.Conn
 	Store  *state.Store
@@ -81,7 +81,6 @@ type Daemon struct {
 	flushed    int
 	flushFloor uint64
 	evaluator  *alert.Evaluator
-	cov        []float64
 
 	mu     sync.RWMutex
 	latest map[string][]byte // latest forecast JSON per topic, for queries
@@ -153,7 +152,7 @@ func New(o Options) (*Daemon, error) {
 	if o.Now == nil {
 		o.Now = time.Now
 	}
-	c := o.Config
+	c := o.Config.WithDefaults()
 	in, err := stream.NewIntake(o.Conn, stream.IntakeOptions{
 		Subjects: c.Intake.Subjects,
 		Durable:  c.Intake.Durable,
@@ -181,7 +180,7 @@ func New(o Options) (*Daemon, error) {
 		store:     o.Store,
 		pub:       stream.NewPublisher(o.Conn, c.Output.Prefix),
 		intake:    in,
-		limits:    stream.Limits{MaxPayload: c.Limits.MaxPayloadBytes, MaxBatch: c.Limits.MaxBatch, MaxFuture: c.Limits.MaxFuture, MaxPast: c.Limits.MaxPast},
+		limits:    stream.LimitsOf(c.Limits),
 		metrics:   NewMetrics(),
 		batches:   make(chan []stream.Message),
 		handled:   make(chan struct{}),
@@ -252,12 +251,8 @@ func (d *Daemon) Run(ctx context.Context) error {
 	if err := d.load(); err != nil {
 		return err
 	}
-	workers := d.cfg.Refit.Workers
-	if workers <= 0 {
-		workers = runtime.NumCPU()
-	}
 	var wg sync.WaitGroup
-	for range workers {
+	for range d.cfg.Refit.WorkerCount() {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
@@ -322,11 +317,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 	}
 	close(d.ready)
 
-	flushEvery := d.cfg.State.FlushInterval
-	if flushEvery <= 0 {
-		flushEvery = time.Second
-	}
-	tick := time.NewTicker(flushEvery)
+	tick := time.NewTicker(d.cfg.State.FlushInterval)
 	defer tick.Stop()
 	var runErr error
 loop:
@@ -476,13 +467,13 @@ func settingsOf(sc *config.Series) series.Settings {
 func (d *Daemon) rulesFor(topic string, sc *config.Series) []rule {
 	var rs []rule
 	for _, a := range d.cfg.AlertsFor(topic) {
-		_, above := a.Threshold()
-		k := int(math.Ceil(float64(a.Within) / float64(sc.Step)))
-		if k > sc.Horizon {
+		if err := a.CheckSeries(sc); err != nil {
 			d.log.Warn("alert window longer than the series horizon; rule skipped for this series",
-				"topic", topic, "rule", a.Name, "within", a.Within, "horizon_steps", sc.Horizon)
+				"topic", topic, "rule", a.Name, "err", err)
 			continue
 		}
+		_, above := a.Threshold()
+		k := int(math.Ceil(float64(a.Within) / float64(sc.Step))) // ≤ Horizon after CheckSeries
 		rs = append(rs, rule{cfg: a, above: above, window: max(k, 1)})
 	}
 	return rs
@@ -502,25 +493,26 @@ func (d *Daemon) handle(m *stream.Message) {
 	d.sinceSave++
 	topic, ok := d.cfg.TopicOf(m.Subject)
 	if !ok {
-		d.reject(m.Subject, "", m.Received, "bad_topic",
+		d.reject(m.Subject, "", m.Received, stream.CodeBadTopic,
 			fmt.Sprintf("subject %q carries no topic under the intake subjects", m.Subject))
 		return
 	}
 	e := d.series[topic]
 	if e == nil { // a known topic was checked when its series began
 		if err := config.ValidTopic(topic); err != nil {
-			d.reject(m.Subject, topic, m.Received, "bad_topic", err.Error())
+			d.reject(m.Subject, topic, m.Received, stream.CodeBadTopic, err.Error())
 			return
 		}
 	}
 	obs, err := stream.ParsePayload(m.Data, m.Received, d.limits, d.obsBuf[:0])
 	d.obsBuf = obs[:0]
 	if err != nil {
+		// ParsePayload's errors are always a *Reject.
 		var rj *stream.Reject
 		if errors.As(err, &rj) {
 			d.reject(m.Subject, topic, m.Received, rj.Code, rj.Reason)
 		} else {
-			d.reject(m.Subject, topic, m.Received, "bad_payload", err.Error())
+			d.reject(m.Subject, topic, m.Received, stream.CodeNotJSON, err.Error())
 		}
 		return
 	}
@@ -553,19 +545,19 @@ func (d *Daemon) handle(m *stream.Message) {
 
 func (d *Daemon) create(m *stream.Message, topic string) *entry {
 	if len(d.series) >= d.cfg.Limits.MaxSeries {
-		d.reject(m.Subject, topic, m.Received, "too_many_series",
+		d.reject(m.Subject, topic, m.Received, stream.CodeTooManySeries,
 			fmt.Sprintf("the daemon already tracks %d series (limits.max_series); new topic %q is not accepted", len(d.series), topic))
 		return nil
 	}
 	sc, ok := d.cfg.SeriesFor(topic)
 	if !ok {
-		d.reject(m.Subject, topic, m.Received, "no_series_entry",
+		d.reject(m.Subject, topic, m.Received, stream.CodeNoSeriesEntry,
 			fmt.Sprintf("no series entry in the configuration matches topic %q", topic))
 		return nil
 	}
 	s, err := series.New(topic, settingsOf(sc))
 	if err != nil {
-		d.reject(m.Subject, topic, m.Received, "bad_settings", err.Error())
+		d.reject(m.Subject, topic, m.Received, stream.CodeBadSettings, err.Error())
 		return nil
 	}
 	e := &entry{s: s, subject: d.pub.ForecastSubject(topic), rules: d.rulesFor(topic, sc)}
@@ -580,14 +572,14 @@ func (d *Daemon) apply(topic string, e *entry, p pendingObs) {
 	e.s.Advance(p.seq, p.index)
 	e.dirty = true
 	if err != nil {
-		code := "bad_value"
+		code := stream.CodeBadValue
 		switch {
 		case errors.Is(err, series.ErrLate):
-			code = "late"
+			code = stream.CodeLate
 		case errors.Is(err, series.ErrDomain):
-			code = "out_of_domain"
+			code = stream.CodeOutOfDomain
 		case errors.Is(err, series.ErrNotFinite):
-			code = "not_finite"
+			code = stream.CodeNotFinite
 		}
 		d.reject(p.subject, topic, p.recv, code, err.Error())
 		return
@@ -807,6 +799,8 @@ func seedOf(topic, rule string, origin time.Time) uint64 {
 	return h.Sum64()
 }
 
+// reject counts and publishes one reject; code is one of stream's Code…
+// constants.
 func (d *Daemon) reject(subject, topic string, received time.Time, code, reason string) {
 	d.metrics.Rejected.WithLabelValues(code).Inc()
 	if e := d.series[topic]; e != nil {

@@ -2,6 +2,8 @@ package daemon
 
 import (
 	"github.com/prometheus/client_golang/prometheus"
+
+	"forewarn/stream"
 )
 
 // Metrics are the daemon's own metrics, registered on their own registry
@@ -24,7 +26,8 @@ type Metrics struct {
 	StateWriteFailures prometheus.Counter
 }
 
-// NewMetrics creates and registers the metrics.
+// NewMetrics creates and registers the metrics. A labelled counter starts
+// with every value of its label at 0.
 func NewMetrics() *Metrics {
 	m := &Metrics{
 		Registry: prometheus.NewRegistry(),
@@ -55,6 +58,11 @@ func NewMetrics() *Metrics {
 			Name: "forewarn_state_resets_total", Help: "Series whose stored record could not be used and started afresh."}),
 		StateWriteFailures: prometheus.NewCounter(prometheus.CounterOpts{
 			Name: "forewarn_state_write_failures_total", Help: "State flushes that failed."}),
+	}
+	// Every reject code is there from the start, at 0 (CONTRACT.md §2), so
+	// that a rate over the counter is defined before the first reject.
+	for _, code := range stream.RejectCodes() {
+		m.Rejected.WithLabelValues(code)
 	}
 	m.Registry.MustRegister(m.Accepted, m.Rejected, m.Published, m.Alerts, m.Refits, m.RefitFailures,
 		m.RefitSeconds, m.Series, m.Refitting, m.Pending, m.StateBytes, m.StateResets, m.StateWriteFailures)

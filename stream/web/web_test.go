@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
+	"maps"
 	"math"
 	"net/http"
 	"net/http/httptest"
@@ -20,6 +21,7 @@ import (
 
 	"forewarn/config"
 	"forewarn/state"
+	"forewarn/stream"
 	"forewarn/stream/daemon"
 	"forewarn/stream/streamtest"
 	"forewarn/stream/web/internal/webtest"
@@ -63,35 +65,7 @@ func startLive(t *testing.T) *live {
 		{Name: "gas-low", Match: "uk.gas", Below: ptr(50), Within: 10 * time.Minute, Probability: 0.9},
 	}
 	cfg = cfg.WithDefaults()
-	if err := cfg.Validate(); err != nil {
-		t.Fatal(err)
-	}
-	store, err := state.Open(cfg.State.Dir)
-	if err != nil {
-		t.Fatal(err)
-	}
-	d, err := daemon.New(daemon.Options{Config: cfg, Conn: nc, Store: store,
-		Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
-	if err != nil {
-		t.Fatal(err)
-	}
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- d.Run(ctx) }()
-	t.Cleanup(func() {
-		cancel()
-		if err := <-done; err != nil && !errors.Is(err, context.Canceled) {
-			t.Errorf("daemon: %v", err)
-		}
-		store.Close()
-	})
-	select {
-	case <-d.Ready():
-	case err := <-done:
-		t.Fatalf("daemon stopped: %v", err)
-	case <-time.After(20 * time.Second):
-		t.Fatal("daemon not ready")
-	}
+	d := runDaemon(t, nc, cfg)
 	l := &live{d: d, cfg: cfg, nc: nc}
 	now := time.Now().Truncate(time.Minute)
 	for topic, name := range map[string]string{"air.passengers": "AirPassengers_na", "uk.gas": "UKgas", "lab.hormone": "lh"} {
@@ -140,6 +114,42 @@ func startLive(t *testing.T) *live {
 	return l
 }
 
+// runDaemon runs a daemon on nc with cfg (defaults filled in) until the
+// test ends, and waits until it is ready.
+func runDaemon(t *testing.T, nc *nats.Conn, cfg *config.Config) *daemon.Daemon {
+	t.Helper()
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	store, err := state.Open(cfg.State.Dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	d, err := daemon.New(daemon.Options{Config: cfg, Conn: nc, Store: store,
+		Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- d.Run(ctx) }()
+	t.Cleanup(func() {
+		cancel()
+		if err := <-done; err != nil && !errors.Is(err, context.Canceled) {
+			t.Errorf("daemon: %v", err)
+		}
+		store.Close()
+	})
+	select {
+	case <-d.Ready():
+	case err := <-done:
+		t.Fatalf("daemon stopped: %v", err)
+	case <-time.After(20 * time.Second):
+		t.Fatal("daemon not ready")
+	}
+	return d
+}
+
 func (l *live) get(t *testing.T, path string, header ...string) (*http.Response, []byte) {
 	t.Helper()
 	req, err := http.NewRequest("GET", l.srv.URL+path, nil)
@@ -161,10 +171,12 @@ func (l *live) get(t *testing.T, path string, header ...string) (*http.Response,
 	return resp, b
 }
 
-// /metrics is OpenMetrics 1.0 text as the client library's own parser
-// (prometheus/common expfmt, OpenMetrics 1.0 ABNF grammar) reads it.
-func TestMetricsParseAsOpenMetrics(t *testing.T) {
-	l := startLive(t)
+// scrapeOpenMetrics gets /metrics from srv as OpenMetrics 1.0 text and
+// reads it with the client library's own parser (prometheus/common expfmt,
+// OpenMetrics 1.0 ABNF grammar). family looks a family up by its name, a
+// counter's with or without _total (OpenMetrics counter families drop it).
+func scrapeOpenMetrics(t *testing.T, l *live) (body []byte, family func(name string) *dto.MetricFamily) {
+	t.Helper()
 	resp, body := l.get(t, "/metrics", "Accept", "application/openmetrics-text; version=1.0.0")
 	ct := resp.Header.Get("Content-Type")
 	if !strings.HasPrefix(ct, "application/openmetrics-text") {
@@ -186,12 +198,33 @@ func TestMetricsParseAsOpenMetrics(t *testing.T) {
 		}
 		fams[mf.GetName()] = mf
 	}
-	family := func(name string) *dto.MetricFamily {
+	return body, func(name string) *dto.MetricFamily {
 		if f, ok := fams[name]; ok {
 			return f
 		}
-		return fams[strings.TrimSuffix(name, "_total")] // OpenMetrics counter families drop _total
+		return fams[strings.TrimSuffix(name, "_total")]
 	}
+}
+
+// rejectsByCode returns the samples of forewarn_observations_rejected_total
+// by their code label.
+func rejectsByCode(f *dto.MetricFamily) map[string]float64 {
+	got := map[string]float64{}
+	for _, m := range f.GetMetric() {
+		for _, lp := range m.GetLabel() {
+			if lp.GetName() == "code" {
+				got[lp.GetValue()] = m.GetCounter().GetValue()
+			}
+		}
+	}
+	return got
+}
+
+// /metrics is OpenMetrics 1.0 text as the client library's own parser
+// reads it.
+func TestMetricsParseAsOpenMetrics(t *testing.T) {
+	l := startLive(t)
+	body, family := scrapeOpenMetrics(t, l)
 	// CONTRACT.md §2 names these; issue 7 asks for refit durations,
 	// queue depths, the state file's size and series by status.
 	for _, name := range []string{"forewarn_observations_accepted_total", "forewarn_observations_rejected_total",
@@ -208,12 +241,14 @@ func TestMetricsParseAsOpenMetrics(t *testing.T) {
 		}
 	}
 	if f := family("forewarn_observations_rejected_total"); f != nil {
-		got := map[string]float64{}
-		for _, m := range f.Metric {
-			got[m.Label[0].GetValue()] = m.GetCounter().GetValue()
+		got := rejectsByCode(f)
+		want := map[string]float64{}
+		for _, c := range stream.RejectCodes() {
+			want[c] = 0
 		}
-		if len(got) != 2 || got["not_json"] != 1 || got["late"] != 1 {
-			t.Errorf("rejects by code %v, want one not_json and one late", got)
+		want["not_json"], want["late"] = 1, 1
+		if !maps.Equal(got, want) {
+			t.Errorf("rejects by code %v, want one not_json, one late and every other code at 0", got)
 		}
 	}
 	if f := family("forewarn_refit_duration_seconds"); f != nil && f.GetType() != dto.MetricType_HISTOGRAM {
@@ -232,6 +267,43 @@ func TestMetricsParseAsOpenMetrics(t *testing.T) {
 	}
 	if !strings.HasSuffix(string(body), "# EOF\n") {
 		t.Error("OpenMetrics exposition does not end with # EOF")
+	}
+}
+
+// Before any input, /metrics already has every counter CONTRACT.md §2
+// names, and forewarn_observations_rejected_total a sample at 0 for every
+// reject code ("every code present from the start, at 0"), so that a rate
+// or an alert over it is defined before the first reject.
+func TestMetricsBeforeAnyInput(t *testing.T) {
+	_, url := streamtest.RunServer(t)
+	nc := streamtest.Connect(t, url)
+	cfg := config.Default()
+	cfg.State.Dir = t.TempDir()
+	cfg.HTTP.Listen = ""
+	cfg = cfg.WithDefaults()
+	d := runDaemon(t, nc, cfg)
+	l := &live{d: d, cfg: cfg, nc: nc, srv: httptest.NewServer(Handler(d, cfg))}
+	t.Cleanup(l.srv.Close)
+	_, family := scrapeOpenMetrics(t, l)
+	for _, name := range []string{"forewarn_observations_accepted_total", "forewarn_forecasts_published_total",
+		"forewarn_refits_total", "forewarn_series"} {
+		f := family(name)
+		if f == nil || len(f.GetMetric()) != 1 {
+			t.Errorf("%s: want one sample before any input, got %v", name, f)
+		}
+	}
+	f := family("forewarn_observations_rejected_total")
+	if f == nil {
+		t.Fatal("no forewarn_observations_rejected_total before any input")
+	}
+	got := rejectsByCode(f)
+	for _, c := range stream.RejectCodes() {
+		if v, ok := got[c]; !ok || v != 0 {
+			t.Errorf("code %q: sample %v (present %v), want 0 from the start", c, v, ok)
+		}
+	}
+	if len(got) != len(stream.RejectCodes()) {
+		t.Errorf("rejects by code %v, want exactly the %d codes of stream.RejectCodes", got, len(stream.RejectCodes()))
 	}
 }
 

@@ -7,6 +7,7 @@ import (
 	"net/http"
 	"net/url"
 	"strconv"
+	"sync"
 	"time"
 )
 
@@ -75,7 +76,9 @@ dl{display:grid;grid-template-columns:max-content auto;gap:2px 14px;background:#
 dt{color:#555}
 </style>`
 
-var indexTmpl = template.Must(template.New("index").Funcs(funcs).Parse(`<!doctype html>
+var indexTmpl = lazyTemplate("index", indexText)
+
+var indexText = `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>forewarn — series</title>` + style + `</head>
 <body><header><a href="./">forewarn</a></header><main>
 <h1>Series <span class="muted">({{len .Series}})</span></h1>
@@ -95,9 +98,11 @@ var indexTmpl = template.Must(template.New("index").Funcs(funcs).Parse(`<!doctyp
 <p class="muted">Reading {{range $i, $s := .Subjects}}{{if $i}}, {{end}}<code>{{$s}}</code>{{end}}; publishing under <code>{{.Prefix}}.</code>
 · JSON: <a href="api/series">api/series</a> · metrics: <a href="metrics">metrics</a></p>
 </main></body></html>
-`))
+`
 
-var seriesTmpl = template.Must(template.New("series").Funcs(funcs).Parse(`<!doctype html>
+var seriesTmpl = lazyTemplate("series", seriesText)
+
+var seriesText = `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>forewarn — {{.Topic}}</title>` + style + `</head>
 <body><header><a href="../">forewarn</a></header><main>
 <h1>{{.Topic}} <span class="st st-{{.Status}}">{{status .Status}}</span></h1>
@@ -122,14 +127,14 @@ var seriesTmpl = template.Must(template.New("series").Funcs(funcs).Parse(`<!doct
 {{range .Points}}{{$p := .}}<tr><td class="n">{{.H}}</td><td>{{utc .Time}}</td><td class="n">{{num .Mean}}</td><td class="n">{{num .Median}}</td>{{range $i, $l := $.Forecast.Levels}}<td class="n">{{bound (at $p.Lower $i)}} … {{bound (at $p.Upper $i)}}</td>{{end}}</tr>
 {{end}}</table>{{else}}<p class="muted">No forecast yet: the series is warming up.</p>{{end}}
 </main></body></html>
-`))
+`
 
 func (s *server) index(w http.ResponseWriter, r *http.Request) {
 	vs, ok := s.views(w, r, "", 1)
 	if !ok {
 		return
 	}
-	render(w, indexTmpl, struct {
+	render(w, indexTmpl(), struct {
 		Info
 		Series []View
 	}{s.info, vs})
@@ -140,7 +145,17 @@ func (s *server) page(w http.ResponseWriter, r *http.Request) {
 	if !ok {
 		return
 	}
-	render(w, seriesTmpl, v)
+	render(w, seriesTmpl(), v)
+}
+
+// lazyTemplate returns a function that parses text as the template name on
+// its first call and returns that template ever after; safe for concurrent
+// use. The pages are parsed when first served, not at package
+// initialisation: the offline commands link this package but serve none.
+func lazyTemplate(name, text string) func() *template.Template {
+	return sync.OnceValue(func() *template.Template {
+		return template.Must(template.New(name).Funcs(funcs).Parse(text))
+	})
 }
 
 func render(w http.ResponseWriter, t *template.Template, data any) {

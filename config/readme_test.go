@@ -1,0 +1,45 @@
+package config
+
+import (
+	"os"
+	"reflect"
+	"strings"
+	"testing"
+)
+
+// The README's configuration block lists "all keys and their defaults":
+// read as a file without its example alert rules, it gives Default, so the
+// documented defaults and the code's cannot drift apart.
+func TestReadmeDefaultsAreDefault(t *testing.T) {
+	b, err := os.ReadFile("../README.md")
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, rest, ok := strings.Cut(string(b), "\n## Configuration\n")
+	if ok {
+		_, rest, ok = strings.Cut(rest, "```yaml\n")
+	}
+	block, _, ok2 := strings.Cut(rest, "```")
+	if !ok || !ok2 {
+		t.Fatal("README.md has no ```yaml block under ## Configuration")
+	}
+	block, _, ok = strings.Cut(block, "\nalerts:")
+	if !ok {
+		t.Fatal("README.md configuration block has no alerts: key")
+	}
+	got, err := Parse([]byte(block), "README.md")
+	if err != nil {
+		t.Fatalf("README.md configuration block: %v", err)
+	}
+	got.pos, got.file = nil, "" // where the values were, not what they are
+	for i := range got.Series {
+		got.Series[i].Line = 0
+	}
+	if len(got.Alerts) == 0 {
+		got.Alerts = nil
+	}
+	want := Default().WithDefaults()
+	if !reflect.DeepEqual(got, want) {
+		t.Errorf("README.md defaults differ from Default():\nREADME  %+v\nDefault %+v", got, want)
+	}
+}
