@@ -341,7 +341,7 @@ func TestLiveSeriesAPI(t *testing.T) {
 	if err := json.Unmarshal(body, &fc); err != nil || fc.Topic != "air.passengers" || len(fc.Points) != 24 {
 		t.Errorf("latest forecast: %v %s", err, body)
 	}
-	resp, svg := l.get(t, "/api/series/air.passengers/chart.svg?w=600&h=300")
+	resp, svg := l.get(t, "/api/series/air.passengers/chart.svg?w=900&h=400")
 	if resp.StatusCode != 200 || !strings.Contains(string(svg), "busy-summer: above 600") {
 		t.Errorf("chart: %d, threshold line missing", resp.StatusCode)
 	}
