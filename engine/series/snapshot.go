@@ -63,9 +63,13 @@ type TransformSnapshot struct {
 	RunM2   float64
 }
 
-// ModelSnapshot is a fitted model and its filter state.
+// ModelSnapshot is a fitted model and its filter state. The model's shape
+// is held as numbers and flags, never as a rendered label: orders
+// (p,d,q)×(P,D,Q) with period s, and the constant term.
 type ModelSnapshot struct {
-	Spec     string    // e.g. "ARIMA(1,1,1)(0,1,1)[24]"
+	Order    [3]int    // p, d, q
+	Seasonal [3]int    // P, D, Q
+	Period   int       // s; 0 when there is no seasonal part
 	Mean     bool      // process mean estimated
 	Drift    bool      // drift estimated
 	Params   []float64 // coefficients in the engine's parameter layout
