@@ -45,9 +45,9 @@ const (
 		8 + // RefitFailures
 		1 + // Model presence
 		4 // alert count
-	fixedTransform = 8 + 8 + 8 + 8 + 8 + 8     // Lambda, Loc, Scale, RunN, RunMean, RunM2
+	fixedTransform = 8 + 8 + 8 + 8 + 8 + 8           // Lambda, Loc, Scale, RunN, RunMean, RunM2
 	fixedModel     = 7*8 + 1 + 1 + 8 + 8 + 8 + 8 + 8 // orders and period, Mean, Drift, Sigma2, LogLik, AICc, NObs, FittedAt
-	alertMinLen    = strHead + 1 + 8 + 8       // empty Rule, Firing, Since, Probability
+	alertMinLen    = strHead + 1 + 8 + 8             // empty Rule, Firing, Since, Probability
 )
 
 // EncodedLen returns the number of bytes Encode appends for s.
