@@ -159,7 +159,7 @@ func transformFromSnapshot(t TransformSnapshot) (transform.Transform, error) {
 }
 
 func modelFromSnapshot(ms *ModelSnapshot, horizon int) (*arima.Model, *arima.Filter, error) {
-	spec := specOf(ms)
+	spec := ms.Spec()
 	if err := spec.Validate(); err != nil {
 		return nil, nil, err
 	}
@@ -175,11 +175,4 @@ func modelFromSnapshot(ms *ModelSnapshot, horizon int) (*arima.Model, *arima.Fil
 		return nil, nil, err
 	}
 	return m, f, nil
-}
-
-// specOf is the model specification a snapshot holds.
-func specOf(ms *ModelSnapshot) arima.Spec {
-	return arima.Spec{P: ms.Order[0], D: ms.Order[1], Q: ms.Order[2],
-		SP: ms.Seasonal[0], SD: ms.Seasonal[1], SQ: ms.Seasonal[2],
-		Period: ms.Period, Mean: ms.Mean, Drift: ms.Drift}
 }

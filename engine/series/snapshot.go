@@ -1,5 +1,7 @@
 package series
 
+import "forewarn/engine/arima"
+
 // Snapshot is the complete, self-contained state of one series: everything
 // needed to resume it on this machine or another one and produce exactly
 // the forecasts an uninterrupted run would have produced. It holds plain
@@ -79,6 +81,13 @@ type ModelSnapshot struct {
 	NObs     int
 	FittedAt int64     // bucket index of the last bucket the fit saw
 	Filter   []float64 // filter state, as produced by the engine filter
+}
+
+// Spec returns the model's specification (not validated).
+func (m *ModelSnapshot) Spec() arima.Spec {
+	return arima.Spec{P: m.Order[0], D: m.Order[1], Q: m.Order[2],
+		SP: m.Seasonal[0], SD: m.Seasonal[1], SQ: m.Seasonal[2],
+		Period: m.Period, Mean: m.Mean, Drift: m.Drift}
 }
 
 // AlertSnapshot is the persisted state of one alert rule on one series.
