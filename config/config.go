@@ -6,6 +6,8 @@ import (
 	"slices"
 	"strings"
 	"time"
+
+	"forewarn/engine/arima"
 )
 
 // Config is the whole daemon configuration. The zero value is valid: every
@@ -179,7 +181,7 @@ type Series struct {
 	// Horizon is the number of steps forecast, 1..1000. Zero: 60.
 	Horizon int
 	// Levels are the prediction-interval levels in percent, each in
-	// (0, 100), distinct; sorted ascending by WithDefaults. Zero: [80, 95].
+	// (0, 100), distinct; sorted ascending by WithDefaults. Zero: [50, 90].
 	Levels []float64
 	// Window is the number of buckets kept for refits, at least MinPoints
 	// and at most Limits.MaxWindow. Zero: 2000.
@@ -189,13 +191,22 @@ type Series struct {
 	MinPoints int
 	// RefitEvery is the number of closed buckets between refits. Zero: 60.
 	RefitEvery int
-	// Period is the seasonal period in steps that automatic model choice
-	// considers (24 for a daily cycle of hourly buckets). Zero: no
-	// seasonal part unless Model names one.
-	Period int
-	// Model is "auto" or a fixed "ARIMA(p,d,q)" or "ARIMA(p,d,q)(P,D,Q)[s]"
-	// (spaces are removed on load). Zero: "auto".
+	// Seasons are the seasonal cycles (key seasons): each a duration
+	// that is a whole multiple of Step ("1d", "7d", "12h"; d is 24h and w
+	// is 7·24h), or a whole number of steps ("12"). In this release one
+	// cycle at most, of 2..arima.MaxPeriod steps: the period of the
+	// seasonal orders of a fixed Model, or the period automatic model
+	// choice considers. Zero: no seasonal part.
+	Seasons []Cycle
+	// Model is "auto" or fixed orders "p,d,q" or "p,d,q x P,D,Q" (x or ×;
+	// the seasonal orders need a cycle in Seasons). WithDefaults writes
+	// fixed orders in the form "p,d,q x P,D,Q". Zero: "auto".
 	Model string
+	// Constant is the constant term: auto (a fixed Model gets a mean when
+	// d+D = 0, nothing otherwise; model auto tries both), none, mean
+	// (needs d+D = 0) or drift (needs d+D = 1); mean and drift need a
+	// fixed Model. Zero: "auto".
+	Constant string
 	// Transform is auto, none, log, boxcox (λ chosen from the data),
 	// boxcox(λ) with λ in [-1, 2], or scaled-exp. Zero: "auto".
 	Transform string
@@ -275,11 +286,12 @@ func DefaultSeries() Series {
 		Kind:       "gauge",
 		Step:       time.Minute,
 		Horizon:    60,
-		Levels:     []float64{80, 95},
+		Levels:     []float64{50, 90},
 		Window:     2000,
 		MinPoints:  50,
 		RefitEvery: 60,
 		Model:      "auto",
+		Constant:   "auto",
 		Transform:  "auto",
 	}
 }
@@ -327,6 +339,7 @@ func (c *Config) Clone() *Config {
 	d.Series = slices.Clone(c.Series)
 	for i := range d.Series {
 		d.Series[i].Levels = slices.Clone(d.Series[i].Levels)
+		d.Series[i].Seasons = slices.Clone(d.Series[i].Seasons)
 	}
 	d.Alerts = slices.Clone(c.Alerts)
 	for i := range d.Alerts {
@@ -345,8 +358,8 @@ func clonePtr(p *float64) *float64 {
 }
 
 // WithDefaults returns a copy of c with every zero field that means a
-// default set to that default, the series levels sorted, and the model
-// string stripped of spaces. c is not changed.
+// default set to that default, the series levels sorted, and fixed model
+// orders written as "p,d,q" or "p,d,q x P,D,Q". c is not changed.
 func (c *Config) WithDefaults() *Config {
 	d := c.Clone()
 	def := Default()
@@ -397,10 +410,42 @@ func (s *Series) fillDefaults() {
 	setZero(&s.Window, ds.Window)
 	setZero(&s.MinPoints, ds.MinPoints)
 	setZero(&s.RefitEvery, ds.RefitEvery)
+	s.Model = canonicalModel(s.Model)
 	setZero(&s.Model, ds.Model)
-	s.Model = stripSpaces(s.Model)
+	s.Constant = strings.TrimSpace(s.Constant)
+	setZero(&s.Constant, ds.Constant)
 	setZero(&s.Transform, ds.Transform)
 	s.Transform = stripSpaces(s.Transform)
+}
+
+// canonicalModel writes fixed orders that arima.ParseOrders reads as
+// "p,d,q" or "p,d,q x P,D,Q"; anything else is returned trimmed of white
+// space, for Validate to report.
+func canonicalModel(m string) string {
+	m = strings.TrimSpace(m)
+	ord, sord, seasonal, err := arima.ParseOrders(m)
+	if err != nil {
+		return m
+	}
+	out := fmt.Sprintf("%d,%d,%d", ord[0], ord[1], ord[2])
+	if seasonal {
+		out += fmt.Sprintf(" x %d,%d,%d", sord[0], sord[1], sord[2])
+	}
+	return out
+}
+
+// Period returns the first cycle of Seasons in steps, or 0 when there is
+// none or it is not a whole number of at least 2 steps (Validate reports
+// that).
+func (s *Series) Period() int {
+	if len(s.Seasons) == 0 {
+		return 0
+	}
+	n, err := s.Seasons[0].InSteps(s.Step)
+	if err != nil || n < 2 {
+		return 0
+	}
+	return n
 }
 
 // setZero sets *p to def when *p is the zero value of its type.

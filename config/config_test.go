@@ -36,7 +36,7 @@ func TestDefaultIsFreshAndValid(t *testing.T) {
 	a.Series[0].Levels[0] = 1
 	a.Intake.Subjects[0] = "x.>"
 	b := Default()
-	if b.Series[0].Levels[0] != 80 || b.Intake.Subjects[0] != "metrics.>" {
+	if b.Series[0].Levels[0] != 50 || b.Intake.Subjects[0] != "metrics.>" {
 		t.Fatal("Default shares mutable state between calls")
 	}
 	if err := b.Validate(); err != nil {
@@ -78,11 +78,13 @@ func TestEmptyFileGivesDefaults(t *testing.T) {
 		{"series.kind", s.Kind, "gauge"},
 		{"series.step", s.Step, time.Minute},
 		{"series.horizon", s.Horizon, 60},
-		{"series.levels", s.Levels, []float64{80, 95}},
+		{"series.levels", s.Levels, []float64{50, 90}},
 		{"series.window", s.Window, 2000},
 		{"series.min_points", s.MinPoints, 50},
 		{"series.refit_every", s.RefitEvery, 60},
+		{"series.seasons", s.Seasons, []Cycle(nil)},
 		{"series.model", s.Model, "auto"},
+		{"series.constant", s.Constant, "auto"},
 		{"series.transform", s.Transform, "auto"},
 	}
 	for _, c := range checks {
@@ -93,14 +95,19 @@ func TestEmptyFileGivesDefaults(t *testing.T) {
 }
 
 func TestWithDefaultsDoesNotChangeReceiver(t *testing.T) {
-	c := &Config{Series: []Series{{Match: "a.>", Levels: []float64{95, 80}, Model: "ARIMA(1, 1, 1)"}}}
+	c := &Config{Series: []Series{{Match: "a.>", Levels: []float64{95, 80}, Model: " 0, 1,1 ×0,1,1", Seasons: []Cycle{{Length: Day}}}}}
 	d := c.WithDefaults()
-	if c.Series[0].Levels[0] != 95 || c.Series[0].Model != "ARIMA(1, 1, 1)" || c.Series[0].Kind != "" {
+	if c.Series[0].Levels[0] != 95 || c.Series[0].Model != " 0, 1,1 ×0,1,1" || c.Series[0].Kind != "" || c.Series[0].Constant != "" {
 		t.Errorf("WithDefaults changed its receiver: %+v", c.Series[0])
 	}
 	got := d.Series[0]
-	if !reflect.DeepEqual(got.Levels, []float64{80, 95}) || got.Model != "ARIMA(1,1,1)" || got.Kind != "gauge" || got.Step != time.Minute {
-		t.Errorf("WithDefaults gave %+v", got)
+	if !reflect.DeepEqual(got.Levels, []float64{80, 95}) || got.Model != "0,1,1 x 0,1,1" || got.Constant != "auto" ||
+		got.Kind != "gauge" || got.Step != time.Minute || got.Period() != 1440 {
+		t.Errorf("WithDefaults gave %+v (period %d)", got, got.Period())
+	}
+	d.Series[0].Seasons[0].Steps = 7
+	if c.Series[0].Seasons[0].Steps != 0 {
+		t.Error("WithDefaults shares the seasons with its receiver")
 	}
 }
 
@@ -126,12 +133,12 @@ func TestLoadFull(t *testing.T) {
 	}
 	s0 := c.Series[0]
 	want0 := Series{Match: "shop.*.orders", Kind: "counter", Step: time.Hour, Horizon: 48,
-		Levels: []float64{50, 80, 95}, Window: 2400, MinPoints: 72, RefitEvery: 24,
-		Model: "ARIMA(0,1,1)(0,1,1)[24]", Transform: "log", CloseAfter: 90 * time.Second, Line: 45}
+		Levels: []float64{50, 80, 95}, Window: 2400, MinPoints: 72, RefitEvery: 60, Seasons: []Cycle{{Length: Day}},
+		Model: "0,1,1 x 0,1,1", Constant: "auto", Transform: "log", CloseAfter: 90 * time.Second, Line: 45}
 	if !reflect.DeepEqual(s0, want0) {
 		t.Errorf("series[0]:\n got %+v\nwant %+v", s0, want0)
 	}
-	if s1 := c.Series[1]; s1.Step != 5*time.Minute || s1.Horizon != 288 || s1.Window != 2000 || s1.Transform != "boxcox(0.5)" || s1.Period != 288 || s1.Line != 56 {
+	if s1 := c.Series[1]; s1.Step != 5*time.Minute || s1.Horizon != 288 || s1.Window != 2000 || s1.Transform != "boxcox(0.5)" || s1.Period() != 288 || s1.Line != 56 {
 		t.Errorf("series[1]: %+v", s1)
 	}
 	a0, a1 := c.Alerts[0], c.Alerts[1]
@@ -297,15 +304,37 @@ func TestValidationRules(t *testing.T) {
 		{"window above max", "series:\n  - window: 20001\n", 2, "series[0].window", "more than limits.max_window"},
 		{"min_points small", "series:\n  - min_points: 9\n", 2, "series[0].min_points", "less than 10"},
 		{"refit_every negative", "series:\n  - refit_every: -1\n", 2, "series[0].refit_every", "less than 1"},
-		{"model syntax", "series:\n  - model: \"ARMA(1,1)\"\n", 2, "series[0].model", "is not auto"},
-		{"model seasonal syntax", "series:\n  - model: \"ARIMA(0,1,1)(0,1,1)\"\n", 2, "series[0].model", "is not auto"},
-		{"model order", "series:\n  - model: \"ARIMA(11,0,0)\"\n", 2, "series[0].model", "at most 10"},
-		{"model d", "series:\n  - model: \"ARIMA(0,3,1)\"\n", 2, "series[0].model", "d is at most 2"},
-		{"model D", "series:\n  - model: \"ARIMA(0,1,1)(0,2,1)[12]\"\n", 2, "series[0].model", "D is at most 1"},
-		{"model period", "series:\n  - model: \"ARIMA(0,1,1)(0,1,1)[1]\"\n", 2, "series[0].model", "period s"},
-		{"model needs points", "series:\n  - {model: \"ARIMA(1,1,1)(1,1,1)[168]\", window: 5000}\n", 2, "series[0].min_points", "needs at least 175"},
-		{"period one", "series:\n  - period: 1\n", 2, "series[0].period", "must be 0 (none) or in 2..10000"},
-		{"period against model", "series:\n  - {period: 12, model: \"ARIMA(0,1,1)(0,1,1)[24]\"}\n", 2, "series[0].period", "model has period 24"},
+		{"model syntax", "series:\n  - model: \"ARMA(1,1)\"\n", 2, "series[0].model", `is not auto, "p,d,q" or "p,d,q x P,D,Q"`},
+		{"model two orders", "series:\n  - model: \"1,1\"\n", 2, "series[0].model", "is not auto"},
+		{"model two x", "series:\n  - {model: \"0,1,1 x 0,1,1 x 0,1,1\", seasons: [12]}\n", 2, "series[0].model", "is not auto"},
+		{"model order", "series:\n  - model: \"11,0,0\"\n", 2, "series[0].model", "p and q are at most 10"},
+		{"model d", "series:\n  - model: \"0,3,1\"\n", 2, "series[0].model", "d = 3: exceeds the limit of 2"},
+		{"model D", "series:\n  - {model: \"0,1,1 x 0,2,1\", seasons: [12]}\n", 2, "series[0].model", "D = 2: exceeds the limit of 1"},
+		{"model P", "series:\n  - {model: \"0,1,1 x 5,0,0\", seasons: [12]}\n", 2, "series[0].model", "P = 5: exceeds the limit of 4"},
+		{"model needs points", "series:\n  - {model: \"1,1,1 x 1,1,1\", seasons: [168], window: 5000}\n", 2, "series[0].min_points", "needs at least 175"},
+		{"seasonal model without seasons", "series:\n  - model: \"0,1,1 x 0,1,1\"\n", 2, "series[0].model", "give their cycle in seasons"},
+		{"seasons with a plain model", "series:\n  - {model: \"1,1,1\", seasons: [1h]}\n", 2, "series[0].seasons", `1h0m0s, but model "1,1,1" has no seasonal orders`},
+		{"old spelling", "series:\n  - model: \"ARIMA(1,1,1)(0,1,1)[12] with drift\"\n", 2, "series[0].model",
+			`"ARIMA(1,1,1)(0,1,1)[12] with drift" is the old spelling; write`},
+		{"old spelling plain", "series:\n  - model: \"ARIMA(1,1,1)\"\n", 2, "series[0].model", `is the old spelling; write model: "1,1,1"`},
+		{"old spelling zero mean", "series:\n  - model: \"ARIMA(2,0,0) with zero mean\"\n", 2, "series[0].model", `write model: "2,0,0", constant: none`},
+		{"old spelling seasonal", "series:\n  - model: \"ARIMA(0,1,1)(0,1,1)[24]\"\n", 2, "series[0].model", `write model: "0,1,1 x 0,1,1", seasons: [24]`},
+		{"old spelling drift", "series:\n  - model: \"ARIMA(0,1,1) with drift\"\n", 2, "series[0].model", `write model: "0,1,1", constant: drift`},
+		{"old spelling broken", "series:\n  - model: \"ARIMA(0,1,1)(0,1,1)\"\n", 2, "series[0].model", `is the old spelling; write model: "p,d,q" or "p,d,q x P,D,Q"`},
+		{"period renamed", "series:\n  - period: 12\n", 2, "series[0].period", "was renamed: write seasons: [12]"},
+		{"seasons not whole steps", "series:\n  - {step: 7m, seasons: [1d]}\n", 2, "series[0].seasons[0]", "1d is not a whole number of steps of 7m0s"},
+		{"seasons one step", "series:\n  - seasons: [1m]\n", 2, "series[0].seasons[0]", "1m0s is 1 step; a cycle needs at least 2"},
+		{"seasons too long", "series:\n  - seasons: [1d]\n", 2, "series[0].seasons[0]", "1d is 1440 steps, more than 1000"},
+		{"seasons two cycles", "series:\n  - {step: 1h, seasons: [1d, 7d]}\n", 2, "series[0].seasons[1]", "7d: only one cycle can be used until Fourier terms arrive"},
+		{"seasons zero", "series:\n  - seasons: [0]\n", 2, "series[0].seasons[0]", "not a number of steps"},
+		{"seasons garbage", "series:\n  - seasons: [daily]\n", 2, "series[0].seasons[0]", "is not a duration"},
+		{"seasons float", "series:\n  - seasons: [1.5]\n", 2, "series[0].seasons[0]", "expected a cycle"},
+		{"seasons negative", "series:\n  - seasons: [-1d]\n", 2, "series[0].seasons[0]", "not a positive duration"},
+		{"seasons not a list", "series:\n  - seasons: 12\n", 2, "series[0].seasons", "expected a list"},
+		{"constant word", "series:\n  - constant: yes\n", 2, "series[0].constant", "not one of auto, none, mean, drift"},
+		{"constant with auto", "series:\n  - constant: drift\n", 2, "series[0].constant", "drift needs fixed orders in model"},
+		{"constant mean differenced", "series:\n  - {model: \"0,1,1\", constant: mean}\n", 2, "series[0].constant", "a mean is only estimated when d+D = 0, here d+D = 1"},
+		{"constant drift d=2", "series:\n  - {model: \"0,1,1 x 0,1,1\", seasons: [12], constant: drift}\n", 2, "series[0].constant", "here d+D = 2"},
 		{"transform", "series:\n  - transform: sqrt\n", 2, "series[0].transform", "is not one of auto"},
 		{"boxcox lambda", "series:\n  - transform: boxcox(3)\n", 2, "series[0].transform", "λ must be"},
 		{"boxcox lambda nan", "series:\n  - transform: boxcox(NaN)\n", 2, "series[0].transform", "λ must be"},
@@ -344,12 +373,18 @@ func TestValidationRules(t *testing.T) {
 // Values that look odd but are allowed.
 func TestAccepted(t *testing.T) {
 	for _, src := range []string{
-		"series:\n  - close_after: 0\n",                                       // bare 0 is a duration
-		"series:\n  - {horizon: 0, levels: []}\n",                             // zero means default
-		"http:\n  listen: \"\"\n",                                             // empty disables
-		"intake:\n  durable: false\n  stream: \"a.b\"\n",                      // names unused when not durable
-		"series:\n  - model: \"ARIMA(1, 1, 1) (0, 1, 1) [12]\"\n",             // spaces
-		"series:\n  - {model: \"ARIMA(0,1,1)(0,1,1)[24]\", min_points: 29}\n", // exactly enough points
+		"series:\n  - close_after: 0\n",                                            // bare 0 is a duration
+		"series:\n  - {horizon: 0, levels: []}\n",                                  // zero means default
+		"http:\n  listen: \"\"\n",                                                  // empty disables
+		"intake:\n  durable: false\n  stream: \"a.b\"\n",                           // names unused when not durable
+		"series:\n  - {model: \" 1 , 1 , 1  x  0 , 1 , 1 \", seasons: [\"12\"]}\n", // spaces, steps as text
+		"series:\n  - {model: \"0,1,1×0,1,1\", seasons: [1d], step: 1h}\n",         // ×, a day of hours
+		"series:\n  - {model: \"0,1,1 x 0,1,1\", seasons: [24], min_points: 29}\n", // exactly enough points
+		"series:\n  - {model: \"1,1,0\", constant: drift}\n",
+		"series:\n  - {model: \"2,0,0\", constant: none}\n",
+		"series:\n  - {seasons: [1w], step: 1h, constant: none}\n", // 168 steps
+		"series:\n  - {seasons: [1.5d], step: 1h}\n",
+		"series:\n  - {seasons: [], model: \"1,0,0\"}\n",
 		"series:\n  - transform: boxcox(-0.5)\n",
 		"nats:\n  url: nats://h:4222\n  user: u\n  password: \"12345\"\n",
 		"limits:\n  max_payload_bytes: \"1 MB\"\n",

@@ -273,7 +273,9 @@ func (d *decoder) mapping(n *yaml.Node, path string, fs fields) {
 func suggest(key string, fs fields) string {
 	names := make([]string, 0, len(fs))
 	for k := range fs {
-		names = append(names, k)
+		if !retiredKeys[k] {
+			names = append(names, k)
+		}
 	}
 	sort.Strings(names)
 	best, bestD := "", 3
@@ -388,8 +390,17 @@ func (d *decoder) number(n *yaml.Node, path string) (float64, bool) {
 // Unlike a value that cannot be decoded, it leaves the enclosing entry
 // whole (only the key's own path counts as failed), so that the entry's
 // other problems are reported in the same run.
+//
+// The hint may hold one %s, which gets the value as written.
 func (d *decoder) renamed(hint string) func(*yaml.Node, string) {
 	return func(n *yaml.Node, path string) {
+		if strings.Contains(hint, "%s") {
+			v := "..."
+			if n.Kind == yaml.ScalarNode {
+				v = clip(n.Value)
+			}
+			hint = fmt.Sprintf(hint, v)
+		}
 		d.failed[path] = true
 		if len(d.probs) >= maxStored {
 			d.dropped++
@@ -523,6 +534,35 @@ func (d *decoder) floats(dst *[]float64) func(*yaml.Node, string) {
 	}
 }
 
+// cycles decodes a list of seasonal cycles (ParseCycle): strings such as
+// "1d" or "12h", or whole numbers of steps.
+func (d *decoder) cycles(dst *[]Cycle) func(*yaml.Node, string) {
+	return func(n *yaml.Node, path string) {
+		out := []Cycle{}
+		d.list(n, path, func(e *yaml.Node, p string) {
+			s := d.scalar(e, p, `a cycle such as "1d" or 12`)
+			if s == nil {
+				return
+			}
+			if tag := s.ShortTag(); tag != "!!int" && tag != "!!str" {
+				d.errorf(s, p, "expected a cycle such as \"1d\", \"12h\" or a whole number of steps such as 12, got %s", kindName(s))
+				return
+			}
+			c, err := ParseCycle(s.Value)
+			if err != nil {
+				d.errorf(s, p, "%v", err)
+				return
+			}
+			out = append(out, c)
+		})
+		*dst = out
+	}
+}
+
+// retiredKeys are keys kept only to name their replacement (renamed); they
+// are never suggested.
+var retiredKeys = map[string]bool{"period": true, "resolve_probability": true}
+
 // top decodes the root mapping onto c.
 func (d *decoder) top(root *yaml.Node, c *Config) {
 	n, in, o, st, h, l, r, lim := &c.NATS, &c.Intake, &c.Output, &c.State, &c.HTTP, &c.Log, &c.Refit, &c.Limits
@@ -600,8 +640,10 @@ func (d *decoder) top(root *yaml.Node, c *Config) {
 					"window":      d.integer(&s.Window),
 					"min_points":  d.integer(&s.MinPoints),
 					"refit_every": d.integer(&s.RefitEvery),
-					"period":      d.integer(&s.Period),
+					"seasons":     d.cycles(&s.Seasons),
 					"model":       d.str(&s.Model),
+					"constant":    d.str(&s.Constant),
+					"period":      d.renamed(`write seasons: [%s]`),
 					"transform":   d.str(&s.Transform),
 					"close_after": d.duration(&s.CloseAfter),
 				})

@@ -22,6 +22,13 @@
 //     filled in and valid.
 //   - Durations are Go duration strings with units ("90s", "1h30m"); a bare
 //     number other than 0 is refused. Steps are whole seconds.
+//   - A series' seasonal cycles (seasons) are durations that may use the
+//     units d (24h) and w (7·24h) as well, or whole numbers of steps
+//     (Cycle, ParseCycle). Its model is auto or orders "p,d,q" or
+//     "p,d,q x P,D,Q" with a separate constant (auto, none, mean, drift).
+//     A key or spelling of an earlier release (period, a model written
+//     "ARIMA(p,d,q)(P,D,Q)[s]") is refused with a problem that names its
+//     replacement.
 //   - Topics are the part of an intake subject after its pattern's literal
 //     prefix (TopicOf). Series entries and alert rules match topics with the
 //     bus's wildcards (MatchSubject): "*" one token, ">" one or more

@@ -14,21 +14,25 @@ const fingerprintVersion = "forewarn-series-v1"
 
 // Fingerprint returns a stable hash of the settings that change the
 // maths of a series: kind, step, horizon, levels, window, min_points,
-// refit_every, period, model, transform and close_after. Match and Line
-// do not enter it. Zero fields count as their defaults and levels are compared
-// as a sorted set, so equal settings give equal fingerprints however they
-// were written. The state store keeps it with each series to notice a
-// change of configuration.
+// refit_every, seasons, model, constant, transform and close_after. Match
+// and Line do not enter it. Zero fields count as their defaults, levels
+// are compared as a sorted set, a cycle by its number of steps and fixed
+// orders in the form WithDefaults writes, so equal settings give equal
+// fingerprints however they were written. The state store keeps it with
+// each series to notice a change of configuration.
 //
 // It is the lower-case hex SHA-256 of the canonical encoding
 //
 //	forewarn-series-v1\nkind=K\nstep=S\nhorizon=H\nlevels=L1,L2,…\nwindow=W\n
-//	min_points=M\nrefit_every=R\n[period=P\n]model=MODEL\ntransform=T\nclose_after=C\n
+//	min_points=M\nrefit_every=R\n[period=P\n]model=MODEL\n[constant=C\n]transform=T\n
+//	close_after=C\n
 //
-// where the period line is present only when Period is not zero (so
-// that fingerprints from before the key existed stay valid), durations
-// are in nanoseconds and levels in the shortest decimal form that reads
-// back as the same float64.
+// where P is the first cycle of seasons in steps (Period), present only
+// when there is one, and the constant line only when the constant is not
+// auto: so fingerprints from before those keys existed stay valid
+// (period: P then meant what seasons: [P] means now). Durations are in
+// nanoseconds and levels in the shortest decimal form that reads back as
+// the same float64.
 //
 // References:
 //   - NIST FIPS 180-4, Secure Hash Standard (2015), §6.2 (SHA-256).
@@ -56,10 +60,13 @@ func (s *Series) Fingerprint() string {
 	field("window", strconv.Itoa(c.Window))
 	field("min_points", strconv.Itoa(c.MinPoints))
 	field("refit_every", strconv.Itoa(c.RefitEvery))
-	if c.Period != 0 { // only when set, so that older fingerprints stay valid
-		field("period", strconv.Itoa(c.Period))
+	if per := c.Period(); per != 0 { // only when set, so that older fingerprints stay valid
+		field("period", strconv.Itoa(per))
 	}
 	field("model", c.Model)
+	if c.Constant != "auto" { // likewise
+		field("constant", c.Constant)
+	}
 	field("transform", c.Transform)
 	field("close_after", strconv.FormatInt(int64(c.CloseAfter), 10))
 	sum := sha256.Sum256([]byte(b.String()))

@@ -1,6 +1,8 @@
 package config
 
 import (
+	"crypto/sha256"
+	"encoding/hex"
 	"os"
 	"strings"
 	"testing"
@@ -28,8 +30,9 @@ func TestFingerprintSameSettings(t *testing.T) {
 	same := []Series{
 		{}, // zero fields mean the defaults
 		{Match: "shop.>", Line: 12, Kind: "gauge", Step: time.Minute},
-		{Levels: []float64{95, 80}},
-		{Model: "auto", Transform: "auto", Horizon: 60},
+		{Levels: []float64{90, 50}},
+		{Model: "auto", Transform: "auto", Horizon: 60, Constant: "auto"},
+		{Levels: []float64{90, 50}, Constant: " auto "},
 	}
 	for _, s := range same {
 		if got := s.Fingerprint(); got != fp {
@@ -53,8 +56,9 @@ func TestFingerprintMathsChanges(t *testing.T) {
 		"window":      func(s *Series) { s.Window = 1999 },
 		"min_points":  func(s *Series) { s.MinPoints = 51 },
 		"refit_every": func(s *Series) { s.RefitEvery = 59 },
-		"model":       func(s *Series) { s.Model = "ARIMA(1,1,1)" },
-		"period":      func(s *Series) { s.Period = 24 },
+		"model":       func(s *Series) { s.Model = "1,1,1" },
+		"seasons":     func(s *Series) { s.Seasons = []Cycle{{Steps: 24}} },
+		"constant":    func(s *Series) { s.Constant = "none" },
 		"transform":   func(s *Series) { s.Transform = "log" },
 		"close_after": func(s *Series) { s.CloseAfter = time.Second },
 	}
@@ -67,6 +71,36 @@ func TestFingerprintMathsChanges(t *testing.T) {
 			t.Errorf("changing %s gives the same fingerprint as %s", name, prev)
 		}
 		seen[got] = name
+	}
+}
+
+// A cycle enters the fingerprint as its number of steps, on the line the
+// former key period wrote, so that a series configured with period: 24
+// keeps its fingerprint (and its model) under seasons: [24] or [1d]; fixed
+// orders enter in the form WithDefaults writes. The expected value is the
+// SHA-256 (NIST FIPS 180-4) of the canonical encoding as the doc comment
+// of Fingerprint spells it.
+func TestFingerprintSeasonsAndOrders(t *testing.T) {
+	enc := func(extra, model string) string {
+		sum := sha256.Sum256([]byte("forewarn-series-v1\nkind=gauge\nstep=3600000000000\nhorizon=60\nlevels=50,90\n" +
+			"window=2000\nmin_points=50\nrefit_every=60\n" + extra + "model=" + model + "\ntransform=auto\nclose_after=0\n"))
+		return hex.EncodeToString(sum[:])
+	}
+	period24 := enc("period=24\n", "auto")
+	for _, s := range []Series{
+		{Step: time.Hour, Seasons: []Cycle{{Steps: 24}}},
+		{Step: time.Hour, Seasons: []Cycle{{Length: Day}}},
+	} {
+		if got := s.Fingerprint(); got != period24 {
+			t.Errorf("seasons %v: fingerprint %s, want that of period=24, %s", s.Seasons, got, period24)
+		}
+	}
+	airline := enc("period=24\n", "0,1,1 x 0,1,1")
+	for _, m := range []string{"0,1,1 x 0,1,1", " 0, 1, 1×0,1,1 ", "0,1,1x0,1,1"} {
+		s := Series{Step: time.Hour, Seasons: []Cycle{{Length: Day}}, Model: m}
+		if got := s.Fingerprint(); got != airline {
+			t.Errorf("model %q: fingerprint %s, want %s", m, got, airline)
+		}
 	}
 }
 

@@ -23,6 +23,8 @@ func FuzzParse(f *testing.F) {
 		"intake: {max_bytes: 18446744073709551616}\n", "limits: {max_window: 0x7fffffff}\n",
 		"alerts: [{name: a, match: \">\", above: 1e308, within: 1ns, probability: 1e-300}]\n",
 		"\xff\xfe", "{", "[1, 2", "? [a]\n: b\n", "!!binary x: y\n",
+		"series:\n  - {model: \"0,1,1 x 0,1,1\", seasons: [1d, 7d], constant: drift, step: 1h}\n",
+		"series:\n  - {period: 12, seasons: [-1w, 99999999999999999999, 1e3d], model: \"9,9,9×9,9,9\"}\n",
 	} {
 		f.Add([]byte(s))
 	}

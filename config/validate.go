@@ -1,6 +1,7 @@
 package config
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"net"
@@ -12,28 +13,28 @@ import (
 	"sync"
 	"time"
 	"unicode"
+
+	"forewarn/engine/arima"
 )
 
 // Bounds checked by Validate. They keep every input able to make the
 // daemon hold only a bounded amount of memory.
 const (
-	MaxHorizon        = 1000
-	MaxLevels         = 10
-	MinMinPoints      = 10
-	MaxSeriesLimit    = 10_000_000
-	MaxPayloadLimit   = 64 << 20 // the bus's own largest payload setting
-	MaxBatchLimit     = 1_000_000
-	MaxWindowLimit    = 10_000_000
-	MaxWorkers        = 1024
-	maxStep           = 8760 * time.Hour
-	maxHorizonSpan    = 100 * 8760 * time.Hour
-	maxNameLen        = 64
-	maxStreamNameLen  = 255
-	boxCoxMin         = -1.0 // Guerrero (1993) search interval, common practice
-	boxCoxMax         = 2.0
-	maxOrder          = 10 // p, q, P, Q
-	maxD, maxSeasonD  = 2, 1
-	maxSeasonalPeriod = 10000
+	MaxHorizon       = 1000
+	MaxLevels        = 10
+	MinMinPoints     = 10
+	MaxSeriesLimit   = 10_000_000
+	MaxPayloadLimit  = 64 << 20 // the bus's own largest payload setting
+	MaxBatchLimit    = 1_000_000
+	MaxWindowLimit   = 10_000_000
+	MaxWorkers       = 1024
+	maxStep          = 8760 * time.Hour
+	maxHorizonSpan   = 100 * 8760 * time.Hour
+	maxNameLen       = 64
+	maxStreamNameLen = 255
+	boxCoxMin        = -1.0 // Guerrero (1993) search interval, common practice
+	boxCoxMax        = 2.0
+	maxOrder         = 10 // p and q (P and Q: arima.MaxSeasonalOrder)
 )
 
 // Validate reports every problem with c, as an *Errors, or nil. It checks
@@ -367,7 +368,6 @@ func (v *validator) limits() {
 // The patterns are compiled on first use, not at package initialisation:
 // the offline commands link this package but never validate a config.
 var (
-	modelRE     = lazyRegexp(`^ARIMA\((\d{1,5}),(\d{1,5}),(\d{1,5})\)(?:\((\d{1,5}),(\d{1,5}),(\d{1,5})\)\[(\d{1,5})\])?$`)
 	boxCoxRE    = lazyRegexp(`^boxcox\(([^()]*)\)$`)
 	alertNameRE = lazyRegexp(`^[a-z0-9_-]+$`)
 )
@@ -414,9 +414,7 @@ func (v *validator) series(i int) {
 	if s.RefitEvery < 1 {
 		v.add(p+".refit_every", "%d is less than 1", s.RefitEvery)
 	}
-	if s.Period != 0 && (s.Period < 2 || s.Period > maxSeasonalPeriod) {
-		v.add(p+".period", "%d must be 0 (none) or in 2..%d", s.Period, maxSeasonalPeriod)
-	}
+	v.seasons(p, s)
 	v.model(p, s)
 	v.transform(p+".transform", s.Transform)
 	if s.CloseAfter < 0 {
@@ -438,42 +436,123 @@ func (v *validator) levels(path string, levels []float64) {
 	}
 }
 
-// model checks a fixed model's syntax and that min_points leaves the
+// seasons checks the cycles: in this release one cycle, a whole number of
+// steps from 2 to arima.MaxPeriod (the period of the seasonal orders).
+func (v *validator) seasons(p string, s *Series) {
+	for i, c := range s.Seasons {
+		path := fmt.Sprintf("%s.seasons[%d]", p, i)
+		if i > 0 {
+			v.add(path, "%v: only one cycle can be used until Fourier terms arrive; keep the first, %v", c, s.Seasons[0])
+			continue
+		}
+		n, err := c.InSteps(s.Step)
+		switch {
+		case err != nil:
+			if s.Step > 0 && s.Step%time.Second == 0 {
+				v.add(path, "%v", err)
+			}
+		case n < 2:
+			v.add(path, "%v is %d step; a cycle needs at least 2", c, n)
+		case n > arima.MaxPeriod:
+			v.add(path, "%v is %d steps, more than %d", c, n, arima.MaxPeriod)
+		}
+	}
+}
+
+// model checks the model and the constant together, names an old
+// spelling's replacement, and checks that min_points leaves the
 // differenced series longer than its coefficients (common practice: at
 // least two observations more than coefficients after differencing).
 func (v *validator) model(p string, s *Series) {
-	if s.Model == "auto" {
-		return
-	}
 	path := p + ".model"
-	m := modelRE().FindStringSubmatch(s.Model)
-	if m == nil {
-		v.add(path, "%q is not auto, ARIMA(p,d,q) or ARIMA(p,d,q)(P,D,Q)[s]", clip(s.Model))
+	constant, cerr := arima.ParseConstant(s.Constant)
+	if cerr != nil {
+		v.add(p+".constant", "%q is not one of auto, none, mean, drift", clip(s.Constant))
+	}
+	if s.Model == "auto" {
+		if constant == arima.ConstantMean || constant == arima.ConstantDrift {
+			v.add(p+".constant", "%s needs fixed orders in model (with model: auto the search chooses d and D); use auto or none", constant)
+		}
 		return
 	}
-	var o [7]int
-	for k := range o {
-		o[k], _ = strconv.Atoi(m[k+1]) // "" (no seasonal part) gives 0
-	}
-	pp, d, q, sp, sd, sq, per := o[0], o[1], o[2], o[3], o[4], o[5], o[6]
-	seasonal := m[7] != ""
-	switch {
-	case max(pp, q, sp, sq) > maxOrder:
-		v.add(path, "%q: AR and MA orders are at most %d", s.Model, maxOrder)
-	case d > maxD:
-		v.add(path, "%q: d is at most %d", s.Model, maxD)
-	case sd > maxSeasonD:
-		v.add(path, "%q: D is at most %d", s.Model, maxSeasonD)
-	case seasonal && (per < 2 || per > maxSeasonalPeriod):
-		v.add(path, "%q: the period s must be in 2..%d", s.Model, maxSeasonalPeriod)
-	case seasonal && s.Period != 0 && s.Period != per:
-		v.add(p+".period", "%d, but the model has period %d; leave period out or make them agree", s.Period, per)
-	default:
-		need := d + per*sd + pp + q + sp + sq + 2
-		if s.MinPoints >= MinMinPoints && s.MinPoints < need {
-			v.add(p+".min_points", "%d is too few for %s, which needs at least %d", s.MinPoints, s.Model, need)
+	ord, sord, seasonal, err := arima.ParseOrders(s.Model)
+	if err != nil {
+		if old, ok := oldSpelling(s.Model); ok {
+			v.add(path, "%q is the old spelling; write %s", clip(s.Model), old)
+		} else {
+			v.add(path, "%q is not auto, \"p,d,q\" or \"p,d,q x P,D,Q\"", clip(s.Model))
 		}
+		return
 	}
+	if max(ord[0], ord[2]) > maxOrder {
+		v.add(path, "%q: p and q are at most %d", s.Model, maxOrder)
+		return
+	}
+	period := 0
+	switch {
+	case seasonal && len(s.Seasons) == 0:
+		v.add(path, "%q has seasonal orders; give their cycle in seasons, e.g. seasons: [1d] or [24]", s.Model)
+		return
+	case seasonal:
+		if period = s.Period(); period == 0 {
+			return // the cycle's own problem is reported under seasons
+		}
+	case len(s.Seasons) > 0:
+		v.add(p+".seasons", "%v, but model %q has no seasonal orders; write model: \"%s x P,D,Q\" or leave seasons out", s.Seasons[0], s.Model, s.Model)
+		return
+	}
+	if cerr != nil {
+		return
+	}
+	spec, err := arima.NewSpec(ord, sord, period, constant)
+	if err != nil {
+		var se *arima.SpecError
+		switch {
+		case errors.As(err, &se) && (se.Field == "mean" || se.Field == "drift"):
+			v.add(p+".constant", "%s with model %q: %s", constant, s.Model, se.Reason)
+		case errors.As(err, &se):
+			v.add(path, "%q: %s", s.Model, specReason(se))
+		default:
+			v.add(path, "%q: %v", s.Model, err)
+		}
+		return
+	}
+	need := spec.D + period*spec.SD + spec.NumParams() + 2
+	if s.MinPoints >= MinMinPoints && s.MinPoints < need {
+		v.add(p+".min_points", "%d is too few for model %q, which needs at least %d", s.MinPoints, s.Model, need)
+	}
+}
+
+// specReason words a specification error without the package prefix.
+func specReason(se *arima.SpecError) string {
+	if se.Value == "" {
+		return se.Field + ": " + se.Reason
+	}
+	return se.Field + " = " + se.Value + ": " + se.Reason
+}
+
+// oldSpelling returns the keys that replace a model written in forewarn's
+// first spelling ("ARIMA(p,d,q)(P,D,Q)[s] with drift"), or ok false when
+// m is not in that spelling.
+func oldSpelling(m string) (replacement string, ok bool) {
+	if !strings.HasPrefix(strings.TrimSpace(m), "ARIMA(") {
+		return "", false
+	}
+	sp, err := arima.ParseLegacySpec(m)
+	if err != nil {
+		return `model: "p,d,q" or "p,d,q x P,D,Q", the period as seasons: [s], and constant: none, mean or drift`, true
+	}
+	out := fmt.Sprintf("model: %q", sp.Orders())
+	if sp.Period > 0 {
+		out += fmt.Sprintf(", seasons: [%d]", sp.Period)
+	}
+	switch {
+	case sp.Drift:
+		out += ", constant: drift"
+	case sp.D+sp.SD == 0 && !sp.Mean:
+		out += ", constant: none"
+	}
+	return out, true
 }
 
 func (v *validator) transform(path, t string) {

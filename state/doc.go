@@ -14,8 +14,9 @@
 //	           a record exactly as it was found in series (Store.SetAside)
 //
 // state persists and never computes: it knows nothing of models or
-// transforms beyond the plain fields of series.Snapshot. Package engine
-// never imports state.
+// transforms beyond the plain fields of series.Snapshot, except that it
+// reads the model spelling of version-1 records (arima.ParseLegacySpec) to
+// migrate them. Package engine never imports state.
 //
 // # Concurrency
 //
@@ -33,7 +34,7 @@
 // flush, never once per message. After a crash the file holds the last
 // committed batch entirely, and nothing of a batch that did not commit.
 //
-// # Record layout, format version 1
+// # Record layout, format versions 1 and 2
 //
 // A record is self-contained: it can be copied to another machine, or
 // another file, unchanged. All integers are little-endian; int and int64
@@ -53,7 +54,8 @@
 //	10      ...   payload of that version
 //	len-4   4     CRC-32C (Castagnoli) of bytes [0, len-4)
 //
-// The payload of version 1, field by field, in order (series.Snapshot):
+// The payload of version 2 (written since the model vocabulary of CONTRACT
+// revision 2), field by field, in order (series.Snapshot):
 //
 //	Topic              string
 //	Fingerprint        string
@@ -81,7 +83,9 @@
 //	Transform.RunMean  float64
 //	Transform.RunM2    float64
 //	model presence     byte: 0 no model (nothing follows for it), 1 model:
-//	  Spec             string
+//	  Order            3 × int64: p, d, q
+//	  Seasonal         3 × int64: P, D, Q
+//	  Period           int64: s, 0 without a seasonal part
 //	  Mean             bool
 //	  Drift            bool
 //	  Params           float slice
@@ -100,6 +104,18 @@
 //	  Probability      float64
 //
 // A 2000-bucket window makes a record of about 16 KB.
+//
+// The payload of version 1 is that of version 2 except for the model's
+// shape: in place of Order, Seasonal and Period it has one string, Spec,
+// the model in forewarn's first spelling, "ARIMA(p,d,q)" or
+// "ARIMA(p,d,q)(P,D,Q)[s]" with an optional suffix " with drift" or
+// " with zero mean". Decode migrates it: arima.ParseLegacySpec gives the
+// orders and the period; Mean and Drift are read from their own fields as
+// in version 2. A Spec that does not parse is a bad field. A version-1
+// record encodes again as version 2 (no record holds a rendered label any
+// more). state/testdata holds real version-1 records of two fitted series,
+// written by the version-1 code (TestWriteRecordFixtures -write-records);
+// TestDecodeVersion1Records loads them.
 //
 // # Decoding
 //

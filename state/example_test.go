@@ -29,7 +29,7 @@ func ExampleEncode() {
 	fmt.Println(err)
 	// Output:
 	// 245 storage.vol1.used_bytes [7.1e+11 NaN 7.3e+11]
-	// state: corrupt record: CRC mismatch at byte 241 (stored 2815c7ab, computed 2e4b4f16)
+	// state: corrupt record: CRC mismatch at byte 241 (stored bea71c29, computed b8f99494)
 }
 
 func ExampleStore() {

@@ -119,7 +119,9 @@ func randomSnapshot(r *rand.Rand, maxWindow int) *series.Snapshot {
 	}
 	if r.IntN(4) != 0 {
 		s.Model = &series.ModelSnapshot{
-			Spec:     fmt.Sprintf("ARIMA(%d,%d,%d)(%d,1,1)[24]", r.IntN(4), r.IntN(3), r.IntN(4), r.IntN(2)),
+			Order:    [3]int{r.IntN(4), r.IntN(3), r.IntN(4)},
+			Seasonal: [3]int{r.IntN(2), 1, 1},
+			Period:   24,
 			Mean:     r.IntN(2) == 0,
 			Drift:    r.IntN(2) == 0,
 			Params:   randomFloats(r, r.IntN(8)),

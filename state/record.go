@@ -8,12 +8,13 @@ import (
 	"math"
 	"slices"
 
+	"forewarn/engine/arima"
 	"forewarn/engine/series"
 )
 
 // FormatVersion is the record format version Encode writes. Decode reads
 // every version from 1 to FormatVersion.
-const FormatVersion uint16 = 1
+const FormatVersion uint16 = 2
 
 // The envelope, identical in every format version (doc.go).
 var magic = [4]byte{'f', 'w', 's', 'r'}
@@ -31,7 +32,7 @@ var castagnoli = crc32.MakeTable(crc32.Castagnoli)
 
 var le = binary.LittleEndian
 
-// Fixed widths of the v1 payload parts, in bytes.
+// Fixed widths of the payload parts of the current version, in bytes.
 const (
 	strHead   = 4 // uint32 length before a string
 	sliceHead = 4 // uint32 count before a float64 slice
@@ -44,9 +45,9 @@ const (
 		8 + // RefitFailures
 		1 + // Model presence
 		4 // alert count
-	fixedTransform = 8 + 8 + 8 + 8 + 8 + 8     // Lambda, Loc, Scale, RunN, RunMean, RunM2
-	fixedModel     = 1 + 1 + 8 + 8 + 8 + 8 + 8 // Mean, Drift, Sigma2, LogLik, AICc, NObs, FittedAt
-	alertMinLen    = strHead + 1 + 8 + 8       // empty Rule, Raised, Since, Probability
+	fixedTransform = 8 + 8 + 8 + 8 + 8 + 8           // Lambda, Loc, Scale, RunN, RunMean, RunM2
+	fixedModel     = 7*8 + 1 + 1 + 8 + 8 + 8 + 8 + 8 // orders and period, Mean, Drift, Sigma2, LogLik, AICc, NObs, FittedAt
+	alertMinLen    = strHead + 1 + 8 + 8             // empty Rule, Raised, Since, Probability
 )
 
 // EncodedLen returns the number of bytes Encode appends for s.
@@ -55,7 +56,7 @@ func EncodedLen(s *series.Snapshot) int {
 	n += strHead*5 + len(s.Topic) + len(s.Fingerprint) + len(s.Kind) + len(s.Transform.Name) + len(s.LastRefitNote)
 	n += sliceHead + 8*len(s.Window)
 	if m := s.Model; m != nil {
-		n += fixedModel + strHead + len(m.Spec) + 2*sliceHead + 8*(len(m.Params)+len(m.Filter))
+		n += fixedModel + 2*sliceHead + 8*(len(m.Params)+len(m.Filter))
 	}
 	for i := range s.Alerts {
 		n += alertMinLen + len(s.Alerts[i].Rule)
@@ -116,7 +117,9 @@ func Encode(dst []byte, s *series.Snapshot) []byte {
 		dst = append(dst, 0)
 	} else {
 		dst = append(dst, 1)
-		dst = appendString(dst, m.Spec)
+		for _, v := range [...]int{m.Order[0], m.Order[1], m.Order[2], m.Seasonal[0], m.Seasonal[1], m.Seasonal[2], m.Period} {
+			dst = le.AppendUint64(dst, uint64(int64(v)))
+		}
 		dst = appendBool(dst, m.Mean)
 		dst = appendBool(dst, m.Drift)
 		dst = appendFloats(dst, m.Params)
@@ -207,8 +210,8 @@ func Decode(b []byte) (*series.Snapshot, error) {
 		return nil, &CorruptError{Fault: FaultChecksum, Offset: int(n - crcLen), Detail: fmt.Sprintf("stored %08x, computed %08x", want, got)}
 	}
 	switch v := le.Uint16(b[4:6]); v {
-	case 1:
-		return decodeV1(body)
+	case 1, 2:
+		return decodePayload(body, v)
 	default:
 		return nil, &VersionError{What: "record", Found: v, Max: FormatVersion}
 	}
@@ -305,9 +308,10 @@ func (r *reader) floats(what string) []float64 {
 	return v
 }
 
-// decodeV1 parses the version-1 payload; body is the record without its
-// checksum, already verified.
-func decodeV1(body []byte) (*series.Snapshot, error) {
+// decodePayload parses the payload of version 1 or 2; body is the record
+// without its checksum, already verified. The versions differ only in the
+// model's shape (doc.go).
+func decodePayload(body []byte, version uint16) (*series.Snapshot, error) {
 	r := &reader{b: body, off: headerLen}
 	s := &series.Snapshot{}
 	s.Topic = r.str("topic")
@@ -344,9 +348,19 @@ func decodeV1(body []byte) (*series.Snapshot, error) {
 
 	if r.bool("model presence") {
 		m := &series.ModelSnapshot{}
-		m.Spec = r.str("model spec")
+		var legacy string
+		if version == 1 {
+			legacy = r.str("model spec")
+		} else {
+			m.Order = [3]int{r.int("model p"), r.int("model d"), r.int("model q")}
+			m.Seasonal = [3]int{r.int("model P"), r.int("model D"), r.int("model Q")}
+			m.Period = r.int("model period")
+		}
 		m.Mean = r.bool("model mean flag")
 		m.Drift = r.bool("model drift flag")
+		if version == 1 && r.err == nil {
+			migrateSpec(r, m, legacy)
+		}
 		m.Params = r.floats("model params")
 		m.Sigma2 = r.f64("model sigma2")
 		m.LogLik = r.f64("model loglik")
@@ -382,4 +396,20 @@ func decodeV1(body []byte) (*series.Snapshot, error) {
 		return nil, r.err
 	}
 	return s, nil
+}
+
+// migrateSpec sets the model's orders and period from the spec string of a
+// version-1 record (the spelling arima.ParseLegacySpec reads); the mean and
+// drift flags stored beside it stay as they are. A string no version-1
+// encoder wrote is a bad field, at the offset of the string's length.
+func migrateSpec(r *reader, m *series.ModelSnapshot, legacy string) {
+	sp, err := arima.ParseLegacySpec(legacy)
+	if err != nil {
+		r.off -= 2 + 4 + len(legacy) // back to the string's length field
+		r.fail(FaultField, fmt.Sprintf("model spec %q: %v", legacy, err))
+		return
+	}
+	m.Order = [3]int{sp.P, sp.D, sp.Q}
+	m.Seasonal = [3]int{sp.SP, sp.SD, sp.SQ}
+	m.Period = sp.Period
 }

@@ -6,6 +6,7 @@ import (
 	"hash/crc32"
 	"math"
 	"math/rand/v2"
+	"os"
 	"runtime"
 	"testing"
 
@@ -44,7 +45,8 @@ func TestRoundTripEdgeCases(t *testing.T) {
 			OpenValue: nan, Model: &series.ModelSnapshot{Params: []float64{nan}, Filter: []float64{nan, 1}}},
 		"extremes": {Topic: "e", Seq: math.MaxUint64, StepSeconds: math.MinInt64, OpenBucket: math.MaxInt64,
 			WindowEnd: math.MinInt64, SinceRefit: math.MaxInt, Transform: series.TransformSnapshot{RunN: math.MinInt64},
-			Model: &series.ModelSnapshot{NObs: math.MinInt, FittedAt: math.MaxInt64}},
+			Model: &series.ModelSnapshot{NObs: math.MinInt, FittedAt: math.MaxInt64,
+				Order: [3]int{math.MaxInt, -1, math.MinInt}, Seasonal: [3]int{-7, math.MaxInt, 3}, Period: math.MinInt}},
 	}
 	for name, want := range cases {
 		t.Run(name, func(t *testing.T) {
@@ -260,28 +262,56 @@ func FuzzDecode(f *testing.F) {
 			}
 			return
 		}
-		// The encoding is canonical: what decodes re-encodes to the same bytes.
-		if again := Encode(nil, s); !bytes.Equal(again, b) {
-			t.Fatalf("decoded record re-encodes differently (%d vs %d bytes)", len(again), len(b))
-		}
+		checkReencode(t, b, s)
 	})
 }
 
+// checkReencode: the encoding is canonical, so a record of the current
+// version re-encodes to the same bytes; an older record re-encodes as the
+// current version, to a record that decodes to the same snapshot.
+func checkReencode(t *testing.T, b []byte, s *series.Snapshot) {
+	t.Helper()
+	again := Encode(nil, s)
+	if le.Uint16(b[4:6]) == FormatVersion {
+		if !bytes.Equal(again, b) {
+			t.Fatalf("decoded record re-encodes differently (%d vs %d bytes)", len(again), len(b))
+		}
+		return
+	}
+	s2, err := Decode(again)
+	if err != nil {
+		t.Fatalf("an older record re-encoded as version %d does not decode: %v", FormatVersion, err)
+	}
+	if d := diff(s, s2); d != "" {
+		t.Fatalf("an older record re-encoded as version %d decodes differently at %s", FormatVersion, d)
+	}
+}
+
 // FuzzDecodePayload fuzzes the fields behind the checksum: each input is
-// given a valid envelope (magic, version 1, length, CRC-32C) before it is
-// decoded, so the mutations reach the field decoder instead of stopping at
-// the checksum.
+// given a valid envelope (magic, version 1 or the current one, length,
+// CRC-32C) before it is decoded, so the mutations reach the field decoder
+// instead of stopping at the checksum. The seeds are payloads of the
+// current version and of the committed version-1 records.
 func FuzzDecodePayload(f *testing.F) {
 	r := rand.New(rand.NewPCG(17, 18))
 	for range 6 {
 		rec := Encode(nil, randomSnapshot(r, 20))
-		f.Add(rec[headerLen : len(rec)-crcLen])
+		f.Add(false, rec[headerLen:len(rec)-crcLen])
 	}
-	f.Add([]byte{})
-	f.Fuzz(func(t *testing.T, payload []byte) {
+	for _, c := range fixtureCases() {
+		if rec, err := os.ReadFile(v1Path(c.name)); err == nil {
+			f.Add(true, rec[headerLen:len(rec)-crcLen])
+		}
+	}
+	f.Add(false, []byte{})
+	f.Fuzz(func(t *testing.T, v1 bool, payload []byte) {
+		version := FormatVersion
+		if v1 {
+			version = 1
+		}
 		b := make([]byte, 0, envelopeLen+len(payload))
 		b = append(b, magic[:]...)
-		b = le.AppendUint16(b, 1)
+		b = le.AppendUint16(b, version)
 		b = le.AppendUint32(b, 0)
 		b = append(b, payload...)
 		b = reseal(append(b, 0, 0, 0, 0))
@@ -293,9 +323,7 @@ func FuzzDecodePayload(f *testing.F) {
 			}
 			return
 		}
-		if again := Encode(nil, s); !bytes.Equal(again, b) {
-			t.Fatalf("decoded record re-encodes differently (%d vs %d bytes)", len(again), len(b))
-		}
+		checkReencode(t, b, s)
 	})
 }
 
@@ -308,7 +336,7 @@ func window2000() *series.Snapshot {
 	for i := range s.Window {
 		s.Window[i] = 1000 + 10*r.NormFloat64()
 	}
-	s.Model = &series.ModelSnapshot{Spec: "ARIMA(1,1,1)(0,1,1)[24]", Params: []float64{0.4, -0.3, -0.6}, Filter: make([]float64, 26)}
+	s.Model = &series.ModelSnapshot{Order: [3]int{1, 1, 1}, Seasonal: [3]int{0, 1, 1}, Period: 24, Params: []float64{0.4, -0.3, -0.6}, Filter: make([]float64, 26)}
 	s.Alerts = []series.AlertSnapshot{{Rule: "disk-nearly-full"}, {Rule: "orders-dropping"}}
 	return s
 }

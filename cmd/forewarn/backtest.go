@@ -9,6 +9,7 @@ import (
 	"os"
 	"strconv"
 	"strings"
+	"text/tabwriter"
 
 	"golang.org/x/term"
 
@@ -22,26 +23,26 @@ func init() {
 }
 
 // backtestFlags are the flags of `forewarn backtest` (CONTRACT.md §3: those
-// of fit plus --origins).
+// of fit plus --origins and --every).
 type backtestFlags struct {
-	order, seasonal, mean, trans, levels, column, format string
-	period, horizon, origins                             int
+	modelFlags
+	column, format string
+	origins, every int
 }
 
 func runBacktest(args []string, stdout, stderr io.Writer) int {
+	if err := checkRetired(args); err != nil {
+		fmt.Fprintf(stderr, "forewarn backtest: %v\n", err)
+		return exitUsage
+	}
 	fs := flag.NewFlagSet("backtest", flag.ContinueOnError)
 	fs.SetOutput(stderr)
 	var f backtestFlags
-	fs.StringVar(&f.order, "order", "", "non-seasonal order `p,d,q` (absent: chosen automatically at each origin)")
-	fs.StringVar(&f.seasonal, "seasonal", "", "seasonal order `P,D,Q` (needs --period)")
-	fs.IntVar(&f.period, "period", 0, "seasonal period in steps (0 or 1: none)")
-	fs.StringVar(&f.mean, "mean", "auto", "estimate a mean: yes, no or auto (a mean when d+D = 0)")
-	fs.StringVar(&f.trans, "transform", "auto", "auto, none, log, boxcox, boxcox(λ) or scaled-exp")
-	fs.IntVar(&f.horizon, "horizon", 0, "steps ahead (default: the period, or 10 without one)")
-	fs.StringVar(&f.levels, "levels", "80,95", "prediction interval levels in percent")
+	f.register(fs, "auto")
 	fs.StringVar(&f.column, "column", "", "value column (default: the last)")
 	fs.StringVar(&f.format, "format", "table", "table or json")
-	fs.IntVar(&f.origins, "origins", backtest.DefaultOrigins, "the last N possible forecast origins")
+	fs.IntVar(&f.origins, "origins", backtest.DefaultOrigins, "the number of forecast origins")
+	fs.IntVar(&f.every, "every", 1, "steps between origins; the last origin is at n − h")
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: forewarn backtest [flags] FILE")
 		fs.PrintDefaults()
@@ -56,13 +57,18 @@ func runBacktest(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintln(stderr, "forewarn backtest: need exactly one CSV file")
 		return exitUsage
 	}
-	cfg, err := f.config()
+	req, err := f.request()
 	if err != nil {
 		fmt.Fprintf(stderr, "forewarn backtest: %v\n", err)
 		return exitUsage
 	}
 	path := fs.Arg(0)
-	_, y, err := readSeriesCSV(path, f.column)
+	times, y, err := readSeriesCSV(path, f.column)
+	if err != nil {
+		fmt.Fprintf(stderr, "forewarn backtest: %v\n", err)
+		return exitUsage
+	}
+	cfg, err := req.config(times, path)
 	if err != nil {
 		fmt.Fprintf(stderr, "forewarn backtest: %v\n", err)
 		return exitUsage
@@ -83,97 +89,70 @@ func runBacktest(args []string, stdout, stderr io.Writer) int {
 		return exitFailure
 	}
 	if f.format == "json" {
-		if err := writeBacktestJSON(stdout, rep); err != nil {
+		if err := writeBacktestJSON(stdout, rep, cfg.bt.Every); err != nil {
 			fmt.Fprintf(stderr, "forewarn backtest: %v\n", err)
 			return exitFailure
 		}
 		return exitOK
 	}
-	writeBacktestTable(stdout, rep)
+	writeBacktestTable(stdout, rep, cfg)
 	return exitOK
 }
 
-// btConfig is the checked configuration of one backtest.
-type btConfig struct {
-	bt  backtest.Options
-	sel auto.Options // Model is "auto" or a fixed spec
+// btRequest is the checked command line of one backtest, before the file
+// is read.
+type btRequest struct {
+	modelRequest
+	origins, every int
 }
 
-func (f *backtestFlags) config() (*btConfig, error) {
-	var problems []string
-	c := &btConfig{}
+// request checks the flags; it lists every problem.
+func (f *backtestFlags) request() (*btRequest, error) {
+	mr, problems := f.check()
 	if f.format != "table" && f.format != "json" {
 		problems = append(problems, fmt.Sprintf("--format %q: want table or json", f.format))
-	}
-	if f.period < 0 {
-		problems = append(problems, fmt.Sprintf("--period %d is negative", f.period))
 	}
 	if f.origins < 1 {
 		problems = append(problems, fmt.Sprintf("--origins %d: need at least 1", f.origins))
 	}
-	levels, err := parseLevels(f.levels)
-	if err != nil {
-		problems = append(problems, err.Error())
-	}
-	h := f.horizon
-	if h == 0 {
-		h = 10
-		if f.period > 1 {
-			h = f.period
-		}
-	}
-	if h < 1 {
-		problems = append(problems, fmt.Sprintf("--horizon %d: need at least 1", f.horizon))
-	}
-	model, err := f.modelSpec()
-	if err != nil {
-		problems = append(problems, err.Error())
-	}
-	switch f.mean {
-	case "auto", "yes", "no":
-	default:
-		problems = append(problems, fmt.Sprintf("--mean %q: want yes, no or auto", f.mean))
+	if f.every < 1 {
+		problems = append(problems, fmt.Sprintf("--every %d: need at least 1", f.every))
 	}
 	if len(problems) > 0 {
 		return nil, errors.New(strings.Join(problems, "; "))
 	}
-	c.bt = backtest.Options{Horizon: h, Origins: f.origins, Period: f.period, Levels: levels}
-	c.sel = auto.Options{Period: f.period, Transform: f.trans, Model: model, Mean: f.mean}
-	return c, nil
+	return &btRequest{modelRequest: *mr, origins: f.origins, every: f.every}, nil
 }
 
-// modelSpec turns --order/--seasonal/--period into a spec string, or
-// "auto" without --order.
-func (f *backtestFlags) modelSpec() (string, error) {
-	if f.order == "" {
-		if f.seasonal != "" {
-			return "", errors.New("--seasonal needs --order")
-		}
-		return "auto", nil
-	}
-	s := "ARIMA(" + f.order + ")"
-	if f.seasonal != "" {
-		if f.period < 2 {
-			return "", errors.New("--seasonal needs --period of at least 2")
-		}
-		s += "(" + f.seasonal + ")[" + strconv.Itoa(f.period) + "]"
-	}
-	if _, err := arima.ParseSpec(s); err != nil {
-		return "", fmt.Errorf("--order/--seasonal: %w", err)
-	}
-	return s, nil
+// btConfig is the checked configuration of one backtest.
+type btConfig struct {
+	bt     backtest.Options
+	sel    auto.Options // Model is "auto" or fixed orders
+	period int          // the seasonal period in steps, 0 without one
+	label  string       // the model asked for, for the table
 }
 
-func parseLevels(s string) ([]float64, error) {
-	var out []float64
-	for _, p := range strings.Split(s, ",") {
-		v, err := strconv.ParseFloat(strings.TrimSpace(p), 64)
-		if err != nil || !(v > 0 && v < 100) {
-			return nil, fmt.Errorf("--levels %q: each level must be a number in (0, 100)", s)
-		}
-		out = append(out, v)
+// config resolves the seasonal cycle against the file's times and builds
+// the options of the backtest and of the model choice at each origin.
+func (r *btRequest) config(times []string, file string) (*btConfig, error) {
+	period, err := r.period(times, file)
+	if err != nil {
+		return nil, err
 	}
-	return out, nil
+	label := "automatic choice"
+	if r.fixed() {
+		spec, err := explicitSpec(r.modelRequest, period)
+		if err != nil {
+			return nil, err
+		}
+		label = spec.Label()
+	}
+	return &btConfig{
+		bt:     backtest.Options{Horizon: r.horizon, Origins: r.origins, Every: r.every, Period: period, Levels: r.levels},
+		sel:    auto.Options{Period: period, Transform: r.transform, Model: r.model, Constant: r.constant},
+		period: period,
+		label:  label,
+	}, nil
 }
 
 // forecaster fits at each origin (automatic choice unless the order is
@@ -233,6 +212,7 @@ type btScores struct {
 
 type btJSON struct {
 	Origins  int                  `json:"origins"`
+	Every    int                  `json:"every"`
 	Horizon  int                  `json:"horizon"`
 	MASE     jsonFloat            `json:"mase"`
 	SMAPE    jsonFloat            `json:"smape"`
@@ -242,9 +222,9 @@ type btJSON struct {
 	Errors   int                  `json:"errors"`
 }
 
-func writeBacktestJSON(w io.Writer, r *backtest.Report) error {
+func writeBacktestJSON(w io.Writer, r *backtest.Report, every int) error {
 	out := btJSON{
-		Origins: r.Origins, Horizon: r.Horizon,
+		Origins: r.Origins, Every: every, Horizon: r.Horizon,
 		MASE: jsonFloat(r.Model.MASE), SMAPE: jsonFloat(r.Model.SMAPE),
 		Coverage: map[string]jsonFloat{},
 		Baseline: map[string]btScores{"seasonal_naive": {jsonFloat(r.Baseline.MASE), jsonFloat(r.Baseline.SMAPE)}},
@@ -257,16 +237,23 @@ func writeBacktestJSON(w io.Writer, r *backtest.Report) error {
 	return enc.Encode(out)
 }
 
-func writeBacktestTable(w io.Writer, r *backtest.Report) {
-	fmt.Fprintf(w, "origins %d, horizon %d, %d errors scored", r.Origins, r.Horizon, r.Errors)
+// writeBacktestTable prints the scores for a person: what was evaluated,
+// the model's and the baseline's scores side by side, and how often each
+// band held the actual value against how often it should.
+func writeBacktestTable(w io.Writer, r *backtest.Report, c *btConfig) {
+	fmt.Fprintf(w, "%s, transform %s: %d origins %d step(s) apart, %d steps ahead, %d errors scored\n",
+		c.label, c.sel.Transform, r.Origins, c.bt.Every, r.Horizon, r.Errors)
 	if r.Failed > 0 {
-		fmt.Fprintf(w, ", %d origins failed (last: %s)", r.Failed, r.LastErr)
+		fmt.Fprintf(w, "%d origins failed (last: %s)\n", r.Failed, r.LastErr)
 	}
 	fmt.Fprintln(w)
-	fmt.Fprintf(w, "%-16s %8s %8s\n", "", "MASE", "sMAPE %")
-	fmt.Fprintf(w, "%-16s %8.4f %8.3f\n", "model", r.Model.MASE, r.Model.SMAPE)
-	fmt.Fprintf(w, "%-16s %8.4f %8.3f\n", "seasonal naive", r.Baseline.MASE, r.Baseline.SMAPE)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "\tMASE\tsMAPE %\t")
+	fmt.Fprintf(tw, "model\t%.4f\t%.3f\t\n", r.Model.MASE, r.Model.SMAPE)
+	fmt.Fprintf(tw, "seasonal naive\t%.4f\t%.3f\t\n", r.Baseline.MASE, r.Baseline.SMAPE)
+	tw.Flush()
+	fmt.Fprintln(w)
 	for i, l := range r.Levels {
-		fmt.Fprintf(w, "coverage %s%%: %.1f%%\n", levelKey(l), 100*r.Coverage[i])
+		fmt.Fprintf(w, "%s%% band held the actual value %.1f%% of the time\n", levelKey(l), 100*r.Coverage[i])
 	}
 }

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -52,8 +53,17 @@ func TestBacktestAccuracy(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		f := backtestFlags{period: c.period, horizon: c.horizon, origins: origins, levels: "80,95", mean: "auto", trans: "auto", format: "table"}
-		cfg, err := f.config()
+		seasons := ""
+		if c.period > 1 {
+			seasons = strconv.Itoa(c.period)
+		}
+		f := backtestFlags{modelFlags: modelFlags{model: "auto", seasons: seasons, constant: "auto", transform: "auto",
+			levels: "80,95", horizon: c.horizon}, origins: origins, every: 1, format: "table"}
+		req, err := f.request()
+		if err != nil {
+			t.Fatal(err)
+		}
+		cfg, err := req.config(nil, c.name)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -89,7 +99,7 @@ func TestBacktestAccuracy(t *testing.T) {
 // JSON shape; stderr is not a terminal, so no progress bar is drawn.
 func TestBacktestCommandJSON(t *testing.T) {
 	var out, errb bytes.Buffer
-	code := runBacktest([]string{"--order", "0,1,1", "--seasonal", "0,1,1", "--period", "12",
+	code := runBacktest([]string{"--model", "0,1,1 x 0,1,1", "--seasons", "12", "--levels", "80,95",
 		"--transform", "none", "--horizon", "6", "--origins", "8", "--format", "json", datasetPath("USAccDeaths")}, &out, &errb)
 	if code != exitOK {
 		t.Fatalf("exit %d, stderr %q", code, errb.String())
@@ -97,16 +107,11 @@ func TestBacktestCommandJSON(t *testing.T) {
 	if errb.Len() != 0 {
 		t.Errorf("stderr not empty when piped: %q", errb.String())
 	}
-	var got struct {
-		Origins, Horizon int
-		MASE, SMAPE      *float64
-		Coverage         map[string]*float64
-		Baseline         map[string]map[string]*float64
-	}
+	var got btDoc
 	if err := json.Unmarshal(out.Bytes(), &got); err != nil {
 		t.Fatalf("%v: %s", err, out.String())
 	}
-	if got.Origins != 8 || got.Horizon != 6 || got.MASE == nil || got.SMAPE == nil ||
+	if got.Origins != 8 || got.Horizon != 6 || got.MASE == nil || got.SMAPE == nil || len(got.Coverage) != 2 ||
 		got.Coverage["80"] == nil || got.Coverage["95"] == nil ||
 		got.Baseline["seasonal_naive"]["mase"] == nil || got.Baseline["seasonal_naive"]["smape"] == nil {
 		t.Errorf("JSON lacks contract fields: %s", out.String())
@@ -131,6 +136,64 @@ func TestBacktestCommandJSON(t *testing.T) {
 	}
 }
 
+// btDoc is the backtest JSON of CONTRACT.md §3.
+type btDoc struct {
+	Origins, Every, Horizon int
+	MASE, SMAPE             *float64
+	Coverage                map[string]*float64
+	Baseline                map[string]map[string]*float64
+}
+
+// The coverage keys are the levels asked for, 50 and 90 by default
+// (CONTRACT revision 2, §3); with --every the origins lie that many steps
+// apart, so the seasonal-naive baseline of the command equals the one
+// engine/backtest computes for those origins (the scores of Hyndman &
+// Koehler 2006 on R's Nile series, a series without a season).
+func TestBacktestDefaultsAndEvery(t *testing.T) {
+	var out, errb bytes.Buffer
+	code := runBacktest([]string{"--model", "1,1,1", "--transform", "none", "--origins", "5", "--every", "7",
+		"--format", "json", datasetPath("Nile")}, &out, &errb)
+	if code != exitOK {
+		t.Fatalf("exit %d, stderr %q", code, errb.String())
+	}
+	var got btDoc
+	if err := json.Unmarshal(out.Bytes(), &got); err != nil {
+		t.Fatalf("%v: %s", err, out.String())
+	}
+	if got.Origins != 5 || got.Every != 7 || got.Horizon != 24 || len(got.Coverage) != 2 ||
+		got.Coverage["50"] == nil || got.Coverage["90"] == nil || *got.Coverage["50"] > *got.Coverage["90"] {
+		t.Errorf("JSON %s: want 5 origins 7 apart, horizon 24, coverage at 50 and 90", out.String())
+	}
+	_, y, _ := readSeriesCSV(datasetPath("Nile"), "")
+	nf := func(train []float64, h int, levels []float64) (backtest.Forecast, error) {
+		fc := backtest.Forecast{Mean: make([]float64, h)}
+		backtest.SeasonalNaive(fc.Mean, train, 1)
+		for range levels {
+			fc.Lower, fc.Upper = append(fc.Lower, fc.Mean), append(fc.Upper, fc.Mean)
+		}
+		return fc, nil
+	}
+	r, err := backtest.Run(y, backtest.Options{Horizon: 24, Origins: 5, Every: 7}, nf, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b := *got.Baseline["seasonal_naive"]["mase"]; math.Abs(b-r.Model.MASE) > 1e-12 {
+		t.Errorf("baseline MASE %v, naive scored directly at the same origins %v", b, r.Model.MASE)
+	}
+
+	out.Reset()
+	if code := runBacktest([]string{"--model", "1,1,1", "--transform", "none", "--origins", "5", "--every", "7",
+		datasetPath("Nile")}, &out, &errb); code != exitOK {
+		t.Fatalf("table: exit %d, stderr %q", code, errb.String())
+	}
+	for _, w := range []string{"ARIMA 1,1,1, transform none: 5 origins 7 step(s) apart, 24 steps ahead", "seasonal naive",
+		"50% band held the actual value", "90% band held the actual value"} {
+		if !strings.Contains(out.String(), w) {
+			t.Errorf("table lacks %q:\n%s", w, out.String())
+		}
+	}
+}
+
 func TestBacktestCommandErrors(t *testing.T) {
 	cases := []struct {
 		args []string
@@ -141,8 +204,15 @@ func TestBacktestCommandErrors(t *testing.T) {
 		{[]string{"--format", "xml", datasetPath("Nile")}, exitUsage, "--format"},
 		{[]string{"--origins", "0", datasetPath("Nile")}, exitUsage, "--origins"},
 		{[]string{"--levels", "80,120", datasetPath("Nile")}, exitUsage, "--levels"},
-		{[]string{"--seasonal", "0,1,1", datasetPath("Nile")}, exitUsage, "--seasonal needs --order"},
-		{[]string{"--order", "1,x,0", datasetPath("Nile")}, exitUsage, "--order"},
+		{[]string{"--seasonal", "0,1,1", datasetPath("Nile")}, exitUsage, `--seasonal was renamed: use --model "p,d,q x P,D,Q"`},
+		{[]string{"--order", "1,1,0", datasetPath("Nile")}, exitUsage, `--order was renamed: use --model "p,d,q"`},
+		{[]string{"--period", "12", "--mean", "no", datasetPath("Nile")}, exitUsage, "--period was renamed: use --seasons; --mean was renamed: use --constant"},
+		{[]string{"--model", "1,x,0", datasetPath("Nile")}, exitUsage, "--model"},
+		{[]string{"--model", "ARIMA(1,1,0)", datasetPath("Nile")}, exitUsage, `old spelling; use --model "1,1,0"`},
+		{[]string{"--model", "0,1,1 x 0,1,1", datasetPath("Nile")}, exitUsage, "--seasons"},
+		{[]string{"--every", "0", datasetPath("Nile")}, exitUsage, "--every"},
+		{[]string{"--every", "30", "--origins", "5", datasetPath("Nile")}, exitUsage, "too short"},
+		{[]string{"--seasons", "1d", datasetPath("Nile")}, exitUsage, "1d is 86400 steps, more than 1000"},
 		{[]string{"--origins", "200", datasetPath("Nile")}, exitUsage, "too short"},
 		{[]string{filepath.Join(t.TempDir(), "absent.csv")}, exitUsage, "absent.csv"},
 	}
@@ -171,34 +241,26 @@ func TestDrawBar(t *testing.T) {
 // arima package's acceptance).
 func TestFitAutomatic(t *testing.T) {
 	var out, errb bytes.Buffer
-	code := runFit([]string{"--period", "12", "--horizon", "2", "--format", "json", datasetPath("USAccDeaths")}, &out, &errb)
+	code := runFit([]string{"--seasons", "12", "--horizon", "2", "--format", "json", datasetPath("USAccDeaths")}, &out, &errb)
 	if code != exitOK {
 		t.Fatalf("exit %d: %s", code, errb.String())
 	}
-	var got struct {
-		Model      struct{ Spec string }
-		LogLik     float64
-		AICc       float64
-		Candidates []struct {
-			Spec, Transform, Rejected string
-			AICc                      *float64
-		}
-	}
+	var got fitDoc
 	if err := json.Unmarshal(out.Bytes(), &got); err != nil {
 		t.Fatal(err)
 	}
-	if got.Model.Spec != "ARIMA(0,1,1)(0,1,1)[12]" || math.Abs(got.LogLik-(-425.44)) > 0.01 {
-		t.Errorf("chose %s loglik %.3f; R: ARIMA(0,1,1)(0,1,1)[12], −425.44", got.Model.Spec, got.LogLik)
+	if got.Model.Label != "ARIMA 0,1,1 × 0,1,1 s=12" || math.Abs(got.LogLikelihood-(-425.44)) > 0.01 {
+		t.Errorf("chose %s log_likelihood %.3f; R: (0,1,1)×(0,1,1) period 12, −425.44", got.Model.Label, got.LogLikelihood)
 	}
 	found := false
 	for _, c := range got.Candidates {
-		if c.AICc == nil && c.Rejected == "" {
-			t.Errorf("candidate %s has neither AICc nor a reason", c.Spec)
+		if (c.AICc == nil) != (c.Status == "rejected") || (c.Reason == "") != (c.Status == "fitted") {
+			t.Errorf("candidate %+v: an AICc without a reason, or a reason without a rejection", c)
 		}
 		if c.AICc != nil && *c.AICc < got.AICc-1e-6 {
-			t.Errorf("candidate %s AICc %.4f beats the choice %.4f", c.Spec, *c.AICc, got.AICc)
+			t.Errorf("candidate %s AICc %.4f beats the choice %.4f", c.Label, *c.AICc, got.AICc)
 		}
-		found = found || c.Spec == got.Model.Spec
+		found = found || c.Chosen && c.Label == got.Model.Label
 	}
 	if !found || len(got.Candidates) < 4 {
 		t.Errorf("candidates %+v lack the choice or the starting models", got.Candidates)

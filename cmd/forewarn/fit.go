@@ -8,7 +8,6 @@ import (
 	"io"
 	"math"
 	"path/filepath"
-	"sort"
 	"strconv"
 	"strings"
 	"text/tabwriter"
@@ -26,25 +25,30 @@ func init() {
 const fitUsageText = `usage: forewarn fit [flags] FILE
 
 Fits a seasonal ARIMA model to one series of a CSV file (header row; the
-value column is --column NAME, else the last column; an empty cell, NA or NaN
-is a missing value) by exact maximum likelihood and forecasts it.
+value column is --column NAME, else the last column; the first column of a
+file with more than one holds the times, RFC 3339 or Unix seconds; an empty
+cell, NA or NaN is a missing value) by exact maximum likelihood and
+forecasts it.
 
 flags (before or after FILE):
-  --order p,d,q        non-seasonal orders (absent: chosen automatically)
-  --seasonal P,D,Q     seasonal orders, with --order (default 0,0,0)
-  --period s           seasonal period (required with --seasonal)
-  --mean yes|no|auto   estimate a mean; auto: a mean when d+D = 0. With d+D = 1,
-                       yes estimates the mean of the differenced series (a drift)
+  --model M            auto (the default: orders chosen by a stepwise AICc
+                       search), "p,d,q" or "p,d,q x P,D,Q" (fixed orders)
+  --seasons LIST       the seasonal cycle: a duration such as 1d or 12h,
+                       which needs a time column or --step, or a whole number
+                       of steps such as 12. One cycle in this release
+  --step DURATION      the spacing of the rows (instead of the time column)
+  --constant C         auto (a mean when d+D = 0, else none; the search tries
+                       both), none, mean (needs d+D = 0) or drift (d+D = 1)
   --transform NAME     none | log | boxcox | boxcox(λ) | scaled-exp | auto
                        (default none, so that the fit is that of the values as
                        they are). boxcox without λ takes Guerrero's λ; auto
-                       chooses by the AICc on the raw scale. The fit, its
-                       loglik, aic and se are on the transformed scale; mean,
-                       median and the bands are in raw units (mean
-                       bias-adjusted; a bound outside the inverse's domain is
-                       null in JSON, - in the table)
-  --horizon h          forecast steps (default 10)
-  --levels L1,L2       prediction interval levels in percent (default 80,95)
+                       chooses by the AICc on the raw scale. The fit and sd
+                       are on the transformed scale; mean, median and the
+                       bands are in raw units (mean bias-adjusted; a bound
+                       outside the inverse's domain is null in JSON, "open"
+                       in the table)
+  --horizon h          forecast steps (default 24)
+  --levels L1,L2       prediction interval levels in percent (default 50,90)
   --format table|json  output format (default table)
   --column NAME        value column
   --plot FILE          also draw the history, median forecast and bands to
@@ -53,16 +57,11 @@ flags (before or after FILE):
 
 // fitRequest is what the user asked for.
 type fitRequest struct {
-	order, seasonal []int // nil when not given
-	period          int
-	mean            string
-	transform       string
-	horizon         int
-	levels          []float64
-	format          string
-	column          string
-	plot            string // chart file, "" for none
-	file            string
+	modelRequest
+	format string
+	column string
+	plot   string // chart file, "" for none
+	file   string
 }
 
 // usageError marks a problem with the command line or the input file
@@ -105,20 +104,18 @@ func runFit(args []string, stdout, stderr io.Writer) int {
 		}
 		return exitOK
 	}
-	writeFitTable(stdout, out, req.levels)
+	writeFitTable(stdout, out, filepath.Base(req.file))
 	return exitOK
 }
 
 func parseFitArgs(args []string) (req fitRequest, help bool, err error) {
+	if err := checkRetired(args); err != nil {
+		return req, false, err
+	}
 	fs := flag.NewFlagSet("fit", flag.ContinueOnError)
 	fs.SetOutput(io.Discard)
-	order := fs.String("order", "", "")
-	seasonal := fs.String("seasonal", "", "")
-	fs.IntVar(&req.period, "period", 0, "")
-	fs.StringVar(&req.mean, "mean", "auto", "")
-	fs.StringVar(&req.transform, "transform", "none", "")
-	fs.IntVar(&req.horizon, "horizon", 10, "")
-	levels := fs.String("levels", "80,95", "")
+	var mf modelFlags
+	mf.register(fs, "none")
 	fs.StringVar(&req.format, "format", "table", "")
 	fs.StringVar(&req.column, "column", "", "")
 	fs.StringVar(&req.plot, "plot", "", "")
@@ -141,95 +138,46 @@ func parseFitArgs(args []string) (req fitRequest, help bool, err error) {
 		pos = append(pos, args[0])
 		args = args[1:]
 	}
+	mr, probs := mf.check()
 	if len(pos) != 1 {
-		return req, false, fmt.Errorf("want exactly one FILE, got %d arguments", len(pos))
+		probs = append(probs, fmt.Sprintf("want exactly one FILE, got %d arguments", len(pos)))
+	} else {
+		req.file = pos[0]
 	}
-	req.file = pos[0]
-	if *order != "" {
-		if req.order, err = parseTriple("--order", *order); err != nil {
-			return req, false, err
-		}
-	}
-	if *seasonal != "" {
-		if req.order == nil {
-			return req, false, fmt.Errorf("--seasonal %q needs --order (without --order the model is chosen automatically)", *seasonal)
-		}
-		if req.seasonal, err = parseTriple("--seasonal", *seasonal); err != nil {
-			return req, false, err
-		}
-	}
-	switch req.mean {
-	case "yes", "no", "auto":
-	default:
-		return req, false, fmt.Errorf("--mean %q: want yes, no or auto", req.mean)
-	}
-	if req.transform != "auto" {
-		if _, err := transform.Parse(req.transform); err != nil {
-			return req, false, fmt.Errorf("--transform %q: want none, log, boxcox, boxcox(λ), scaled-exp or auto", req.transform)
-		}
-	}
-	if req.horizon < 1 || req.horizon > 100000 {
-		return req, false, fmt.Errorf("--horizon %d: want a positive number of steps", req.horizon)
-	}
-	for _, s := range strings.Split(*levels, ",") {
-		v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
-		if err != nil || !(v > 0 && v < 100) {
-			return req, false, fmt.Errorf("--levels %q: want percentages between 0 and 100, e.g. 80,95", *levels)
-		}
-		req.levels = append(req.levels, v)
-	}
-	sort.Float64s(req.levels)
 	switch req.format {
 	case "table", "json":
 	default:
-		return req, false, fmt.Errorf("--format %q: want table or json", req.format)
+		probs = append(probs, fmt.Sprintf("--format %q: want table or json", req.format))
 	}
 	if req.plot != "" {
 		if _, err := chart.FormatOf(req.plot); err != nil {
-			return req, false, fmt.Errorf("--plot %q: want a file name ending in .svg or .png", req.plot)
+			probs = append(probs, fmt.Sprintf("--plot %q: want a file name ending in .svg or .png", req.plot))
 		}
+	}
+	req.modelRequest = *mr
+	if len(probs) > 0 {
+		return req, false, errors.New(strings.Join(probs, "; "))
 	}
 	return req, false, nil
 }
 
-func parseTriple(flagName, s string) ([]int, error) {
-	parts := strings.Split(s, ",")
-	if len(parts) != 3 {
-		return nil, fmt.Errorf("%s %q: want three comma-separated orders, e.g. 1,1,1", flagName, s)
-	}
-	out := make([]int, 3)
-	for i, p := range parts {
-		v, err := strconv.Atoi(strings.TrimSpace(p))
-		if err != nil || v < 0 {
-			return nil, fmt.Errorf("%s %q: orders must be non-negative integers", flagName, s)
-		}
-		out[i] = v
-	}
-	return out, nil
-}
-
 // fitChoice is the model-choice step:
-//   - without --order, engine/auto chooses the order (and the transform with
-//     --transform auto) and its fit is kept as it is, so that the printed
-//     log-likelihood and AICc are those of the chosen model;
-//   - with --order and --transform auto, engine/auto chooses only the
-//     transform, the spec fixed;
-//   - with --order and a fixed transform, the spec is fitted directly
+//   - with --model auto, engine/auto chooses the orders (and the transform
+//     with --transform auto) and its fit is kept as it is, so that the
+//     printed log-likelihood and AICc are those of the chosen model;
+//   - with fixed orders and --transform auto, engine/auto chooses only the
+//     transform;
+//   - with fixed orders and a fixed transform, the model is fitted directly
 //     (no candidate is rejected: the user asked for this model).
-func fitChoice(raw []float64, req fitRequest) (*auto.Choice, error) {
-	if req.order == nil {
-		return selectModel(raw, req, auto.Options{Period: req.period, Transform: req.transform, Mean: req.mean})
+func fitChoice(raw []float64, period int, req fitRequest) (*auto.Choice, error) {
+	if !req.fixed() || req.transform == "auto" {
+		return selectModel(raw, req, auto.Options{Period: period, Transform: req.transform, Model: req.model, Constant: req.constant})
 	}
-	spec, err := explicitSpec(req)
+	spec, err := explicitSpec(req.modelRequest, period)
 	if err != nil {
 		return nil, err
 	}
-	if req.transform == "auto" {
-		// The spec string carries the constant (a mean, a drift or "with
-		// zero mean"), so Mean "auto" keeps it as given.
-		return selectModel(raw, req, auto.Options{Period: req.period, Transform: "auto", Model: spec.String(), Mean: "auto"})
-	}
-	tr, err := fixedTransform(raw, req)
+	tr, err := fixedTransform(raw, period, req)
 	if err != nil {
 		return nil, err
 	}
@@ -269,7 +217,7 @@ func inputOrRuntime(file string, err error) error {
 // fixedTransform is the --transform of the request made ready for raw: a
 // boxcox without λ gets Guerrero's λ on [−1, 2] (subseries of one period,
 // at least 2, as engine/auto chooses it), a scaled-exp its frozen z-score.
-func fixedTransform(raw []float64, req fitRequest) (transform.Transform, error) {
+func fixedTransform(raw []float64, period int, req fitRequest) (transform.Transform, error) {
 	tr, err := transform.Parse(req.transform)
 	if err != nil {
 		return tr, usageError{err}
@@ -280,7 +228,7 @@ func fixedTransform(raw []float64, req fitRequest) (transform.Transform, error) 
 				return tr, badUsage("%s: observation %d: %v: boxcox needs values > 0", req.file, i+1, x)
 			}
 		}
-		lam, err := transform.Guerrero(raw, max(req.period, 2), -1, 2)
+		lam, err := transform.Guerrero(raw, max(period, 2), -1, 2)
 		if err != nil {
 			return tr, usageError{fmt.Errorf("%s: choosing the Box-Cox λ: %w", req.file, err)}
 		}
@@ -303,86 +251,94 @@ func forwardSeries(tr transform.Transform, raw []float64, file string) ([]float6
 	return w, nil
 }
 
-// explicitSpec turns the --order/--seasonal/--period/--mean flags into a
-// validated specification.
-func explicitSpec(req fitRequest) (arima.Spec, error) {
-	s := arima.Spec{P: req.order[0], D: req.order[1], Q: req.order[2]}
-	if req.seasonal != nil {
-		s.SP, s.SD, s.SQ = req.seasonal[0], req.seasonal[1], req.seasonal[2]
-		if req.period == 0 && s.SP+s.SD+s.SQ > 0 {
-			return s, badUsage("--seasonal %d,%d,%d needs --period s", s.SP, s.SD, s.SQ)
+// explicitSpec is the validated specification of fixed orders, the period
+// of their seasonal part and the constant.
+func explicitSpec(r modelRequest, period int) (arima.Spec, error) {
+	if !r.seasonal {
+		period = 0
+	}
+	s, err := arima.NewSpec(r.ord, r.sord, period, r.constant)
+	if err != nil {
+		var se *arima.SpecError
+		if errors.As(err, &se) && (se.Field == "mean" || se.Field == "drift") {
+			return s, badUsage("--constant %s with --model %q: %s", r.constant, r.model, se.Reason)
 		}
-	}
-	if req.period != 0 {
-		s.Period = req.period
-	}
-	nd := s.D + s.SD
-	switch req.mean {
-	case "auto":
-		s.Mean = nd == 0
-	case "yes":
-		switch nd {
-		case 0:
-			s.Mean = true
-		case 1:
-			s.Drift = true
-		default:
-			return s, badUsage("--mean yes with d+D = %d: a mean or drift needs d+D of 0 or 1", nd)
-		}
-	}
-	if err := s.Validate(); err != nil {
-		return s, usageError{err}
+		return s, usageError{fmt.Errorf("--model %q: %w", r.model, err)}
 	}
 	return s, nil
 }
 
-// fitOutput is the JSON document of CONTRACT.md §3 (plus converged/note).
+// fitOutput is the JSON document of CONTRACT.md §3, plus note and, for an
+// automatic choice, the candidates tried.
 type fitOutput struct {
-	Model     fitModel      `json:"model"`
-	Coef      fitCoef       `json:"coef"`
-	Sigma2    float64       `json:"sigma2"`
-	LogLik    float64       `json:"loglik"`
-	AIC       float64       `json:"aic"`
-	AICc      jsonFloat     `json:"aicc"`
-	BIC       float64       `json:"bic"`
-	NObs      int           `json:"nobs"`
-	Converged bool          `json:"converged"`
-	Note      string        `json:"note,omitempty"`
-	Forecast  []fitForecast `json:"forecast"`
-	// Candidates are the fits the automatic choice tried (without --order).
+	Model              fitModel      `json:"model"`
+	Estimates          fitTerms      `json:"estimates"`
+	StdErrors          fitTerms      `json:"std_errors"`
+	InnovationVariance float64       `json:"innovation_variance"`
+	LogLikelihood      float64       `json:"log_likelihood"`
+	AIC                float64       `json:"aic"`
+	AICc               jsonFloat     `json:"aicc"`
+	BIC                float64       `json:"bic"`
+	ObservationsUsed   int           `json:"observations_used"`
+	Converged          bool          `json:"converged"`
+	Note               string        `json:"note,omitempty"`
+	Forecast           []fitForecast `json:"forecast"`
+	// Candidates are the fits the automatic choice tried, in order.
 	Candidates []fitCandidate `json:"candidates,omitempty"`
 
-	coefSE []float64
 	spec   arima.Spec
+	levels []float64
 	times  []string  // CSV time column, nil without one
 	values []float64 // raw series
 }
 
 type fitModel struct {
-	Spec      string `json:"spec"`
-	Order     [3]int `json:"order"`
-	Seasonal  [3]int `json:"seasonal"`
-	Period    int    `json:"period"`
-	Mean      bool   `json:"mean"`
-	Transform string `json:"transform"`
+	Label         string      `json:"label"`
+	ARIMA         [3]int      `json:"arima"`
+	SeasonalARIMA [3]int      `json:"seasonal_arima"`
+	Seasons       []fitSeason `json:"seasons"`
+	Constant      string      `json:"constant"`
+	Transform     string      `json:"transform"`
 }
 
-type fitCoef struct {
-	AR    []float64  `json:"ar"`
-	MA    []float64  `json:"ma"`
-	SAR   []float64  `json:"sar"`
-	SMA   []float64  `json:"sma"`
-	Mean  *jsonFloat `json:"mean"`
-	Drift *jsonFloat `json:"drift"`
+// fitSeason is one seasonal cycle of the model and the terms that carry it.
+type fitSeason struct {
+	Steps int    `json:"steps"`
+	Terms string `json:"terms"` // "arima": the seasonal orders
+}
+
+// fitTerms holds one number per estimated term: the estimates, or their
+// standard errors. mean and drift are null when not estimated.
+type fitTerms struct {
+	Phi           []jsonFloat     `json:"phi"`
+	Theta         []jsonFloat     `json:"theta"`
+	SeasonalPhi   []jsonFloat     `json:"seasonal_phi"`
+	SeasonalTheta []jsonFloat     `json:"seasonal_theta"`
+	Mean          *jsonFloat      `json:"mean"`
+	Drift         *jsonFloat      `json:"drift"`
+	Regression    []fitRegression `json:"regression"`
+}
+
+// fitRegression is one other estimated term (none are estimated yet).
+type fitRegression struct {
+	Name  string    `json:"name"`
+	Value jsonFloat `json:"value"`
 }
 
 type fitForecast struct {
-	H      int                  `json:"h"`
-	Mean   jsonFloat            `json:"mean"`
-	Median jsonFloat            `json:"median"`
-	SE     jsonFloat            `json:"se"`
-	Lower  map[string]jsonFloat `json:"lower"`
-	Upper  map[string]jsonFloat `json:"upper"`
+	H      int       `json:"h"`
+	Mean   jsonFloat `json:"mean"`
+	Median jsonFloat `json:"median"`
+	SD     jsonFloat `json:"sd"`
+	Bands  []fitBand `json:"bands"`
+}
+
+// fitBand is the central prediction interval at one level, in raw units;
+// an unbounded side is null.
+type fitBand struct {
+	Level float64   `json:"level"`
+	Low   jsonFloat `json:"low"`
+	High  jsonFloat `json:"high"`
 }
 
 // jsonFloat encodes NaN and ±Inf as null (JSON has neither).
@@ -404,7 +360,11 @@ func fitFile(req fitRequest) (*fitOutput, error) {
 	if err != nil {
 		return nil, usageError{err}
 	}
-	ch, err := fitChoice(raw, req)
+	period, err := req.period(times, req.file)
+	if err != nil {
+		return nil, err
+	}
+	ch, err := fitChoice(raw, period, req)
 	if err != nil {
 		return nil, err
 	}
@@ -422,7 +382,13 @@ func fitFile(req fitRequest) (*fitOutput, error) {
 	f.Forecast(mean, variance)
 	out := buildFitOutput(ch.Result, ch.Transform, mean, variance, req.levels)
 	for _, c := range ch.Tried {
-		out.Candidates = append(out.Candidates, fitCandidate{c.Spec, c.Transform, jsonFloat(c.AICc), c.Err})
+		fc := fitCandidate{Label: c.Spec.Label(), Orders: c.Spec.Orders(), Constant: c.Spec.ConstantName(),
+			Transform: c.Transform, AICc: jsonFloat(c.AICc), Status: "fitted", Reason: c.Err}
+		if c.Err != "" {
+			fc.Status = "rejected"
+		}
+		fc.Chosen = c.Err == "" && c.Spec == ch.Spec && c.Transform == ch.Transform.String()
+		out.Candidates = append(out.Candidates, fc)
 	}
 	out.times, out.values = times, raw
 	return out, nil
@@ -434,15 +400,15 @@ func fitFile(req fitRequest) (*fitOutput, error) {
 // such as an unwritable path, is a runtime failure.
 func writePlot(req fitRequest, out *fitOutput) error {
 	o := chart.Offline{
-		Title:  fmt.Sprintf("%s: %s, transform %s", filepath.Base(req.file), out.Model.Spec, out.Model.Transform),
+		Title:  fmt.Sprintf("%s: %s, transform %s", filepath.Base(req.file), out.Model.Label, out.Model.Transform),
 		Times:  out.times,
 		Values: out.values,
 		Levels: req.levels,
 	}
 	for _, fc := range out.Forecast {
-		lo, hi := make([]float64, len(req.levels)), make([]float64, len(req.levels))
-		for i, l := range req.levels {
-			lo[i], hi[i] = float64(fc.Lower[levelKey(l)]), float64(fc.Upper[levelKey(l)])
+		lo, hi := make([]float64, len(fc.Bands)), make([]float64, len(fc.Bands))
+		for i, b := range fc.Bands {
+			lo[i], hi[i] = float64(b.Low), float64(b.High)
 		}
 		o.Median = append(o.Median, float64(fc.Median))
 		o.Lower = append(o.Lower, lo)
@@ -461,133 +427,210 @@ func writePlot(req fitRequest, out *fitOutput) error {
 	return nil
 }
 
-// fitCandidate is one model the automatic choice tried (AICc on the raw
-// scale; rejected ones carry the reason).
+// fitCandidate is one model the automatic choice tried: its label and
+// orders, the transform, the AICc on the raw scale (null when rejected),
+// whether it was fitted or rejected and why, and whether it was chosen.
 type fitCandidate struct {
-	Spec      string    `json:"spec"`
+	Label     string    `json:"label"`
+	Orders    string    `json:"orders"`
+	Constant  string    `json:"constant"`
 	Transform string    `json:"transform"`
 	AICc      jsonFloat `json:"aicc"`
-	Rejected  string    `json:"rejected,omitempty"`
+	Status    string    `json:"status"` // "fitted" or "rejected"
+	Reason    string    `json:"reason,omitempty"`
+	Chosen    bool      `json:"chosen,omitempty"`
 }
 
 // buildFitOutput assembles the JSON document from the fit and the
-// model-scale forecast N(mean[h], variance[h]) (CONTRACT.md §3): se stays
+// model-scale forecast N(mean[h], variance[h]) (CONTRACT.md §3): sd stays
 // on the model scale; mean, median and bands are in raw units (toRawUnits),
 // a value outside the inverse's domain printed as null.
 func buildFitOutput(res *arima.Result, tr transform.Transform, mean, variance, levels []float64) *fitOutput {
 	m := res.Model
 	s := m.Spec
-	orNil := func(x []float64) []float64 {
-		if x == nil {
-			return []float64{}
-		}
-		return x
-	}
 	out := &fitOutput{
-		Model: fitModel{Spec: s.String(), Order: [3]int{s.P, s.D, s.Q}, Seasonal: [3]int{s.SP, s.SD, s.SQ},
-			Period: s.Period, Mean: s.Mean || s.Drift, Transform: tr.String()},
-		Coef:      fitCoef{AR: orNil(m.AR), MA: orNil(m.MA), SAR: orNil(m.SAR), SMA: orNil(m.SMA)},
-		Sigma2:    m.Sigma2,
-		LogLik:    res.LogLik,
-		AIC:       res.AIC,
-		AICc:      jsonFloat(res.AICc),
-		BIC:       res.BIC,
-		NObs:      res.NObs,
-		Converged: res.Converged,
-		Note:      res.Note,
-		coefSE:    res.StdErr,
-		spec:      s,
+		Model: fitModel{Label: s.Label(), ARIMA: [3]int{s.P, s.D, s.Q}, SeasonalARIMA: [3]int{s.SP, s.SD, s.SQ},
+			Seasons: []fitSeason{}, Constant: s.ConstantName(), Transform: tr.String()},
+		InnovationVariance: m.Sigma2,
+		LogLikelihood:      res.LogLik,
+		AIC:                res.AIC,
+		AICc:               jsonFloat(res.AICc),
+		BIC:                res.BIC,
+		ObservationsUsed:   res.NObs,
+		Converged:          res.Converged,
+		Note:               res.Note,
+		spec:               s,
+		levels:             levels,
 	}
-	if s.Mean {
-		v := jsonFloat(m.Mean)
-		out.Coef.Mean = &v
+	if s.Period > 0 {
+		out.Model.Seasons = append(out.Model.Seasons, fitSeason{Steps: s.Period, Terms: "arima"})
 	}
-	if s.Drift {
-		v := jsonFloat(m.Drift)
-		out.Coef.Drift = &v
+	out.Estimates = termsOf(s, m.Params())
+	se := res.StdErr
+	if len(se) != s.NumParams() {
+		se = make([]float64, s.NumParams())
+		for i := range se {
+			se[i] = math.NaN()
+		}
 	}
+	out.StdErrors = termsOf(s, se)
 	raw := toRawUnits(tr, mean, variance, levels)
 	for h := range mean {
 		fc := fitForecast{H: h + 1,
 			Mean:   jsonFloat(raw.Mean[h]),
 			Median: jsonFloat(raw.Median[h]),
-			SE:     jsonFloat(math.Sqrt(variance[h])),
-			Lower:  map[string]jsonFloat{}, Upper: map[string]jsonFloat{}}
+			SD:     jsonFloat(math.Sqrt(variance[h])),
+			Bands:  make([]fitBand, len(levels))}
 		for i, l := range levels {
-			fc.Lower[levelKey(l)], fc.Upper[levelKey(l)] = jsonFloat(raw.Lower[i][h]), jsonFloat(raw.Upper[i][h])
+			fc.Bands[i] = fitBand{Level: l, Low: jsonFloat(raw.Lower[i][h]), High: jsonFloat(raw.Upper[i][h])}
 		}
 		out.Forecast = append(out.Forecast, fc)
 	}
 	return out
 }
 
-// writeFitTable prints the fit for a person.
-func writeFitTable(w io.Writer, out *fitOutput, levels []float64) {
-	fmt.Fprintf(w, "model      %s  (transform %s)\n", out.Model.Spec, out.Model.Transform)
+// termsOf splits v, in arima.Model.Params layout (φ, θ, Φ, Θ, then the
+// mean or the drift), into its named blocks.
+func termsOf(s arima.Spec, v []float64) fitTerms {
+	block := func(k int) []jsonFloat {
+		out := make([]jsonFloat, k)
+		for i := range out {
+			out[i] = jsonFloat(v[i])
+		}
+		v = v[k:]
+		return out
+	}
+	t := fitTerms{Phi: block(s.P), Theta: block(s.Q), SeasonalPhi: block(s.SP), SeasonalTheta: block(s.SQ),
+		Regression: []fitRegression{}}
+	if s.Mean || s.Drift {
+		c := jsonFloat(v[0])
+		if s.Mean {
+			t.Mean = &c
+		} else {
+			t.Drift = &c
+		}
+	}
+	return t
+}
+
+// writeFitTable prints the fit for a person, in forewarn's own layout: a
+// header line with the model's label; the estimated terms, one a row with
+// their symbol (Box & Jenkins 1976: φ, θ for the AR and MA terms, Φ, Θ for
+// the seasonal ones) and the lag they act at; a block of fit measures, one
+// a line; the models tried, for an automatic choice; and the forecast, the
+// bands of each level as "low … high".
+func writeFitTable(w io.Writer, out *fitOutput, file string) {
+	fmt.Fprintf(w, "%s   transform %s   %s\n\n", out.Model.Label, out.Model.Transform, file)
+
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintln(tw, "coefficient\testimate\tstd. error\t")
-	names := coefNames(out.spec)
-	vals := append(append(append(append([]float64{}, out.Coef.AR...), out.Coef.MA...), out.Coef.SAR...), out.Coef.SMA...)
-	if out.Coef.Mean != nil {
-		vals = append(vals, float64(*out.Coef.Mean))
-	}
-	if out.Coef.Drift != nil {
-		vals = append(vals, float64(*out.Coef.Drift))
-	}
-	for i, n := range names {
-		fmt.Fprintf(tw, "%s\t%.6g\t%.4g\t\n", n, vals[i], out.coefSE[i])
+	terms := termRows(out)
+	if len(terms) == 0 {
+		fmt.Fprintln(tw, "  no estimated terms: the model is pure differencing and noise")
+	} else {
+		fmt.Fprintln(tw, "  term\t estimate\t std error\t acts on")
+		for _, r := range terms {
+			fmt.Fprintf(tw, "  %s\t %s\t %s\t %s\n", r.symbol, fmtNum(r.est), fmtNum(r.se), r.role)
+		}
 	}
 	tw.Flush()
-	fmt.Fprintf(w, "sigma2 %.6g   loglik %.4f   aic %.4f   aicc %.4f   bic %.4f   nobs %d\n",
-		out.Sigma2, out.LogLik, out.AIC, float64(out.AICc), out.BIC, out.NObs)
+	fmt.Fprintln(w)
+
+	fmt.Fprintf(w, "  fitted to %d observations (after differencing)\n", out.ObservationsUsed)
+	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	fmt.Fprintf(tw, "  innovation variance σ²\t%s\n", fmtNum(out.InnovationVariance))
+	fmt.Fprintf(tw, "  log-likelihood\t%s\n", fmtNum(out.LogLikelihood))
+	fmt.Fprintf(tw, "  AIC\t%s\n", fmtNum(out.AIC))
+	fmt.Fprintf(tw, "  AICc\t%s\n", fmtNum(float64(out.AICc)))
+	fmt.Fprintf(tw, "  BIC\t%s\n", fmtNum(out.BIC))
+	tw.Flush()
 	if !out.Converged {
-		fmt.Fprintf(w, "warning: the optimiser did not converge: %s\n", out.Note)
+		fmt.Fprintf(w, "  the optimiser did not converge: %s\n", out.Note)
 	} else if out.Note != "" {
-		fmt.Fprintf(w, "note: %s\n", out.Note)
+		fmt.Fprintf(w, "  note: %s\n", out.Note)
 	}
+
 	if len(out.Candidates) > 0 {
-		fmt.Fprintf(w, "\ncandidates tried (AICc on the raw scale):\n")
+		fmt.Fprintf(w, "\nmodels tried, in order (AICc on the raw scale)\n")
 		tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-		for _, c := range out.Candidates {
-			fmt.Fprintf(tw, "  %s\t%s\t%s\t%s\n", c.Spec, c.Transform, fmtNum(float64(c.AICc)), c.Rejected)
+		for i, c := range out.Candidates {
+			verdict := "AICc " + fmtNum(float64(c.AICc))
+			if c.Status == "rejected" {
+				verdict = "rejected: " + c.Reason
+			}
+			mark := ""
+			if c.Chosen {
+				mark = "  ← chosen"
+			}
+			fmt.Fprintf(tw, "  %d\t%s\t%s\t%s%s\n", i+1, c.Label, c.Transform, verdict, mark)
 		}
 		tw.Flush()
 	}
-	fmt.Fprintln(w)
+
+	fmt.Fprintf(w, "\nforecast, %d steps (sd on the model scale; mean, median and bands in raw units)\n", len(out.Forecast))
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprint(tw, "h\tmean\tmedian\tse\t")
-	for _, l := range levels {
-		fmt.Fprintf(tw, "lower %s\tupper %s\t", levelKey(l), levelKey(l))
+	fmt.Fprint(tw, "h\tmean\tmedian\tsd\t")
+	for _, l := range out.levels {
+		fmt.Fprintf(tw, "%s%% band\t", levelKey(l))
 	}
 	fmt.Fprintln(tw)
 	for _, fc := range out.Forecast {
-		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t", fc.H, fmtNum(float64(fc.Mean)), fmtNum(float64(fc.Median)), fmtNum(float64(fc.SE)))
-		for _, l := range levels {
-			fmt.Fprintf(tw, "%s\t%s\t", fmtNum(float64(fc.Lower[levelKey(l)])), fmtNum(float64(fc.Upper[levelKey(l)])))
+		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t", fc.H, fmtNum(float64(fc.Mean)), fmtNum(float64(fc.Median)), fmtNum(float64(fc.SD)))
+		for _, b := range fc.Bands {
+			fmt.Fprintf(tw, "%s … %s\t", fmtBound(float64(b.Low)), fmtBound(float64(b.High)))
 		}
 		fmt.Fprintln(tw)
 	}
 	tw.Flush()
 }
 
-func coefNames(s arima.Spec) []string {
-	var n []string
-	add := func(prefix string, k int) {
-		for i := 1; i <= k; i++ {
-			n = append(n, prefix+strconv.Itoa(i))
+// termRow is one estimated term of the table.
+type termRow struct {
+	symbol  string
+	est, se float64
+	role    string
+}
+
+// termRows lists the estimated terms with their symbols, e.g. θ₁ "MA,
+// lag 1", Θ₁ "seasonal MA, lag 12".
+func termRows(out *fitOutput) []termRow {
+	s := out.spec
+	var rows []termRow
+	add := func(sym, kind string, lagStep int, est, se []jsonFloat) {
+		for i := range est {
+			rows = append(rows, termRow{sym + subscript(i+1), float64(est[i]), float64(se[i]),
+				fmt.Sprintf("%s, lag %d", kind, (i+1)*lagStep)})
 		}
 	}
-	add("ar", s.P)
-	add("ma", s.Q)
-	add("sar", s.SP)
-	add("sma", s.SQ)
-	if s.Mean {
-		n = append(n, "mean")
+	e, se := out.Estimates, out.StdErrors
+	add("φ", "AR", 1, e.Phi, se.Phi)
+	add("θ", "MA", 1, e.Theta, se.Theta)
+	add("Φ", "seasonal AR", s.Period, e.SeasonalPhi, se.SeasonalPhi)
+	add("Θ", "seasonal MA", s.Period, e.SeasonalTheta, se.SeasonalTheta)
+	if e.Mean != nil {
+		rows = append(rows, termRow{"mean", float64(*e.Mean), float64(*se.Mean), "level of the series"})
 	}
-	if s.Drift {
-		n = append(n, "drift")
+	if e.Drift != nil {
+		rows = append(rows, termRow{"drift", float64(*e.Drift), float64(*se.Drift), "slope per step"})
 	}
-	return n
+	return rows
+}
+
+// subscript writes n with the Unicode subscript digits (₀ … ₉).
+func subscript(n int) string {
+	var b strings.Builder
+	for _, d := range strconv.Itoa(n) {
+		b.WriteRune('₀' + (d - '0'))
+	}
+	return b.String()
+}
+
+// fmtBound writes a band bound; an unbounded one (outside the inverse
+// transform's domain) is "open".
+func fmtBound(v float64) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return "open"
+	}
+	return fmtNum(v)
 }
 
 func fmtNum(v float64) string {

@@ -134,7 +134,7 @@ func stateList(st *state.Store, stdout, stderr io.Writer) int {
 		n++
 		model := "warming up"
 		if s.Model != nil {
-			model = s.Model.Spec
+			model = s.Model.Spec().Label()
 		}
 		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%d\t%s\t%d\n",
 			topic, s.Kind, formatStep(s.StepSeconds), s.Closed, len(s.Window), model, s.Seq)
@@ -300,17 +300,21 @@ type transformView struct {
 	RunM2   jsonNumber `json:"run_m2"`
 }
 
+// modelView names the model as fit --format json does (CONTRACT.md §3):
+// its label, orders, seasonal orders with their period, and constant.
 type modelView struct {
-	Spec     string       `json:"spec"`
-	Mean     bool         `json:"mean"`
-	Drift    bool         `json:"drift"`
-	Params   []jsonNumber `json:"params"`
-	Sigma2   jsonNumber   `json:"sigma2"`
-	LogLik   jsonNumber   `json:"loglik"`
-	AICc     jsonNumber   `json:"aicc"`
-	NObs     int          `json:"nobs"`
-	FittedAt int64        `json:"fitted_at"`
-	Filter   []jsonNumber `json:"filter"`
+	Label              string       `json:"label"`
+	ARIMA              [3]int       `json:"arima"`
+	SeasonalARIMA      [3]int       `json:"seasonal_arima"`
+	Period             int          `json:"period"`
+	Constant           string       `json:"constant"`
+	Params             []jsonNumber `json:"params"`
+	InnovationVariance jsonNumber   `json:"innovation_variance"`
+	LogLikelihood      jsonNumber   `json:"log_likelihood"`
+	AICc               jsonNumber   `json:"aicc"`
+	ObservationsUsed   int          `json:"observations_used"`
+	FittedAt           int64        `json:"fitted_at"`
+	Filter             []jsonNumber `json:"filter"`
 }
 
 type alertView struct {
@@ -337,10 +341,12 @@ func newSnapshotView(s *series.Snapshot) snapshotView {
 		Alerts: make([]alertView, len(s.Alerts)),
 	}
 	if m := s.Model; m != nil {
+		sp := m.Spec()
 		v.Model = &modelView{
-			Spec: m.Spec, Mean: m.Mean, Drift: m.Drift, Params: jsonNumbers(m.Params),
-			Sigma2: jsonNumber(m.Sigma2), LogLik: jsonNumber(m.LogLik), AICc: jsonNumber(m.AICc),
-			NObs: m.NObs, FittedAt: m.FittedAt, Filter: jsonNumbers(m.Filter),
+			Label: sp.Label(), ARIMA: m.Order, SeasonalARIMA: m.Seasonal, Period: m.Period,
+			Constant: sp.ConstantName(), Params: jsonNumbers(m.Params),
+			InnovationVariance: jsonNumber(m.Sigma2), LogLikelihood: jsonNumber(m.LogLik), AICc: jsonNumber(m.AICc),
+			ObservationsUsed: m.NObs, FittedAt: m.FittedAt, Filter: jsonNumbers(m.Filter),
 		}
 	}
 	for i, a := range s.Alerts {

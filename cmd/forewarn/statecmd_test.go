@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -31,7 +32,7 @@ func stateFixture(t *testing.T) string {
 			Topic: "shop.orders", Kind: "counter", StepSeconds: 60, Seq: 19283, Closed: 480,
 			Window:    []float64{1830, math.NaN(), 1834},
 			Transform: series.TransformSnapshot{Name: "log", Scale: math.Inf(1)},
-			Model: &series.ModelSnapshot{Spec: "ARIMA(1,1,1)(0,1,1)[24]", Params: []float64{0.5, -0.25, -0.5},
+			Model: &series.ModelSnapshot{Order: [3]int{1, 1, 1}, Seasonal: [3]int{0, 1, 1}, Period: 24, Params: []float64{0.5, -0.25, -0.5},
 				Sigma2: 0.0625, NObs: 455, Filter: []float64{1, 2}},
 			Alerts: []series.AlertSnapshot{{Rule: "orders-dropping", Raised: true, Since: 28000000, Probability: 0.75}},
 		},
@@ -67,7 +68,7 @@ func TestStateList(t *testing.T) {
 		}
 		for i, want := range [][]string{
 			{"TOPIC", "KIND", "STEP", "CLOSED", "WINDOW", "MODEL", "SEQ"},
-			{"shop.orders", "counter", "1m", "480", "3", "ARIMA(1,1,1)(0,1,1)[24]", "19283"},
+			{"shop.orders", "counter", "1m", "480", "3", "ARIMA", "1,1,1", "×", "0,1,1", "s=24", "19283"},
 			{"storage.vol1.used_bytes", "gauge", "1h30m", "3", "3", "warming", "up", "7"},
 		} {
 			if got := strings.Fields(lines[i]); strings.Join(got, " ") != strings.Join(want, " ") {
@@ -98,7 +99,9 @@ func TestStateShow(t *testing.T) {
 		t.Errorf("transform = %v, want name log and scale null (+Inf)", tr)
 	}
 	model := got["model"].(map[string]any)
-	if model["spec"] != "ARIMA(1,1,1)(0,1,1)[24]" || model["sigma2"] != 0.0625 || model["nobs"] != 455.0 {
+	if model["label"] != "ARIMA 1,1,1 × 0,1,1 s=24" || model["constant"] != "none" || model["period"] != 24.0 ||
+		fmt.Sprint(model["arima"]) != "[1 1 1]" || fmt.Sprint(model["seasonal_arima"]) != "[0 1 1]" ||
+		model["innovation_variance"] != 0.0625 || model["observations_used"] != 455.0 {
 		t.Errorf("model = %v", model)
 	}
 	if a := got["alerts"].([]any)[0].(map[string]any); a["rule"] != "orders-dropping" || a["raised"] != true || a["probability"] != 0.75 {

@@ -1,4 +1,5 @@
-// Package arima fits and runs seasonal ARIMA(p,d,q)(P,D,Q)[s] models by
+// Package arima fits and runs seasonal ARIMA models, orders (p,d,q)×(P,D,Q)
+// with period s in the multiplicative notation of Box & Jenkins (1976), by
 // exact Gaussian maximum likelihood in state-space form.
 //
 // # Model
@@ -9,6 +10,16 @@
 // with a plus sign). A mean μ is estimated only when d+D = 0, a drift δ
 // only when d+D = 1 (see Spec). All values are on the model's scale: any
 // transform is applied by the caller.
+//
+// # Writing a model
+//
+// Configuration and command line give the orders as "p,d,q" or
+// "p,d,q x P,D,Q" (ParseOrders), the period apart (from the seasonal
+// cycles) and the constant as auto, none, mean or drift (ParseConstant);
+// NewSpec checks them together. Spec.Label renders a model for people as
+// "ARIMA 0,1,1 × 0,1,1 s=12 + drift", and Spec.Orders gives back the
+// syntax ParseOrders reads. ParseLegacySpec reads the spelling of state
+// records of format version 1 and nothing else.
 //
 // # Conventions (equal to R 4.2.2 stats::arima, method "ML")
 //
@@ -64,6 +75,9 @@
 // sentinels in errors.go; nothing in this package panics on data.
 //
 // References:
+//   - Box, G. E. P. & Jenkins, G. M. (1976). Time Series Analysis:
+//     Forecasting and Control, revised ed. Holden-Day, ch. 9 (the
+//     multiplicative seasonal model).
 //   - Durbin, J. & Koopman, S. J. (2012). Time Series Analysis by State Space
 //     Methods, 2nd ed. Oxford University Press.
 //   - Gardner, G., Harvey, A. C. & Phillips, G. D. A. (1980). Algorithm AS 154.

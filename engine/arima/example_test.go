@@ -15,7 +15,7 @@ var lh = []float64{2.4, 2.4, 2.4, 2.2, 2.1, 1.5, 2.3, 2.3, 2.5, 2.0, 1.9, 1.7, 2
 	2.7, 2.3, 2.6, 2.4, 1.8, 1.7, 1.5, 1.4, 2.1, 3.3, 3.5, 3.5, 3.1, 2.6, 2.1, 3.4, 3.0, 2.9}
 
 func ExampleFit() {
-	spec, err := arima.ParseSpec("ARIMA(1,0,0)")
+	spec, err := arima.NewSpec([3]int{1, 0, 0}, [3]int{}, 0, arima.ConstantAuto)
 	if err != nil {
 		panic(err)
 	}
@@ -27,7 +27,7 @@ func ExampleFit() {
 	fmt.Printf("%s: ar1 %.4f mean %.4f sigma2 %.4f\n", spec, m.AR[0], m.Mean, m.Sigma2)
 	fmt.Printf("loglik %.2f aic %.2f nobs %d\n", res.LogLik, res.AIC, res.NObs)
 	// Output:
-	// ARIMA(1,0,0): ar1 0.5739 mean 2.4133 sigma2 0.1975
+	// ARIMA 1,0,0 + mean: ar1 0.5739 mean 2.4133 sigma2 0.1975
 	// loglik -29.38 aic 64.76 nobs 48
 }
 
@@ -55,15 +55,22 @@ func ExampleFilter() {
 	// h=3 2.5053 ± 0.5329
 }
 
-func ExampleParseSpec() {
-	s, err := arima.ParseSpec("ARIMA(0,1,1)(0,1,1)[12]")
+// The orders as written in configuration (model: "0,1,1 x 0,1,1") and a
+// period from the seasons give the airline model of Box & Jenkins (1976,
+// ch. 9), with no constant as its d+D = 2 leaves none.
+func ExampleParseOrders() {
+	ord, sord, seasonal, err := arima.ParseOrders("0,1,1 x 0,1,1")
 	if err != nil {
 		panic(err)
 	}
-	fmt.Println(s.String(), s.NumParams(), s.Period)
-	_, err = arima.ParseSpec("ARIMA(1,0,0)(1,0,0)[1]")
+	s, err := arima.NewSpec(ord, sord, 12, arima.ConstantAuto)
+	if err != nil {
+		panic(err)
+	}
+	fmt.Println(seasonal, s.Label(), s.Orders(), s.ConstantName(), s.NumParams())
+	_, err = arima.NewSpec([3]int{1, 1, 0}, [3]int{}, 0, arima.ConstantMean)
 	fmt.Println(err)
 	// Output:
-	// ARIMA(0,1,1)(0,1,1)[12] 2 12
-	// arima: invalid model specification: period = 1: a seasonal part needs a period of at least 2
+	// true ARIMA 0,1,1 × 0,1,1 s=12 0,1,1 x 0,1,1 none 2
+	// arima: invalid model specification: mean: a mean is only estimated when d+D = 0, here d+D = 1
 }

@@ -46,21 +46,45 @@ func TestFitRejectsBadInput(t *testing.T) {
 	}
 }
 
-// FuzzParseSpec: ParseSpec never panics, and what it accepts round-trips
-// through String.
+// FuzzParseSpec: the model syntax of configuration and command line
+// ("p,d,q" or "p,d,q x P,D,Q", a period, a constant) never panics, and a
+// Spec that NewSpec accepts round-trips through Orders and ConstantName;
+// its Label is never empty. ParseLegacySpec never panics either.
 func FuzzParseSpec(f *testing.F) {
-	for _, s := range []string{"ARIMA(1,0,0)", "ARIMA(0,1,1)(0,1,1)[12]", "ARIMA(2,1,2) with drift",
-		"ARIMA(1,0,1) with zero mean", "ARIMA(", "ARIMA(1,1,1)(1,1,1)[", "ARIMA(99999999999999999999,0,0)", ""} {
-		f.Add(s)
+	for _, s := range []string{"1,0,0", "0,1,1 x 0,1,1", "2,1,2", "1,0,1", "0,1,1×0,1,1", " 1 , 1 , 1 x 0 , 0 , 0 ",
+		"1,1,1 x", "x", "99999999999999999999,0,0", "", "ARIMA(0,1,1)(0,1,1)[12] with drift"} {
+		f.Add(s, 12, uint8(0))
 	}
-	f.Fuzz(func(t *testing.T, s string) {
-		sp, err := ParseSpec(s)
+	f.Fuzz(func(t *testing.T, s string, period int, c uint8) {
+		ParseLegacySpec(s)
+		ord, sord, seasonal, err := ParseOrders(s)
 		if err != nil {
 			return
 		}
-		back, err := ParseSpec(sp.String())
+		if !seasonal {
+			period = 0
+		}
+		sp, err := NewSpec(ord, sord, period, Constant(c%5))
+		if err != nil {
+			return
+		}
+		o2, s2, seas2, err := ParseOrders(sp.Orders())
+		if err != nil {
+			t.Fatalf("%q -> %+v -> Orders %q: %v", s, sp, sp.Orders(), err)
+		}
+		if seas2 && !seasonal || !seas2 && sp.Period != 0 {
+			t.Fatalf("%q -> %+v -> Orders %q: seasonal %v", s, sp, sp.Orders(), seas2)
+		}
+		c2, err := ParseConstant(sp.ConstantName())
+		if err != nil {
+			t.Fatalf("ConstantName %q: %v", sp.ConstantName(), err)
+		}
+		back, err := NewSpec(o2, s2, sp.Period, c2)
 		if err != nil || back != sp {
-			t.Fatalf("%q -> %+v -> %q -> %+v, %v", s, sp, sp.String(), back, err)
+			t.Fatalf("%q -> %+v -> %q %q -> %+v, %v", s, sp, sp.Orders(), sp.ConstantName(), back, err)
+		}
+		if sp.Label() == "" || sp.String() != sp.Label() {
+			t.Fatalf("label %q string %q", sp.Label(), sp.String())
 		}
 	})
 }

@@ -13,13 +13,17 @@ import (
 type Options struct {
 	Period    int    // seasonal period in steps; 0 or 1: non-seasonal
 	Transform string // "auto" (or "") or a fixed transform (transform.Parse syntax)
-	Model     string // "auto" (or "") or a fixed "ARIMA(p,d,q)" / "ARIMA(p,d,q)(P,D,Q)[s]": then only the transform is chosen
-	Warm      *Warm  // previous choice, for warm-started refits (may be nil)
-	// Mean is "auto" (or ""): a fixed Model keeps the constant its string
-	// gives (arima.ParseSpec: a mean when d + D = 0 unless "with zero mean"),
-	// and the search tries the constant on and off; "yes": a fixed Model
-	// estimates a mean (needs d + D = 0); "no": no constant at all.
-	Mean string
+	// Model is "auto" (or "") or fixed orders "p,d,q" or "p,d,q x P,D,Q"
+	// (arima.ParseOrders); then only the transform is chosen. Seasonal
+	// orders take Period as their period, which must then be at least 2.
+	Model string
+	// Constant is, for a fixed Model, the constant of arima.NewSpec
+	// (ConstantAuto: a mean when d + D = 0, nothing otherwise). With Model
+	// "auto", ConstantAuto lets the search try the constant on and off and
+	// ConstantNone leaves it out; mean and drift need a fixed Model, as
+	// the search chooses d and D.
+	Constant arima.Constant
+	Warm     *Warm // previous choice, for warm-started refits (may be nil)
 	// Order bounds; 0 means the defaults 5, 5, 2, 2 (Hyndman & Khandakar 2008).
 	MaxP, MaxQ, MaxSP, MaxSQ int
 }
@@ -33,7 +37,7 @@ type Warm struct {
 
 // Candidate is one fit that Select tried.
 type Candidate struct {
-	Spec      string  // arima.Spec.String, e.g. "ARIMA(1,1,1)(0,1,1)[24]" or "ARIMA(2,1,0) with drift"
+	Spec      arima.Spec
 	Transform string  // transform spec (transform.Transform.String)
 	AICc      float64 // raw-scale AICc; NaN when the fit failed or was rejected
 	Err       string  // why the fit failed or was rejected; "" for an accepted fit
@@ -121,16 +125,38 @@ func (o *Options) normalise() error {
 	if o.Transform == "" {
 		o.Transform = "auto"
 	}
-	switch o.Mean {
-	case "":
-		o.Mean = "auto"
-	case "auto", "yes", "no":
-	default:
-		return fmt.Errorf("%w: mean %q: want auto, yes or no", ErrBadOptions, o.Mean)
-	}
 	o.Model = strings.TrimSpace(o.Model)
 	if o.Model == "" {
 		o.Model = "auto"
 	}
+	switch o.Constant {
+	case arima.ConstantAuto, arima.ConstantNone:
+	case arima.ConstantMean, arima.ConstantDrift:
+		if o.Model == "auto" {
+			return fmt.Errorf("%w: constant %s needs fixed orders (the search chooses d and D; use auto or none)", ErrBadOptions, o.Constant)
+		}
+	default:
+		return fmt.Errorf("%w: constant %v: want auto, none, mean or drift", ErrBadOptions, o.Constant)
+	}
 	return nil
+}
+
+// fixedSpec is the specification of a fixed Model (normalised options).
+func (o *Options) fixedSpec() (arima.Spec, error) {
+	ord, sord, seasonal, err := arima.ParseOrders(o.Model)
+	if err != nil {
+		return arima.Spec{}, fmt.Errorf("%w: model %q: %w", ErrBadOptions, o.Model, err)
+	}
+	period := 0
+	if seasonal {
+		if o.Period < 2 {
+			return arima.Spec{}, fmt.Errorf("%w: model %q has seasonal orders but the period is %d (want at least 2)", ErrBadOptions, o.Model, o.Period)
+		}
+		period = o.Period
+	}
+	spec, err := arima.NewSpec(ord, sord, period, o.Constant)
+	if err != nil {
+		return arima.Spec{}, fmt.Errorf("%w: model %q, constant %s: %w", ErrBadOptions, o.Model, o.Constant, err)
+	}
+	return spec, nil
 }

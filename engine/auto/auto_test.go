@@ -53,9 +53,9 @@ func TestFixedModelMatchesR(t *testing.T) {
 		id, model string
 		period, k int
 	}{
-		{"USAccDeaths_airline", "ARIMA(0,1,1)(0,1,1)[12]", 12, 2},
-		{"LakeHuron_ar2", "ARIMA(2,0,0)", 0, 3},
-		{"WWWusage_111", "ARIMA(1,1,1)", 0, 2},
+		{"USAccDeaths_airline", "0,1,1 x 0,1,1", 12, 2},
+		{"LakeHuron_ar2", "2,0,0", 0, 3},
+		{"WWWusage_111", "1,1,1", 0, 2},
 	} {
 		ref := refs[tc.id]
 		y := refdata.Dataset(t, ref.Data)
@@ -86,7 +86,7 @@ func TestFixedModelMatchesR(t *testing.T) {
 func TestRawAICcJacobian(t *testing.T) {
 	refs := loadRefs(t)
 	y := refdata.Dataset(t, "AirPassengers")
-	c, err := Select(y, Options{Period: 12, Transform: "log", Model: "ARIMA(0,1,1)(0,1,1)[12]"})
+	c, err := Select(y, Options{Period: 12, Transform: "log", Model: "0,1,1 x 0,1,1"})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -112,7 +112,7 @@ func TestRawAICcJacobian(t *testing.T) {
 // swings grow with the level (Box & Jenkins 1976, Series G, model the log).
 func TestAirPassengersNotRaw(t *testing.T) {
 	y := refdata.Dataset(t, "AirPassengers")
-	c, err := Select(y, Options{Period: 12, Transform: "auto", Model: "ARIMA(0,1,1)(0,1,1)[12]"})
+	c, err := Select(y, Options{Period: 12, Transform: "auto", Model: "0,1,1 x 0,1,1"})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -204,13 +204,25 @@ func integrate(x []float64, lag int) []float64 {
 	return out
 }
 
-func mustModel(t testing.TB, spec string, mean bool, params []float64, sigma2 float64) *arima.Model {
+// mustModel builds a model of orders "p,d,q[ x P,D,Q]" (seasonal orders
+// with the given period) with or without a mean.
+func mustModel(t testing.TB, orders string, period int, mean bool, params []float64, sigma2 float64) *arima.Model {
 	t.Helper()
-	sp, err := arima.ParseSpec(spec)
+	ord, sord, seasonal, err := arima.ParseOrders(orders)
 	if err != nil {
 		t.Fatal(err)
 	}
-	sp.Mean = mean
+	c := arima.ConstantNone
+	if !seasonal {
+		period = 0
+	}
+	if mean {
+		c = arima.ConstantMean
+	}
+	sp, err := arima.NewSpec(ord, sord, period, c)
+	if err != nil {
+		t.Fatal(err)
+	}
 	m, err := arima.NewModel(sp, params, sigma2)
 	if err != nil {
 		t.Fatal(err)
@@ -230,9 +242,9 @@ func TestStepwiseOnKnownModels(t *testing.T) {
 		d, sd    int
 		trueSpec string
 	}{
-		{"AR(2)", mustModel(t, "ARIMA(2,0,0)", true, []float64{0.6, -0.3, 10}, 1), 400, 0, 0, "ARIMA(2,0,0)"},
-		{"IMA(1,1)", mustModel(t, "ARIMA(0,1,1)", false, []float64{-0.5}, 1), 400, 1, 0, "ARIMA(0,1,1)"},
-		{"airline[12]", mustModel(t, "ARIMA(0,1,1)(0,1,1)[12]", false, []float64{-0.4, -0.6}, 1), 240, 1, 1, "ARIMA(0,1,1)(0,1,1)[12]"},
+		{"AR(2)", mustModel(t, "2,0,0", 0, true, []float64{0.6, -0.3, 10}, 1), 400, 0, 0, "2,0,0"},
+		{"IMA(1,1)", mustModel(t, "0,1,1", 0, false, []float64{-0.5}, 1), 400, 1, 0, "0,1,1"},
+		{"airline s=12", mustModel(t, "0,1,1 x 0,1,1", 12, false, []float64{-0.4, -0.6}, 1), 240, 1, 1, "0,1,1 x 0,1,1"},
 	}
 	for i, tc := range cases {
 		y := simulate(t, tc.model, tc.n, 0, uint64(i+1))
@@ -395,7 +407,12 @@ func TestErrors(t *testing.T) {
 		{"negative period", y, Options{Period: -1}, ErrBadOptions},
 		{"negative bound", y, Options{MaxP: -1}, ErrBadOptions},
 		{"unknown transform", y, Options{Transform: "sqrt"}, ErrBadOptions},
-		{"bad model", y, Options{Model: "ARIMA(1,1)"}, ErrBadOptions},
+		{"bad model", y, Options{Model: "1,1"}, ErrBadOptions},
+		{"old spelling", y, Options{Model: "ARIMA(1,1,1)"}, ErrBadOptions},
+		{"seasonal orders without a period", y, Options{Model: "0,1,1 x 0,1,1"}, ErrBadOptions},
+		{"mean with d = 1", y, Options{Model: "0,1,1", Constant: arima.ConstantMean}, ErrBadOptions},
+		{"drift with the search", y, Options{Constant: arima.ConstantDrift}, ErrBadOptions},
+		{"unknown constant", y, Options{Constant: arima.Constant(7)}, ErrBadOptions},
 		{"short", y[:5], Options{}, ErrTooShort},
 		{"log of a negative value", neg, Options{Transform: "log"}, ErrDomain},
 		{"infinite value", append([]float64{math.Inf(1)}, y...), Options{}, ErrDomain},
@@ -412,21 +429,21 @@ func ExampleSelect() {
 	// R `datasets` LakeHuron, 1875–1972 (first 20 of 98 annual levels, feet).
 	y := []float64{580.38, 581.86, 580.97, 580.8, 579.79, 580.39, 580.42, 580.82, 581.4, 581.32,
 		581.44, 581.68, 581.17, 580.53, 580.01, 579.91, 579.14, 579.16, 579.55, 579.67}
-	c, err := Select(y, Options{Transform: "none", Model: "ARIMA(1,0,0)"})
+	c, err := Select(y, Options{Transform: "none", Model: "1,0,0"})
 	if err != nil {
 		fmt.Println(err)
 		return
 	}
 	fmt.Println(c.Spec.String(), c.Transform.String(), len(c.Tried), "fit")
 	// Output:
-	// ARIMA(1,0,0) none 1 fit
+	// ARIMA 1,0,0 + mean none 1 fit
 }
 
 // TestScaledExpCandidate: a saturating rise, x = 10·log(1 + t/20) plus
 // seeded AR(1) noise, makes scaled-exp a candidate (package doc, step 1),
 // fitted at the same differencing orders as the others.
 func TestScaledExpCandidate(t *testing.T) {
-	m := mustModel(t, "ARIMA(1,0,0)", false, []float64{0.5}, 0.01)
+	m := mustModel(t, "1,0,0", 0, false, []float64{0.5}, 0.01)
 	y := simulate(t, m, 300, 0, 11)
 	for i := range y {
 		y[i] += 10 * math.Log(1+float64(i)/20)
@@ -445,10 +462,7 @@ func TestScaledExpCandidate(t *testing.T) {
 		t.Errorf("scaled-exp not tried; tried %+v", c.Tried)
 	}
 	for _, cd := range c.Tried {
-		sp, err := arima.ParseSpec(cd.Spec)
-		if err != nil {
-			t.Fatalf("candidate spec %q: %v", cd.Spec, err)
-		}
+		sp := cd.Spec
 		if sp.D != c.Spec.D || sp.SD != c.Spec.SD {
 			t.Errorf("candidate %s at other differencing orders than the choice %s", cd.Spec, c.Spec)
 		}
@@ -476,7 +490,7 @@ func TestMissingValues(t *testing.T) {
 // A fixed order whose fit has a root at the unit circle is kept, with the
 // finding in its note: the root rule only steers the automatic search. A
 // linear trend plus white noise, differenced once, is an MA(1) with θ = −1
-// (over-differencing; common practice), so ARIMA(0,1,1) with drift lands
+// (over-differencing; common practice), so 0,1,1 with a drift lands
 // there.
 func TestFixedOrderKeepsUnitRootFit(t *testing.T) {
 	r := rand.New(rand.NewPCG(11, 3))
@@ -484,9 +498,9 @@ func TestFixedOrderKeepsUnitRootFit(t *testing.T) {
 	for i := range y {
 		y[i] = 100 + 0.5*float64(i) + r.NormFloat64()
 	}
-	c, err := Select(y, Options{Transform: "none", Model: "ARIMA(0,1,1) with drift"})
+	c, err := Select(y, Options{Transform: "none", Model: "0,1,1", Constant: arima.ConstantDrift})
 	if err != nil {
-		t.Fatalf("fixed ARIMA(0,1,1) with drift on trend plus noise: %v", err)
+		t.Fatalf("fixed 0,1,1 with a drift on trend plus noise: %v", err)
 	}
 	ma := c.Result.Model.MA[0]
 	if ma > -0.99 {

@@ -11,7 +11,7 @@ import (
 // generator around a level of 500 (positive, so log and boxcox are
 // candidates too).
 func hourly24(b testing.TB) []float64 {
-	m := mustModel(b, "ARIMA(0,1,1)(0,1,1)[24]", false, []float64{-0.4, -0.6}, 1)
+	m := mustModel(b, "0,1,1 x 0,1,1", 24, false, []float64{-0.4, -0.6}, 1)
 	y := simulate(b, m, 2000, 500, 2024)
 	for i := range y {
 		y[i] += 20 * math.Sin(2*math.Pi*float64(i)/24)

@@ -37,7 +37,7 @@
 //     start, so a larger neighbour starts where the current model is).
 //     Orders are bounded by MaxP, MaxQ, MaxSP, MaxSQ. The constant is a
 //     mean when d + D = 0 and a drift when d + D = 1; there is none when
-//     d + D ≥ 2 or when Options.Mean is "no".
+//     d + D ≥ 2 or when Options.Constant is arima.ConstantNone.
 //  5. The chosen order is refitted under every other candidate transform
 //     and the transform with the lowest raw-scale AICc is kept.
 //

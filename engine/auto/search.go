@@ -56,18 +56,9 @@ func (s *selector) cold() (*Choice, error) {
 	}
 	var fixed *arima.Spec
 	if s.o.Model != "auto" {
-		spec, err := arima.ParseSpec(s.o.Model)
+		spec, err := s.o.fixedSpec()
 		if err != nil {
-			return nil, fmt.Errorf("%w: model %q: %w", ErrBadOptions, s.o.Model, err)
-		}
-		switch s.o.Mean {
-		case "yes":
-			spec.Mean, spec.Drift = true, false
-		case "no":
-			spec.Mean, spec.Drift = false, false
-		}
-		if err := spec.Validate(); err != nil {
-			return nil, fmt.Errorf("%w: model %q with mean %q: %w", ErrBadOptions, s.o.Model, s.o.Mean, err)
+			return nil, err
 		}
 		fixed = &spec
 		s.d, s.sd, s.period = spec.D, spec.SD, spec.Period
@@ -130,7 +121,7 @@ func (s *selector) choice(c *scaled, f *fitted) (*Choice, error) {
 		reason := "no candidate model could be fitted"
 		for i := len(s.tried) - 1; i >= 0; i-- {
 			if s.tried[i].Err != "" {
-				reason = s.tried[i].Spec + " " + s.tried[i].Transform + ": " + s.tried[i].Err
+				reason = s.tried[i].Spec.Label() + ", transform " + s.tried[i].Transform + ": " + s.tried[i].Err
 				break
 			}
 		}
@@ -238,7 +229,9 @@ func (s *selector) spec(p, q, sp, sq int, constant bool) arima.Spec {
 	return sp2
 }
 
-func (s *selector) constantAllowed() bool { return s.d+s.sd <= 1 && s.o.Mean != "no" }
+func (s *selector) constantAllowed() bool {
+	return s.d+s.sd <= 1 && s.o.Constant != arima.ConstantNone
+}
 
 // starts are the starting models of Hyndman & Khandakar (2008), with a
 // constant when d + D ≤ 1.
@@ -312,7 +305,7 @@ func (s *selector) fit(c *scaled, spec arima.Spec, start []float64) *fitted {
 	}
 	c.fits++
 	f, err := s.fitOne(c, spec, start)
-	cand := Candidate{Spec: spec.String(), Transform: c.tr.String(), AICc: math.NaN()}
+	cand := Candidate{Spec: spec, Transform: c.tr.String(), AICc: math.NaN()}
 	if err != nil {
 		cand.Err = err.Error()
 		f = nil

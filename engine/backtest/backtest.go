@@ -22,7 +22,8 @@ type Forecaster func(train []float64, h int, levels []float64) (Forecast, error)
 // Options configures Run. The zero value of a field means its default.
 type Options struct {
 	Horizon int       // h, steps ahead; required (≥ 1)
-	Origins int       // N, the last N possible origins; 0 means 20
+	Origins int       // N, the number of origins; 0 means 20
+	Every   int       // K, steps between consecutive origins, the last at n − h; 0 means 1
 	Period  int       // seasonal period m of the baseline and of the MASE scale; 0 or 1: naive
 	Levels  []float64 // interval levels in percent; nil means 80, 95
 }
@@ -62,6 +63,12 @@ func Run(y []float64, o Options, f Forecaster, progress func(done, total int)) (
 	if o.Origins < 0 {
 		return nil, fmt.Errorf("%w: %d origins, need at least 1", ErrBadOptions, o.Origins)
 	}
+	if o.Every == 0 {
+		o.Every = 1
+	}
+	if o.Every < 0 {
+		return nil, fmt.Errorf("%w: origins %d steps apart, need at least 1", ErrBadOptions, o.Every)
+	}
 	if o.Period < 0 {
 		return nil, fmt.Errorf("%w: period %d is negative", ErrBadOptions, o.Period)
 	}
@@ -76,8 +83,8 @@ func Run(y []float64, o Options, f Forecaster, progress func(done, total int)) (
 		}
 	}
 	n, h := len(y), o.Horizon
-	first := n - h - o.Origins + 1
-	if first <= m {
+	first := n - h - (o.Origins-1)*o.Every
+	if o.Origins > (n-h)/o.Every+1 || first <= m {
 		return nil, fmt.Errorf("%w: %d values cannot give %d origins of %d steps with at least %d training values each",
 			ErrTooShort, n, o.Origins, h, m+1)
 	}
@@ -87,7 +94,7 @@ func Run(y []float64, o Options, f Forecaster, progress func(done, total int)) (
 	covered := make([]int, len(levels))
 	counted := 0
 	naive := make([]float64, h)
-	for k, T := 0, first; T <= n-h; k, T = k+1, T+1 {
+	for k, T := 0, first; T <= n-h; k, T = k+1, T+o.Every {
 		train := y[:T:T]
 		fc, err := f(train, h, levels)
 		if err == nil {

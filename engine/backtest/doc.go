@@ -3,9 +3,10 @@
 //
 // # Procedure
 //
-// For a series y of length n, a horizon h and N origins, the origins are the
-// training lengths T = n−h−N+1, …, n−h: the last N positions from which a full
-// h-step forecast can still be compared with observed values. At each origin
+// For a series y of length n, a horizon h and N origins K steps apart, the
+// origins are the training lengths T = n−h−(N−1)K, …, n−h−K, n−h: the last N
+// positions, K apart, from which a full h-step forecast can still be compared
+// with observed values (K = 1: every position). At each origin
 // the forecaster sees y[0:T] only and forecasts y[T], …, y[T+h−1]; the
 // seasonal-naive baseline forecasts the same values from the same data.
 // Origins at which the forecaster fails are counted in Report.Failed and left

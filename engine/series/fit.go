@@ -55,10 +55,16 @@ func (j *FitJob) Run() (r FitResult) {
 		r.Err = fmt.Errorf("%w: %d values, need %d", ErrNoData, countFinite(j.Window), j.Settings.MinPoints)
 		return r
 	}
+	constant, err := arima.ParseConstant(j.Settings.Constant)
+	if err != nil {
+		r.Err = fmt.Errorf("series: refit %q: %w", j.Topic, err)
+		return r
+	}
 	c, err := auto.Select(j.Window, auto.Options{
 		Period:    j.Settings.Period,
 		Transform: j.Settings.Transform,
 		Model:     j.Settings.Model,
+		Constant:  constant,
 		Warm:      j.Warm,
 	})
 	if err != nil {
@@ -114,10 +120,13 @@ func (s *Series) install(c *auto.Choice, end int64) error {
 	s.snap.Transform.Lambda = c.Transform.Lambda
 	s.snap.Transform.Loc = c.Transform.Loc
 	s.snap.Transform.Scale = c.Transform.Scale
+	sp := m.Spec
 	s.snap.Model = &ModelSnapshot{
-		Spec:     m.Spec.String(),
-		Mean:     m.Spec.Mean,
-		Drift:    m.Spec.Drift,
+		Order:    [3]int{sp.P, sp.D, sp.Q},
+		Seasonal: [3]int{sp.SP, sp.SD, sp.SQ},
+		Period:   sp.Period,
+		Mean:     sp.Mean,
+		Drift:    sp.Drift,
 		Params:   m.Params(),
 		Sigma2:   m.Sigma2,
 		LogLik:   c.Result.LogLik,
@@ -133,7 +142,7 @@ func (s *Series) setModelInfo() {
 	ms := s.snap.Model
 	s.fcStale = true
 	s.mf.Model = ModelInfo{
-		Spec:      ms.Spec,
+		Spec:      s.model.Spec.Label(),
 		Transform: s.tr.String(),
 		FittedAt:  time.Unix(ms.FittedAt*s.set.StepSeconds, 0).UTC(),
 		NObs:      ms.NObs,
@@ -150,11 +159,10 @@ func transformFromSnapshot(t TransformSnapshot) (transform.Transform, error) {
 }
 
 func modelFromSnapshot(ms *ModelSnapshot, horizon int) (*arima.Model, *arima.Filter, error) {
-	spec, err := arima.ParseSpec(ms.Spec)
-	if err != nil {
+	spec := ms.Spec()
+	if err := spec.Validate(); err != nil {
 		return nil, nil, err
 	}
-	spec.Mean, spec.Drift = ms.Mean, ms.Drift
 	m, err := arima.NewModel(spec, ms.Params, ms.Sigma2)
 	if err != nil {
 		return nil, nil, err

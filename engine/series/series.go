@@ -21,8 +21,9 @@ type Settings struct {
 	Window      int       // closed buckets kept for refits
 	MinPoints   int       // non-missing buckets before the first fit
 	RefitEvery  int       // closed buckets between refits
-	Model       string    // "auto" or an ARIMA spec
-	Period      int       // seasonal period in steps for automatic choice; 0: none
+	Model       string    // "auto" or orders "p,d,q" / "p,d,q x P,D,Q" (arima.ParseOrders)
+	Period      int       // seasonal period in steps (of the seasonal orders, or for automatic choice); 0: none
+	Constant    string    // "auto" (or ""), "none", "mean" or "drift" (arima.ParseConstant)
 	Transform   string    // "auto", "none", "log", "boxcox", "boxcox(λ)", "scaled-exp"
 	Fingerprint string    // changes whenever any field above changes
 }
@@ -163,6 +164,9 @@ func (set *Settings) check() error {
 		return fmt.Errorf("%w: window %d and min_points %d (want 2 <= min_points <= window)", ErrSettings, set.Window, set.MinPoints)
 	case set.RefitEvery < 1:
 		return fmt.Errorf("%w: refit_every %d (want >= 1)", ErrSettings, set.RefitEvery)
+	}
+	if _, err := arima.ParseConstant(set.Constant); err != nil {
+		return fmt.Errorf("%w: constant %q (want auto, none, mean or drift)", ErrSettings, set.Constant)
 	}
 	for _, l := range set.Levels {
 		if !(l > 0 && l < 100) {

@@ -14,7 +14,7 @@ const step = 60 // seconds
 func settings() Settings {
 	return Settings{
 		Kind: "gauge", StepSeconds: step, Horizon: 12, Levels: []float64{80, 95},
-		Window: 200, MinPoints: 40, RefitEvery: 25, Model: "ARIMA(1,1,0)", Transform: "none",
+		Window: 200, MinPoints: 40, RefitEvery: 25, Model: "1,1,0", Transform: "none",
 		Fingerprint: "test",
 	}
 }
@@ -92,7 +92,7 @@ func TestWarmupThenForecasts(t *testing.T) {
 			t.Fatalf("point %d: bands out of order: %+v", i, p)
 		}
 	}
-	if last.Model.Spec != "ARIMA(1,1,0)" || last.Model.Transform != "none" {
+	if last.Model.Spec != "ARIMA 1,1,0" || last.Model.Transform != "none" {
 		t.Errorf("model info %+v", last.Model)
 	}
 }
@@ -158,7 +158,7 @@ func TestCounterCarriesThroughReset(t *testing.T) {
 func TestCounterNeverBelowLast(t *testing.T) {
 	set := settings()
 	set.Kind = "counter"
-	set.Model = "ARIMA(0,1,1)"
+	set.Model = "0,1,1"
 	s, _ := New("c", set)
 	// A flat counter with tiny noise: bands of a plain model would dip
 	// below the last value.
@@ -188,7 +188,7 @@ func TestCounterNeverBelowLast(t *testing.T) {
 // last-n slice of everything observed.
 func TestWindowSlides(t *testing.T) {
 	set := settings()
-	set.Model, set.MinPoints, set.Window, set.RefitEvery = "ARIMA(0,1,0)", 8, 16, 1<<30
+	set.Model, set.MinPoints, set.Window, set.RefitEvery = "0,1,0", 8, 16, 1<<30
 	s, err := New("w", set)
 	if err != nil {
 		t.Fatal(err)

@@ -1,5 +1,7 @@
 package series
 
+import "forewarn/engine/arima"
+
 // Snapshot is the complete, self-contained state of one series: everything
 // needed to resume it on this machine or another one and produce exactly
 // the forecasts an uninterrupted run would have produced. It holds plain
@@ -63,9 +65,13 @@ type TransformSnapshot struct {
 	RunM2   float64
 }
 
-// ModelSnapshot is a fitted model and its filter state.
+// ModelSnapshot is a fitted model and its filter state. The model's shape
+// is held as numbers and flags, never as a rendered label: orders
+// (p,d,q)×(P,D,Q) with period s, and the constant term.
 type ModelSnapshot struct {
-	Spec     string    // e.g. "ARIMA(1,1,1)(0,1,1)[24]"
+	Order    [3]int    // p, d, q
+	Seasonal [3]int    // P, D, Q
+	Period   int       // s; 0 when there is no seasonal part
 	Mean     bool      // process mean estimated
 	Drift    bool      // drift estimated
 	Params   []float64 // coefficients in the engine's parameter layout
@@ -75,6 +81,13 @@ type ModelSnapshot struct {
 	NObs     int
 	FittedAt int64     // bucket index of the last bucket the fit saw
 	Filter   []float64 // filter state, as produced by the engine filter
+}
+
+// Spec returns the model's specification (not validated).
+func (m *ModelSnapshot) Spec() arima.Spec {
+	return arima.Spec{P: m.Order[0], D: m.Order[1], Q: m.Order[2],
+		SP: m.Seasonal[0], SD: m.Seasonal[1], SQ: m.Seasonal[2],
+		Period: m.Period, Mean: m.Mean, Drift: m.Drift}
 }
 
 // AlertSnapshot is the persisted state of one alert rule on one series.

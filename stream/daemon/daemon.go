@@ -458,7 +458,8 @@ func settingsOf(sc *config.Series) series.Settings {
 		MinPoints:   sc.MinPoints,
 		RefitEvery:  sc.RefitEvery,
 		Model:       sc.Model,
-		Period:      sc.Period,
+		Period:      sc.Period(),
+		Constant:    sc.Constant,
 		Transform:   sc.Transform,
 		Fingerprint: sc.Fingerprint(),
 	}

@@ -35,7 +35,7 @@ func testConfig(dir string) *config.Config {
 	c.Limits.MaxFuture = 100 * 8760 * time.Hour
 	c.Series = []config.Series{{Match: ">", Kind: "gauge", Step: time.Minute, Horizon: 6,
 		Levels: []float64{80, 95}, Window: 200, MinPoints: 20, RefitEvery: 30,
-		Model: "ARIMA(1,1,0)", Transform: "none"}}
+		Model: "1,1,0", Transform: "none"}}
 	return c.WithDefaults()
 }
 

@@ -105,7 +105,7 @@ func newRigConfig(tb testing.TB, o rigOptions) *rig {
 	cfg.Series = []config.Series{{
 		Match: "bench.>", Step: rigStep, Horizon: rigHorizon, Window: o.window,
 		MinPoints: rigMinPoints, RefitEvery: rigRefitEvery,
-		Model: "ARIMA(1,1,1)", Transform: "none",
+		Model: "1,1,1", Transform: "none",
 	}}
 	if o.alert {
 		thr := rigFarThreshold

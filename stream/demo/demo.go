@@ -54,7 +54,7 @@ func Series() []config.Series {
 		{Match: "storage.*.used_bytes", Kind: "gauge", Step: 5 * time.Minute, Horizon: 72,
 			Levels: []float64{80, 95}, Window: 600, MinPoints: 60, RefitEvery: 36, Model: "auto", Transform: "none"},
 		{Match: "shop.orders", Kind: "counter", Step: time.Hour, Horizon: 24,
-			Levels: []float64{80, 95}, Window: 400, MinPoints: 72, RefitEvery: 24, Model: "auto", Transform: "none", Period: 24},
+			Levels: []float64{80, 95}, Window: 400, MinPoints: 72, RefitEvery: 24, Model: "auto", Transform: "none", Seasons: []config.Cycle{{Length: config.Day}}},
 	}
 }
 

@@ -55,10 +55,10 @@ func startLive(t *testing.T) *live {
 	cfg.HTTP.Listen = ""
 	cfg.Series = []config.Series{
 		{Match: "air.*", Step: time.Minute, Horizon: 24, MinPoints: 60, RefitEvery: 40, Window: 400,
-			Model: "ARIMA(0,1,1)(0,1,1)[12]", Transform: "log"},
+			Model: "0,1,1 x 0,1,1", Seasons: []config.Cycle{{Steps: 12}}, Transform: "log"},
 		{Match: "uk.gas", Step: time.Minute, Horizon: 12, MinPoints: 40, RefitEvery: 30, Window: 400,
-			Model: "ARIMA(0,1,1)(0,1,1)[4]", Transform: "log"},
-		{Match: ">", Step: time.Minute, Horizon: 10, MinPoints: 60, Window: 400, Model: "ARIMA(1,0,0)"},
+			Model: "0,1,1 x 0,1,1", Seasons: []config.Cycle{{Steps: 4}}, Transform: "log"},
+		{Match: ">", Step: time.Minute, Horizon: 10, MinPoints: 60, Window: 400, Model: "1,0,0"},
 	}
 	cfg.Alerts = []config.Alert{
 		{Name: "busy-summer", Match: "air.*", Above: ptr(600), Within: 20 * time.Minute, Probability: 0.5},
@@ -320,7 +320,7 @@ func TestLiveSeriesAPI(t *testing.T) {
 		byTopic[s.Topic] = s
 	}
 	air := byTopic["air.passengers"]
-	if air.Model != "ARIMA(0,1,1)(0,1,1)[12]" || air.Status == "warming_up" || len(air.Alerts) != 1 {
+	if air.Model != "ARIMA 0,1,1 × 0,1,1 s=12" || air.Status == "warming_up" || len(air.Alerts) != 1 {
 		t.Errorf("air.passengers %+v", air)
 	}
 	// The last AirPassengers value (Dec 1960) is still in the open bucket;

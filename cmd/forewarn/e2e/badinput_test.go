@@ -20,7 +20,7 @@ func badInputConfig() string {
     window: 100
     min_points: 24
     refit_every: 6
-    model: "ARIMA(0,1,1)"
+    model: "0,1,1"
     transform: none
   - match: "logs.>"
     step: 1h
@@ -28,20 +28,20 @@ func badInputConfig() string {
     window: 100
     min_points: 10
     refit_every: 5
-    model: "ARIMA(1,0,0)"
+    model: "1,0,0"
     transform: log
   - match: "late.>"
     step: 1h
     min_points: 10
-    model: "ARIMA(0,1,1)"
+    model: "0,1,1"
     transform: none
   - match: "bad.>"
     step: 1h
-    model: "ARIMA(0,1,1)"
+    model: "0,1,1"
     transform: none
   - match: "flood.>"
     step: 1h
-    model: "ARIMA(0,1,1)"
+    model: "0,1,1"
     transform: none
 `
 }

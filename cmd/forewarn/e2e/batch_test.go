@@ -74,7 +74,7 @@ func TestStreamingEqualsBatch(t *testing.T) {
     window: %d
     min_points: 30
     refit_every: 1
-    model: "ARIMA(1,1,1)"
+    model: "1,1,1"
     transform: none
 `, horizon, window)
 	d := newDaemon(t, external, cfg)

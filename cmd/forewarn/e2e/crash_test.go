@@ -36,7 +36,7 @@ const crashStep = time.Minute
 // cheap and deterministic.
 func crashConfig(series int) string {
 	cfg := baseConfig(series+10) + "series:\n"
-	for _, e := range []struct{ kind, model string }{{"gauge", "ARIMA(1,1,0)"}, {"counter", "ARIMA(0,1,1)"}} {
+	for _, e := range []struct{ kind, model string }{{"gauge", "1,1,0"}, {"counter", "0,1,1"}} {
 		cfg += fmt.Sprintf(`  - match: "crash.%c.*"
     kind: %s
     step: 1m

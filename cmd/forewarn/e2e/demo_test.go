@@ -80,7 +80,7 @@ func TestQuery(t *testing.T) {
     horizon: 6
     min_points: 20
     refit_every: 10
-    model: "ARIMA(1,0,0)"
+    model: "1,0,0"
     transform: none
 `
 	d := newDaemon(t, embedded, cfg)

@@ -18,7 +18,7 @@ func restartConfig() string {
     window: 120
     min_points: 24
     refit_every: 6
-    model: "ARIMA(1,1,1)"
+    model: "1,1,1"
     transform: none
 `
 }
