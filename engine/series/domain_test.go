@@ -12,7 +12,7 @@ import (
 func domainSettings(tr string) Settings {
 	return Settings{
 		Kind: "gauge", StepSeconds: 60, Horizon: 4, Levels: []float64{80}, Window: 100,
-		MinPoints: 20, RefitEvery: 50, Model: "ARIMA(0,1,0)", Transform: tr, Fingerprint: tr,
+		MinPoints: 20, RefitEvery: 50, Model: "0,1,0", Transform: tr, Fingerprint: tr,
 	}
 }
 
