@@ -130,9 +130,12 @@ func growF(s []float64, n int) []float64 {
 //
 //	Y_i = (A_i + A'_i)/2,  X_i = (B_i + B'_i)/2,  E X_i = P_{j*},
 //	p̂ = Ȳ − β̂ (X̄ − P_{j*}),  β̂ = S_XY / S_XX,
-//	s² = (S_YY − β̂ S_XY)/(n − 1),  SE = s/√n,
+//	s² = max((S_YY − β̂ S_XY)/(n − 1), q̃(1 − q̃)/2),  SE = s/√n,
+//	q̃ = (D + 1)/(2n + 2),  D = #paths with A ≠ B,
 //
 // n the number of pairs, S the centred sums of squares and products
+// (the floor q̃ keeps SE away from zero when A and B never differ in the
+// sample although P(A ≠ B) > 0: the add-one rule for a rare event)
 // (antithetic variates and the regression control variate, Glasserman
 // 2004, §4.1–4.2). A path stops once it has crossed and reached j*.
 //
@@ -370,7 +373,7 @@ func (e *Evaluator) simulatePaths(ss *StateSpace, sc *screened, rule Rule, noSto
 
 	maxPairs := e.paths / 2
 	var sy, sx, syy, sxx, sxy float64
-	n := 0
+	n, nDiff := 0, 0
 	for n < maxPairs {
 		end := min(n+Batch/2, maxPairs)
 		for ; n < end; n++ {
@@ -413,6 +416,12 @@ func (e *Evaluator) simulatePaths(ss *StateSpace, sc *screened, rule Rule, noSto
 					u[r] = ej
 				}
 			}
+			if aP != bP {
+				nDiff++
+			}
+			if aM != bM {
+				nDiff++
+			}
 			y := 0.5 * (b2f(aP) + b2f(aM))
 			x := 0.5 * (b2f(bP) + b2f(bM))
 			sy += y
@@ -435,6 +444,11 @@ func (e *Evaluator) simulatePaths(ss *StateSpace, sc *screened, rule Rule, noSto
 		if n > 1 {
 			s2 = math.Max(Syy-beta*Sxy, 0) / (nf - 1)
 		}
+		// Floor for a sample in which A and B (almost) never differ: the
+		// residual A − B is then a rare Bernoulli event, whose rate is
+		// taken as (D + 1)/(2n + 2) (add-one rule), D the paths with A ≠ B.
+		qt := (float64(nDiff) + 1) / (2*nf + 2)
+		s2 = math.Max(s2, qt*(1-qt)/2)
 		v := math.Max(s2, 0.25/nf)
 		t := nf * v * rho2
 		hw := math.Sqrt(2 * (t + 1) / (nf * nf * rho2) * math.Log(math.Sqrt(t+1)/alpha))

@@ -51,9 +51,9 @@ func TestDecideAgainstReferences(t *testing.T) {
 	}
 }
 
-// ratio returns |diff|/se, 0 when both are zero (an exact value).
+// ratio returns |diff|/se, 0 when diff is within rounding (an exact value).
 func ratio(diff, se float64) float64 {
-	if diff == 0 {
+	if math.Abs(diff) < 1e-12 {
 		return 0
 	}
 	return math.Abs(diff) / se
