@@ -87,6 +87,8 @@ type Evaluator struct {
 
 	stdErr float64
 	method Method
+
+	pw pathWork // Decide's workspace
 }
 
 // Method says how the last probability was obtained.
@@ -170,100 +172,13 @@ func (e *Evaluator) Paths() int { return e.paths }
 //
 // See the package documentation for the formulas.
 func (e *Evaluator) Probability(q *Query, joint func(cov []float64)) (p float64, etaStep int, err error) {
-	e.stdErr, e.method = 0, MethodNone
-	h := len(q.Mean)
-	if h == 0 || len(q.Variance) != h {
-		return 0, 0, fmt.Errorf("alert: probability: %d means, %d variances: %w", h, len(q.Variance), ErrShape)
+	var sc screened
+	p, done, err := e.screen(q, &sc)
+	etaStep = sc.eta
+	if err != nil || done {
+		return p, etaStep, err
 	}
-	if h > e.maxH {
-		return 0, 0, fmt.Errorf("alert: probability: horizon %d > %d: %w", h, e.maxH, ErrHorizon)
-	}
-	k := q.Window
-	if k < 1 || k > h {
-		return 0, 0, fmt.Errorf("alert: probability: window %d, horizon %d: %w", k, h, ErrWindow)
-	}
-	var sign float64
-	switch q.Direction {
-	case Above:
-		sign = 1
-	case Below:
-		sign = -1
-	default:
-		return 0, 0, fmt.Errorf("alert: probability: %v: %w", q.Direction, ErrDirection)
-	}
-	if !finite(q.Threshold) {
-		return 0, 0, fmt.Errorf("alert: probability: threshold %v: %w", q.Threshold, ErrNotFinite)
-	}
-	c := sign * q.Threshold
-
-	// One pass over the window 1..k validates the values and runs the
-	// union-bound test: far while every step has d_j = c' − m'_j > 0 and
-	// d_j² ≥ zSkip[k]²·v_j, i.e. P_j ≤ Negligible/k. (bestD, bestV) is the
-	// step with the smallest d/√v, compared without division. The checks are
-	// comparisons, not arithmetic, so no step waits on the previous one;
-	// written as !(lo ≤ x ≤ hi) they are also false for NaN.
-	mean, variance := q.Mean[:h], q.Variance[:h]
-	zs := e.zSkip[k]
-	zs2 := zs * zs
-	far := true
-	bestD, bestV := math.Inf(1), 1.0
-	for j, mj := range mean[:k] {
-		vj := variance[j]
-		if !(mj >= -math.MaxFloat64 && mj <= math.MaxFloat64 && vj >= 0 && vj <= math.MaxFloat64) {
-			return 0, 0, badInput(mean, variance)
-		}
-		d := c - sign*mj
-		if far {
-			if d <= 0 || d*d < zs2*vj {
-				far = false
-			} else if d*d*bestV < bestD*bestD*vj {
-				bestD, bestV = d, vj
-			}
-		}
-	}
-	for j, mj := range mean[k:] {
-		vj := variance[k+j]
-		if !(mj >= -math.MaxFloat64 && mj <= math.MaxFloat64 && vj >= 0 && vj <= math.MaxFloat64) {
-			return 0, 0, badInput(mean, variance)
-		}
-	}
-	// eta: when far, no mean within the window is beyond c, so the search
-	// starts after it.
-	from := 0
-	if far {
-		from = k
-	}
-	for j := from; j < h; j++ {
-		if sign*mean[j] > c {
-			etaStep = j + 1
-			break
-		}
-	}
-
-	if q.Monotone || k == 1 {
-		e.method = MethodMarginal
-		return tail(c-sign*q.Mean[k-1], q.Variance[k-1]), etaStep, nil
-	}
-	if far {
-		e.method = MethodSkip
-		return skipBound(k, bestD, bestV), etaStep, nil
-	}
-
-	// Bracket: max_j P_j ≤ p ≤ min(1, Σ_j P_j) (Boole's inequality).
-	lo, hi, jStar := 0.0, 0.0, 0
-	for j := 0; j < k; j++ {
-		pj := tail(c-sign*q.Mean[j], q.Variance[j])
-		hi += pj
-		if pj > lo {
-			lo, jStar = pj, j
-		}
-	}
-	hi = math.Min(hi, 1)
-	if hi-lo <= 2*BracketTol {
-		e.method = MethodBracket
-		return 0.5 * (lo + hi), etaStep, nil
-	}
-
+	h, k, c, sign, lo, hi, jStar := sc.h, sc.k, sc.c, sc.sign, sc.lo, sc.hi, sc.jStar
 	if joint == nil {
 		return 0, etaStep, fmt.Errorf("alert: probability: window %d: %w", k, ErrNoCovariance)
 	}
@@ -283,6 +198,125 @@ func (e *Evaluator) Probability(q *Query, joint func(cov []float64)) (p float64,
 	p = math.Max(lo, math.Min(hi, p))
 	e.method = MethodSimulation
 	return p, etaStep, nil
+}
+
+// screened is what screen learns about a query: the sign-adjusted
+// threshold c (W > c is the condition), the window k ≤ h, eta, and for a
+// gauge that needs simulation the bracket [lo, hi] and the step j*
+// (0-based) with the largest marginal P_{j*} = lo.
+type screened struct {
+	h, k    int
+	sign, c float64
+	eta     int
+	lo, hi  float64
+	jStar   int
+}
+
+// screen validates q, finds eta and applies the exact and bounding
+// shortcuts of the package documentation (marginal, skip, bracket). done
+// is true when p is final (e.method is then set); otherwise sc holds the
+// bracket for a simulation.
+func (e *Evaluator) screen(q *Query, sc *screened) (p float64, done bool, err error) {
+	e.stdErr, e.method = 0, MethodNone
+	h := len(q.Mean)
+	if h == 0 || len(q.Variance) != h {
+		return 0, true, fmt.Errorf("alert: probability: %d means, %d variances: %w", h, len(q.Variance), ErrShape)
+	}
+	if h > e.maxH {
+		return 0, true, fmt.Errorf("alert: probability: horizon %d > %d: %w", h, e.maxH, ErrHorizon)
+	}
+	k := q.Window
+	if k < 1 || k > h {
+		return 0, true, fmt.Errorf("alert: probability: window %d, horizon %d: %w", k, h, ErrWindow)
+	}
+	var sign float64
+	switch q.Direction {
+	case Above:
+		sign = 1
+	case Below:
+		sign = -1
+	default:
+		return 0, true, fmt.Errorf("alert: probability: %v: %w", q.Direction, ErrDirection)
+	}
+	if !finite(q.Threshold) {
+		return 0, true, fmt.Errorf("alert: probability: threshold %v: %w", q.Threshold, ErrNotFinite)
+	}
+	c := sign * q.Threshold
+	sc.h, sc.k, sc.sign, sc.c = h, k, sign, c
+
+	// One pass over the window 1..k validates the values and runs the
+	// union-bound test: far while every step has d_j = c' − m'_j > 0 and
+	// d_j² ≥ zSkip[k]²·v_j, i.e. P_j ≤ Negligible/k. (bestD, bestV) is the
+	// step with the smallest d/√v, compared without division. The checks are
+	// comparisons, not arithmetic, so no step waits on the previous one;
+	// written as !(lo ≤ x ≤ hi) they are also false for NaN.
+	mean, variance := q.Mean[:h], q.Variance[:h]
+	zs := e.zSkip[k]
+	zs2 := zs * zs
+	far := true
+	bestD, bestV := math.Inf(1), 1.0
+	for j, mj := range mean[:k] {
+		vj := variance[j]
+		if !(mj >= -math.MaxFloat64 && mj <= math.MaxFloat64 && vj >= 0 && vj <= math.MaxFloat64) {
+			return 0, true, badInput(mean, variance)
+		}
+		d := c - sign*mj
+		if far {
+			if d <= 0 || d*d < zs2*vj {
+				far = false
+			} else if d*d*bestV < bestD*bestD*vj {
+				bestD, bestV = d, vj
+			}
+		}
+	}
+	for j, mj := range mean[k:] {
+		vj := variance[k+j]
+		if !(mj >= -math.MaxFloat64 && mj <= math.MaxFloat64 && vj >= 0 && vj <= math.MaxFloat64) {
+			return 0, true, badInput(mean, variance)
+		}
+	}
+	// eta: when far, no mean within the window is beyond c, so the search
+	// starts after it.
+	from := 0
+	if far {
+		from = k
+	}
+	for j := from; j < h; j++ {
+		if sign*mean[j] > c {
+			sc.eta = j + 1
+			break
+		}
+	}
+
+	if q.Monotone || k == 1 {
+		e.method = MethodMarginal
+		p = tail(c-sign*q.Mean[k-1], q.Variance[k-1])
+		sc.lo, sc.hi = p, p
+		return p, true, nil
+	}
+	if far {
+		e.method = MethodSkip
+		p = skipBound(k, bestD, bestV)
+		sc.lo, sc.hi = 0, p
+		return p, true, nil
+	}
+
+	// Bracket: max_j P_j ≤ p ≤ min(1, Σ_j P_j) (Boole's inequality).
+	lo, hi, jStar := 0.0, 0.0, 0
+	for j := 0; j < k; j++ {
+		pj := tail(c-sign*q.Mean[j], q.Variance[j])
+		hi += pj
+		if pj > lo {
+			lo, jStar = pj, j
+		}
+	}
+	hi = math.Min(hi, 1)
+	sc.lo, sc.hi, sc.jStar = lo, hi, jStar
+	if hi-lo <= 2*BracketTol {
+		e.method = MethodBracket
+		return 0.5 * (lo + hi), true, nil
+	}
+	return 0, false, nil
 }
 
 // badInput builds the error for the first mean or variance that is not

@@ -20,6 +20,13 @@ var (
 	// ErrNoCovariance is returned when the path probability is needed and no
 	// covariance callback was given.
 	ErrNoCovariance = errors.New("alert: joint covariance needed but no callback given")
+	// ErrNoStateSpace is returned by Decide when a path probability is
+	// needed and no state-space system was given.
+	ErrNoStateSpace = errors.New("alert: state-space system needed but none given")
+	// ErrStateSpace is returned by Decide when the state-space system is
+	// malformed, not finite, or disagrees with the query's means or first
+	// variance.
+	ErrStateSpace = errors.New("alert: state-space system is inconsistent")
 	// ErrCovariance is returned when the joint covariance is not finite, not
 	// symmetric, or its diagonal disagrees with Variance.
 	ErrCovariance = errors.New("alert: joint covariance is inconsistent")

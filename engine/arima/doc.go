@@ -63,7 +63,9 @@
 // # Online use
 //
 // Filter absorbs one observation at a time (Step) and forecasts with
-// variances (Forecast, ForecastJoint) without allocating; AppendState and
+// variances (Forecast, ForecastJoint) without allocating; PathSystem writes
+// the forecast distribution in state-space form (system, state mean and
+// covariance) for path simulation into caller-owned buffers; AppendState and
 // SetState save and restore it exactly. A Filter is not safe for concurrent
 // use; distinct Filters are independent. Fit, LogLik and the other
 // functions keep no shared state and may be called concurrently.

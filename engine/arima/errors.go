@@ -36,6 +36,9 @@ var (
 	// or non-finite prediction variance it cannot recover from.
 	ErrNumerical = errors.New("arima: numerical failure in the Kalman filter")
 
+	// ErrNotReady is returned by Filter.PathSystem before the filter has
+	// seen the d + s·D observations that anchor its forecasts.
+	ErrNotReady = errors.New("arima: filter not ready: anchors unknown")
 	// ErrState is returned by Filter.SetState for a state vector that was
 	// not produced by AppendState of a filter of the same model shape.
 	ErrState = errors.New("arima: invalid filter state")

@@ -1,0 +1,211 @@
+package alert
+
+import (
+	"errors"
+	"math"
+	"testing"
+)
+
+// stateSpace writes the case's process (testdata/crossing.R) in the form
+// of StateSpace: the random walk with drift as ARIMA(0,1,0) with constant
+// a (r = 1, δ = (1), level x0), the AR(1) about b as ARMA(1,0) with mean b.
+func (c refCase) stateSpace() *StateSpace {
+	if c.kind == "rw" {
+		return &StateSpace{Phi: []float64{0}, Theta: []float64{1}, Delta: []float64{1},
+			C: c.a, Sigma2: c.sigma * c.sigma, X: []float64{0, c.x0}, P: []float64{1, 0, 0, 0}}
+	}
+	return &StateSpace{Phi: []float64{c.a}, Theta: []float64{1},
+		C: c.b, Sigma2: c.sigma * c.sigma, X: []float64{c.a * (c.x0 - c.b)}, P: []float64{1}}
+}
+
+// Gauge mode through the state-space paths, all paths drawn (zero Rule):
+// against R mvtnorm 1.1-3 pmvnorm (Genz 1992; tolerance 4·sqrt(SE² +
+// err²)) and R's brute-force simulation (10⁶ paths, 4 combined SE).
+func TestDecideAgainstReferences(t *testing.T) {
+	e := newEval(t, 60, 0)
+	sims := 0
+	for _, c := range loadCases(t) {
+		q := c.query(false)
+		est, err := e.Decide(q, c.stateSpace(), Rule{})
+		if err != nil {
+			t.Fatalf("%s: %v", c.name, err)
+		}
+		se := est.StdErr
+		if est.Method == MethodSimulation {
+			sims++
+			if est.Paths != e.Paths() || est.Decision != Undecided {
+				t.Errorf("%s: %d paths, decision %v; want all %d, undecided", c.name, est.Paths, est.Decision, e.Paths())
+			}
+		}
+		comb := math.Hypot(se, c.genzErr)
+		if math.Abs(est.P-c.pGenz) > 4*comb+1e-9 {
+			t.Errorf("%s: p = %.5f, pmvnorm %.5f, tol %.5f", c.name, est.P, c.pGenz, 4*comb)
+		}
+		if tol := 4 * math.Hypot(se, c.simSE); math.Abs(est.P-c.pSim) > tol+1e-9 {
+			t.Errorf("%s: p = %.5f, R simulation %.5f, tol %.5f", c.name, est.P, c.pSim, tol)
+		}
+		t.Logf("%s: p = %.5f (%v, SE %.5f, %d paths), pmvnorm %.5f ± %.1e, |diff|/comb SE %.2f",
+			c.name, est.P, est.Method, se, est.Paths, c.pGenz, c.genzErr, ratio(est.P-c.pGenz, comb))
+	}
+	if sims < 4 {
+		t.Errorf("only %d cases simulated, crossing.csv has 4 gauge cases that need it", sims)
+	}
+}
+
+// ratio returns |diff|/se, 0 when diff is within rounding (an exact value).
+func ratio(diff, se float64) float64 {
+	if math.Abs(diff) < 1e-12 {
+		return 0
+	}
+	return math.Abs(diff) / se
+}
+
+// The stopping rule places p against the rule's levels and stops early
+// when the levels are far from p. The true p is R mvtnorm pmvnorm's
+// (crossing.csv, rw_drift_up, p = 0.2768): levels well above, around and
+// below it must give BelowClear, Between and AboveRaise within two
+// batches; levels straddling it closely cannot be decided, so all paths
+// are drawn and Decision is Undecided.
+func TestDecideStopsEarly(t *testing.T) {
+	e := newEval(t, 60, 0)
+	c := loadCases(t)[0]
+	if c.name != "rw_drift_up" {
+		t.Fatalf("first case %s, want rw_drift_up", c.name)
+	}
+	q, ss := c.query(false), c.stateSpace()
+	for _, tc := range []struct {
+		rule Rule
+		want Decision
+	}{
+		{Rule{Raise: 0.9, Clear: 0.45}, BelowClear},
+		{Rule{Raise: 0.6, Clear: 0.1}, Between},
+		{Rule{Raise: 0.15, Clear: 0.05}, AboveRaise},
+		{Rule{Raise: 0.2775, Clear: 0.2765}, Undecided},
+	} {
+		est, err := e.Decide(q, ss, tc.rule)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if est.Decision != tc.want {
+			t.Errorf("%+v: decision %v, want %v (p = %.4f, [%.4f, %.4f], pmvnorm %.4f)", tc.rule, est.Decision, tc.want, est.P, est.Lo, est.Hi, c.pGenz)
+		}
+		if tc.want != Undecided && est.Paths > 2*Batch {
+			t.Errorf("%+v: %d paths, want at most %d", tc.rule, est.Paths, 2*Batch)
+		}
+		if tc.want == Undecided && est.Paths != e.Paths() {
+			t.Errorf("%+v: %d paths, want all %d", tc.rule, est.Paths, e.Paths())
+		}
+		if !(est.Lo <= c.pGenz && c.pGenz <= est.Hi) {
+			t.Errorf("%+v: interval [%.4f, %.4f] misses pmvnorm %.4f", tc.rule, est.Lo, est.Hi, c.pGenz)
+		}
+		t.Logf("%+v: %v after %d paths, p = %.4f in [%.4f, %.4f]", tc.rule, est.Decision, est.Paths, est.P, est.Lo, est.Hi)
+	}
+}
+
+// Error rate of the stopping rule (property test, seeded): with levels
+// 0.03 on either side of the true p (R pmvnorm, rw_drift_up and
+// rw_driftless), over 200 seeds each a decision that contradicts pmvnorm
+// must be rare. The confidence sequence promises at most DecisionError =
+// 1 % per evaluation; 8 or more wrong of 400 would have probability below
+// 0.1 % at that rate (binomial), so the test allows 7.
+func TestDecideErrorRate(t *testing.T) {
+	e := newEval(t, 60, 0)
+	wrong, decided := 0, 0
+	for _, c := range loadCases(t)[:3] {
+		if c.name == "rw_drift_down_below" {
+			continue
+		}
+		q, ss := c.query(false), c.stateSpace()
+		for _, rule := range []Rule{{Raise: c.pGenz + 0.03, Clear: c.pGenz - 0.03}, {Raise: c.pGenz - 0.01, Clear: c.pGenz - 0.03}} {
+			for s := uint64(1); s <= 100; s++ {
+				q.Seed = s
+				est, err := e.Decide(q, ss, rule)
+				if err != nil {
+					t.Fatal(err)
+				}
+				if est.Decision == Undecided {
+					continue
+				}
+				decided++
+				if est.Decision != place(c.pGenz, c.pGenz, rule) {
+					wrong++
+				}
+			}
+		}
+	}
+	if decided < 300 || wrong > 7 {
+		t.Errorf("%d wrong of %d decided (of 400)", wrong, decided)
+	}
+	t.Logf("%d wrong of %d decided", wrong, decided)
+}
+
+// Same input, same estimate: the seed comes from the query's values; an
+// explicit Seed changes the draws.
+func TestDecideDeterministic(t *testing.T) {
+	e := newEval(t, 60, 0)
+	c := loadCases(t)[2]
+	q, ss := c.query(false), c.stateSpace()
+	a, err := e.Decide(q, ss, Rule{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	e2 := newEval(t, 60, 0)
+	b, _ := e2.Decide(c.query(false), c.stateSpace(), Rule{})
+	if a != b {
+		t.Errorf("two evaluators: %+v vs %+v", a, b)
+	}
+	q.Seed = 12345
+	d, _ := e.Decide(q, ss, Rule{})
+	if d.P == a.P {
+		t.Errorf("seed 12345 gave the same p %.6f as the derived seed", d.P)
+	}
+}
+
+// In steady state Decide does not allocate, for a k = 120 seasonal model
+// (m = 8) with the stopping rule on and off.
+func TestDecideDoesNotAllocate(t *testing.T) {
+	e := newEval(t, 360, 0)
+	c := loadArimaCases(t)[1]
+	q, ss, _ := c.setup(t)
+	for _, rule := range []Rule{{}, {Raise: 0.9, Clear: 0.45}} {
+		_, _ = e.Decide(q, ss, rule)
+		allocs := testing.AllocsPerRun(3, func() { _, _ = e.Decide(q, ss, rule) })
+		if allocs != 0 || e.LastMethod() != MethodSimulation {
+			t.Errorf("%+v: %v allocations, method %v", rule, allocs, e.LastMethod())
+		}
+	}
+}
+
+// Bad input gives the named error: no system, a system that disagrees with
+// the query, a malformed system, a bad rule.
+func TestDecideBadInput(t *testing.T) {
+	e := newEval(t, 60, 0)
+	c := loadCases(t)[0]
+	q := c.query(false)
+	if _, err := e.Decide(q, nil, Rule{}); !errors.Is(err, ErrNoStateSpace) {
+		t.Errorf("nil system: %v", err)
+	}
+	ss := c.stateSpace()
+	ss.C += 0.01 // drift off by 0.01: means disagree
+	if _, err := e.Decide(q, ss, Rule{}); !errors.Is(err, ErrStateSpace) {
+		t.Errorf("wrong drift: %v", err)
+	}
+	ss = c.stateSpace()
+	ss.P[0] = 2 // variance at step 1 twice the query's
+	if _, err := e.Decide(q, ss, Rule{}); !errors.Is(err, ErrStateSpace) {
+		t.Errorf("wrong variance: %v", err)
+	}
+	ss = c.stateSpace()
+	ss.X = ss.X[:1]
+	if _, err := e.Decide(q, ss, Rule{}); !errors.Is(err, ErrStateSpace) {
+		t.Errorf("short state: %v", err)
+	}
+	ss = c.stateSpace()
+	ss.Phi[0] = math.NaN()
+	if _, err := e.Decide(q, ss, Rule{}); !errors.Is(err, ErrStateSpace) {
+		t.Errorf("NaN φ: %v", err)
+	}
+	if _, err := e.Decide(q, c.stateSpace(), Rule{Raise: 0.3, Clear: 0.5}); !errors.Is(err, ErrRule) {
+		t.Errorf("clear above raise: %v", err)
+	}
+}
