@@ -486,12 +486,57 @@ const (
 var issuedRe = regexp.MustCompile(`"issued":"[^"]*"`)
 
 // withoutIssued is a forecast message with its "issued" value blanked.
-func withoutIssued(t *testing.T, b []byte) []byte {
-	t.Helper()
+func withoutIssued(b []byte) ([]byte, error) {
 	if n := len(issuedRe.FindAllIndex(b, -1)); n != 1 {
-		t.Fatalf("forecast message has %d \"issued\" members, want 1: %s", n, b)
+		return nil, fmt.Errorf("forecast message has %d \"issued\" members, want 1: %s", n, b)
 	}
-	return issuedRe.ReplaceAll(b, []byte(`"issued":""`))
+	return issuedRe.ReplaceAll(b, []byte(`"issued":""`)), nil
+}
+
+// sameApartFromIssued reports whether two forecast messages are
+// byte-identical apart from the value of "issued".
+func sameApartFromIssued(a, b []byte) (bool, error) {
+	x, err := withoutIssued(a)
+	if err != nil {
+		return false, err
+	}
+	y, err := withoutIssued(b)
+	if err != nil {
+		return false, err
+	}
+	return bytes.Equal(x, y), nil
+}
+
+// byOrigin indexes forecast messages by origin, keeping the first at
+// each, and lists the repeats policy forbids; repeated counts every
+// repeat. An error is a message that is not a forecast.
+func byOrigin(msgs []message, policy repeats) (out map[time.Time][]byte, repeated int, bad []string, err error) {
+	out = map[time.Time][]byte{}
+	for _, m := range msgs {
+		f, err := parseForecast(m.Data)
+		if err != nil {
+			return nil, 0, nil, err
+		}
+		first, seen := out[f.Origin]
+		if !seen {
+			out[f.Origin] = m.Data
+			continue
+		}
+		repeated++
+		if policy == onceEach {
+			bad = append(bad, fmt.Sprintf("%s: origin %s published again in a run without a crash", m.Subject, f.Origin.Format(time.RFC3339)))
+			continue
+		}
+		same, err := sameApartFromIssued(first, m.Data)
+		if err != nil {
+			return nil, 0, nil, err
+		}
+		if !same {
+			bad = append(bad, fmt.Sprintf("%s: origin %s published twice with different content:\n first %s\n again %s",
+				m.Subject, f.Origin.Format(time.RFC3339), first, m.Data))
+		}
+	}
+	return out, repeated, bad, nil
 }
 
 // forecastsByOrigin indexes the forecast messages of one subject by
@@ -501,33 +546,16 @@ func withoutIssued(t *testing.T, b []byte) []byte {
 // repeats it saw.
 func forecastsByOrigin(t *testing.T, msgs []message, policy repeats) (map[time.Time][]byte, int) {
 	t.Helper()
-	out := map[time.Time][]byte{}
-	repeated, bad := 0, 0
-	for _, m := range msgs {
-		f := decodeForecast(t, m.Data)
-		first, seen := out[f.Origin]
-		if !seen {
-			out[f.Origin] = m.Data
-			continue
-		}
-		repeated++
-		switch {
-		case policy == onceEach:
-			bad++
-			if bad <= 3 {
-				t.Errorf("%s: origin %s published again in a run without a crash:\n first %s\n again %s",
-					m.Subject, f.Origin.Format(time.RFC3339), first, m.Data)
-			}
-		case !bytes.Equal(withoutIssued(t, first), withoutIssued(t, m.Data)):
-			bad++
-			if bad <= 3 {
-				t.Errorf("%s: origin %s published twice with different content:\n first %s\n again %s",
-					m.Subject, f.Origin.Format(time.RFC3339), first, m.Data)
-			}
-		}
+	out, repeated, bad, err := byOrigin(msgs, policy)
+	if err != nil {
+		t.Fatal(err)
 	}
-	if bad > 3 {
-		t.Errorf("%d bad repeats in all", bad)
+	for i, b := range bad {
+		if i == 3 {
+			t.Errorf("… %d bad repeats in all", len(bad))
+			break
+		}
+		t.Error(b)
 	}
 	return out, repeated
 }

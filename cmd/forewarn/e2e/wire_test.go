@@ -104,9 +104,18 @@ type wireForecast struct {
 // contract's JSON fails the test.
 func decodeForecast(t *testing.T, b []byte) forecast {
 	t.Helper()
+	f, err := parseForecast(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return f
+}
+
+// parseForecast reads a forecast message.
+func parseForecast(b []byte) (forecast, error) {
 	var w wireForecast
 	if err := json.Unmarshal(b, &w); err != nil {
-		t.Fatalf("forecast message is not the contract's JSON: %v\n%s", err, b)
+		return forecast{}, fmt.Errorf("forecast message is not the contract's JSON: %v\n%s", err, b)
 	}
 	f := forecast{Topic: w.Topic, Issued: w.Issued, Origin: w.Origin, StepSeconds: w.StepSeconds,
 		LastValue: w.LastValue, Kind: w.Kind,
@@ -115,11 +124,11 @@ func decodeForecast(t *testing.T, b []byte) forecast {
 	for _, p := range w.Points {
 		bs, err := mapBands(p.Lower, p.Upper)
 		if err != nil {
-			t.Fatalf("forecast message, h=%d: %v\n%s", p.H, err, b)
+			return forecast{}, fmt.Errorf("forecast message, h=%d: %v\n%s", p.H, err, b)
 		}
 		f.Points = append(f.Points, forecastPoint{H: p.H, Time: p.Time, Mean: p.Mean, Median: p.Median, Bands: bs})
 	}
-	return f
+	return f, nil
 }
 
 // mapBands turns bounds keyed by level ("80") into bands, levels ascending.
