@@ -2,6 +2,7 @@ package e2e
 
 import (
 	"bufio"
+	"errors"
 	"fmt"
 	"os"
 	"os/exec"
@@ -19,8 +20,8 @@ import (
 // matched whole: a value as humanfmt writes it, a span in whole units, a
 // data time to the minute.
 const (
-	demoValue = `-?[0-9]+(?:\.[0-9]+)?(?:e[-+][0-9]+| [kMGTPE])?`
-	demoSpan  = `(?:[0-9]+d)?(?:[0-9]+h)?(?:[0-9]+m)?(?:[0-9]+s)?`
+	demoValue = `-?[0-9]+(?:\.[0-9]+)?(?:e-[0-9]+| [kMGTPE])?`
+	demoSpan  = `(?:[1-9][0-9]*d)?(?:[1-9][0-9]*h)?(?:[1-9][0-9]*m)?(?:[1-9][0-9]*s)?`
 	demoTime  = `[0-9]{4}-[0-9]{2}-[0-9]{2} [0-9]{2}:[0-9]{2}`
 	demoBound = `(?:` + demoValue + `|unbounded)`
 )
@@ -90,36 +91,42 @@ func TestDemo(t *testing.T) {
 			_ = cmd.Wait()
 		}
 		if t.Failed() {
-			t.Logf("stdout:\n%s\nlog tail:\n%s", strings.Join(seen, "\n"), tail(logPath, 30))
+			t.Logf("stdout, last lines:\n%s\nlog tail:\n%s", strings.Join(seen[max(0, len(seen)-30):], "\n"), tail(logPath, 30))
 		}
 	})
 
-	// check matches one line and reports what it was.
-	forecasts := map[string]bool{}
-	var alerts []string // states in order: raised, cleared, …
-	check := func(l string) {
+	// check matches one line whole and says what is wrong with it.
+	forecasts := map[string]string{} // topic → last origin
+	var alerts []string              // states in order: raised, cleared, …
+	check := func(l string) error {
 		seen = append(seen, l)
 		if m := forecastLineRe.FindStringSubmatch(l); m != nil {
-			topic, span := m[2], m[5]
+			at, topic, span := m[1], m[2], m[5]
 			want, ok := demoHorizon[topic]
 			switch {
 			case !ok:
-				t.Errorf("forecast line for %q, not a demo series: %s", topic, l)
+				return fmt.Errorf("forecast line for %q, not a demo series", topic)
 			case span != want:
-				t.Errorf("forecast line for %s at +%s, want the horizon +%s: %s", topic, span, want, l)
+				return fmt.Errorf("forecast line for %s at +%s, want the horizon +%s", topic, span, want)
+			case at <= forecasts[topic]:
+				return fmt.Errorf("forecast line for %s at %s after one at %s: origins must increase", topic, at, forecasts[topic])
 			}
-			forecasts[topic] = true
-			return
+			for _, v := range []string{m[3], m[4], m[6], m[7]} {
+				if n := sigDigits(v); n > 4 {
+					return fmt.Errorf("value %q has %d significant digits, at most 4", v, n)
+				}
+			}
+			forecasts[topic] = at
+			return nil
 		}
 		m := alertLineRe.FindStringSubmatch(l)
 		if m == nil {
-			t.Errorf("stdout line is neither a forecast nor an alert line: %q", l)
-			return
+			return errors.New("neither a forecast nor an alert line")
 		}
 		// The demo's rule (stream/demo Alerts): above 900 GB within 6h
 		// with probability 0.9, cleared below half of it (config default).
 		if m[2] != "storage.vol1.used_bytes" || m[3] != "volume-nearly-full" || m[6] != "900 G" || m[7] != "6h" {
-			t.Errorf("alert line is not the demo's rule on its volume: %s", l)
+			return errors.New("not the demo's rule on its volume")
 		}
 		state, p := m[4], m[5]
 		want := "raised"
@@ -127,22 +134,25 @@ func TestDemo(t *testing.T) {
 			want = "cleared"
 		}
 		if state != want {
-			t.Errorf("alert line %d is %s, want %s (the states alternate from raised): %s", len(alerts)+1, state, want, l)
+			return fmt.Errorf("alert line %d is %s, want %s (the states alternate from raised)", len(alerts)+1, state, want)
 		}
 		if x, _ := strconv.ParseFloat(p, 64); state == "raised" && x < 0.9 || state == "cleared" && x > 0.45 {
-			t.Errorf("%s with p=%s: %s", state, p, l)
+			return fmt.Errorf("%s with p=%s", state, p)
 		}
 		if eta := m[8]; eta != "none" {
 			if d := parseSpan(eta[1:]); d <= 0 || d > 6*time.Hour {
-				t.Errorf("eta %s is not within the series' 6h horizon: %s", eta, l)
+				return fmt.Errorf("eta %s is not within the series' 6h horizon", eta)
 			}
 		}
 		alerts = append(alerts, state)
+		return nil
 	}
 
 	done := func() bool { return len(forecasts) == len(demoHorizon) && len(alerts) >= 2 }
 	for l := range lines {
-		check(l)
+		if err := check(l); err != nil {
+			t.Fatalf("stdout line %d: %v:\n%s", len(seen), err, l)
+		}
 		if done() {
 			break
 		}
@@ -158,12 +168,22 @@ func TestDemo(t *testing.T) {
 		t.Fatal(err)
 	}
 	for l := range lines { // to the end of stdout: the process closed it
-		check(l)
+		if err := check(l); err != nil {
+			t.Errorf("stdout line %d: %v:\n%s", len(seen), err, l)
+		}
 	}
 	exited = true
 	if err := cmd.Wait(); err != nil {
 		t.Errorf("demo exit after SIGTERM: %v", err)
 	}
+}
+
+// sigDigits counts the significant digits of a value as the demo writes it.
+func sigDigits(v string) int {
+	v, _, _ = strings.Cut(v, " ")
+	v, _, _ = strings.Cut(v, "e")
+	v = strings.TrimLeft(strings.NewReplacer("-", "", ".", "").Replace(v), "0")
+	return len(v)
 }
 
 // parseSpan reads a span as the demo writes it (d is 24h).
