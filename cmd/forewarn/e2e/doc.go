@@ -41,10 +41,10 @@
 // state words, a fixed model in the config, forewarn fit's flags and JSON)
 // lives in wire_test.go alone.
 //
-// The tests wait on events (messages, acknowledgements, lines, exit); the
-// waits that still carry a limit use it only to fail with a message
-// instead of hanging. TestDemo has none: go test's -timeout is its
-// backstop.
+// TestDemo waits on events only (the lines it reads, the process's exit),
+// with go test's -timeout as the backstop. The other tests still poll for
+// their messages with generous limits (eventually, waitConsumed:
+// 30 s to 3 min), which fail the test if exceeded.
 //
 // The package has no non-test code; this file only documents it.
 package e2e
