@@ -195,8 +195,13 @@ func finishCrashRun(t *testing.T, d *daemon, c *collector, topics []string, last
 // series published at a steady rate while the daemon is killed with
 // SIGKILL at random moments (seeded) and restarted each time; in the end
 // every series' state record and last forecast equal an uninterrupted
-// run's: nothing lost, nothing applied twice. Against the daemon's
-// embedded server and against an external one.
+// run's: nothing lost, nothing applied twice. Every forecast the crash run
+// published equals the uninterrupted run's at its origin; an origin
+// published again after a kill is byte-identical apart from "issued"
+// (sameAgain). Origins whose forecast a kill lost are counted in the log,
+// not failed: the contract promises exactly-once for the input's effect,
+// not for publications. Against the daemon's embedded server and against
+// an external one.
 func TestCrashNothingLostNothingTwice(t *testing.T) {
 	size := crashSizeFromEnv()
 	msgs, topics, lastBucket := crashData(size, 20240601)
@@ -302,7 +307,9 @@ func TestCrashNothingLostNothingTwice(t *testing.T) {
 					switch {
 					case !ok:
 						bad++
-						t.Errorf("%s: origin %s published in the crash run only", topic, o.Format(time.RFC3339))
+						if bad <= 3 {
+							t.Errorf("%s: origin %s published in the crash run only", topic, o.Format(time.RFC3339))
+						}
 					case !mustSame(t, gm, wm):
 						bad++
 						if bad <= 3 {
@@ -317,7 +324,7 @@ func TestCrashNothingLostNothingTwice(t *testing.T) {
 				}
 			}
 			if bad > 0 {
-				t.Errorf("%d of %d series differ (state or last forecast)", bad, len(topics))
+				t.Errorf("%d differences in all (state records, last forecasts, forecasts by origin) over %d series", bad, len(topics))
 			}
 			t.Logf("%s: %d origins of the uninterrupted run have no forecast in the crash run", mode, missing)
 		})
