@@ -10,15 +10,20 @@
 //     growing fast after launch and then slowing; the download service
 //     restarts once, so the counter resets and forewarn carries the total.
 //   - storage.vol1.used_bytes: bytes used on a volume of 1 TB (a gauge),
-//     filling steadily; the rule volume-nearly-full fires when it is likely
-//     to pass 900 GB within six hours; at 95 % an operator frees space and
-//     the rule resolves.
+//     filling steadily; the rule volume-nearly-full is raised when the
+//     volume is likely to pass 900 GB within six hours; at 95 % an operator
+//     frees space and the rule is cleared.
 //   - shop.orders: cumulative orders of the web shop (a counter) with a
 //     daily cycle.
 //
 // Each series first publishes a few days of history in one burst (as if the
 // daemon had just been put next to running services), then one observation
 // per simulated step.
+//
+// The daemon prints one line per forecast (ForecastLine) and per alert
+// state change (AlertLine) on standard output, plain and lower-case, with
+// values and durations written by package humanfmt; the log goes to
+// standard error.
 package demo
 
 import (
@@ -34,6 +39,7 @@ import (
 
 	"forewarn/config"
 	"forewarn/engine/series"
+	"forewarn/stream/humanfmt"
 )
 
 // Tick is the simulated time that passes per Interval of wall time.
@@ -179,68 +185,65 @@ func logisticSlope(t, mid, s float64) float64 {
 	return e / (s * (1 + e) * (1 + e))
 }
 
-// ForecastLine is the demo's one readable line for a forecast.
+// TimeLayout is how the demo's lines write a data time (UTC, minutes).
+const TimeLayout = "2006-01-02 15:04"
+
+// ForecastLine is the demo's one readable line for a forecast, in this
+// shape (values by humanfmt.Value, spans by humanfmt.Offset):
+//
+//	<origin> forecast <topic> last <value> median <value> at +<span> <level>% band <low> to <high> transform <name> model <label>
+//
+// The median and the band are those of the last step of the horizon, the
+// band the lowest level's; an unbounded band end is "unbounded". The band
+// part is left out when the series has no levels. A missing last value is
+// "missing".
 func ForecastLine(f *series.Forecast) string {
-	if len(f.Points) == 0 {
-		return ""
+	var b strings.Builder
+	fmt.Fprintf(&b, "%s forecast %s last %s", f.Origin.UTC().Format(TimeLayout), f.Topic, value(f.LastValue))
+	if n := len(f.Points); n > 0 {
+		p := f.Points[n-1]
+		span := time.Duration(p.H) * time.Duration(f.StepSeconds) * time.Second
+		fmt.Fprintf(&b, " median %s at %s", value(p.Median), humanfmt.Offset(span))
+		if len(f.Levels) > 0 && len(p.Lower) > 0 && len(p.Upper) > 0 {
+			fmt.Fprintf(&b, " %s%% band %s to %s", strconv.FormatFloat(f.Levels[0], 'f', -1, 64), bound(p.Lower[0]), bound(p.Upper[0]))
+		}
 	}
-	p := f.Points[len(f.Points)-1]
-	span := time.Duration(p.H) * time.Duration(f.StepSeconds) * time.Second
-	band := ""
-	if n := len(f.Levels); n > 0 {
-		band = fmt.Sprintf(" (%g%%: %s … %s)", f.Levels[0], bound(p.Lower[0]), bound(p.Upper[0]))
-	}
-	return fmt.Sprintf("%s  %-24s now %s → in %s %s%s  [%s, %s]",
-		f.Origin.Format("Jan 02 15:04"), f.Topic, human(f.LastValue), span, human(p.Median), band,
-		f.Model.Spec, f.Model.Transform)
+	fmt.Fprintf(&b, " transform %s model %s", f.Model.Transform, f.Model.Spec)
+	return b.String()
 }
 
-// AlertLine is the demo's one readable line for an alert state change.
+// AlertLine is the demo's one readable line for an alert state change, in
+// this shape (the states are ITU-T X.733's):
+//
+//	<origin> alert <topic> <rule> raised|cleared p=<probability> above|below <threshold> within <window> eta +<span>|none
+//
+// p is the chance of crossing within the window, to two decimals; eta is
+// when the median forecast is first beyond the threshold, relative to the
+// origin, or none when it stays on this side over the horizon.
 func AlertLine(e *series.AlertEvent) string {
-	state := "RESOLVED"
+	state := "cleared"
 	if e.Raised {
-		state = "FIRING"
+		state = "raised"
 	}
-	eta := "beyond the horizon"
+	eta := "none"
 	if e.HasETA {
-		eta = e.ETA.Format("Jan 02 15:04")
+		eta = humanfmt.Offset(e.ETA.Sub(e.Origin))
 	}
-	return fmt.Sprintf("%s  %-24s ALERT %s %s: P(%s %s within %s) = %.2f, median crosses %s",
-		e.Origin.Format("Jan 02 15:04"), e.Topic, e.Rule, state, e.Direction, human(e.Threshold),
-		time.Duration(e.WithinSeconds)*time.Second, e.Probability, eta)
+	return fmt.Sprintf("%s alert %s %s %s p=%.2f %s %s within %s eta %s",
+		e.Origin.UTC().Format(TimeLayout), e.Topic, e.Rule, state, e.Probability, e.Direction,
+		value(e.Threshold), humanfmt.Duration(time.Duration(e.WithinSeconds)*time.Second), eta)
 }
 
 func bound(b series.Bound) string {
 	if !b.OK {
 		return "unbounded"
 	}
-	return human(b.Value)
+	return value(b.Value)
 }
 
-// human prints a value with an SI suffix and three significant figures.
-func human(v float64) string {
+func value(v float64) string {
 	if math.IsNaN(v) {
-		return "n/a"
+		return "missing"
 	}
-	a := math.Abs(v)
-	for _, u := range []struct {
-		f float64
-		s string
-	}{{1e12, "T"}, {1e9, "G"}, {1e6, "M"}, {1e3, "k"}} {
-		if a >= u.f {
-			return strconv.FormatFloat(v/u.f, 'f', 3-digits(a/u.f), 64) + u.s
-		}
-	}
-	return strconv.FormatFloat(v, 'f', max(0, 3-digits(a)), 64)
-}
-
-func digits(a float64) int {
-	switch {
-	case a >= 100:
-		return 3
-	case a >= 10:
-		return 2
-	default:
-		return 1
-	}
+	return humanfmt.Value(v)
 }

@@ -93,7 +93,7 @@ func View(topic string, e *daemon.Entry, history int) site.View {
 		rv := site.Rule{Name: r.Name, Threshold: r.Threshold, Above: r.Above, Probability: math.NaN()}
 		for _, a := range snap.Alerts {
 			if a.Rule == r.Name {
-				rv.Firing, rv.Probability = a.Raised, a.Probability
+				rv.Raised, rv.Probability = a.Raised, a.Probability
 				if a.Since != 0 {
 					rv.Since = at(a.Since)
 				}

@@ -39,16 +39,16 @@ func alertsOf(t *testing.T, c *collector, topic string) []alertMsg {
 // climbing toward its capacity (invented data: a random walk with drift,
 // x_t = x_{t−1} + 2 + 0.5·ε_t from x_0 = 100, ε seeded standard normal, a
 // step of 1h) with the rule "above
-// 400 within 24h with probability 0.9" fires exactly once, with an eta
+// 400 within 24h with probability 0.9" is raised exactly once, with an eta
 // within a step of the crossing of the median; a SIGTERM restart does not
-// fire it again; once the volume is cleaned up and stays flat far below the
-// threshold the probability falls and the rule resolves.
+// raise it again; once the volume is cleaned up and stays flat far below the
+// threshold the probability falls and the rule is cleared.
 //
 // The analytic crossing: for a random walk with drift μ the median forecast
 // from origin T is x_T + h·μ, so it is first beyond c at h* = the least
 // h > (c − x_T)/μ (the acceptance case of issue 5). The model is "auto"
 // (transform none): a fixed model cannot carry a drift in the config, and
-// ARIMA(0,2,1) has its MA root on the unit circle for such data.
+// the model 0,2,1 has its MA root on the unit circle for such data.
 func TestAlertEndToEnd(t *testing.T) {
 	t.Parallel()
 	const topic = "storage.vol1.used_bytes"
@@ -83,31 +83,32 @@ alerts:
 	publishRange(p, topic, step, values, 0, 136)
 	waitOrigin(t, c, topic, step, 134, 60*time.Second)
 	as := alertsOf(t, c, topic)
-	if len(as) != 1 || as[0].State != "firing" {
-		t.Fatalf("climbing to t=135: alerts %+v, want exactly one firing", as)
+	if len(as) != 1 || as[0].State != alertRaised {
+		t.Fatalf("climbing to t=135: alerts %+v, want exactly one %s", as, alertRaised)
 	}
 	a := as[0]
 	if a.Rule != "vol-full" || a.Direction != "above" || a.Threshold != threshold || a.WithinSeconds != 86400 {
-		t.Errorf("firing alert fields: %+v", a)
+		t.Errorf("raised alert fields: %+v", a)
 	}
 	if a.Probability < 0.9 || a.Probability > 1 {
-		t.Errorf("firing probability %g, want in [0.9, 1]", a.Probability)
+		t.Errorf("raised with probability %g, want in [0.9, 1]", a.Probability)
 	}
 	k := int(a.Origin.Sub(t0) / step)
 	crossing := a.Origin.Add(time.Duration(math.Floor((threshold-values[k])/drift)+1) * step)
 	if a.ETA == nil {
-		t.Errorf("firing alert has no eta; the median crosses at %s", crossing.Format(time.RFC3339))
+		t.Errorf("raised alert has no eta; the median crosses at %s", crossing.Format(time.RFC3339))
 	} else if dt := a.ETA.Sub(crossing); math.Abs(float64(dt)) > float64(step) {
 		t.Errorf("eta %s, analytic median crossing %s: off by %s, more than a step", a.ETA.Format(time.RFC3339), crossing.Format(time.RFC3339), dt)
 	}
 	// eta is, by definition, the first forecast time whose median is
-	// beyond the threshold (CONTRACT.md §2): check it against the forecast
-	// with the same origin.
-	for _, m := range c.get("forecast", "forewarn.forecast."+topic) {
-		f := decodeForecast(t, m.Data)
-		if !f.Origin.Equal(a.Origin) {
-			continue
-		}
+	// beyond the threshold, null when there is none (CONTRACT.md §2):
+	// check it against the forecast with the same origin, which must exist
+	// (an alert is evaluated on a forecast).
+	fs, _ := forecastsByOrigin(t, c.get("forecast", "forewarn.forecast."+topic), onceEach)
+	if m, ok := fs[a.Origin]; !ok {
+		t.Errorf("no forecast at the alert's origin %s to check its eta against", a.Origin.Format(time.RFC3339))
+	} else {
+		f := decodeForecast(t, m)
 		var first *time.Time
 		for i := range f.Points {
 			if f.Points[i].Median > threshold {
@@ -115,34 +116,37 @@ alerts:
 				break
 			}
 		}
-		if first != nil && a.ETA != nil && !first.Equal(*a.ETA) {
+		switch { // both nil agrees with the definition; a missing eta failed above
+		case (first == nil) != (a.ETA == nil):
+			t.Errorf("eta %v, but the forecast at the same origin first has its median above %g at %v", a.ETA, threshold, first)
+		case first != nil && !first.Equal(*a.ETA):
 			t.Errorf("eta %s, but the forecast at the same origin first has its median above %g at %s", a.ETA, threshold, first)
 		}
 	}
-	t.Logf("fired at origin %s with probability %.3f, eta %v", a.Origin.Format(time.RFC3339), a.Probability, a.ETA)
+	t.Logf("raised at origin %s with probability %.3f, eta %v", a.Origin.Format(time.RFC3339), a.Probability, a.ETA)
 
-	// Restart: still climbing, already firing, nothing new.
+	// Restart: still climbing, already raised, nothing new.
 	d.stop()
 	d.start()
 	waitConnected(t, nc)
 	publishRange(p, topic, step, values, 136, 141)
 	waitOrigin(t, c, topic, step, 139, 60*time.Second)
 	if as := alertsOf(t, c, topic); len(as) != 1 {
-		t.Fatalf("after the restart: %d alert messages %+v, want still the one firing", len(as), as)
+		t.Fatalf("after the restart: %d alert messages %+v, want still the one raised", len(as), as)
 	}
 
-	// Growth stops far below the threshold: the rule resolves, once.
+	// Growth stops far below the threshold: the rule is cleared, once.
 	publishRange(p, topic, step, values, 141, len(values))
 	waitOrigin(t, c, topic, step, len(values)-2, 60*time.Second)
 	d.stop()
 	as = alertsOf(t, c, topic)
-	if len(as) != 2 || as[1].State != "resolved" {
-		t.Fatalf("after growth stopped: alerts %+v, want firing then resolved", as)
+	if len(as) != 2 || as[1].State != alertCleared {
+		t.Fatalf("after growth stopped: alerts %+v, want %s then %s", as, alertRaised, alertCleared)
 	}
 	if r := as[1]; r.Probability >= 0.45 {
-		t.Errorf("resolved with probability %g, want below the resolve level 0.45 (half of 0.9)", r.Probability)
+		t.Errorf("cleared with probability %g, want below the clear level 0.45 (half of 0.9)", r.Probability)
 	}
 	if !as[1].Origin.After(t0.Add(140 * step)) {
-		t.Errorf("resolved at origin %s, before growth stopped", as[1].Origin.Format(time.RFC3339))
+		t.Errorf("cleared at origin %s, before growth stopped", as[1].Origin.Format(time.RFC3339))
 	}
 }

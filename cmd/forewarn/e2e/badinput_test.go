@@ -20,7 +20,7 @@ func badInputConfig() string {
     window: 100
     min_points: 24
     refit_every: 6
-    model: "0,1,1"
+    model: ` + fixedModel("0,1,1") + `
     transform: none
   - match: "logs.>"
     step: 1h
@@ -28,20 +28,20 @@ func badInputConfig() string {
     window: 100
     min_points: 10
     refit_every: 5
-    model: "1,0,0"
+    model: ` + fixedModel("1,0,0") + `
     transform: log
   - match: "late.>"
     step: 1h
     min_points: 10
-    model: "0,1,1"
+    model: ` + fixedModel("0,1,1") + `
     transform: none
   - match: "bad.>"
     step: 1h
-    model: "0,1,1"
+    model: ` + fixedModel("0,1,1") + `
     transform: none
   - match: "flood.>"
     step: 1h
-    model: "0,1,1"
+    model: ` + fixedModel("0,1,1") + `
     transform: none
 `
 }
@@ -59,7 +59,12 @@ type badCase struct {
 // the daemon's further codes (bad_value, bad_field, missing_value,
 // too_deep, empty, out_of_domain, no_series_entry).
 func badCases() []badCase {
-	at := `"2024-01-02T00:00:00Z"`
+	day1 := t0.Add(24 * time.Hour)
+	at := `"` + day1.Format(time.RFC3339) + `"`
+	// Just beyond the arrival-time limits (baseConfig), with a margin of
+	// ten days and a day for the time the run takes.
+	tooOld := `"` + time.Now().Add(-maxPast-10*24*time.Hour).UTC().Format(time.RFC3339) + `"`
+	tooNew := `"` + time.Now().Add(maxFuture+24*time.Hour).UTC().Format(time.RFC3339) + `"`
 	big := `{"time":` + at + `,"value":1` + strings.Repeat(" ", 5000) + `}`
 	var arr strings.Builder
 	arr.WriteString("[")
@@ -67,7 +72,7 @@ func badCases() []badCase {
 		if i > 0 {
 			arr.WriteString(",")
 		}
-		fmt.Fprintf(&arr, `{"time":"2024-01-02T00:%02d:00Z","value":%d}`, i%60, i)
+		fmt.Fprintf(&arr, `{"time":%q,"value":%d}`, day1.Add(time.Duration(i%60)*time.Minute).Format(time.RFC3339), i)
 	}
 	arr.WriteString("]")
 	cases := []badCase{
@@ -89,6 +94,8 @@ func badCases() []badCase {
 		{"time in milliseconds", "", `{"time":1704067200000,"value":1}`, "bad_time"},
 		{"time far future", "", `{"time":"2200-01-01T00:00:00Z","value":1}`, "bad_time"},
 		{"time far past", "", `{"time":"1900-01-01T00:00:00Z","value":1}`, "bad_time"},
+		{"time beyond max_future", "", `{"time":` + tooNew + `,"value":1}`, "bad_time"},
+		{"time beyond max_past", "", `{"time":` + tooOld + `,"value":1}`, "bad_time"},
 		{"unknown key", "", `{"time":` + at + `,"value":1,"unit":"B"}`, "bad_field"},
 		{"repeated key", "", `{"time":` + at + `,"value":1,"value":2}`, "bad_field"},
 		{"no value", "", `{"time":` + at + `}`, "missing_value"},
@@ -237,7 +244,7 @@ func TestBadInput(t *testing.T) {
 	d.stop()
 
 	// The good series is untouched by everything else.
-	have := forecastsByOrigin(t, c.get("forecast", "forewarn.forecast."+good))
+	have, _ := forecastsByOrigin(t, c.get("forecast", "forewarn.forecast."+good), onceEach)
 	if len(want) == 0 || len(have) != len(want) {
 		t.Errorf("good series: %d forecast origins with bad input, %d without", len(have), len(want))
 	}

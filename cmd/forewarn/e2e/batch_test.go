@@ -14,24 +14,7 @@ import (
 
 // Standard normal quantiles for the 80 % and 95 % central intervals,
 // Φ⁻¹(0.90) and Φ⁻¹(0.975) (R 4.2.2 qnorm).
-var zLevel = map[string]float64{"80": 1.2815515655446004, "95": 1.959963984540054}
-
-// fitOutput is `forewarn fit --format json` (CONTRACT.md §3).
-type fitOutput struct {
-	Model struct {
-		Spec      string `json:"spec"`
-		Transform string `json:"transform"`
-	} `json:"model"`
-	AICc     float64 `json:"aicc"`
-	NObs     int     `json:"nobs"`
-	Forecast []struct {
-		H     int                 `json:"h"`
-		Mean  float64             `json:"mean"`
-		SE    float64             `json:"se"`
-		Lower map[string]*float64 `json:"lower"`
-		Upper map[string]*float64 `json:"upper"`
-	} `json:"forecast"`
-}
+var zLevel = map[float64]float64{80: 1.2815515655446004, 95: 1.959963984540054}
 
 // rWindow is testdata/streaming_window.json, written by
 // testdata/streaming_window.R.
@@ -52,9 +35,9 @@ func relDiff(a, b float64) float64 {
 
 // TestStreamingEqualsBatch is issue 4's acceptance: R's datasets::WWWusage
 // (internet server users per minute, 100 values) published one value a
-// bucket with a fixed ARIMA(1,1,1), refit_every 1 and window 80, plus one
+// bucket with a fixed model p,d,q = 1,1,1, refit_every 1 and window 80, plus one
 // observation to close the last bucket. The forecast issued at that close
-// equals `forewarn fit --order 1,1,1` on the same 80 values to 1e-9
+// equals `forewarn fit` with the fixed model 1,1,1 on the same 80 values to 1e-9
 // relative, means and bands; and it agrees with R 4.2.2's
 // predict(arima(WWWusage[21:100], c(1,1,1), method = "ML")) within the
 // engine's tolerances (engine/arima TestForecastMatchesR, own fit: means
@@ -74,22 +57,22 @@ func TestStreamingEqualsBatch(t *testing.T) {
     window: %d
     min_points: 30
     refit_every: 1
-    model: "1,1,1"
+    model: %s
     transform: none
-`, horizon, window)
+`, horizon, window, fixedModel("1,1,1"))
 	d := newDaemon(t, external, cfg)
 	_, c, p := session(t, d)
 	n := len(values)
 	publishRange(p, topic, step, values, 0, n)
 	p.must("metrics."+topic, obsJSON(t0.Add(time.Duration(n)*step), values[n-1]))
 	waitOrigin(t, c, topic, step, n-1, 60*time.Second)
-	var stream forecast
-	for _, m := range c.get("forecast", "forewarn.forecast."+topic) {
-		if f := decodeForecast(t, m.Data); f.Origin.Equal(t0.Add(time.Duration(n-1) * step)) {
-			stream = f
-		}
-	}
 	d.stop()
+	fs, _ := forecastsByOrigin(t, c.get("forecast", "forewarn.forecast."+topic), onceEach)
+	last, ok := fs[t0.Add(time.Duration(n-1)*step)]
+	if !ok {
+		t.Fatal("no forecast at the last bucket")
+	}
+	stream := decodeForecast(t, last)
 
 	// The same window, offline.
 	w := values[n-window:]
@@ -102,41 +85,42 @@ func TestStreamingEqualsBatch(t *testing.T) {
 	if err := os.WriteFile(file, []byte(csv.String()), 0o600); err != nil {
 		t.Fatal(err)
 	}
-	out, errOut, code := cli(t, "fit", "--order", "1,1,1", "--transform", "none", "--horizon", strconv.Itoa(horizon),
-		"--levels", "80,95", "--format", "json", file)
-	if code != 0 {
-		t.Fatalf("forewarn fit: exit %d: %s", code, errOut)
+	fit := runFit(t, file, "1,1,1", horizon, []float64{80, 95})
+	if len(stream.Points) != horizon || len(fit.Points) != horizon {
+		t.Fatalf("horizon: stream %d points, fit %d, want %d", len(stream.Points), len(fit.Points), horizon)
 	}
-	var fit fitOutput
-	if err := json.Unmarshal([]byte(out), &fit); err != nil {
-		t.Fatalf("forewarn fit output: %v\n%s", err, out)
+	if stream.Model.ObservationsUsed != fit.ObservationsUsed {
+		t.Errorf("observations used: stream %d, fit %d", stream.Model.ObservationsUsed, fit.ObservationsUsed)
 	}
-	if len(stream.Points) != horizon || len(fit.Forecast) != horizon {
-		t.Fatalf("horizon: stream %d points, fit %d, want %d", len(stream.Points), len(fit.Forecast), horizon)
-	}
-	if stream.Model.NObs != fit.NObs {
-		t.Errorf("nobs: stream %d, fit %d", stream.Model.NObs, fit.NObs)
+	if stream.Model.Label != fit.Label {
+		t.Errorf("model: stream %q, fit %q", stream.Model.Label, fit.Label)
 	}
 	if d := relDiff(stream.Model.AICc, fit.AICc); d > 1e-9 {
 		t.Errorf("aicc: stream %.12g, fit %.12g (rel %.2g)", stream.Model.AICc, fit.AICc, d)
 	}
 	const tol = 1e-9 // issue 4: streaming equals batch
 	for i, sp := range stream.Points {
-		fp := fit.Forecast[i]
+		fp := fit.Points[i]
 		if d := relDiff(sp.Mean, fp.Mean); d > tol {
 			t.Errorf("h=%d mean: stream %.15g, fit %.15g (rel %.2g)", sp.H, sp.Mean, fp.Mean, d)
 		}
-		for _, lv := range []string{"80", "95"} {
+		for _, lv := range []float64{80, 95} {
+			sb, ok1 := bandAt(sp.Bands, lv)
+			fb, ok2 := bandAt(fp.Bands, lv)
+			if !ok1 || !ok2 {
+				t.Errorf("h=%d: no %g %% band (stream %v, fit %v)", sp.H, lv, ok1, ok2)
+				continue
+			}
 			for _, b := range []struct {
 				name     string
 				got, exp *float64
-			}{{"lower", sp.Lower[lv], fp.Lower[lv]}, {"upper", sp.Upper[lv], fp.Upper[lv]}} {
+			}{{"low", sb.Low, fb.Low}, {"high", sb.High, fb.High}} {
 				if b.got == nil || b.exp == nil {
-					t.Errorf("h=%d %s %s: stream %v, fit %v (null)", sp.H, b.name, lv, b.got, b.exp)
+					t.Errorf("h=%d %g %% %s: stream %v, fit %v (null)", sp.H, lv, b.name, b.got, b.exp)
 					continue
 				}
 				if d := relDiff(*b.got, *b.exp); d > tol {
-					t.Errorf("h=%d %s %s: stream %.15g, fit %.15g (rel %.2g)", sp.H, b.name, lv, *b.got, *b.exp, d)
+					t.Errorf("h=%d %g %% %s: stream %.15g, fit %.15g (rel %.2g)", sp.H, lv, b.name, *b.got, *b.exp, d)
 				}
 			}
 		}
@@ -159,14 +143,14 @@ func TestStreamingEqualsBatch(t *testing.T) {
 			t.Errorf("h=%d mean %.8g, R %.8g (%.2g se; %s)", sp.H, sp.Mean, r.Pred[i], d, r.Source)
 		}
 		for lv, z := range zLevel {
-			lo, hi := sp.Lower[lv], sp.Upper[lv]
-			if lo == nil || hi == nil {
-				t.Errorf("h=%d %s band has a null bound", sp.H, lv)
+			b, ok := bandAt(sp.Bands, lv)
+			if !ok || b.Low == nil || b.High == nil {
+				t.Errorf("h=%d %g %% band missing or with a null bound", sp.H, lv)
 				continue
 			}
-			se := (*hi - *lo) / (2 * z)
+			se := (*b.High - *b.Low) / (2 * z)
 			if d := math.Abs(se/r.SE[i] - 1); d > 0.01 {
-				t.Errorf("h=%d %s%% band implies se %.8g, R %.8g (rel %.2g)", sp.H, lv, se, r.SE[i], d)
+				t.Errorf("h=%d %g %% band implies se %.8g, R %.8g (rel %.2g)", sp.H, lv, se, r.SE[i], d)
 			}
 		}
 	}

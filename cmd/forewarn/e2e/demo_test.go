@@ -1,68 +1,209 @@
 package e2e
 
 import (
+	"bufio"
+	"errors"
 	"fmt"
+	"os"
+	"os/exec"
 	"path/filepath"
 	"reflect"
+	"regexp"
+	"strconv"
 	"strings"
+	"syscall"
 	"testing"
 	"time"
 )
 
+// The demo's two line shapes (stream/demo ForecastLine and AlertLine),
+// matched whole: a value as humanfmt writes it, a span in whole units, a
+// data time to the minute.
+const (
+	demoValue = `-?[0-9]+(?:\.[0-9]+)?(?:e-[0-9]+| [kMGTPE])?`
+	demoSpan  = `(?:[1-9][0-9]*d)?(?:[1-9][0-9]*h)?(?:[1-9][0-9]*m)?(?:[1-9][0-9]*s)?`
+	demoTime  = `[0-9]{4}-[0-9]{2}-[0-9]{2} [0-9]{2}:[0-9]{2}`
+	demoBound = `(?:` + demoValue + `|unbounded)`
+)
+
+var (
+	// <origin> forecast <topic> last <value> median <value> at +<span> 80% band <low> to <high> transform <name> model <label>
+	forecastLineRe = regexp.MustCompile(`^(` + demoTime + `) forecast (\S+) last (` + demoValue + `|missing) median (` + demoValue +
+		`) at \+(` + demoSpan + `) 80% band (` + demoBound + `) to (` + demoBound + `) transform (none|log|boxcox\([-0-9.e]+\)) model (ARIMA.*)$`)
+	// <origin> alert <topic> <rule> raised|cleared p=<probability> above <threshold> within <window> eta +<span>|none
+	alertLineRe = regexp.MustCompile(`^(` + demoTime + `) alert (\S+) (\S+) (raised|cleared) p=([01]\.[0-9]{2}) above (` + demoValue +
+		`) within (` + demoSpan + `) eta (\+` + demoSpan + `|none)$`)
+)
+
+// demoHorizon is the span of each demo series' horizon (stream/demo
+// Series: horizon × step), written as the forecast line writes it.
+var demoHorizon = map[string]string{
+	"release.downloads":       "12h", // 48 × 15m
+	"storage.vol1.used_bytes": "6h",  // 72 × 5m
+	"shop.orders":             "24h", // 24 × 1h
+}
+
 // TestDemo is issue 4's fresh-clone check of the demo: `forewarn run
-// --demo` prints forecast lines within 60 s and an alert line within 90 s
-// (issue 5: the demo shows an alert firing). The demo's lines are read from
-// stdout; the log goes to stderr.
+// --demo` prints a forecast line for each of its three series, then the
+// rule volume-nearly-full raised, then cleared (issue 5: the demo shows an
+// alert). Every line on stdout must have one of the two shapes exactly
+// (the log goes to stderr). The test waits on events only: the lines as
+// they are read, and the process's exit; go test's -timeout is the
+// backstop.
 func TestDemo(t *testing.T) {
 	t.Parallel()
 	dir := t.TempDir()
-	d := &daemon{t: t, name: t.Name(), logPath: filepath.Join(dir, "daemon.log")}
-	d.httpAddr = fmt.Sprintf("127.0.0.1:%d", freePort(t))
-	d.natsURL = fmt.Sprintf("nats://127.0.0.1:%d", freePort(t))
-	d.args = []string{"run", "--demo", "--data", filepath.Join(dir, "data"),
-		"--listen-nats", strings.TrimPrefix(d.natsURL, "nats://"), "--http", d.httpAddr}
-	t.Cleanup(func() {
-		d.kill()
-		if t.Failed() {
-			t.Logf("stdout:\n%s\nlog tail:\n%s", d.stdout.String(), tail(d.logPath, 30))
-		}
-	})
+	logPath := filepath.Join(dir, "daemon.log")
+	logf, err := os.Create(logPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer logf.Close()
+	cmd := exec.Command(binPath, "run", "--demo", "--data", filepath.Join(dir, "data"),
+		"--listen-nats", fmt.Sprintf("127.0.0.1:%d", freePort(t)), "--http", fmt.Sprintf("127.0.0.1:%d", freePort(t)))
+	cmd.Stderr = logf
+	stdout, err := cmd.StdoutPipe()
+	if err != nil {
+		t.Fatal(err)
+	}
 	begin := time.Now()
-	d.start()
-	lines := func() []string {
-		var out []string
-		for _, l := range strings.Split(d.stdout.String(), "\n") {
-			if strings.TrimSpace(l) != "" {
-				out = append(out, l)
-			}
-		}
-		return out
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
 	}
-	isAlert := func(l string) bool { return strings.Contains(strings.ToLower(l), "alert") }
-	eventually(t, 60*time.Second-time.Since(begin), "a forecast line on stdout", func() bool {
-		for _, l := range lines() {
-			if !isAlert(l) {
-				return true
+	lines, quit := make(chan string), make(chan struct{})
+	go func() {
+		defer close(lines)
+		sc := bufio.NewScanner(stdout)
+		for sc.Scan() {
+			select {
+			case lines <- sc.Text():
+			case <-quit:
+				return
 			}
 		}
-		return false
+	}()
+	var seen []string
+	exited := false
+	t.Cleanup(func() {
+		close(quit)
+		if !exited {
+			_ = cmd.Process.Kill()
+			_ = cmd.Wait()
+		}
+		if t.Failed() {
+			t.Logf("stdout, last lines:\n%s\nlog tail:\n%s", strings.Join(seen[max(0, len(seen)-30):], "\n"), tail(logPath, 30))
+		}
 	})
-	t.Logf("first forecast line after %s", time.Since(begin).Round(time.Second))
-	eventually(t, 90*time.Second-time.Since(begin), "an alert line on stdout", func() bool {
-		for _, l := range lines() {
-			if isAlert(l) {
-				return true
+
+	// check matches one line whole and says what is wrong with it.
+	forecasts := map[string]string{} // topic → last origin
+	var alerts []string              // states in order: raised, cleared, …
+	check := func(l string) error {
+		seen = append(seen, l)
+		if m := forecastLineRe.FindStringSubmatch(l); m != nil {
+			at, topic, span := m[1], m[2], m[5]
+			want, ok := demoHorizon[topic]
+			switch {
+			case !ok:
+				return fmt.Errorf("forecast line for %q, not a demo series", topic)
+			case span != want:
+				return fmt.Errorf("forecast line for %s at +%s, want the horizon +%s", topic, span, want)
+			case at <= forecasts[topic]:
+				return fmt.Errorf("forecast line for %s at %s after one at %s: origins must increase", topic, at, forecasts[topic])
+			}
+			for _, v := range []string{m[3], m[4], m[6], m[7]} {
+				if n := sigDigits(v); n > 4 {
+					return fmt.Errorf("value %q has %d significant digits, at most 4", v, n)
+				}
+			}
+			forecasts[topic] = at
+			return nil
+		}
+		m := alertLineRe.FindStringSubmatch(l)
+		if m == nil {
+			return errors.New("neither a forecast nor an alert line")
+		}
+		// The demo's rule (stream/demo Alerts): above 900 GB within 6h
+		// with probability 0.9, cleared below half of it (config default).
+		if m[2] != "storage.vol1.used_bytes" || m[3] != "volume-nearly-full" || m[6] != "900 G" || m[7] != "6h" {
+			return errors.New("not the demo's rule on its volume")
+		}
+		state, p := m[4], m[5]
+		want := "raised"
+		if len(alerts)%2 == 1 {
+			want = "cleared"
+		}
+		if state != want {
+			return fmt.Errorf("alert line %d is %s, want %s (the states alternate from raised)", len(alerts)+1, state, want)
+		}
+		if x, _ := strconv.ParseFloat(p, 64); state == "raised" && x < 0.9 || state == "cleared" && x > 0.45 {
+			return fmt.Errorf("%s with p=%s", state, p)
+		}
+		if eta := m[8]; eta != "none" {
+			if d := parseSpan(eta[1:]); d <= 0 || d > 6*time.Hour {
+				return fmt.Errorf("eta %s is not within the series' 6h horizon", eta)
 			}
 		}
-		return false
-	})
-	t.Logf("first alert line after %s", time.Since(begin).Round(time.Second))
-	d.stop()
-	for _, l := range lines() {
-		if strings.HasPrefix(l, "{") {
-			t.Errorf("stdout carries a log or JSON line, not a readable demo line: %s", l)
+		alerts = append(alerts, state)
+		return nil
+	}
+
+	done := func() bool { return len(forecasts) == len(demoHorizon) && len(alerts) >= 2 }
+	for l := range lines {
+		if err := check(l); err != nil {
+			t.Fatalf("stdout line %d: %v:\n%s", len(seen), err, l)
+		}
+		if done() {
+			break
 		}
 	}
+	if !done() {
+		exited = true
+		err := cmd.Wait()
+		t.Fatalf("the demo stopped (%v) before it printed a forecast line of every series (%d of %d) and an alert raised and cleared (%d alert lines)",
+			err, len(forecasts), len(demoHorizon), len(alerts))
+	}
+	t.Logf("forecasts of all three series, the alert raised and cleared after %s", time.Since(begin).Round(time.Second))
+	if err := cmd.Process.Signal(syscall.SIGTERM); err != nil {
+		t.Fatal(err)
+	}
+	for l := range lines { // to the end of stdout: the process closed it
+		if err := check(l); err != nil {
+			t.Errorf("stdout line %d: %v:\n%s", len(seen), err, l)
+		}
+	}
+	exited = true
+	if err := cmd.Wait(); err != nil {
+		t.Errorf("demo exit after SIGTERM: %v", err)
+	}
+}
+
+// sigDigits counts the significant digits of a value as the demo writes it.
+func sigDigits(v string) int {
+	v, _, _ = strings.Cut(v, " ")
+	v, _, _ = strings.Cut(v, "e")
+	v = strings.TrimLeft(strings.NewReplacer("-", "", ".", "").Replace(v), "0")
+	return len(v)
+}
+
+// parseSpan reads a span as the demo writes it (d is 24h).
+func parseSpan(s string) time.Duration {
+	var days time.Duration
+	if i := strings.IndexByte(s, 'd'); i >= 0 {
+		n, err := strconv.Atoi(s[:i])
+		if err != nil {
+			return -1
+		}
+		days, s = time.Duration(n)*24*time.Hour, s[i+1:]
+	}
+	if s == "" {
+		return days
+	}
+	d, err := time.ParseDuration(s)
+	if err != nil {
+		return -1
+	}
+	return days + d
 }
 
 // TestQuery is `forewarn query TOPIC` against a running daemon (embedded
@@ -80,7 +221,7 @@ func TestQuery(t *testing.T) {
     horizon: 6
     min_points: 20
     refit_every: 10
-    model: "1,0,0"
+    model: ` + fixedModel("1,0,0") + `
     transform: none
 `
 	d := newDaemon(t, embedded, cfg)

@@ -22,11 +22,29 @@
 //     size, the default run a reduced one;
 //   - hostile input gets the expected reject codes and leaves a good
 //     series' forecasts untouched (issue 6);
-//   - a capacity alert fires once, with its eta, survives a restart without
-//     repeating, and resolves (issue 5);
+//   - a capacity alert is raised once, with its eta, survives a restart
+//     without repeating, and is cleared (issue 5);
 //   - the streamed forecast at the last bucket equals forewarn fit on the
 //     same window, and R's predict within the engine's tolerances (issue 4);
-//   - the demo prints forecasts and an alert; forewarn query answers.
+//   - the demo prints forecast lines and an alert raised and cleared, each
+//     line of exactly one of its two shapes; forewarn query answers.
+//
+// Forecasts at one origin: a run without SIGKILL publishes each origin
+// once; after a SIGKILL an origin may be published again, byte-identical
+// apart from "issued" (forecastsByOrigin, harness_test.go, states why).
+//
+// Data times start at t0, midnight UTC thirty days before the run, inside
+// arrival-time limits the tests set tight (harness_test.go), so the suite
+// does not age.
+//
+// The spelling of the formats the tests read (forecast messages, alert
+// state words, a fixed model in the config, forewarn fit's flags and JSON)
+// lives in wire_test.go alone.
+//
+// TestDemo waits on events only (the lines it reads, the process's exit),
+// with go test's -timeout as the backstop. The other tests still poll for
+// their messages with generous limits (eventually, waitConsumed:
+// 30 s to 3 min), which fail the test if exceeded.
 //
 // The package has no non-test code; this file only documents it.
 package e2e

@@ -23,4 +23,13 @@
 // sheet and need neither external assets nor JavaScript. Bad query
 // parameters get a 400 that names the parameter; an unknown topic a 404.
 // Handler is safe for concurrent use.
+//
+// # Pages
+//
+// Pages write values as a person reads them (package humanfmt: the value's
+// own significant digits, at most four, with an SI prefix symbol: "903.0 G")
+// and keep every digit in the cell's title attribute; the JSON keeps full
+// precision. Steps and forecast times relative to the origin are written in
+// whole units ("10m", "+1h"). Alert rules show the ITU-T X.733 states
+// "raised" and "cleared", which are also the class names that colour them.
 package site

@@ -64,9 +64,10 @@ func refView(t *testing.T, topic, id string) View {
 func fixture(t *testing.T) *fixedSource {
 	air := refView(t, "air.passengers", "AirPassengers_na_log_airline")
 	air.Rejects, air.Late = 3, 1
-	air.Rules = []Rule{{Name: "busy-summer", Threshold: 600, Above: true, Firing: true, Probability: 0.97},
+	air.Rules = []Rule{{Name: "busy-summer", Threshold: 600, Above: true, Raised: true, Probability: 0.97},
 		{Name: "quiet", Threshold: 100, Above: false, Probability: math.NaN()}}
 	gas := refView(t, "uk.gas", "UKgas_log_airline")
+	gas.Rules = []Rule{{Name: "winter-peak", Threshold: 1250, Above: true, Probability: 0.3123}}
 	ts, vs := webtest.Dataset(t, "lh")
 	warm := View{Topic: "lab.hormone", Kind: "gauge", Status: "warming_up", StepSeconds: 600,
 		History: vs[:20], HistoryEnd: ts[19], Closed: 20}

@@ -9,6 +9,8 @@ import (
 	"strconv"
 	"sync"
 	"time"
+
+	"forewarn/stream/humanfmt"
 )
 
 var funcs = template.FuncMap{
@@ -16,9 +18,10 @@ var funcs = template.FuncMap{
 	"status": StatusText,
 	"num":    num,
 	"bound":  bound,
+	"full":   full,
 	"level":  func(l float64) string { return strconv.FormatFloat(l, 'g', -1, 64) },
 	"utc":    utc,
-	"state":  stateWord,
+	"alarm":  alarm,
 	"dir":    direction,
 	"pct": func(p float64) string {
 		if !finite(p) {
@@ -28,22 +31,51 @@ var funcs = template.FuncMap{
 	},
 	"at": func(xs []float64, i int) float64 { return xs[i] },
 	"step": func(s int64) string {
-		return (time.Duration(s) * time.Second).String()
+		return humanfmt.Duration(time.Duration(s) * time.Second)
 	},
+	"ahead": func(origin, t time.Time) string { return humanfmt.Offset(t.Sub(origin)) },
+	"aicc":  func(x float64) string { return strconv.FormatFloat(x, 'f', 1, 64) },
 }
 
+// num writes a value for a person (humanfmt.Value); the page puts the
+// full value, full, in the cell's title.
 func num(x float64) string {
 	if math.IsNaN(x) {
 		return "missing"
 	}
-	return strconv.FormatFloat(x, 'g', 7, 64)
+	return humanfmt.Value(x)
 }
 
+// bound is num for a band end, NaN or ±Inf when unbounded.
 func bound(x float64) string {
 	if !finite(x) {
 		return "unbounded"
 	}
-	return strconv.FormatFloat(x, 'g', 7, 64)
+	return humanfmt.Value(x)
+}
+
+// full writes x with every digit it has, the way the JSON does but
+// without an exponent where a plain decimal is still short.
+func full(x float64) string {
+	switch a := math.Abs(x); {
+	case math.IsNaN(x):
+		return "missing"
+	case math.IsInf(x, 0):
+		return "unbounded"
+	case a == 0 || a >= 1e-4 && a < 1e21:
+		return strconv.FormatFloat(x, 'f', -1, 64)
+	default:
+		return strconv.FormatFloat(x, 'g', -1, 64)
+	}
+}
+
+// alarm is a rule's state in the words of ITU-T X.733, also the class
+// that colours it.
+func alarm(r Rule) string {
+	if r.Raised {
+		return "raised"
+	}
+	return "cleared"
 }
 
 func utc(t time.Time) string {
@@ -68,8 +100,8 @@ td.n{text-align:right;font-variant-numeric:tabular-nums}
 .st-fitted{background:#d8efd9;color:#1e5e24}
 .st-warming_up{background:#fdf0cc;color:#7a5a00}
 .st-refitting{background:#dbe7f7;color:#17457a}
-.firing{color:#b71c1c;font-weight:bold}
-.ok{color:#2e6b32}
+.raised{color:#a3320b;font-weight:bold}
+.cleared{color:#3d5a6c}
 .chart{background:#fff;border:1px solid #dcdfe4}
 .muted{color:#666}
 dl{display:grid;grid-template-columns:max-content auto;gap:2px 14px;background:#fff;padding:10px 14px;width:max-content}
@@ -88,10 +120,10 @@ var indexText = `<!doctype html>
 {{range .Series}}<tr class="series" data-topic="{{.Topic}}">
 <td><a href="series/{{path .Topic}}">{{.Topic}}</a><br><span class="muted">{{.Kind}}, step {{step .StepSeconds}}</span></td>
 <td><span class="st st-{{.Status}}">{{status .Status}}</span></td>
-<td class="n">{{num .LastValue}}</td>
+<td class="n" title="{{full .LastValue}}">{{num .LastValue}}</td>
 <td>{{if .Model.Spec}}{{.Model.Spec}}<br><span class="muted">{{.Model.Transform}}</span>{{else}}<span class="muted">none yet</span>{{end}}</td>
 <td class="n">{{.Rejects}}{{if .Late}} <span class="muted">({{.Late}} late)</span>{{end}}</td>
-<td>{{range .Rules}}<div class="{{state .Firing}}">{{.Name}}: {{state .Firing}}</div>{{else}}<span class="muted">no rules</span>{{end}}</td>
+<td>{{range .Rules}}<div class="{{alarm .}}">{{.Name}}: {{alarm .}}</div>{{else}}<span class="muted">no rules</span>{{end}}</td>
 <td><img class="chart" src="api/series/{{path .Topic}}/chart.svg?w=` + strconv.Itoa(SmallWidth) + `&amp;h=` + strconv.Itoa(SmallHeight) + `" width="` + strconv.Itoa(SmallWidth) + `" height="` + strconv.Itoa(SmallHeight) + `" alt="chart of {{.Topic}}"></td>
 </tr>
 {{end}}</table>{{end}}
@@ -111,20 +143,20 @@ var seriesText = `<!doctype html>
 <dl>
 <dt>kind</dt><dd>{{.Kind}}</dd>
 <dt>step</dt><dd>{{step .StepSeconds}}</dd>
-<dt>last closed bucket</dt><dd>{{utc .HistoryEnd}}: {{num .LastValue}}</dd>
+<dt>last closed bucket</dt><dd>{{utc .HistoryEnd}}: <span title="{{full .LastValue}}">{{num .LastValue}}</span></dd>
 <dt>buckets closed</dt><dd>{{.Closed}}</dd>
 <dt>rejected</dt><dd>{{.Rejects}} ({{.Late}} late)</dd>
-<dt>model</dt><dd>{{if .Model.Spec}}{{.Model.Spec}}, transform {{.Model.Transform}}, fitted on {{.Model.NObs}} buckets up to {{utc .Model.FittedAt}}, AICc {{num .Model.AICc}}{{else}}none yet{{end}}</dd>
+<dt>model</dt><dd>{{if .Model.Spec}}{{.Model.Spec}}, transform {{.Model.Transform}}, fitted on {{.Model.NObs}} buckets up to {{utc .Model.FittedAt}}, AICc <span title="{{full .Model.AICc}}">{{aicc .Model.AICc}}</span>{{else}}none yet{{end}}</dd>
 <dt>failed refits</dt><dd>{{.RefitFailures}}{{if .LastRefitNote}}: {{.LastRefitNote}}{{end}}</dd>
 </dl>
 <h2>Alert rules</h2>
 {{if .Rules}}<table id="rules"><tr><th>rule</th><th>threshold</th><th>state</th><th>probability</th><th>since</th></tr>
-{{range .Rules}}<tr><td>{{.Name}}</td><td>{{dir .Above}} {{num .Threshold}}</td><td class="{{state .Firing}}">{{state .Firing}}</td><td class="n">{{pct .Probability}}</td><td>{{utc .Since}}</td></tr>
+{{range .Rules}}<tr><td>{{.Name}}</td><td title="{{full .Threshold}}">{{dir .Above}} {{num .Threshold}}</td><td class="{{alarm .}}">{{alarm .}}</td><td class="n">{{pct .Probability}}</td><td>{{utc .Since}}</td></tr>
 {{end}}</table>{{else}}<p class="muted">No alert rule watches this series.</p>{{end}}
 <h2>Latest forecast</h2>
 {{with .Forecast}}<p class="muted">from the bucket starting {{utc .Origin}}; <a href="../api/series/{{path $.Topic}}">as JSON</a></p>
-<table id="forecast"><tr><th>h</th><th>time</th><th>mean</th><th>median</th>{{range .Levels}}<th>{{level .}} % interval</th>{{end}}</tr>
-{{range .Points}}{{$p := .}}<tr><td class="n">{{.H}}</td><td>{{utc .Time}}</td><td class="n">{{num .Mean}}</td><td class="n">{{num .Median}}</td>{{range $i, $l := $.Forecast.Levels}}<td class="n">{{bound (at $p.Lower $i)}} … {{bound (at $p.Upper $i)}}</td>{{end}}</tr>
+<table id="forecast"><tr><th>h</th><th>ahead</th><th>time</th><th>mean</th><th>median</th>{{range .Levels}}<th>{{level .}} % interval</th>{{end}}</tr>
+{{range .Points}}{{$p := .}}<tr><td class="n">{{.H}}</td><td class="n">{{ahead $.Forecast.Origin .Time}}</td><td class="muted">{{utc .Time}}</td><td class="n" title="{{full .Mean}}">{{num .Mean}}</td><td class="n" title="{{full .Median}}">{{num .Median}}</td>{{range $i, $l := $.Forecast.Levels}}<td class="n" title="{{full (at $p.Lower $i)}} … {{full (at $p.Upper $i)}}">{{bound (at $p.Lower $i)}} … {{bound (at $p.Upper $i)}}</td>{{end}}</tr>
 {{end}}</table>{{else}}<p class="muted">No forecast yet: the series is warming up.</p>{{end}}
 </main></body></html>
 `

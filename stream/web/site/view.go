@@ -80,7 +80,7 @@ type Rule struct {
 	Name        string
 	Threshold   float64
 	Above       bool
-	Firing      bool
+	Raised      bool
 	Probability float64 // at the last evaluation; NaN if never evaluated
 	Since       time.Time
 }
@@ -129,7 +129,7 @@ func (v *View) ChartData(points int) *chart.Data {
 		}
 	}
 	for _, r := range v.Rules {
-		d.Thresholds = append(d.Thresholds, chart.Threshold{Name: r.Name, Value: r.Threshold, Above: r.Above, Raised: r.Firing})
+		d.Thresholds = append(d.Thresholds, chart.Threshold{Name: r.Name, Value: r.Threshold, Above: r.Above, Raised: r.Raised})
 	}
 	if len(d.Times) > 0 {
 		for _, t := range v.Refits {
