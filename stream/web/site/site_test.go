@@ -69,7 +69,8 @@ func TestSeriesJSON(t *testing.T) {
 	if air.LastValue == nil || *air.LastValue != 432 || air.Rejects != 3 || air.Late != 1 || air.Status != "fitted" {
 		t.Errorf("air.passengers summary %+v", air)
 	}
-	if len(air.Alerts) != 2 || air.Alerts[0].State != "firing" || air.Alerts[1].Probability != nil {
+	// Alert states are ITU-T X.733's alarm states (CONTRACT.md §2).
+	if len(air.Alerts) != 2 || air.Alerts[0].State != "raised" || air.Alerts[1].State != "cleared" || air.Alerts[1].Probability != nil {
 		t.Errorf("alerts %+v", air.Alerts)
 	}
 	if list[1].Model != "" || list[1].Status != "warming_up" || !list[1].Origin.IsZero() {
