@@ -78,8 +78,8 @@ func (s *Series) EvaluateAlerts(dst []AlertEvent, rules []AlertRule, ev *alert.E
 			errs = append(errs, fmt.Errorf("%w: rule %q: %w", ErrAlertRule, r.Name, err))
 			continue
 		}
-		st := s.alertState(r.Name)
-		lv.Current = alert.StateOf(st.Raised)
+		st := s.alertState(r.Name) // nil: first evaluation, cleared
+		lv.Current = alert.StateOf(st != nil && st.Raised)
 		var est alert.Estimate
 		c, dir, exact, p := s.modelThreshold(r)
 		if exact {
@@ -100,6 +100,10 @@ func (s *Series) EvaluateAlerts(dst []AlertEvent, rules []AlertRule, ev *alert.E
 				errs = append(errs, fmt.Errorf("series: alert rule %q on %q: %w", r.Name, s.snap.Topic, err))
 				continue
 			}
+		}
+		if st == nil {
+			s.snap.Alerts = append(s.snap.Alerts, AlertSnapshot{Rule: r.Name})
+			st = &s.snap.Alerts[len(s.snap.Alerts)-1]
 		}
 		raised, changed := alert.Next(st.Raised, est.P, lv)
 		st.Probability = est.P
@@ -153,8 +157,8 @@ func (s *Series) modelThreshold(r *AlertRule) (c float64, dir alert.Direction, e
 	return 0, 0, true, p
 }
 
-// alertState returns the state of the named rule, adding a cleared one
-// the first time the rule is seen.
+// alertState returns the state of the named rule, nil before its first
+// successful evaluation.
 func (s *Series) alertState(name string) *AlertSnapshot {
 	a := s.snap.Alerts
 	for i := range a {
@@ -162,8 +166,7 @@ func (s *Series) alertState(name string) *AlertSnapshot {
 			return &a[i]
 		}
 	}
-	s.snap.Alerts = append(a, AlertSnapshot{Rule: name})
-	return &s.snap.Alerts[len(s.snap.Alerts)-1]
+	return nil
 }
 
 // alertSeed derives the simulation seed of one rule evaluation from data
