@@ -42,7 +42,7 @@ func alertsOf(t *testing.T, c *collector, topic string) []alertMsg {
 // 400 within 24h with probability 0.9" fires exactly once, with an eta
 // within a step of the crossing of the median; a SIGTERM restart does not
 // fire it again; once the volume is cleaned up and stays flat far below the
-// threshold the probability falls and the rule resolves.
+// threshold the probability falls and the rule clears.
 //
 // The analytic crossing: for a random walk with drift μ the median forecast
 // from origin T is x_T + h·μ, so it is first beyond c at h* = the least
@@ -83,20 +83,20 @@ alerts:
 	publishRange(p, topic, step, values, 0, 136)
 	waitOrigin(t, c, topic, step, 134, 60*time.Second)
 	as := alertsOf(t, c, topic)
-	if len(as) != 1 || as[0].State != "firing" {
-		t.Fatalf("climbing to t=135: alerts %+v, want exactly one firing", as)
+	if len(as) != 1 || as[0].State != "raised" {
+		t.Fatalf("climbing to t=135: alerts %+v, want exactly one raised", as)
 	}
 	a := as[0]
 	if a.Rule != "vol-full" || a.Direction != "above" || a.Threshold != threshold || a.WithinSeconds != 86400 {
-		t.Errorf("firing alert fields: %+v", a)
+		t.Errorf("raised alert fields: %+v", a)
 	}
 	if a.Probability < 0.9 || a.Probability > 1 {
-		t.Errorf("firing probability %g, want in [0.9, 1]", a.Probability)
+		t.Errorf("raised probability %g, want in [0.9, 1]", a.Probability)
 	}
 	k := int(a.Origin.Sub(t0) / step)
 	crossing := a.Origin.Add(time.Duration(math.Floor((threshold-values[k])/drift)+1) * step)
 	if a.ETA == nil {
-		t.Errorf("firing alert has no eta; the median crosses at %s", crossing.Format(time.RFC3339))
+		t.Errorf("raised alert has no eta; the median crosses at %s", crossing.Format(time.RFC3339))
 	} else if dt := a.ETA.Sub(crossing); math.Abs(float64(dt)) > float64(step) {
 		t.Errorf("eta %s, analytic median crossing %s: off by %s, more than a step", a.ETA.Format(time.RFC3339), crossing.Format(time.RFC3339), dt)
 	}
@@ -121,28 +121,28 @@ alerts:
 	}
 	t.Logf("fired at origin %s with probability %.3f, eta %v", a.Origin.Format(time.RFC3339), a.Probability, a.ETA)
 
-	// Restart: still climbing, already firing, nothing new.
+	// Restart: still climbing, already raised, nothing new.
 	d.stop()
 	d.start()
 	waitConnected(t, nc)
 	publishRange(p, topic, step, values, 136, 141)
 	waitOrigin(t, c, topic, step, 139, 60*time.Second)
 	if as := alertsOf(t, c, topic); len(as) != 1 {
-		t.Fatalf("after the restart: %d alert messages %+v, want still the one firing", len(as), as)
+		t.Fatalf("after the restart: %d alert messages %+v, want still the one raised", len(as), as)
 	}
 
-	// Growth stops far below the threshold: the rule resolves, once.
+	// Growth stops far below the threshold: the rule clears, once.
 	publishRange(p, topic, step, values, 141, len(values))
 	waitOrigin(t, c, topic, step, len(values)-2, 60*time.Second)
 	d.stop()
 	as = alertsOf(t, c, topic)
-	if len(as) != 2 || as[1].State != "resolved" {
-		t.Fatalf("after growth stopped: alerts %+v, want firing then resolved", as)
+	if len(as) != 2 || as[1].State != "cleared" {
+		t.Fatalf("after growth stopped: alerts %+v, want raised then cleared", as)
 	}
 	if r := as[1]; r.Probability >= 0.45 {
-		t.Errorf("resolved with probability %g, want below the resolve level 0.45 (half of 0.9)", r.Probability)
+		t.Errorf("cleared with probability %g, want below the clear level 0.45 (half of 0.9)", r.Probability)
 	}
 	if !as[1].Origin.After(t0.Add(140 * step)) {
-		t.Errorf("resolved at origin %s, before growth stopped", as[1].Origin.Format(time.RFC3339))
+		t.Errorf("cleared at origin %s, before growth stopped", as[1].Origin.Format(time.RFC3339))
 	}
 }
