@@ -148,3 +148,31 @@ func BenchmarkCholeskyK360(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkDecideK120NearClear is the forecast of BenchmarkDecideK120
+// (p = 0.262) against a rule whose clear level lies next to p (Raise
+// 0.9, Clear 0.26): placing p against both levels draws the whole budget
+// (both_levels); a cleared rule asks only "p ≥ 0.9?" (cleared) and stops
+// after the first batch.
+func BenchmarkDecideK120NearClear(b *testing.B) {
+	for _, st := range []State{Unknown, Cleared} {
+		name := "both_levels"
+		if st == Cleared {
+			name = "cleared"
+		}
+		b.Run(name, func(b *testing.B) {
+			q, ss, _, _ := benchArima(b, 1)
+			e := newEval(b, 120, 0)
+			rule := Rule{Raise: 0.9, Clear: 0.26, Current: st}
+			b.ReportAllocs()
+			var est Estimate
+			for b.Loop() {
+				est, _ = e.Decide(q, ss, rule)
+			}
+			if est.Method != MethodSimulation {
+				b.Fatalf("%v", est.Method)
+			}
+			b.ReportMetric(float64(est.Paths), "paths")
+		})
+	}
+}

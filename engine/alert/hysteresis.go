@@ -13,6 +13,32 @@ type Rule struct {
 	// Clear: a raised rule is cleared when p < Clear. Zero means
 	// Raise/2 (see WithDefaults).
 	Clear float64
+	// Current is the rule's state for Evaluator.Decide. Unknown (the zero
+	// value) places p against both levels; Cleared asks only whether
+	// p ≥ Raise and Raised only whether p < Clear, the one question whose
+	// answer can change that state, so the stopping rule of Decide is not
+	// held up by the other level. Next ignores it.
+	Current State
+}
+
+// State is an alert rule's hysteresis state as Decide takes it.
+type State int
+
+const (
+	// Unknown: test both levels.
+	Unknown State = iota
+	// Cleared: the rule is cleared; only Raise matters.
+	Cleared
+	// Raised: the rule is raised; only Clear matters.
+	Raised
+)
+
+// StateOf returns Raised or Cleared.
+func StateOf(raised bool) State {
+	if raised {
+		return Raised
+	}
+	return Cleared
 }
 
 // WithDefaults returns r with a zero Clear replaced by Raise/2.

@@ -54,12 +54,12 @@ func TestNextHysteresis(t *testing.T) {
 }
 
 func TestRuleValidate(t *testing.T) {
-	for _, r := range []Rule{{0.9, 0.45}, {1, 0.5}, {0.2, 0.01}} {
+	for _, r := range []Rule{{Raise: 0.9, Clear: 0.45}, {Raise: 1, Clear: 0.5}, {Raise: 0.2, Clear: 0.01}} {
 		if err := r.Validate(); err != nil {
 			t.Errorf("%+v: %v", r, err)
 		}
 	}
-	for _, r := range []Rule{{0.9, 0.9}, {0.5, 0.6}, {1.1, 0.5}, {0.5, 0}, {0, 0}, {math.NaN(), 0.1}, {0.5, math.NaN()}} {
+	for _, r := range []Rule{{Raise: 0.9, Clear: 0.9}, {Raise: 0.5, Clear: 0.6}, {Raise: 1.1, Clear: 0.5}, {Raise: 0.5}, {}, {Raise: math.NaN(), Clear: 0.1}, {Raise: 0.5, Clear: math.NaN()}} {
 		if err := r.Validate(); !errors.Is(err, ErrRule) {
 			t.Errorf("%+v: err %v, want ErrRule", r, err)
 		}

@@ -49,6 +49,10 @@ const (
 	Between
 	// AboveRaise: p ≥ Raise.
 	AboveRaise
+	// BelowRaise: p < Raise (asked for a Cleared rule only).
+	BelowRaise
+	// AboveClear: p ≥ Clear (asked for a Raised rule only).
+	AboveClear
 )
 
 // String names the decision.
@@ -60,6 +64,10 @@ func (d Decision) String() string {
 		return "between"
 	case AboveRaise:
 		return "above raise"
+	case BelowRaise:
+		return "below raise"
+	case AboveClear:
+		return "at or above clear"
 	}
 	return "undecided"
 }
@@ -150,7 +158,13 @@ func growF(s []float64, n int) []float64 {
 // which covers p at all n simultaneously with probability 1 − α (as n
 // grows), is intersected with the bracket [max P_j, min(1, Σ P_j)]. The
 // simulation stops when the interval [Lo, Hi] lies at or above Raise,
-// below Clear, or within [Clear, Raise), or after Paths() paths. The floor
+// below Clear, or within [Clear, Raise), or after Paths() paths. With
+// rule.Current set, only the level that can change that state is tested:
+// for a Cleared rule the simulation stops once [Lo, Hi] lies at or above
+// Raise or below it (AboveRaise, BelowRaise), for a Raised rule once it
+// lies below Clear or at or above it (BelowClear, AboveClear), so a p near
+// the other level no longer draws the whole budget. Since Lo ≤ P ≤ Hi,
+// Next(raised, P, rule) then takes the transition the decision names. The floor
 // 1/(4n) on σ̂² guards the first checks against a variance estimated as
 // zero. A zero Rule (Raise = Clear = 0) disables the stopping rule: all
 // Paths() paths are drawn and Decision is Undecided.
@@ -212,8 +226,27 @@ func (e *Evaluator) Decide(q *Query, ss *StateSpace, rule Rule) (Estimate, error
 }
 
 // place returns where an interval [lo, hi] known to hold p lies against
-// the levels.
+// the levels: both for an Unknown state, only Raise for a Cleared rule,
+// only Clear for a Raised one.
 func place(lo, hi float64, r Rule) Decision {
+	switch r.Current {
+	case Cleared:
+		switch {
+		case lo >= r.Raise:
+			return AboveRaise
+		case hi < r.Raise:
+			return BelowRaise
+		}
+		return Undecided
+	case Raised:
+		switch {
+		case hi < r.Clear:
+			return BelowClear
+		case lo >= r.Clear:
+			return AboveClear
+		}
+		return Undecided
+	}
 	switch {
 	case lo >= r.Raise:
 		return AboveRaise
@@ -454,8 +487,9 @@ func (e *Evaluator) simulatePaths(ss *StateSpace, sc *screened, rule Rule, noSto
 		hw := math.Sqrt(2 * (t + 1) / (nf * nf * rho2) * math.Log(math.Sqrt(t+1)/alpha))
 		est.P = math.Max(sc.lo, math.Min(sc.hi, p))
 		est.StdErr = math.Sqrt(s2 / nf)
-		est.Lo = math.Max(sc.lo, p-hw)
-		est.Hi = math.Min(sc.hi, p+hw)
+		// Clamped into the bracket like P, so that Lo ≤ P ≤ Hi.
+		est.Lo = math.Max(sc.lo, math.Min(sc.hi, p-hw))
+		est.Hi = math.Min(sc.hi, math.Max(sc.lo, p+hw))
 		est.Paths = 2 * n
 		if !noStop {
 			if est.Decision = place(est.Lo, est.Hi, rule); est.Decision != Undecided {

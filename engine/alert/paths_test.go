@@ -209,3 +209,53 @@ func TestDecideBadInput(t *testing.T) {
 		t.Errorf("clear above raise: %v", err)
 	}
 }
+
+// With the rule's state given, Decide asks only the question that can
+// change it. The true p is R mvtnorm pmvnorm's (crossing.csv,
+// rw_drift_up, p = 0.2768). Against Raise 0.6 / Clear 0.2775 (Clear 0.0007
+// above p), both levels cannot be decided within the budget, but a
+// cleared rule only needs "p < 0.6" and a raised rule with Clear 0.1 /
+// Raise 0.2775 only needs "p ≥ 0.1": both stop after the first batch. A
+// raised rule with Clear 0.2775 must still draw every path (p is within
+// the Monte Carlo error of that level).
+func TestDecideOnlyTheLevelThatMatters(t *testing.T) {
+	e := newEval(t, 60, 0)
+	c := loadCases(t)[0]
+	if c.name != "rw_drift_up" {
+		t.Fatalf("first case %s, want rw_drift_up", c.name)
+	}
+	q, ss := c.query(false), c.stateSpace()
+	for _, tc := range []struct {
+		rule     Rule
+		want     Decision
+		maxPaths int
+	}{
+		{Rule{Raise: 0.6, Clear: 0.2775}, Undecided, e.Paths()},
+		{Rule{Raise: 0.6, Clear: 0.2775, Current: Cleared}, BelowRaise, Batch},
+		{Rule{Raise: 0.6, Clear: 0.2775, Current: Raised}, Undecided, e.Paths()},
+		{Rule{Raise: 0.2775, Clear: 0.1, Current: Raised}, AboveClear, Batch},
+		{Rule{Raise: 0.2775, Clear: 0.1, Current: Cleared}, Undecided, e.Paths()},
+		{Rule{Raise: 0.15, Clear: 0.1, Current: Cleared}, AboveRaise, 2 * Batch},
+		{Rule{Raise: 0.9, Clear: 0.45, Current: Raised}, BelowClear, 2 * Batch},
+	} {
+		est, err := e.Decide(q, ss, tc.rule)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if est.Decision != tc.want {
+			t.Errorf("%+v: decision %v, want %v (p = %.4f, [%.4f, %.4f], pmvnorm %.4f)", tc.rule, est.Decision, tc.want, est.P, est.Lo, est.Hi, c.pGenz)
+		}
+		if est.Paths > tc.maxPaths || tc.want == Undecided && est.Paths != e.Paths() {
+			t.Errorf("%+v: %d paths, want at most %d", tc.rule, est.Paths, tc.maxPaths)
+		}
+		if !(est.Lo <= est.P && est.P <= est.Hi && est.Lo <= c.pGenz && c.pGenz <= est.Hi) {
+			t.Errorf("%+v: interval [%.4f, %.4f], p %.4f, pmvnorm %.4f", tc.rule, est.Lo, est.Hi, est.P, c.pGenz)
+		}
+		// The transition Next takes on P agrees with the decision.
+		if raised, changed := Next(tc.rule.Current == Raised, est.P, tc.rule); tc.want != Undecided &&
+			changed != (tc.want == AboveRaise && tc.rule.Current == Cleared || tc.want == BelowClear && tc.rule.Current == Raised) {
+			t.Errorf("%+v: Next on p %.4f gives raised %v changed %v against decision %v", tc.rule, est.P, raised, changed, est.Decision)
+		}
+		t.Logf("%+v: %v after %d paths, p = %.4f in [%.4f, %.4f]", tc.rule, est.Decision, est.Paths, est.P, est.Lo, est.Hi)
+	}
+}

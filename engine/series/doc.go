@@ -1,7 +1,8 @@
 // Package series is the state machine of one metric series: it buckets
 // observations, carries counter totals through resets, keeps the window of
 // closed buckets, runs the online Kalman step of the fitted model on each
-// closed bucket, and turns model-scale forecasts into raw units.
+// closed bucket, turns model-scale forecasts into raw units, and steps its
+// alert rules (EvaluateAlerts: events from data alone, states in the record).
 //
 // # Data time
 //

@@ -18,4 +18,10 @@ var (
 	ErrIncompatible = errors.New("series: snapshot incompatible with settings")
 	// ErrNoData is returned by a fit job whose window holds too few values.
 	ErrNoData = errors.New("series: too few values to fit")
+	// ErrNoForecast is returned by EvaluateAlerts for a series without a
+	// current forecast (no model yet, or a refit pending).
+	ErrNoForecast = errors.New("series: no current forecast")
+	// ErrAlertRule is returned by EvaluateAlerts for a rule that cannot
+	// apply to the series (window beyond the horizon, bad levels).
+	ErrAlertRule = errors.New("series: bad alert rule")
 )

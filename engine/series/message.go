@@ -51,7 +51,8 @@ type AlertEvent struct {
 	Raised        bool   // true: "raised"; false: "cleared" (ITU-T X.733 alarm states)
 	Direction     string // "above" or "below"
 	Threshold     float64
-	Probability   float64 // chance of crossing within the window
+	Probability   float64 // chance of crossing within the window (an estimate for a gauge)
+	StdErr        float64 // its Monte Carlo standard error (0: exact or a bound); not in the message
 	WithinSeconds int64
 	ETA           time.Time // first time the median forecast is beyond the threshold
 	HasETA        bool      // false: eta is null

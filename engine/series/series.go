@@ -460,5 +460,6 @@ func (s *Series) Snapshot() *Snapshot {
 	return &s.snap
 }
 
-// Alerts returns the alert states, for the caller to update in place.
+// Alerts returns the alert states, one per rule evaluated, by rule name
+// (read-only: EvaluateAlerts updates them).
 func (s *Series) Alerts() *[]AlertSnapshot { return &s.snap.Alerts }

@@ -482,7 +482,7 @@ func BenchmarkClosePath(b *testing.B) {
 				}
 				buf = stream.AppendForecast(buf[:0], s.Forecast(), now)
 				if len(e.rules) > 0 {
-					d.evaluate(topic, e, s.ModelForecast(), now)
+					d.evaluate(topic, e, now)
 				}
 			}
 			if withRule && d.evaluator.LastMethod() != alert.MethodSkip {

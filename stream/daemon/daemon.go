@@ -4,7 +4,6 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"hash/fnv"
 	"log/slog"
 	"math"
 	"slices"
@@ -15,6 +14,7 @@ import (
 
 	"forewarn/config"
 	"forewarn/engine/alert"
+	"forewarn/engine/arima"
 	"forewarn/engine/series"
 	"forewarn/state"
 	"forewarn/stream"
@@ -81,6 +81,8 @@ type Daemon struct {
 	flushed    int
 	flushFloor uint64
 	evaluator  *alert.Evaluator
+	paths      arima.PathSystem    // the evaluator's state-space workspace
+	events     []series.AlertEvent // alert events of one evaluation, reused
 
 	mu     sync.RWMutex
 	latest map[string][]byte // latest forecast JSON per topic, for queries
@@ -93,7 +95,7 @@ type Daemon struct {
 type entry struct {
 	s       *series.Series
 	subject string // where its forecasts go
-	rules   []rule
+	rules   []series.AlertRule
 	busy    bool
 	pending []pendingObs
 	dirty   bool
@@ -109,12 +111,6 @@ type pendingObs struct {
 	v       float64
 	subject string
 	recv    time.Time
-}
-
-type rule struct {
-	cfg    config.Alert
-	above  bool
-	window int // steps
 }
 
 type fitTask struct {
@@ -465,17 +461,18 @@ func settingsOf(sc *config.Series) series.Settings {
 	}
 }
 
-func (d *Daemon) rulesFor(topic string, sc *config.Series) []rule {
-	var rs []rule
+func (d *Daemon) rulesFor(topic string, sc *config.Series) []series.AlertRule {
+	var rs []series.AlertRule
 	for _, a := range d.cfg.AlertsFor(topic) {
 		if err := a.CheckSeries(sc); err != nil {
 			d.log.Warn("alert window longer than the series horizon; rule skipped for this series",
 				"topic", topic, "rule", a.Name, "err", err)
 			continue
 		}
-		_, above := a.Threshold()
+		thr, above := a.Threshold()
 		k := int(math.Ceil(float64(a.Within) / float64(sc.Step))) // ≤ Horizon after CheckSeries
-		rs = append(rs, rule{cfg: a, above: above, window: max(k, 1)})
+		rs = append(rs, series.AlertRule{Name: a.Name, Threshold: thr, Above: above, Window: max(k, 1),
+			WithinSeconds: int64(a.Within / time.Second), Raise: a.Probability, Clear: a.ClearProbability})
 	}
 	return rs
 }
@@ -667,7 +664,7 @@ func (d *Daemon) publish(topic string, e *entry) {
 		d.opt.OnForecast(e.s.Forecast())
 	}
 	if len(e.rules) > 0 {
-		d.evaluate(topic, e, mf, now)
+		d.evaluate(topic, e, now)
 	}
 }
 
@@ -712,92 +709,23 @@ func (d *Daemon) storeLatest(s *series.Series) {
 	d.mu.Unlock()
 }
 
-// evaluate updates every alert rule of the series from its latest forecast.
-func (d *Daemon) evaluate(topic string, e *entry, fc *series.ModelForecast, now time.Time) {
-	origin := fc.Origin()
-	mean, variance, tr := e.s.ModelScale()
-	states := e.s.Alerts()
-	for _, r := range e.rules {
-		thr, above := r.cfg.Threshold()
-		c, ferr := tr.Forward(thr)
-		// On the model scale "above" stays above under an increasing
-		// transform and turns into "below" under a decreasing one.
-		dir := alert.Below
-		if above == tr.Increasing() {
-			dir = alert.Above
-		}
-		var p float64
-		var eta int
-		if ferr != nil {
-			// The threshold lies outside the transform's domain (e.g. a
-			// non-positive level under log): every value is above it.
-			if above {
-				p = 1
-			}
-		} else {
-			var err error
-			p, eta, err = d.evaluator.Probability(&alert.Query{
-				Mean: mean, Variance: variance, Threshold: c, Direction: dir,
-				Window: r.window, Monotone: e.s.Settings().Kind == "counter",
-				Seed: seedOf(topic, r.cfg.Name, origin),
-			}, func(cov []float64) { e.s.Joint(cov) })
-			if err != nil {
-				d.log.Warn("alert evaluation failed", "topic", topic, "rule", r.cfg.Name, "err", err)
-				continue
-			}
-		}
-		st := findState(states, r.cfg.Name)
-		raised, changed := alert.Next(st.Raised, p, alert.Rule{Raise: r.cfg.Probability, Clear: r.cfg.ClearProbability})
-		st.Probability = p
-		if !changed {
-			continue
-		}
-		st.Raised = raised
-		st.Since = fc.End
-		ev := series.AlertEvent{
-			Topic: topic, Rule: r.cfg.Name, Raised: raised, Threshold: thr,
-			Probability: p, WithinSeconds: int64(r.cfg.Within / time.Second), Origin: origin,
-		}
-		ev.Direction = "below"
-		if above {
-			ev.Direction = "above"
-		}
-		if eta > 0 {
-			ev.ETA, ev.HasETA = fc.TimeAt(eta), true
-		}
-		d.encBuf = stream.AppendAlert(d.encBuf[:0], &ev, now)
+// evaluate updates every alert rule of the series from its latest forecast
+// (engine/series does the work) and publishes the alerts it returns.
+func (d *Daemon) evaluate(topic string, e *entry, now time.Time) {
+	var err error
+	d.events, err = e.s.EvaluateAlerts(d.events[:0], e.rules, d.evaluator, &d.paths)
+	if err != nil {
+		d.log.Warn("alert evaluation failed", "topic", topic, "err", err)
+	}
+	for i := range d.events {
+		ev := &d.events[i]
+		d.encBuf = stream.AppendAlert(d.encBuf[:0], ev, now)
 		d.pub.Alert(topic, d.encBuf)
 		d.metrics.Alerts.Inc()
 		if d.opt.OnAlert != nil {
-			d.opt.OnAlert(&ev)
+			d.opt.OnAlert(ev)
 		}
 	}
-}
-
-func findState(states *[]series.AlertSnapshot, name string) *series.AlertSnapshot {
-	for i := range *states {
-		if (*states)[i].Rule == name {
-			return &(*states)[i]
-		}
-	}
-	*states = append(*states, series.AlertSnapshot{Rule: name})
-	return &(*states)[len(*states)-1]
-}
-
-// seedOf derives the simulation seed of one rule evaluation from data
-// only, so that alert probabilities are deterministic.
-func seedOf(topic, rule string, origin time.Time) uint64 {
-	h := fnv.New64a()
-	h.Write([]byte(topic))
-	h.Write([]byte{0})
-	h.Write([]byte(rule))
-	var b [8]byte
-	u := uint64(origin.Unix())
-	for i := range b {
-		b[i] = byte(u >> (8 * i))
-	}
-	h.Write(b[:])
-	return h.Sum64()
 }
 
 // reject counts and publishes one reject; code is one of stream's Code…

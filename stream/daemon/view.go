@@ -30,8 +30,7 @@ func (v *Entry) Refits() []int64 { return v.e.refits }
 func (v *Entry) Rules() []RuleView {
 	out := make([]RuleView, 0, len(v.e.rules))
 	for _, r := range v.e.rules {
-		thr, above := r.cfg.Threshold()
-		out = append(out, RuleView{Name: r.cfg.Name, Threshold: thr, Above: above})
+		out = append(out, RuleView{Name: r.Name, Threshold: r.Threshold, Above: r.Above})
 	}
 	return out
 }
