@@ -56,11 +56,11 @@ const Capacity = 1e12
 func Series() []config.Series {
 	return []config.Series{
 		{Match: "release.downloads", Kind: "counter", Step: 15 * time.Minute, Horizon: 48,
-			Levels: []float64{80, 95}, Window: 600, MinPoints: 60, RefitEvery: 48, Model: "auto", Transform: "auto"},
+			Levels: []float64{50, 90}, Window: 600, MinPoints: 60, RefitEvery: 48, Model: "auto", Transform: "auto"},
 		{Match: "storage.*.used_bytes", Kind: "gauge", Step: 5 * time.Minute, Horizon: 72,
-			Levels: []float64{80, 95}, Window: 600, MinPoints: 60, RefitEvery: 36, Model: "auto", Transform: "none"},
+			Levels: []float64{50, 90}, Window: 600, MinPoints: 60, RefitEvery: 36, Model: "auto", Transform: "none"},
 		{Match: "shop.orders", Kind: "counter", Step: time.Hour, Horizon: 24,
-			Levels: []float64{80, 95}, Window: 400, MinPoints: 72, RefitEvery: 24, Model: "auto", Transform: "none", Seasons: []config.Cycle{{Length: config.Day}}},
+			Levels: []float64{50, 90}, Window: 400, MinPoints: 72, RefitEvery: 24, Model: "auto", Transform: "none", Seasons: []config.Cycle{{Length: config.Day}}},
 	}
 }
 
@@ -194,7 +194,7 @@ const TimeLayout = "2006-01-02 15:04"
 //	<origin> forecast <topic> last <value> median <value> at +<span> <level>% band <low> to <high> transform <name> model <label>
 //
 // The median and the band are those of the last step of the horizon, the
-// band the lowest level's; an unbounded band end is "unbounded". The band
+// band the highest level's (the widest); an unbounded band end is "unbounded". The band
 // part is left out when the series has no levels. A missing last value is
 // "missing".
 func ForecastLine(f *series.Forecast) string {
@@ -204,8 +204,8 @@ func ForecastLine(f *series.Forecast) string {
 		p := f.Points[n-1]
 		span := time.Duration(p.H) * time.Duration(f.StepSeconds) * time.Second
 		fmt.Fprintf(&b, " median %s at %s", value(p.Median), humanfmt.Offset(span))
-		if len(f.Levels) > 0 && len(p.Lower) > 0 && len(p.Upper) > 0 {
-			fmt.Fprintf(&b, " %s%% band %s to %s", strconv.FormatFloat(f.Levels[0], 'f', -1, 64), bound(p.Lower[0]), bound(p.Upper[0]))
+		if w := len(f.Levels) - 1; w >= 0 && len(p.Lower) > w && len(p.Upper) > w {
+			fmt.Fprintf(&b, " %s%% band %s to %s", strconv.FormatFloat(f.Levels[w], 'f', -1, 64), bound(p.Lower[w]), bound(p.Upper[w]))
 		}
 	}
 	fmt.Fprintf(&b, " transform %s model %s", f.Model.Transform, f.Model.Spec)

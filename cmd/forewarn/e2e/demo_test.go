@@ -27,9 +27,9 @@ const (
 )
 
 var (
-	// <origin> forecast <topic> last <value> median <value> at +<span> 80% band <low> to <high> transform <name> model <label>
+	// <origin> forecast <topic> last <value> median <value> at +<span> 90% band <low> to <high> transform <name> model <label>
 	forecastLineRe = regexp.MustCompile(`^(` + demoTime + `) forecast (\S+) last (` + demoValue + `|missing) median (` + demoValue +
-		`) at \+(` + demoSpan + `) 80% band (` + demoBound + `) to (` + demoBound + `) transform (none|log|boxcox\([-0-9.e]+\)) model (ARIMA.*)$`)
+		`) at \+(` + demoSpan + `) 90% band (` + demoBound + `) to (` + demoBound + `) transform (none|log|boxcox\([-0-9.e]+\)) model (ARIMA.*)$`)
 	// <origin> alert <topic> <rule> raised|cleared p=<probability> above <threshold> within <window> eta +<span>|none
 	alertLineRe = regexp.MustCompile(`^(` + demoTime + `) alert (\S+) (\S+) (raised|cleared) p=([01]\.[0-9]{2}) above (` + demoValue +
 		`) within (` + demoSpan + `) eta (\+` + demoSpan + `|none)$`)
