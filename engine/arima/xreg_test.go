@@ -3,6 +3,7 @@ package arima
 import (
 	"errors"
 	"math"
+	"strconv"
 	"testing"
 
 	"forewarn/engine/internal/refdata"
@@ -230,9 +231,7 @@ func TestFourierAgainstR(t *testing.T) {
 	}
 }
 
-func itoa(i int) string {
-	return string(rune('0'+i/1000%10)) + string(rune('0'+i/100%10)) + string(rune('0'+i/10%10)) + string(rune('0'+i%10))
-}
+func itoa(i int) string { return strconv.Itoa(i) }
 
 // TestFourierAbsoluteTime is a property test: the terms depend on the
 // absolute time alone. At Unix times of 2024 (t ≈ 1.7e9 s), with a step
