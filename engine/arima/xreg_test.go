@@ -329,8 +329,11 @@ func TestFilterXPhaseAfterRestart(t *testing.T) {
 	if err := c.SetState(st); err != nil {
 		t.Fatal(err)
 	}
-	for i := 1100; i < len(y); i++ {
-		c.StepAt(t0+step*float64(i), y[i])
+	for i := 1100; i < 2000; i++ {
+		c.Step(y[i]) // the clock restored from the state
+	}
+	for i := 2000; i < len(y); i++ {
+		c.StepAt(t0+step*float64(i), y[i]) // the clock given
 	}
 	ma, va := make([]float64, 60), make([]float64, 60)
 	mc, vc := make([]float64, 60), make([]float64, 60)
