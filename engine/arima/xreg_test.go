@@ -332,6 +332,9 @@ func TestFilterXPhaseAfterRestart(t *testing.T) {
 	for i := 1100; i < 2000; i++ {
 		c.Step(y[i]) // the clock restored from the state
 	}
+	if got, want := c.NextTime(), t0+step*2000; got != want {
+		t.Fatalf("restored filter's clock at %v, want %v", got, want)
+	}
 	for i := 2000; i < len(y); i++ {
 		c.StepAt(t0+step*float64(i), y[i]) // the clock given
 	}
