@@ -60,6 +60,19 @@
 // product. A fit of the (0,1,1)(0,1,1)[168] model, n = 2000, needs well
 // under a megabyte of working memory.
 //
+// # Regression with ARIMA errors and Fourier terms
+//
+// With Spec.NX > 0 the model is y_t = μ + δ·t + x_tᵀβ + u_t with u_t the
+// ARIMA process (FitX, LogLikX): β is profiled out of the exact likelihood
+// by generalised least squares on the data and the regressor columns
+// filtered with the same gains, missing values included; the mean or
+// drift is the first regression column. NewFilterX keeps β and computes
+// the regressors itself at each step's data time; Fourier gives the
+// sin/cos terms of cycles given as durations, their phase taken from
+// absolute time. ForecastX forecasts with future regressor values and
+// gives standard errors with and without β's uncertainty (R's
+// predict.Arima reports the latter).
+//
 // # Online use
 //
 // Filter absorbs one observation at a time (Step) and forecasts with

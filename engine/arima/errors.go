@@ -42,6 +42,10 @@ var (
 	// ErrState is returned by Filter.SetState for a state vector that was
 	// not produced by AppendState of a filter of the same model shape.
 	ErrState = errors.New("arima: invalid filter state")
+	// ErrRegressors is returned when the regressors of a model with
+	// Spec.NX > 0 are missing, of the wrong shape, non-finite, or
+	// collinear.
+	ErrRegressors = errors.New("arima: invalid regressors")
 )
 
 // MaxAbsValue is the largest magnitude accepted in a series. Squares and
@@ -50,7 +54,7 @@ const MaxAbsValue = 1e100
 
 // SpecError reports which part of a specification is wrong. It wraps ErrSpec.
 type SpecError struct {
-	Field  string // "p", "d", "q", "P", "D", "Q", "period", "mean", "drift" or "syntax"
+	Field  string // "p", "d", "q", "P", "D", "Q", "period", "mean", "drift", "regressors" or "syntax"
 	Value  string // the offending value as written
 	Reason string
 }

@@ -64,6 +64,15 @@ type Filter struct {
 	psi2              []float64 // cumulative Σ_{i<h} ψ*_i², h = 0..maxH
 	psiStar           []float64 // ψ*_0..ψ*_{maxH−1}
 	G, PG             []float64 // maxH×m rows for ForecastJoint
+
+	// external regressors (Spec.NX > 0)
+	gen   Regressors
+	path  RegressorPath // gen, when it implements it
+	regm  []float64     // maxH: the regression part of a forecast
+	beta  []float64
+	xbuf  []float64
+	next  float64 // data time of the next observation
+	xstep float64 // time between observations
 }
 
 // NewFilter returns a filter for m, ready to Step through a series from its
@@ -74,6 +83,49 @@ type Filter struct {
 // and a few vectors) unless r + d + sD > 256, in which case the
 // levels-in-state workspace is allocated at the first missing value.
 func NewFilter(m *Model, maxHorizon int) (*Filter, error) {
+	if m != nil && m.Spec.NX > 0 {
+		return nil, fmt.Errorf("arima: new filter %s: %w: the model has %d regressors; use NewFilterX", m.Spec, ErrRegressors, m.Spec.NX)
+	}
+	return newFilter(m, maxHorizon)
+}
+
+// NewFilterX returns a filter for a model with external regressors
+// (regression with ARIMA errors, see FitX). The filter keeps β and
+// advances the regressors itself: gen gives x_t at the data time t of
+// each step, the first Step being at time start and each later one step
+// after the previous (StepAt sets the time explicitly, e.g. after a gap).
+// Each step filters u_t = y_t − x_tᵀβ; forecasts add x_{t+h}ᵀβ at the
+// future times. With Fourier terms computed from absolute time (Fourier)
+// the phase survives restarts, gaps and moves to another machine. The
+// forecast variances are those of the ARIMA part with β known, as in R's
+// predict.Arima; ForecastX adds β's estimation uncertainty.
+func NewFilterX(m *Model, maxHorizon int, gen Regressors, start, step float64) (*Filter, error) {
+	if m == nil {
+		return nil, fmt.Errorf("arima: new filter: %w: nil model", ErrParams)
+	}
+	if gen == nil || gen.NumRegressors() != m.Spec.NX {
+		n := 0
+		if gen != nil {
+			n = gen.NumRegressors()
+		}
+		return nil, fmt.Errorf("arima: new filter %s: %w: %d regressors given, the model has %d", m.Spec, ErrRegressors, n, m.Spec.NX)
+	}
+	if !(step > 0) || math.IsInf(step, 0) || math.IsNaN(start) || math.IsInf(start, 0) {
+		return nil, fmt.Errorf("arima: new filter %s: %w: start %v and step %v: want finite times and a positive step", m.Spec, ErrRegressors, start, step)
+	}
+	f, err := newFilter(m, maxHorizon)
+	if err != nil {
+		return nil, err
+	}
+	f.gen, f.next, f.xstep = gen, start, step
+	f.path, _ = gen.(RegressorPath)
+	f.regm = make([]float64, maxHorizon)
+	f.beta = append([]float64(nil), m.Beta...)
+	f.xbuf = make([]float64, m.Spec.NX)
+	return f, nil
+}
+
+func newFilter(m *Model, maxHorizon int) (*Filter, error) {
 	if m == nil {
 		return nil, fmt.Errorf("arima: new filter: %w: nil model", ErrParams)
 	}
@@ -200,9 +252,17 @@ func (f *Filter) Steps(y []float64) {
 // the covariance update done by the Chandrasekhar rank-one increment while
 // the start is stationary, by the full Riccati step after a missing value,
 // and skipped once it has converged (steady state, §4.3.4).
+//
+// With regressors (NewFilterX) the step is at the filter's clock, which
+// then advances by one step.
 func (f *Filter) Step(y float64) {
 	if math.IsInf(y, 0) {
 		y = math.NaN()
+	}
+	if f.gen != nil {
+		f.gen.Regressors(f.xbuf, f.next)
+		y -= dot(f.beta, f.xbuf)
+		f.next += f.xstep
 	}
 	switch f.mode {
 	case modeWarm:
@@ -254,6 +314,42 @@ func (f *Filter) Step(y float64) {
 		f.steadyStep(w)
 	}
 	f.shiftAnchors(y)
+}
+
+// StepAt is Step at data time t: it sets the regressor clock to t first
+// (a filter without regressors ignores t). Buckets skipped by a gap must
+// still be stepped, as missing values, for the ARIMA part.
+func (f *Filter) StepAt(t, y float64) {
+	if f.gen != nil {
+		f.next = t
+	}
+	f.Step(y)
+}
+
+// NextTime returns the data time of the next Step of a filter with
+// regressors (NaN without).
+func (f *Filter) NextTime() float64 {
+	if f.gen == nil {
+		return math.NaN()
+	}
+	return f.next
+}
+
+// RegressionMean writes x_{t+k}ᵀβ for the next len(dst) steps (zeros
+// without regressors): the part of the forecast mean that PathSystem,
+// which describes y − xᵀβ, leaves out. It does not allocate.
+func (f *Filter) RegressionMean(dst []float64) {
+	if f.path != nil {
+		f.path.LinearPath(dst, f.beta, f.next, f.xstep)
+		return
+	}
+	for k := range dst {
+		dst[k] = 0
+		if f.gen != nil {
+			f.gen.Regressors(f.xbuf, f.next+float64(k)*f.xstep)
+			dst[k] = dot(f.beta, f.xbuf)
+		}
+	}
 }
 
 func (f *Filter) shiftAnchors(y float64) {
@@ -570,6 +666,13 @@ func (f *Filter) forecastMean(mean []float64) {
 		mean[k] = f.c + f.s.zVec(u)
 		f.s.tVec(t1, u, f.c)
 		copy(u, t1)
+	}
+	if f.gen != nil {
+		rm := f.regm[:len(mean)]
+		f.RegressionMean(rm)
+		for k, v := range rm {
+			mean[k] += v
+		}
 	}
 }
 

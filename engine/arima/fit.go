@@ -20,6 +20,11 @@ type Result struct {
 	Iterations             int
 	Note                   string    // why not converged, or which fallback start was used
 	Residuals              []float64 // standardized one-step innovations, NaN where missing/burned
+	// RegCov is, for a model with external regressors (Spec.NX > 0), the
+	// covariance σ̂² S⁻¹ of all regression coefficients (the mean or drift
+	// when estimated, then Beta), row-major, given the ARMA coefficients
+	// (see FitX). nil without external regressors.
+	RegCov []float64
 }
 
 // FitOptions are optional knobs of Fit. The zero value (or nil) means
@@ -72,10 +77,37 @@ const rawBound = 15
 //   - Hurvich, C. M. & Tsai, C.-L. (1989). Regression and time series model
 //     selection in small samples. Biometrika 76(2), 297–307 (AICc).
 func Fit(y []float64, spec Spec, opt *FitOptions) (*Result, error) {
+	return FitX(y, nil, spec, opt)
+}
+
+// FitX is Fit for a regression with ARIMA errors,
+//
+//	y_t = μ + δ·t + x_tᵀβ + u_t,   u_t the ARIMA process of spec,
+//
+// with the spec.NX columns of X (each len(y) long; NaN in a column makes
+// that row missing, as in R's stats::arima). β is profiled out of the
+// exact likelihood by generalised least squares at every trial point
+// (the data and each column are filtered with the same gains; see
+// LogLikX), so the optimiser sees only the ARMA coefficients; the mean or
+// drift becomes the first regression column. Differencing applies to the
+// columns as to y. Standard errors: the ARMA coefficients from the
+// numerical Hessian of the profile likelihood (whose inverse is the ARMA
+// block of the full inverse Hessian), the regression coefficients from
+// σ̂² S⁻¹ (Result.RegCov), their covariance given the ARMA coefficients.
+//
+// References:
+//   - Harvey, A. C. (1989). Forecasting, Structural Time Series Models and
+//     the Kalman Filter, §3.4 (regression with ARMA disturbances in state
+//     space).
+//   - Durbin, J. & Koopman, S. J. (2012), §6.2 (regression effects in the
+//     state-space model; GLS estimate and its variance).
+//   - Kohn, R. & Ansley, C. F. (1985). Efficient estimation and prediction
+//     in time series regression models. Biometrika 72(3), 694–697.
+func FitX(y []float64, X [][]float64, spec Spec, opt *FitOptions) (*Result, error) {
 	if err := spec.Validate(); err != nil {
 		return nil, fmt.Errorf("arima: fit: %w", err)
 	}
-	e, err := newEvaluator(y, spec)
+	e, err := newEvaluatorX(y, X, spec)
 	if err != nil {
 		return nil, fmt.Errorf("arima: fit %s: %w", spec, err)
 	}
@@ -221,7 +253,7 @@ func (f *fitter) encode(u, ar, ma, sar, sma []float64) error {
 func (f *fitter) objective(u []float64) float64 {
 	f.evals++
 	f.decode(u)
-	out, err := f.e.eval(f.ar, f.ma, f.sar, f.sma, 0, true, nil)
+	out, err := f.e.evalB(f.ar, f.ma, f.sar, f.sma, nil, true, nil)
 	if err != nil {
 		return 1e10
 	}
@@ -358,14 +390,21 @@ func (f *fitter) css() ([]float64, bool) {
 	if len(w) > cssMaxObs {
 		w = w[len(w)-cssMaxObs:]
 	}
-	c := 0.0
-	if e.spec.Mean {
-		c = e.beta0
-	} else if e.spec.Drift {
-		c = e.beta0 * e.ndiff
-	}
-	for i := range w {
-		w[i] -= c
+	if e.cssW != nil {
+		w = append(w[:0], e.cssW...)
+		if len(w) > cssMaxObs {
+			w = w[len(w)-cssMaxObs:]
+		}
+	} else {
+		c := 0.0
+		if e.spec.Mean {
+			c = e.beta0
+		} else if e.spec.Drift {
+			c = e.beta0 * e.ndiff
+		}
+		for i := range w {
+			w[i] -= c
+		}
 	}
 	res := make([]float64, len(w))
 	var phiE, thE []float64
@@ -451,18 +490,27 @@ func (f *fitter) finish(best optResult, notes []string) (*Result, error) {
 	ma := maInvert(append([]float64(nil), f.ma...))
 	sar := append([]float64(nil), f.sar...)
 	sma := maInvert(append([]float64(nil), f.sma...))
-	prof, err := e.eval(ar, ma, sar, sma, 0, true, nil)
+	prof, err := e.evalB(ar, ma, sar, sma, nil, true, nil)
 	if err != nil {
 		return nil, fmt.Errorf("arima: fit %s: %w", s, err)
 	}
+	var betas, regCov []float64
+	if e.cols != nil {
+		betas = append(betas, prof.betas...)
+		regCov = e.regCov(prof.sigma2)
+	} else {
+		betas = []float64{prof.beta}
+	}
 	resid := make([]float64, e.n)
-	out, err := e.eval(ar, ma, sar, sma, prof.beta, false, resid)
+	out, err := e.evalB(ar, ma, sar, sma, betas, false, resid)
 	if err != nil {
 		return nil, fmt.Errorf("arima: fit %s: %w", s, err)
 	}
 	params := make([]float64, 0, s.NumParams())
 	params = append(append(append(append(params, ar...), ma...), sar...), sma...)
-	if s.Mean || s.Drift {
+	if e.cols != nil {
+		params = append(params, betas...)
+	} else if s.Mean || s.Drift {
 		params = append(params, out.beta)
 	}
 	m, err := NewModel(s, params, out.sigma2)
@@ -479,6 +527,7 @@ func (f *fitter) finish(best optResult, notes []string) (*Result, error) {
 		Iterations: best.iterations,
 		Note:       strings.Join(notes, "; "),
 		Residuals:  resid,
+		RegCov:     regCov,
 	}
 	res.AIC = -2*out.loglik + 2*(k+1)
 	if n-k-2 > 0 {
@@ -487,7 +536,11 @@ func (f *fitter) finish(best optResult, notes []string) (*Result, error) {
 		res.AICc = math.Inf(1)
 	}
 	res.BIC = -2*out.loglik + (k+1)*math.Log(n)
-	res.StdErr = f.stdErr(params)
+	if e.cols != nil {
+		res.StdErr = f.stdErrX(params, regCov)
+	} else {
+		res.StdErr = f.stdErr(params)
+	}
 	return res, nil
 }
 
@@ -516,11 +569,7 @@ func (f *fitter) stdErr(params []float64) []float64 {
 		i += s.SP
 		sma := x[i : i+s.SQ]
 		i += s.SQ
-		beta := 0.0
-		if s.Mean || s.Drift {
-			beta = x[i]
-		}
-		out, err := e.eval(ar, ma, sar, sma, beta, false, nil)
+		out, err := e.evalB(ar, ma, sar, sma, x[i:], false, nil)
 		if err != nil {
 			return math.NaN()
 		}
@@ -570,6 +619,84 @@ func (f *fitter) stdErr(params []float64) []float64 {
 		return se
 	}
 	for i := range se {
+		if d := inv.At(i, i); d > 0 {
+			se[i] = math.Sqrt(d)
+		}
+	}
+	return se
+}
+
+// stdErrX is stdErr with external regressors: the ARMA block from the
+// central-difference Hessian of the profile −log L (β profiled out), the
+// regression block from regCov.
+func (f *fitter) stdErrX(params, regCov []float64) []float64 {
+	e := f.e
+	s := f.spec
+	k := len(params)
+	se := make([]float64, k)
+	for i := range se {
+		se[i] = math.NaN()
+	}
+	nr := len(e.cols)
+	for i := 0; i < nr; i++ {
+		if d := regCov[i*nr+i]; d > 0 {
+			se[f.nu+i] = math.Sqrt(d)
+		}
+	}
+	nu := f.nu
+	if nu == 0 {
+		return se
+	}
+	x := append([]float64(nil), params[:nu]...)
+	nll := func() float64 {
+		i := 0
+		ar := x[i : i+s.P]
+		i += s.P
+		ma := x[i : i+s.Q]
+		i += s.Q
+		sar := x[i : i+s.SP]
+		i += s.SP
+		sma := x[i : i+s.SQ]
+		out, err := e.evalB(ar, ma, sar, sma, nil, true, nil)
+		if err != nil {
+			return math.NaN()
+		}
+		return -out.loglik
+	}
+	h := make([]float64, nu)
+	for i := range h {
+		h[i] = 1e-4 * math.Max(1, math.Abs(params[i]))
+	}
+	f0 := nll()
+	fi := make([]float64, nu)
+	for i := 0; i < nu; i++ {
+		x[i] = params[i] + h[i]
+		fi[i] = nll()
+		x[i] = params[i]
+	}
+	H := mat.NewSymDense(nu, nil)
+	for i := 0; i < nu; i++ {
+		for j := i; j < nu; j++ {
+			x[i] += h[i]
+			x[j] += h[j]
+			fij := nll()
+			x[i], x[j] = params[i], params[j]
+			v := (fij - fi[i] - fi[j] + f0) / (h[i] * h[j])
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return se
+			}
+			H.SetSym(i, j, v)
+		}
+	}
+	var ch mat.Cholesky
+	if !ch.Factorize(H) {
+		return se
+	}
+	var inv mat.SymDense
+	if err := ch.InverseTo(&inv); err != nil {
+		return se
+	}
+	for i := 0; i < nu; i++ {
 		if d := inv.At(i, i); d > 0 {
 			se[i] = math.Sqrt(d)
 		}

@@ -15,16 +15,18 @@ import (
 // Mean is μ when Spec.Mean is set, Drift is the slope δ per time step when
 // Spec.Drift is set (y_t − δ·t is the integrated ARMA process, t = 1, 2, …
 // counted from the first observation); both are zero otherwise. Sigma2 is
-// the innovation variance σ².
+// the innovation variance σ². Beta holds the Spec.NX coefficients of the
+// external regressors (y_t = μ + δ·t + x_tᵀβ + u_t).
 type Model struct {
 	Spec             Spec
 	AR, MA, SAR, SMA []float64 // MA with plus sign: x_t = ... + e_t + theta_1 e_{t-1}
 	Mean, Drift      float64
+	Beta             []float64
 	Sigma2           float64
 }
 
 // Params returns the coefficients flattened in the order
-// AR, MA, SAR, SMA, then the mean or the drift when estimated.
+// AR, MA, SAR, SMA, then the mean or the drift when estimated, then Beta.
 func (m *Model) Params() []float64 {
 	out := make([]float64, 0, m.Spec.NumParams())
 	out = append(out, m.AR...)
@@ -37,7 +39,7 @@ func (m *Model) Params() []float64 {
 	if m.Spec.Drift {
 		out = append(out, m.Drift)
 	}
-	return out
+	return append(out, m.Beta...)
 }
 
 // NewModel builds a model from a specification and parameters laid out as
@@ -76,7 +78,9 @@ func NewModel(spec Spec, params []float64, sigma2 float64) (*Model, error) {
 	}
 	if spec.Drift {
 		m.Drift = params[i]
+		i++
 	}
+	m.Beta = take(spec.NX)
 	return m, nil
 }
 

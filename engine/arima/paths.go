@@ -23,7 +23,9 @@ import "fmt"
 // augmented state after a missing value) and P its covariance on the unit
 // σ² scale; with known anchors the level rows and columns of P are zero.
 // This is the forecasting recursion of Filter.Forecast with noise added:
-// its means and variances are those of Forecast.
+// its means and variances are those of Forecast. For a model with
+// regressors (NewFilterX) it describes u = y − xᵀβ; add
+// Filter.RegressionMean to each path.
 //
 // The fields are laid out like alert.StateSpace, so a PathSystem converts
 // to one with a plain type conversion (the slices are shared, not copied).

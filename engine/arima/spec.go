@@ -14,6 +14,7 @@ const (
 	MaxDiff          = 2    // d
 	MaxSeasonalDiff  = 1    // D
 	MaxPeriod        = 1000 // s
+	MaxRegressors    = MaxFourierTerms
 )
 
 // Spec is the shape of a seasonal ARIMA model, in the multiplicative
@@ -37,6 +38,11 @@ type Spec struct {
 	Period     int  // s; 0 when there is no seasonal part
 	Mean       bool // estimate a process mean (only valid when D+SD == 0)
 	Drift      bool // estimate a drift (only valid when D+SD == 1)
+	// NX is the number of external regressors x_t (Fourier terms, outlier
+	// effects, …) with coefficients Model.Beta: the model is then
+	// y_t = μ + δ·t + x_tᵀβ + u_t with u_t the ARIMA process (regression
+	// with ARIMA errors). Zero for a plain ARIMA model.
+	NX int
 }
 
 // Constant says which constant term a model estimates.
@@ -204,6 +210,12 @@ func (s Spec) Label() string {
 	} else if s.Drift {
 		b.WriteString(" + drift")
 	}
+	switch {
+	case s.NX == 1:
+		b.WriteString(" + 1 regressor")
+	case s.NX > 1:
+		b.WriteString(" + " + strconv.Itoa(s.NX) + " regressors")
+	}
 	return b.String()
 }
 
@@ -310,7 +322,7 @@ func (s Spec) Validate() error {
 		v, max int
 	}{{"p", s.P, MaxOrder}, {"d", s.D, MaxDiff}, {"q", s.Q, MaxOrder},
 		{"P", s.SP, MaxSeasonalOrder}, {"D", s.SD, MaxSeasonalDiff}, {"Q", s.SQ, MaxSeasonalOrder},
-		{"period", s.Period, MaxPeriod}} {
+		{"period", s.Period, MaxPeriod}, {"regressors", s.NX, MaxRegressors}} {
 		if err := check(c.f, c.v, c.max); err != nil {
 			return err
 		}
@@ -332,9 +344,9 @@ func (s Spec) Validate() error {
 }
 
 // NumParams is the number k of estimated coefficients (excluding σ²):
-// p + q + P + Q, plus one for a mean or a drift.
+// p + q + P + Q, plus one for a mean or a drift, plus NX.
 func (s Spec) NumParams() int {
-	k := s.P + s.Q + s.SP + s.SQ
+	k := s.P + s.Q + s.SP + s.SQ + s.NX
 	if s.Mean {
 		k++
 	}

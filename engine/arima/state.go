@@ -16,7 +16,8 @@ const stateHeader = 8
 //	version, r, d+sD, mode, warm-up count, warm-up had a missing value,
 //	ready, M (Chandrasekhar scalar),
 //	warm-up values (d+sD), anchors (d+sD), a (r), W (r), K (r), P (r·r),
-//	and with the levels in the state: x (r+d+sD), P (r+d+sD)².
+//	and with the levels in the state: x (r+d+sD), P (r+d+sD)²,
+//	and with regressors (NewFilterX): the data time of the next step.
 //
 // The model itself is not included: restore into a filter built by
 // NewFilter from the same model.
@@ -38,6 +39,9 @@ func (f *Filter) AppendState(dst []float64) []float64 {
 	if f.mode == modeAug {
 		dst = append(dst, f.xa...)
 		dst = append(dst, f.Pa...)
+	}
+	if f.gen != nil {
+		dst = append(dst, f.next)
 	}
 	return dst
 }
@@ -70,6 +74,9 @@ func (f *Filter) SetState(s []float64) error {
 	if mode == modeAug {
 		want += mm + mm*mm
 	}
+	if f.gen != nil {
+		want++
+	}
 	if len(s) != want {
 		return bad(fmt.Sprintf("%d values, want %d", len(s), want))
 	}
@@ -88,7 +95,10 @@ func (f *Filter) SetState(s []float64) error {
 	}
 	if mode == modeAug {
 		i += copy(f.xa, s[i:i+mm])
-		copy(f.Pa, s[i:i+mm*mm])
+		i += copy(f.Pa, s[i:i+mm*mm])
+	}
+	if f.gen != nil {
+		f.next = s[i]
 	}
 	return nil
 }
