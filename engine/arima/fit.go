@@ -586,48 +586,12 @@ func (f *fitter) stdErr(params []float64) []float64 {
 			h[k-1] = 1e-3 * sd
 		}
 	}
-	// H_ij ≈ [f(x+h_i+h_j) − f(x+h_i) − f(x+h_j) + f(x)] / (h_i h_j): forward
-	// differences, k(k+3)/2 + 1 evaluations; the O(h) error is far below
-	// the sampling error the standard errors describe.
-	f0 := nll()
-	fi := make([]float64, k)
-	for i := 0; i < k; i++ {
-		x[i] = params[i] + h[i]
-		fi[i] = nll()
-		x[i] = params[i]
-	}
-	H := mat.NewSymDense(k, nil)
-	for i := 0; i < k; i++ {
-		for j := i; j < k; j++ {
-			x[i] += h[i]
-			x[j] += h[j]
-			fij := nll()
-			x[i], x[j] = params[i], params[j]
-			v := (fij - fi[i] - fi[j] + f0) / (h[i] * h[j])
-			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return se
-			}
-			H.SetSym(i, j, v)
-		}
-	}
-	var ch mat.Cholesky
-	if !ch.Factorize(H) {
-		return se
-	}
-	var inv mat.SymDense
-	if err := ch.InverseTo(&inv); err != nil {
-		return se
-	}
-	for i := range se {
-		if d := inv.At(i, i); d > 0 {
-			se[i] = math.Sqrt(d)
-		}
-	}
+	hessianStdErr(se, x, params, h, nll)
 	return se
 }
 
 // stdErrX is stdErr with external regressors: the ARMA block from the
-// central-difference Hessian of the profile −log L (β profiled out), the
+// forward-difference Hessian of the profile −log L (β profiled out), the
 // regression block from regCov.
 func (f *fitter) stdErrX(params, regCov []float64) []float64 {
 	e := f.e
@@ -667,41 +631,56 @@ func (f *fitter) stdErrX(params, regCov []float64) []float64 {
 	for i := range h {
 		h[i] = 1e-4 * math.Max(1, math.Abs(params[i]))
 	}
+	hessianStdErr(se, x, params[:nu], h, nll)
+	return se
+}
+
+// hessianStdErr writes into se[:len(h)] the standard errors from the inverse
+// of the Hessian of nll (the negative log-likelihood as a function of x) at
+// params, by forward differences with steps h:
+//
+//	H_ij ≈ [f(x+h_i+h_j) − f(x+h_i) − f(x+h_j) + f(x)] / (h_i h_j),
+//
+// k(k+3)/2 + 1 evaluations for k = len(h); the O(h) error is far below the
+// sampling error the standard errors describe. x is nll's argument, which
+// this moves and restores. A Hessian that is not finite or not positive
+// definite leaves se as it was.
+func hessianStdErr(se, x, params, h []float64, nll func() float64) {
+	k := len(h)
 	f0 := nll()
-	fi := make([]float64, nu)
-	for i := 0; i < nu; i++ {
+	fi := make([]float64, k)
+	for i := 0; i < k; i++ {
 		x[i] = params[i] + h[i]
 		fi[i] = nll()
 		x[i] = params[i]
 	}
-	H := mat.NewSymDense(nu, nil)
-	for i := 0; i < nu; i++ {
-		for j := i; j < nu; j++ {
+	H := mat.NewSymDense(k, nil)
+	for i := 0; i < k; i++ {
+		for j := i; j < k; j++ {
 			x[i] += h[i]
 			x[j] += h[j]
 			fij := nll()
 			x[i], x[j] = params[i], params[j]
 			v := (fij - fi[i] - fi[j] + f0) / (h[i] * h[j])
 			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return se
+				return
 			}
 			H.SetSym(i, j, v)
 		}
 	}
 	var ch mat.Cholesky
 	if !ch.Factorize(H) {
-		return se
+		return
 	}
 	var inv mat.SymDense
 	if err := ch.InverseTo(&inv); err != nil {
-		return se
+		return
 	}
-	for i := 0; i < nu; i++ {
+	for i := 0; i < k; i++ {
 		if d := inv.At(i, i); d > 0 {
 			se[i] = math.Sqrt(d)
 		}
 	}
-	return se
 }
 
 // regVar is a rough variance of the regression coefficient, σ²_w / n, used
