@@ -535,22 +535,19 @@ func specReason(se *arima.SpecError) string {
 // first spelling ("ARIMA(p,d,q)(P,D,Q)[s] with drift"), or ok false when
 // m is not in that spelling.
 func oldSpelling(m string) (replacement string, ok bool) {
-	if !strings.HasPrefix(strings.TrimSpace(m), "ARIMA(") {
+	r, old := arima.LegacyReplacement(m)
+	if !old {
 		return "", false
 	}
-	sp, err := arima.ParseLegacySpec(m)
-	if err != nil {
+	if !r.Known {
 		return `model: "p,d,q" or "p,d,q x P,D,Q", the period as seasons: [s], and constant: none, mean or drift`, true
 	}
-	out := fmt.Sprintf("model: %q", sp.Orders())
-	if sp.Period > 0 {
-		out += fmt.Sprintf(", seasons: [%d]", sp.Period)
+	out := fmt.Sprintf("model: %q", r.Orders)
+	if r.Period > 0 {
+		out += fmt.Sprintf(", seasons: [%d]", r.Period)
 	}
-	switch {
-	case sp.Drift:
-		out += ", constant: drift"
-	case sp.D+sp.SD == 0 && !sp.Mean:
-		out += ", constant: none"
+	if r.Constant != "" {
+		out += ", constant: " + r.Constant
 	}
 	return out, true
 }

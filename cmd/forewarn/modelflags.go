@@ -177,22 +177,19 @@ func parseLevels(s string) ([]float64, error) {
 // oldModelSpelling returns the flags that replace a model written in
 // forewarn's first spelling, or ok false when s is not in that spelling.
 func oldModelSpelling(s string) (replacement string, ok bool) {
-	if !strings.HasPrefix(strings.TrimSpace(s), "ARIMA(") {
+	r, old := arima.LegacyReplacement(s)
+	if !old {
 		return "", false
 	}
-	sp, err := arima.ParseLegacySpec(s)
-	if err != nil {
+	if !r.Known {
 		return `--model "p,d,q" or "p,d,q x P,D,Q", --seasons for the period and --constant none, mean or drift`, true
 	}
-	out := fmt.Sprintf("--model %q", sp.Orders())
-	if sp.Period > 0 {
-		out += fmt.Sprintf(" --seasons %d", sp.Period)
+	out := fmt.Sprintf("--model %q", r.Orders)
+	if r.Period > 0 {
+		out += fmt.Sprintf(" --seasons %d", r.Period)
 	}
-	switch {
-	case sp.Drift:
-		out += " --constant drift"
-	case sp.D+sp.SD == 0 && !sp.Mean:
-		out += " --constant none"
+	if r.Constant != "" {
+		out += " --constant " + r.Constant
 	}
 	return out, true
 }

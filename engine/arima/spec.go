@@ -228,6 +228,39 @@ const (
 	legacyZeroMean = " with zero mean"
 )
 
+// Replacement is what replaces a model written in forewarn's first
+// spelling: the orders in today's syntax, the seasonal period in steps (0
+// for none) and the constant where it differs from auto ("" otherwise).
+// Known is false when the old string could not be read, and then only the
+// shape of the replacement can be named.
+type Replacement struct {
+	Orders   string
+	Period   int
+	Constant string
+	Known    bool
+}
+
+// LegacyReplacement tells whether s is in forewarn's first spelling
+// ("ARIMA(…)…") and, if so, what replaces it. The configuration and the
+// command line word it in their own terms.
+func LegacyReplacement(s string) (r Replacement, old bool) {
+	if !strings.HasPrefix(strings.TrimSpace(s), "ARIMA(") {
+		return r, false
+	}
+	sp, err := ParseLegacySpec(s)
+	if err != nil {
+		return r, true
+	}
+	r = Replacement{Orders: sp.Orders(), Period: sp.Period, Known: true}
+	switch {
+	case sp.Drift:
+		r.Constant = "drift"
+	case sp.D+sp.SD == 0 && !sp.Mean:
+		r.Constant = "none"
+	}
+	return r, true
+}
+
 // ParseLegacySpec reads the spelling of a model that forewarn used before
 // its own syntax: "ARIMA(p,d,q)" or "ARIMA(p,d,q)(P,D,Q)[s]", optionally
 // followed by " with drift" or " with zero mean"; without a suffix the
