@@ -43,7 +43,7 @@ type Calibrator struct {
 	miss         []float64 // α_l = 1 − level/100
 	zq           []float64 // Φ⁻¹(1 − α_l/2), the model's own multiplier
 	eta, bound   float64
-	decay        float64 // 1 − 1/Memory
+	decay        float64   // 1 − 1/Memory
 	q            []float64 // H×L, row h−1
 	covW, covN   []float64 // per level: weighted hits and weighted count
 	t            uint64    // buckets observed
