@@ -186,14 +186,15 @@ func (c *Calibrator) Observe(y float64) {
 			s = c.bound
 		}
 		q := c.q[h*nl : h*nl+nl]
+		miss, covW, covN := c.miss[:len(q)], c.covW[:len(q)], c.covN[:len(q)]
 		for l := range q {
+			var e float64 // err, without a branch the data would mispredict
 			if s > q[l] {
-				q[l] += c.eta * (1 - c.miss[l])
-			} else {
-				q[l] -= c.eta * c.miss[l]
-				c.covW[l]++
+				e = 1
 			}
-			c.covN[l]++
+			q[l] += c.eta * (e - miss[l])
+			covW[l] += 1 - e
+			covN[l]++
 		}
 		c.updates += uint64(nl)
 	}
