@@ -3,9 +3,9 @@ package main
 import (
 	"encoding/json"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
-	"math"
 	"strconv"
 	"strings"
 	"testing"
