@@ -34,11 +34,15 @@ func TestBacktestNoLookAhead(t *testing.T) {
 		t.Fatal(err)
 	}
 	run := func(y []float64) map[int]backtest.Forecast {
+		// Keyed by the origin the backtest is at (the k-th call is at
+		// T = n − h − 9 + k), not by what the forecaster was handed.
 		got := map[int]backtest.Forecast{}
 		inner := cfg.forecaster()
+		k := 0
 		rec := func(train []float64, h int, levels []float64) (backtest.Forecast, error) {
 			fc, err := inner(train, h, levels)
-			got[len(train)] = fc
+			got[len(y)-5-9+k] = fc
+			k++
 			return fc, err
 		}
 		if _, err := backtest.Run(y, cfg.bt, rec, nil); err != nil {
