@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"slices"
 	"strconv"
 	"strings"
 	"text/tabwriter"
@@ -16,6 +17,7 @@ import (
 	"forewarn/engine/arima"
 	"forewarn/engine/auto"
 	"forewarn/engine/backtest"
+	"forewarn/engine/calibrate"
 )
 
 func init() {
@@ -23,11 +25,12 @@ func init() {
 }
 
 // backtestFlags are the flags of `forewarn backtest` (CONTRACT.md §3: those
-// of fit plus --origins and --every).
+// of fit plus --origins, --every and --calibrate).
 type backtestFlags struct {
 	modelFlags
 	column, format string
 	origins, every int
+	calibrate      bool
 }
 
 func runBacktest(args []string, stdout, stderr io.Writer) int {
@@ -43,6 +46,7 @@ func runBacktest(args []string, stdout, stderr io.Writer) int {
 	fs.StringVar(&f.format, "format", "table", "table or json")
 	fs.IntVar(&f.origins, "origins", backtest.DefaultOrigins, "the number of forecast origins")
 	fs.IntVar(&f.every, "every", 1, "steps between origins; the last origin is at n − h")
+	fs.BoolVar(&f.calibrate, "calibrate", true, "calibrate the bands from the errors of forecasts before each origin (false: the model's own bands)")
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: forewarn backtest [flags] FILE")
 		fs.PrintDefaults()
@@ -104,6 +108,7 @@ func runBacktest(args []string, stdout, stderr io.Writer) int {
 type btRequest struct {
 	modelRequest
 	origins, every int
+	calibrate      bool
 }
 
 // request checks the flags; it lists every problem.
@@ -121,7 +126,7 @@ func (f *backtestFlags) request() (*btRequest, error) {
 	if len(problems) > 0 {
 		return nil, errors.New(strings.Join(problems, "; "))
 	}
-	return &btRequest{modelRequest: *mr, origins: f.origins, every: f.every}, nil
+	return &btRequest{modelRequest: *mr, origins: f.origins, every: f.every, calibrate: f.calibrate}, nil
 }
 
 // btConfig is the checked configuration of one backtest.
@@ -130,6 +135,9 @@ type btConfig struct {
 	sel    auto.Options // Model is "auto" or fixed orders
 	period int          // the seasonal period in steps, 0 without one
 	label  string       // the model asked for, for the table
+	// calibrate: the bands at each origin are calibrated by
+	// engine/calibrate, warm-started from the training data alone.
+	calibrate bool
 }
 
 // config resolves the seasonal cycle against the file's times and builds
@@ -148,22 +156,43 @@ func (r *btRequest) config(times []string, file string) (*btConfig, error) {
 		label = spec.Label()
 	}
 	return &btConfig{
-		bt:     backtest.Options{Horizon: r.horizon, Origins: r.origins, Every: r.every, Period: period, Levels: r.levels},
-		sel:    auto.Options{Period: period, Transform: r.transform, Model: r.model, Constant: r.constant},
-		period: period,
-		label:  label,
+		bt:        backtest.Options{Horizon: r.horizon, Origins: r.origins, Every: r.every, Period: period, Levels: r.levels},
+		sel:       auto.Options{Period: period, Transform: r.transform, Model: r.model, Constant: r.constant},
+		period:    period,
+		label:     label,
+		calibrate: r.calibrate,
 	}, nil
 }
 
 // forecaster fits at each origin (automatic choice unless the order is
-// fixed) and forecasts in raw units.
+// fixed) and forecasts in raw units, with calibrated bands when asked.
+// Choices are kept by training length for the one Run the forecaster
+// serves (the training sets are prefixes of one series), so the refits
+// behind the calibration are shared between neighbouring origins.
 func (c *btConfig) forecaster() backtest.Forecaster {
-	return func(train []float64, h int, levels []float64) (backtest.Forecast, error) {
+	cache := map[int]*auto.Choice{}
+	choose := func(train []float64) (*auto.Choice, error) {
+		if ch := cache[len(train)]; ch != nil {
+			return ch, nil
+		}
 		ch, err := c.choose(train)
+		if err == nil {
+			cache[len(train)] = ch
+		}
+		return ch, err
+	}
+	return func(train []float64, h int, levels []float64) (backtest.Forecast, error) {
+		ch, err := choose(train)
 		if err != nil {
 			return backtest.Forecast{}, err
 		}
-		return originForecast(ch, train, h, levels)
+		var thr []float64
+		if c.calibrate {
+			if thr, err = originThresholds(choose, train, h, levels); err != nil {
+				return backtest.Forecast{}, err
+			}
+		}
+		return originForecast(ch, train, h, levels, thr)
 	}
 }
 
@@ -175,21 +204,86 @@ func (c *btConfig) choose(train []float64) (*auto.Choice, error) {
 
 // originForecast runs the chosen model's filter over train and forecasts h
 // steps in raw units (toRawUnits: the bias-adjusted mean, the bands mapped
-// through the monotone inverse, NaN for an unbounded end).
-func originForecast(ch *auto.Choice, train []float64, h int, levels []float64) (backtest.Forecast, error) {
-	flt, err := arima.NewFilter(ch.Result.Model, h)
+// through the monotone inverse, NaN for an unbounded end). thr, when not
+// nil, holds the calibrated multiplier of se per step and level
+// (originThresholds); nil gives the model's own bands.
+func originForecast(ch *auto.Choice, train []float64, h int, levels, thr []float64) (backtest.Forecast, error) {
+	mean, variance, err := modelForecast(ch, train, h)
 	if err != nil {
 		return backtest.Forecast{}, err
 	}
+	raw := toRawUnitsWith(ch.Transform, mean, variance, levels, thr)
+	return backtest.Forecast{Mean: raw.Mean, Lower: raw.Lower, Upper: raw.Upper}, nil
+}
+
+// modelForecast is the h-step forecast on the model's scale after
+// filtering train with the chosen model.
+func modelForecast(ch *auto.Choice, train []float64, h int) (mean, variance []float64, err error) {
+	flt, err := arima.NewFilter(ch.Result.Model, h)
+	if err != nil {
+		return nil, nil, err
+	}
 	w := make([]float64, len(train))
 	if err := ch.Transform.ForwardSlice(w, train); err != nil {
-		return backtest.Forecast{}, err
+		return nil, nil, err
 	}
 	flt.Steps(w)
-	mean, variance := make([]float64, h), make([]float64, h)
+	mean, variance = make([]float64, h), make([]float64, h)
 	flt.Forecast(mean, variance)
-	raw := toRawUnits(ch.Transform, mean, variance, levels)
-	return backtest.Forecast{Mean: raw.Mean, Lower: raw.Lower, Upper: raw.Upper}, nil
+	return mean, variance, nil
+}
+
+// calOrigins is the number of earlier origins whose out-of-sample errors
+// calibrate the bands of one backtest origin.
+const calOrigins = 12
+
+// originThresholds are the calibrated multipliers of se at the origin
+// len(train) (h × levels, step-major). They come from the errors of the
+// forecasts made at the earlier origins t = T − h − k, k = 0..calOrigins−1
+// (t ≥ T/2), each by the model chosen and fitted on train[:t] alone and
+// scored on train[t:t+h] on its own scale: every value they use lies
+// before the origin, and the refits carry the parameters' and the model
+// choice's uncertainty (empirical out-of-sample intervals, Williams &
+// Goodman 1971; calibrate.Learn).
+func originThresholds(choose func([]float64) (*auto.Choice, error), train []float64, h int, levels []float64) ([]float64, error) {
+	T := len(train)
+	errs := calibrate.NewErrors(h)
+	actual := make([]float64, h)
+	for k := 0; k < calOrigins; k++ {
+		t := T - h - k
+		if t < max(T/2, 2) {
+			break
+		}
+		ch, err := choose(train[:t:t])
+		if err != nil {
+			continue
+		}
+		mean, variance, err := modelForecast(ch, train[:t:t], h)
+		if err != nil {
+			continue
+		}
+		if err := ch.Transform.ForwardSlice(actual, train[t:t+h]); err != nil {
+			continue
+		}
+		errs.Add(mean, variance, actual)
+	}
+	lv := slices.Clone(levels)
+	slices.Sort(lv)
+	c, err := calibrate.New(calibrate.Options{Horizon: h, Levels: lv})
+	if err != nil {
+		return nil, err
+	}
+	if err := c.Learn(errs, calibrate.DefaultPrior); err != nil {
+		return nil, fmt.Errorf("calibration: %w", err)
+	}
+	thr := make([]float64, h*len(levels))
+	for li, l := range levels {
+		k := slices.Index(lv, l)
+		for j := 0; j < h; j++ {
+			thr[j*len(levels)+li] = c.Threshold(j+1, k)
+		}
+	}
+	return thr, nil
 }
 
 func isTerminal(w io.Writer) bool {

@@ -26,17 +26,27 @@ type rawForecast struct {
 // value outside the inverse's domain is NaN: an unbounded side of a band,
 // null in JSON.
 func toRawUnits(tr transform.Transform, mean, variance, levels []float64) rawForecast {
+	return toRawUnitsWith(tr, mean, variance, levels, nil)
+}
+
+// toRawUnitsWith is toRawUnits with the multiplier of se given per step and
+// level: thr[j·len(levels)+l] replaces z for step j+1 and level l (a
+// calibrated band, engine/calibrate); nil means the normal quantile z.
+func toRawUnitsWith(tr transform.Transform, mean, variance, levels, thr []float64) rawForecast {
 	h := len(mean)
 	out := rawForecast{Mean: make([]float64, h), Median: make([]float64, h)}
 	for j := range mean {
 		out.Mean[j] = invOrNaN(tr.Mean(mean[j], variance[j]))
 		out.Median[j] = invOrNaN(tr.Median(mean[j]))
 	}
-	for _, l := range levels {
+	for li, l := range levels {
 		z := distuv.UnitNormal.Quantile(0.5 + l/200)
 		lo, hi := make([]float64, h), make([]float64, h)
 		for j := range mean {
 			se := math.Sqrt(variance[j])
+			if thr != nil {
+				z = thr[j*len(levels)+li]
+			}
 			a, b := invOrNaN(tr.Inverse(mean[j]-z*se)), invOrNaN(tr.Inverse(mean[j]+z*se))
 			if !tr.Increasing() {
 				a, b = b, a

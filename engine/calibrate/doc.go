@@ -1,0 +1,85 @@
+// Package calibrate widens or narrows a series' prediction bands, per
+// horizon and level, so that they hold their nominal level on the series'
+// own forecast errors.
+//
+// # Scores
+//
+// A forecast issued at origin t for horizon h has median m_{t,h} and
+// standard deviation s_{t,h} on the model's scale (after the transform).
+// When y_{t+h} is realised its standardised error is
+//
+//	z = (y_{t+h} − m_{t,h})/s_{t,h},   S = min(|z|, B),
+//
+// with B (Options.Bound, default 10) a cap on the score. For each horizon
+// h = 1..H and level l (nominal miss rate α_l = 1 − level/100) the
+// calibrator holds a threshold q_{h,l}; the calibrated band is
+//
+//	m ± q_{h,l}·s   on the model's scale,
+//
+// the model's own band with its multiplier Φ⁻¹(1 − α_l/2) replaced by q
+// (Factor is the ratio of the two). The band keeps the model's shape, and
+// the caller maps its ends through the exact inverse transform, which keeps
+// quantiles because the inverse is monotone (a counter's floor is then
+// applied as before).
+//
+// # Warm start (Learn, WarmStart)
+//
+// Empirical prediction intervals (Williams & Goodman 1971; Lee & Scholtes
+// 2014) take the band's spread from the errors of forecasts made on the
+// series' own past. Learn takes the |z| of such forecasts per horizon, sets
+// f_h = (n_h·√(Σz²/n_h) + n₀·f_{h−1})/(n_h + n₀) (f₀ = 1, n₀ = Prior), and
+// q_{h,l} = f_h·Φ⁻¹(1 − α_l/2). WarmStart collects the errors by running a
+// fitted model's filter once over a window and forecasting at up to N
+// evenly spaced origins; its parameters were fitted on that window, so its
+// errors leave out the parameters' uncertainty. Refitting at earlier
+// origins (as forewarn backtest does) includes it, at the cost of a fit per
+// origin.
+//
+// # Online update (Observe, Issue)
+//
+// Each closed bucket resolves the forecasts issued for it, one per horizon
+// (issued h buckets earlier), and moves every threshold by quantile tracking
+// (Angelopoulos, Candès & Tibshirani 2023, §2, the P part of conformal PID
+// control):
+//
+//	err = 1{S > q_{h,l}},   q_{h,l} ← q_{h,l} + η·(err − α_l).
+//
+// Written in α_t = 1 − q/B this is adaptive conformal inference (Gibbs &
+// Candès 2021, eq. 2), α_{t+1} = α_t + γ(α − err_t) with γ = η/B, over the
+// nested sets C(α) = {y : S(y) ≤ B(1 − α)}, which are everything for α ≤ 0
+// and empty for α > 1. Their Proposition 1 therefore holds for every
+// horizon and level, whatever the data:
+//
+//	|(1/T)·Σ_{t≤T} err_t − α| ≤ (max(α_1, 1 − α_1) + γ)/(γT).
+//
+// Forecasts for horizon h arrive h buckets late, so α_t moves up to h
+// steps before its first feedback; the identity Σ(α − err_t) = (α_{T+1} −
+// α_1)/γ behind the bound still holds, with α_t in [−hγ, 1 + hγ].
+//
+// # State and cost
+//
+// The fixed state (AppendState) is 8 + 3L + H·L float64 values: 1 072 bytes
+// at H = 60 with two levels. The forecasts issued and not yet realised are
+// H(H+1)/2 (median, 1/sd) pairs, 12 bytes each in memory (21 960 bytes at
+// H = 60); AppendPending writes them as 16-byte pairs for a restart that
+// continues every update exactly. Observe costs O(H·L) and Issue O(H); they
+// do not allocate.
+//
+// # Concurrency
+//
+// A Calibrator is owned by one goroutine. The package does no I/O and
+// starts no goroutine.
+//
+// References:
+//   - Williams, W. H. & Goodman, M. L. (1971). A simple method for the
+//     construction of empirical confidence limits for economic forecasts.
+//     Journal of the American Statistical Association 66(336), 752–754.
+//   - Lee, Y. S. & Scholtes, S. (2014). Empirical prediction intervals
+//     revisited. International Journal of Forecasting 30(2), 217–234.
+//   - Gibbs, I. & Candès, E. (2021). Adaptive conformal inference under
+//     distribution shift. Advances in Neural Information Processing Systems
+//     34 (Proposition 1).
+//   - Angelopoulos, A. N., Candès, E. J. & Tibshirani, R. J. (2023).
+//     Conformal PID control for time series prediction. Advances in Neural
+//     Information Processing Systems 36.
+package calibrate
