@@ -576,14 +576,23 @@ func Detect(y []float64, X [][]float64, spec arima.Spec, opt *Options) (*Result,
 		if len(added) == 0 {
 			break
 		}
-		trial := append(append([]candidate(nil), found...), added...)
-		r, c, err := fit(trial)
-		if err != nil {
-			// the columns do not fit together (e.g. collinear): keep what
-			// was fitted before
+		// re-estimate with the new effects; if the columns do not fit
+		// together (e.g. collinear), drop the last found until they do
+		var r *arima.Result
+		var c [][]float64
+		for len(added) > 0 {
+			trial := append(append([]candidate(nil), found...), added...)
+			r, c, err = fit(trial)
+			if err == nil {
+				found, res, cols = trial, r, c
+				break
+			}
+			taken[added[len(added)-1].index] = false
+			added = added[:len(added)-1]
+		}
+		if len(added) == 0 {
 			break
 		}
-		found, res, cols = trial, r, c
 	}
 	// joint estimation: drop the least significant effect until all pass
 	for len(found) > 0 {
