@@ -73,6 +73,8 @@ type Filter struct {
 	xbuf  []float64
 	next  float64 // data time of the next observation
 	xstep float64 // time between observations
+
+	gd guardState // spike and level-shift check (SetGuard), off by default
 }
 
 // NewFilter returns a filter for m, ready to Step through a series from its
@@ -263,6 +265,9 @@ func (f *Filter) Step(y float64) {
 		f.gen.Regressors(f.xbuf, f.next)
 		y -= dot(f.beta, f.xbuf)
 		f.next += f.xstep
+	}
+	if f.gd.on {
+		y = f.guardCheck(y)
 	}
 	switch f.mode {
 	case modeWarm:

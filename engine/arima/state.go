@@ -17,7 +17,9 @@ const stateHeader = 8
 //	ready, M (Chandrasekhar scalar),
 //	warm-up values (d+sD), anchors (d+sD), a (r), W (r), K (r), P (r·r),
 //	and with the levels in the state: x (r+d+sD), P (r+d+sD)²,
-//	and with regressors (NewFilterX): the data time of the next step.
+//	and with regressors (NewFilterX): the data time of the next step,
+//	and, only after a level shift of the online check (SetGuard) in a model
+//	without differencing: the sum of the shifts of the constant.
 //
 // The model itself is not included: restore into a filter built by
 // NewFilter from the same model.
@@ -42,6 +44,9 @@ func (f *Filter) AppendState(dst []float64) []float64 {
 	}
 	if f.gen != nil {
 		dst = append(dst, f.next)
+	}
+	if f.gd.shift != 0 {
+		dst = append(dst, f.gd.shift)
 	}
 	return dst
 }
@@ -77,7 +82,8 @@ func (f *Filter) SetState(s []float64) error {
 	if f.gen != nil {
 		want++
 	}
-	if len(s) != want {
+	shifted := nd == 0 && len(s) == want+1
+	if len(s) != want && !shifted {
 		return bad(fmt.Sprintf("%d values, want %d", len(s), want))
 	}
 	for _, v := range s[stateHeader:] {
@@ -99,6 +105,13 @@ func (f *Filter) SetState(s []float64) error {
 	}
 	if f.gen != nil {
 		f.next = s[i]
+		i++
 	}
+	shift := 0.0
+	if shifted {
+		shift = s[i]
+	}
+	f.c += shift - f.gd.shift
+	f.gd.shift = shift
 	return nil
 }
