@@ -47,6 +47,8 @@
 // (more times are tested). CriticalValue follows the length rule of the
 // R package tsoutliers (López-de-Lacalle), which implements their
 // procedure: C = 3 for n ≤ 50, C = 4 for n ≥ 450, linear in n between.
+// That rule is written here from memory of that package's documentation;
+// it was not checked against its text (the package is not in Debian).
 // (R forecast's tsoutliers() is a different, simpler method: residuals of
 // a robust decomposition outside three interquartile ranges.)
 //

@@ -81,7 +81,8 @@ type Result struct {
 
 // CriticalValue returns the default critical value for a series of n
 // values: 3 for n ≤ 50, 4 for n ≥ 450, linear between (the length rule of
-// R package tsoutliers, function tso; Chen & Liu 1993 use C from 2.5 to 4).
+// R package tsoutliers, function tso, from memory; Chen & Liu 1993 use C
+// from 2.5 to 4).
 func CriticalValue(n int) float64 {
 	switch {
 	case n <= 50:
