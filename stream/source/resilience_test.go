@@ -151,10 +151,13 @@ func TestBadEndpointsLeaveOthersFlowing(t *testing.T) {
 	}))
 	defer many.Close()
 
-	every := 150 * time.Millisecond
+	// A second between scrapes, and as timeout, leaves a loaded machine
+	// (the race detector, other tests) time to move a megabyte; the
+	// hanging source times out sooner.
+	every := time.Second
 	sources := []config.Source{
 		src("good", ok.URL, every, nil),
-		src("hang", hang.URL, every, nil),
+		src("hang", hang.URL, 200*time.Millisecond, nil),
 		src("fail", fail.URL, every, nil),
 		src("huge", huge.URL, every, nil),
 		src("garbage", garbage.URL, every, nil),
@@ -197,7 +200,7 @@ func TestBadEndpointsLeaveOthersFlowing(t *testing.T) {
 			}
 		}
 		return value(t, rm.Metrics().Failures, "source", "many", "cause", CauseTooManySeries) >= 2 &&
-			len(col.on("metrics.good.queue_jobs.north")) >= 5
+			len(col.on("metrics.good.queue_jobs.north")) >= 3
 	})
 	cancel()
 	<-done
