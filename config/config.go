@@ -32,6 +32,9 @@ type Config struct {
 	// Alerts holds the alert rules; every rule whose Match matches a topic
 	// applies to it. Empty: no alerts.
 	Alerts []Alert
+	// Sources are the OpenMetrics endpoints forewarn scrapes itself and
+	// publishes to the intake (package stream/source). Empty: none.
+	Sources []Source
 
 	// pos maps a key path ("series[0].step") to where its value was in the
 	// source; nil for a Config built in Go. Read-only once set.
@@ -173,8 +176,11 @@ type Series struct {
 	// Match is a subject pattern over topics: "*" matches one token, ">"
 	// one or more trailing tokens. Zero: ">".
 	Match string
-	// Kind is gauge (the last value in a bucket) or counter (the last
-	// value, with reset detection). Zero: "gauge".
+	// Kind is gauge (the last value in a bucket), counter (the last
+	// value, with reset detection) or auto: the kind the series' first
+	// message names in its Forewarn-Kind header (a source names counter
+	// for a metric whose TYPE is counter), else gauge. An auto series
+	// keeps the kind it began with, across restarts. Zero: "auto".
 	Kind string
 	// Step is the bucket width, a whole number of seconds. Zero: 1m.
 	Step time.Duration
@@ -242,6 +248,58 @@ type Alert struct {
 	Line int
 }
 
+// Source is an OpenMetrics (or older text exposition) endpoint that
+// forewarn scrapes every Every. Each selected sample becomes one
+// observation, stamped with the scrape's time, on the intake subject of
+// its topic (package stream/source documents the topic mapping).
+type Source struct {
+	// OpenMetrics is the endpoint's http or https URL. Required.
+	OpenMetrics string
+	// Name labels the source's metrics and log lines; unique. Zero: the
+	// URL.
+	Name string
+	// Every is the time between scrapes, 100ms..24h. Zero: 15s.
+	Every time.Duration
+	// Timeout bounds one scrape, from connecting to the last byte, and is
+	// at most Every. Zero: Every, at most 10s.
+	Timeout time.Duration
+	// MaxBytes bounds a response's body; a longer one is dropped whole
+	// (cause too_large). Zero: 16 MiB.
+	MaxBytes int64
+	// Select lists the metric names taken, as they appear on sample lines
+	// (node_cpu_seconds_total); a histogram's or summary's family name
+	// selects its _bucket, _sum, _count and quantile samples. Zero: every
+	// metric.
+	Select []string
+	// TopicPrefix is put before every topic of the source, one or more
+	// tokens ("host1", "eu.host1"). Zero: none.
+	TopicPrefix string
+	// Kind is auto (counter for a metric whose TYPE is counter, and for a
+	// histogram's or summary's _bucket, _sum and _count; gauge otherwise),
+	// gauge or counter (every sample of the source). It reaches a series
+	// whose entry says kind: auto; an entry with a kind of its own wins.
+	// Zero: "auto".
+	Kind string
+	// Line is the source line of the entry; 0 when not from a file.
+	Line int
+}
+
+// Source defaults.
+const (
+	DefaultSourceEvery    = 15 * time.Second
+	MaxSourceTimeout      = 10 * time.Second // the default Timeout's ceiling
+	DefaultSourceMaxBytes = 16 << 20
+)
+
+// TimeoutOrDefault returns Timeout, or Every capped at MaxSourceTimeout
+// when Timeout is zero.
+func (s *Source) TimeoutOrDefault() time.Duration {
+	if s.Timeout > 0 {
+		return s.Timeout
+	}
+	return min(s.Every, MaxSourceTimeout)
+}
+
 // WorkerCount returns the number of refit workers: Workers, or the number
 // of CPUs when Workers is zero.
 func (r Refit) WorkerCount() int {
@@ -283,7 +341,7 @@ func (a *Alert) Threshold() (value float64, above bool) {
 func DefaultSeries() Series {
 	return Series{
 		Match:      ">",
-		Kind:       "gauge",
+		Kind:       "auto",
 		Step:       time.Minute,
 		Horizon:    60,
 		Levels:     []float64{50, 90},
@@ -346,6 +404,10 @@ func (c *Config) Clone() *Config {
 		d.Alerts[i].Above = clonePtr(d.Alerts[i].Above)
 		d.Alerts[i].Below = clonePtr(d.Alerts[i].Below)
 	}
+	d.Sources = slices.Clone(c.Sources)
+	for i := range d.Sources {
+		d.Sources[i].Select = slices.Clone(d.Sources[i].Select)
+	}
 	return &d
 }
 
@@ -393,6 +455,15 @@ func (c *Config) WithDefaults() *Config {
 	for i := range d.Alerts {
 		a := &d.Alerts[i]
 		setZero(&a.ClearProbability, a.Probability/2)
+	}
+	for i := range d.Sources {
+		s := &d.Sources[i]
+		s.OpenMetrics = strings.TrimSpace(s.OpenMetrics)
+		setZero(&s.Name, s.OpenMetrics)
+		setZero(&s.Every, DefaultSourceEvery)
+		setZero(&s.Timeout, s.TimeoutOrDefault())
+		setZero(&s.MaxBytes, DefaultSourceMaxBytes)
+		setZero(&s.Kind, "auto")
 	}
 	return d
 }

@@ -75,7 +75,7 @@ func TestEmptyFileGivesDefaults(t *testing.T) {
 		{"state.dir", d.State.Dir, "./forewarn-data"},
 		{"http.listen", d.HTTP.Listen, "127.0.0.1:8714"},
 		{"series.match", s.Match, ">"},
-		{"series.kind", s.Kind, "gauge"},
+		{"series.kind", s.Kind, "auto"},
 		{"series.step", s.Step, time.Minute},
 		{"series.horizon", s.Horizon, 60},
 		{"series.levels", s.Levels, []float64{50, 90}},
@@ -102,7 +102,7 @@ func TestWithDefaultsDoesNotChangeReceiver(t *testing.T) {
 	}
 	got := d.Series[0]
 	if !reflect.DeepEqual(got.Levels, []float64{80, 95}) || got.Model != "0,1,1 x 0,1,1" || got.Constant != "auto" ||
-		got.Kind != "gauge" || got.Step != time.Minute || got.Period() != 1440 {
+		got.Kind != "auto" || got.Step != time.Minute || got.Period() != 1440 {
 		t.Errorf("WithDefaults gave %+v (period %d)", got, got.Period())
 	}
 	d.Series[0].Seasons[0].Steps = 7
@@ -160,7 +160,7 @@ func TestLoadMinimal(t *testing.T) {
 		t.Errorf("SeriesFor(shop.eu.orders) = %+v, %v", s, ok)
 	}
 	s, ok = c.SeriesFor("storage.vol1.used_bytes")
-	if !ok || s.Match != ">" || s.Kind != "gauge" {
+	if !ok || s.Match != ">" || s.Kind != "auto" {
 		t.Errorf("SeriesFor(storage...) = %+v, %v", s, ok)
 	}
 }
@@ -288,7 +288,7 @@ func TestValidationRules(t *testing.T) {
 		{"series match bad", "series:\n  - match: \"a..b\"\n", 2, "series[0].match", "token 2 is empty"},
 		{"series match wildcard inside", "series:\n  - match: \"a.b*\"\n", 2, "series[0].match", "whole token"},
 		{"series shadowed", "series:\n  - match: \"a.>\"\n  - match: \"a.b.c\"\n", 3, "series[1].match", "never applies"},
-		{"kind", "series:\n  - kind: rate\n", 2, "series[0].kind", "not one of gauge, counter"},
+		{"kind", "series:\n  - kind: rate\n", 2, "series[0].kind", "not one of auto, gauge, counter"},
 		{"step fraction", "series:\n  - step: 1500ms\n", 2, "series[0].step", "whole number of seconds"},
 		{"step negative", "series:\n  - step: -1m\n", 2, "series[0].step", "positive"},
 		{"step too long", "series:\n  - step: 9000h\n", 2, "series[0].step", "more than"},

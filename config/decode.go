@@ -650,6 +650,23 @@ func (d *decoder) top(root *yaml.Node, c *Config) {
 				c.Series = append(c.Series, s)
 			})
 		},
+		"sources": func(v *yaml.Node, p string) {
+			c.Sources = []Source{}
+			d.list(v, p, func(e *yaml.Node, p string) {
+				s := Source{Line: e.Line}
+				d.mapping(e, p, fields{
+					"openmetrics":  d.str(&s.OpenMetrics),
+					"name":         d.str(&s.Name),
+					"every":        d.duration(&s.Every),
+					"timeout":      d.duration(&s.Timeout),
+					"max_bytes":    d.size(func(v int64) { s.MaxBytes = v }),
+					"select":       d.strings(&s.Select),
+					"topic_prefix": d.str(&s.TopicPrefix),
+					"kind":         d.str(&s.Kind),
+				})
+				c.Sources = append(c.Sources, s)
+			})
+		},
 		"alerts": func(v *yaml.Node, p string) {
 			c.Alerts = []Alert{}
 			d.list(v, p, func(e *yaml.Node, p string) {

@@ -32,7 +32,7 @@ alerts:
 	_, err = config.Parse([]byte("series:\n  - step: 90\n    horizon: 5000\n"), "bad.yaml")
 	fmt.Println(err)
 	// Output:
-	// storage.vol1.used_bytes gauge 5m0s 288 [50 90]
+	// storage.vol1.used_bytes auto 5m0s 288 [50 90]
 	// disk-nearly-full true 9e+11 6h0m0s 0.9 0.45
 	// bad.yaml:2:11: series[0].step: the bare number 90 has no unit; write e.g. "90s" for seconds
 	// bad.yaml:3:14: series[0].horizon: 5000 is outside 1..1000

@@ -27,7 +27,9 @@ const fingerprintVersion = "forewarn-series-v1"
 //	min_points=M\nrefit_every=R\n[period=P\n]model=MODEL\n[constant=C\n]transform=T\n
 //	close_after=C\n
 //
-// where P is the first cycle of seasons in steps (Period), present only
+// where K is gauge or counter: an entry of kind auto counts as gauge, the
+// kind its series have unless their first message names another (the
+// daemon fingerprints such a series with the kind it took). P is the first cycle of seasons in steps (Period), present only
 // when there is one, and the constant line only when the constant is not
 // auto: so fingerprints from before those keys existed stay valid
 // (period: P then meant what seasons: [P] means now). Durations are in
@@ -49,7 +51,11 @@ func (s *Series) Fingerprint() string {
 		b.WriteString(v)
 		b.WriteByte('\n')
 	}
-	field("kind", c.Kind)
+	kind := c.Kind
+	if kind == "auto" {
+		kind = "gauge"
+	}
+	field("kind", kind)
 	field("step", strconv.FormatInt(int64(c.Step), 10))
 	field("horizon", strconv.Itoa(c.Horizon))
 	lv := make([]string, len(c.Levels))

@@ -41,6 +41,9 @@ func TestReadmeDefaultsAreDefault(t *testing.T) {
 	if len(got.Alerts) == 0 {
 		got.Alerts = nil
 	}
+	if len(got.Sources) == 0 {
+		got.Sources = nil // "sources: []" and no key mean the same
+	}
 	want := Default().WithDefaults()
 	for i := range want.Series {
 		if len(want.Series[i].Seasons) == 0 {

@@ -13,6 +13,7 @@ import (
 	"sync"
 	"time"
 	"unicode"
+	"unicode/utf8"
 
 	"forewarn/engine/arima"
 )
@@ -110,7 +111,7 @@ func (v *validator) add(path, format string, args ...any) {
 // Parse (the demo puts its own entries first); an entry is found in the
 // file by its Line, and one with Line 0 has no position ("" is returned).
 func (v *validator) sourcePath(path string) string {
-	for _, list := range []string{"series", "alerts"} {
+	for _, list := range []string{"series", "alerts", "sources"} {
 		rest, ok := strings.CutPrefix(path, list+"[")
 		if !ok {
 			continue
@@ -125,6 +126,8 @@ func (v *validator) sourcePath(path string) string {
 			line = v.c.Series[i].Line
 		} else if list == "alerts" && i < len(v.c.Alerts) {
 			line = v.c.Alerts[i].Line
+		} else if list == "sources" && i < len(v.c.Sources) {
+			line = v.c.Sources[i].Line
 		}
 		if line == 0 {
 			return ""
@@ -177,6 +180,10 @@ func (c *Config) validate(failed map[string]bool) []Problem {
 	names := map[string]int{}
 	for i := range c.Alerts {
 		v.alert(i, names)
+	}
+	srcNames := map[string]int{}
+	for i := range c.Sources {
+		v.source(i, srcNames)
 	}
 	return v.probs
 }
@@ -389,7 +396,7 @@ func (v *validator) series(i int) {
 			}
 		}
 	}
-	v.oneOf(p+".kind", s.Kind, "gauge", "counter")
+	v.oneOf(p+".kind", s.Kind, "auto", "gauge", "counter")
 	if v.positive(p+".step", s.Step) {
 		switch {
 		case s.Step%time.Second != 0:
@@ -649,4 +656,61 @@ func patternCovers(a, b string) bool {
 		}
 		a, b = arest, brest
 	}
+}
+
+// Bounds of a source's settings.
+const (
+	minSourceEvery    = 100 * time.Millisecond
+	maxSourceEvery    = 24 * time.Hour
+	maxSourceBytes    = 1 << 30
+	maxSourceNameLen  = 256
+	maxSelectNameLen  = 1024
+	maxSelectPerEntry = 10000
+)
+
+func (v *validator) source(i int, names map[string]int) {
+	s := &v.c.Sources[i]
+	p := fmt.Sprintf("sources[%d]", i)
+	if s.OpenMetrics == "" {
+		v.add(p+".openmetrics", "required: the endpoint's URL, such as http://127.0.0.1:9100/metrics")
+	} else if u, err := url.Parse(s.OpenMetrics); err != nil || u.Host == "" || (u.Scheme != "http" && u.Scheme != "https") {
+		v.add(p+".openmetrics", "%q is not an http or https URL with a host, such as http://127.0.0.1:9100/metrics", clip(s.OpenMetrics))
+	}
+	switch {
+	case len(s.Name) > maxSourceNameLen:
+		v.add(p+".name", "longer than %d bytes", maxSourceNameLen)
+	case !utf8.ValidString(s.Name):
+		v.add(p+".name", "not valid UTF-8")
+	case s.Name != "":
+		if j, dup := names[s.Name]; dup {
+			v.add(p+".name", "%q is also the name of sources[%d]; give one of them another name", clip(s.Name), j)
+		} else {
+			names[s.Name] = i
+		}
+	}
+	if s.Every < minSourceEvery || s.Every > maxSourceEvery {
+		v.add(p+".every", "%v is outside %v..%v", s.Every, minSourceEvery, maxSourceEvery)
+	}
+	if s.Timeout <= 0 {
+		v.add(p+".timeout", "must be a positive duration, got %v", s.Timeout)
+	} else if s.Every >= minSourceEvery && s.Timeout > s.Every {
+		v.add(p+".timeout", "%v is longer than every %v; a scrape must end before the next one is due", s.Timeout, s.Every)
+	}
+	if s.MaxBytes < 1 || s.MaxBytes > maxSourceBytes {
+		v.add(p+".max_bytes", "%d is outside 1..%d bytes", s.MaxBytes, maxSourceBytes)
+	}
+	if len(s.Select) > maxSelectPerEntry {
+		v.add(p+".select", "%d names, more than %d", len(s.Select), maxSelectPerEntry)
+	}
+	for k, n := range s.Select {
+		if n == "" || len(n) > maxSelectNameLen || !utf8.ValidString(n) || strings.IndexFunc(n, unicode.IsSpace) >= 0 {
+			v.add(fmt.Sprintf("%s.select[%d]", p, k), "%q is not a metric name (1..%d bytes of UTF-8 without white space)", clip(n), maxSelectNameLen)
+		}
+	}
+	if s.TopicPrefix != "" {
+		if why := checkSubject(s.TopicPrefix, false); why != "" {
+			v.add(p+".topic_prefix", "%q is not a topic prefix: %s", clip(s.TopicPrefix), why)
+		}
+	}
+	v.oneOf(p+".kind", s.Kind, "auto", "gauge", "counter")
 }

@@ -25,7 +25,16 @@ type Message struct {
 	// payload without a time gets the same time when replayed); in plain
 	// mode the time the Intake received it.
 	Received time.Time
+	// Kind is the message's KindHeader: "gauge" or "counter" from a
+	// publisher that knows the metric's kind (a source, from its TYPE
+	// metadata), anything else as sent; "" without the header.
+	Kind string
 }
+
+// KindHeader is the NATS message header in which a publisher may name the
+// kind of its series: "gauge" or "counter". A series whose config entry
+// says kind: auto takes the kind its first message names.
+const KindHeader = "Forewarn-Kind"
 
 // IntakeOptions configure an Intake. A zero field takes the default given
 // in its comment; those of Subjects, Stream, Consumer, MaxAge and MaxBytes
@@ -403,7 +412,8 @@ func (in *Intake) subscribe() (func(), error) {
 		in.ackMu.Lock()
 		in.unacked = append(in.unacked, delivered{seq: md.Sequence.Stream, msg: m})
 		in.ackMu.Unlock()
-		in.push(Message{Subject: m.Subject(), Data: m.Data(), Seq: md.Sequence.Stream, Received: md.Timestamp})
+		in.push(Message{Subject: m.Subject(), Data: m.Data(), Seq: md.Sequence.Stream, Received: md.Timestamp,
+			Kind: m.Headers().Get(KindHeader)})
 	},
 		jetstream.PullMaxMessages(min(in.o.Buffer, in.o.MaxAckPending)),
 		jetstream.ConsumeErrHandler(func(jetstream.ConsumeContext, error) {}),
@@ -426,7 +436,7 @@ func (in *Intake) subscribePlain() (func(), error) {
 		wg   sync.WaitGroup
 	)
 	handler := func(m *nats.Msg) {
-		in.push(Message{Subject: m.Subject, Data: m.Data, Received: time.Now()})
+		in.push(Message{Subject: m.Subject, Data: m.Data, Received: time.Now(), Kind: m.Header.Get(KindHeader)})
 	}
 	unsubscribeAll := func() {
 		for _, u := range subs {

@@ -24,6 +24,7 @@ import (
 	"forewarn/stream"
 	"forewarn/stream/daemon"
 	"forewarn/stream/demo"
+	"forewarn/stream/source"
 	"forewarn/stream/web"
 )
 
@@ -74,8 +75,19 @@ func runDaemon(args []string, stdout, stderr io.Writer) int {
 			ov.HTTPListen = &v
 		}
 	})
+	var shopLn net.Listener
 	if *demoOn {
-		cfg.Series = append(demo.Series(), cfg.Series...)
+		// The demo's scraped source: a simulated endpoint of our own on
+		// a free loopback port.
+		ln, err := net.Listen("tcp", "127.0.0.1:0")
+		if err != nil {
+			fmt.Fprintf(stderr, "forewarn run: demo endpoint: %v\n", err)
+			return exitFailure
+		}
+		defer ln.Close()
+		shopLn = ln
+		cfg.Sources = append(cfg.Sources, demo.ShopSource("http://"+ln.Addr().String()+"/metrics"))
+		cfg.Series = append(append(demo.Series(), demo.ShopSeries()), cfg.Series...)
 		cfg.Alerts = append(demo.Alerts(), cfg.Alerts...)
 		cfg.Limits = demo.Limits(cfg.Limits)
 	}
@@ -87,7 +99,7 @@ func runDaemon(args []string, stdout, stderr io.Writer) int {
 	log := newLogger(cfg.Log, stderr)
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
-	if err := serve(ctx, cfg, log, *demoOn, stdout); err != nil {
+	if err := serve(ctx, cfg, log, *demoOn, shopLn, stdout); err != nil {
 		log.Error("forewarn stopped", "err", err)
 		return exitFailure
 	}
@@ -98,7 +110,7 @@ func runDaemon(args []string, stdout, stderr io.Writer) int {
 // stops its intake, finishes refits, writes the state; then the HTTP
 // listener, the bus connection and the embedded server close, and the
 // state file last.
-func serve(ctx context.Context, cfg *config.Config, log *slog.Logger, demoOn bool, stdout io.Writer) error {
+func serve(ctx context.Context, cfg *config.Config, log *slog.Logger, demoOn bool, shopLn net.Listener, stdout io.Writer) error {
 	if err := os.MkdirAll(cfg.State.Dir, 0o700); err != nil {
 		return fmt.Errorf("state directory: %w", err)
 	}
@@ -146,6 +158,21 @@ func serve(ctx context.Context, cfg *config.Config, log *slog.Logger, demoOn boo
 		return err
 	}
 
+	var sources *source.Runner
+	if len(cfg.Sources) > 0 {
+		sources, err = source.New(source.Options{Sources: cfg.Sources, Conn: nc, Prefix: demoPrefix(cfg),
+			MaxSeries: cfg.Limits.MaxSeries, Logger: log})
+		if err != nil {
+			return err
+		}
+		d.Metrics().Registry.MustRegister(sources.Metrics().Collectors()...)
+	}
+	if shopLn != nil {
+		hs := &http.Server{Handler: demo.NewPrintShop(), ReadHeaderTimeout: 5 * time.Second}
+		go hs.Serve(shopLn)
+		defer hs.Close()
+	}
+
 	if cfg.HTTP.Listen != "" {
 		ln, err := net.Listen("tcp", cfg.HTTP.Listen)
 		if err != nil {
@@ -173,7 +200,26 @@ func serve(ctx context.Context, cfg *config.Config, log *slog.Logger, demoOn boo
 		go func() { demoDone <- demo.Run(ctx, nc, demoPrefix(cfg)) }()
 		log.Info("demo publisher running", "topics", "release.downloads storage.vol1.used_bytes shop.orders")
 	}
+	sourcesDone := make(chan struct{})
+	sctx, stopSources := context.WithCancel(ctx)
+	defer stopSources()
+	if sources != nil {
+		go func() {
+			defer close(sourcesDone)
+			select {
+			case <-d.Ready():
+			case <-sctx.Done():
+				return
+			}
+			sources.Run(sctx)
+		}()
+		log.Info("scraping sources", "count", len(cfg.Sources))
+	} else {
+		close(sourcesDone)
+	}
 	err = <-runErr
+	stopSources()
+	<-sourcesDone
 	if demoOn {
 		if derr := <-demoDone; derr != nil && err == nil && !errors.Is(derr, context.Canceled) {
 			err = derr
@@ -182,7 +228,8 @@ func serve(ctx context.Context, cfg *config.Config, log *slog.Logger, demoOn boo
 	return err
 }
 
-// demoPrefix is the literal prefix of the first intake subject.
+// demoPrefix is the literal prefix of the first intake subject: where the
+// demo and the sources publish.
 func demoPrefix(cfg *config.Config) string {
 	if p := cfg.Prefixes(); len(p) > 0 {
 		return p[0]

@@ -410,7 +410,7 @@ func (r *rig) template(window int) *series.Snapshot {
 	if !ok {
 		tb.Fatal("no series entry")
 	}
-	s, err := series.New(rigTopic(0), settingsOf(sc))
+	s, err := series.New(rigTopic(0), settingsOf(sc, ""))
 	if err != nil {
 		tb.Fatal(err)
 	}
@@ -458,7 +458,7 @@ func BenchmarkClosePath(b *testing.B) {
 			}
 			topic := rigTopic(0)
 			sc, _ := r.cfg.SeriesFor(topic)
-			s, err := series.Restore(r.template(window), settingsOf(sc))
+			s, err := series.Restore(r.template(window), settingsOf(sc, ""))
 			if err != nil {
 				b.Fatal(err)
 			}

@@ -399,12 +399,12 @@ func (d *Daemon) load() error {
 			d.log.Info("persisted series no longer matches any series entry; dropped", "topic", topic)
 			return nil
 		}
-		s, rerr := series.Restore(snap, settingsOf(sc))
+		s, rerr := series.Restore(snap, settingsOf(sc, snap.Kind))
 		if rerr != nil {
 			d.log.Warn("state record does not fit the settings; set aside, and the series starts afresh", "topic", topic, "err", rerr)
 			d.metrics.StateResets.Inc()
 			d.setAside(topic)
-			s, rerr = series.New(topic, settingsOf(sc))
+			s, rerr = series.New(topic, settingsOf(sc, ""))
 			if rerr != nil {
 				return rerr
 			}
@@ -444,7 +444,19 @@ func (d *Daemon) setAside(topic string) {
 }
 
 // settingsOf copies the maths-relevant settings out of a config entry.
-func settingsOf(sc *config.Series) series.Settings {
+// An entry of kind auto gives the series the kind named (a message's
+// stream.KindHeader, or a stored record's kind, so that an auto series
+// keeps the kind it began with), gauge when that is neither gauge nor
+// counter.
+func settingsOf(sc *config.Series, named string) series.Settings {
+	if sc.Kind == "auto" {
+		c := *sc
+		c.Kind = "gauge"
+		if named == "counter" {
+			c.Kind = named
+		}
+		sc = &c
+	}
 	return series.Settings{
 		Kind:        sc.Kind,
 		StepSeconds: int64(sc.Step / time.Second),
@@ -553,7 +565,12 @@ func (d *Daemon) create(m *stream.Message, topic string) *entry {
 			fmt.Sprintf("no series entry in the configuration matches topic %q", topic))
 		return nil
 	}
-	s, err := series.New(topic, settingsOf(sc))
+	if m.Kind != "" && m.Kind != "gauge" && m.Kind != "counter" {
+		d.reject(m.Subject, topic, m.Received, stream.CodeBadField,
+			fmt.Sprintf("header %s is %q; name the kind gauge or counter, or leave the header out", stream.KindHeader, m.Kind))
+		return nil
+	}
+	s, err := series.New(topic, settingsOf(sc, m.Kind))
 	if err != nil {
 		d.reject(m.Subject, topic, m.Received, stream.CodeBadSettings, err.Error())
 		return nil
