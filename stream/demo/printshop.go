@@ -69,5 +69,5 @@ func ShopSource(url string) config.Source {
 // buckets, kind auto (the source names the counter), a short window.
 func ShopSeries() config.Series {
 	return config.Series{Match: ShopTopicPrefix + ".>", Kind: "auto", Step: ShopEvery, Horizon: 30,
-		Levels: []float64{80, 95}, Window: 300, MinPoints: ShopMinPoints, RefitEvery: 60, Model: "auto", Transform: "none"}
+		Levels: []float64{50, 90}, Window: 300, MinPoints: ShopMinPoints, RefitEvery: 60, Model: "auto", Transform: "none"}
 }
