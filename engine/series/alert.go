@@ -123,6 +123,10 @@ func (w *AlertWork) Len() int { return len(w.items) }
 // where p is exact); valid after Run.
 func (w *AlertWork) Method(i int) alert.Method { return w.items[i].est.Method }
 
+// Failed reports whether rule i could not be evaluated (FinishAlerts
+// returns its error).
+func (w *AlertWork) Failed(i int) bool { return w.items[i].err != nil }
+
 // Paths is the number of paths drawn for rule i (0 without simulation).
 func (w *AlertWork) Paths(i int) int { return w.items[i].est.Paths }
 
