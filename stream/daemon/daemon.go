@@ -889,6 +889,9 @@ func (d *Daemon) finishAlerts(topic string, e *entry, j *alertJob, now time.Time
 		if !j.w.Failed(i) {
 			d.metrics.AlertEvaluations[j.w.Method(i)].Inc()
 		}
+		if n := j.w.Paths(i); n > 0 {
+			d.metrics.AlertPaths.Add(float64(n))
+		}
 		if j.w.Undecided(i) {
 			d.metrics.AlertsUndecided.Inc()
 		}

@@ -33,6 +33,7 @@ type Metrics struct {
 	AlertEvalsByLabel *prometheus.CounterVec
 	AlertsLate        prometheus.Counter
 	AlertsUndecided   prometheus.Counter
+	AlertPaths        prometheus.Counter
 	AlertsQueued      prometheus.Gauge
 	AlertQueueSeconds prometheus.Histogram
 }
@@ -86,6 +87,8 @@ func NewMetrics() *Metrics {
 	m.AlertsUndecided = prometheus.NewCounter(prometheus.CounterOpts{
 		Name: "forewarn_alert_evaluations_undecided_total",
 		Help: "Simulated rule evaluations that used their whole path budget before their decision was known."})
+	m.AlertPaths = prometheus.NewCounter(prometheus.CounterOpts{
+		Name: "forewarn_alert_paths_total", Help: "Paths drawn by the alert simulations (antithetic mirrors counted)."})
 	m.AlertsQueued = prometheus.NewGauge(prometheus.GaugeOpts{
 		Name: "forewarn_alert_evaluations_queued", Help: "Series waiting for an alert evaluation on the alert workers."})
 	m.AlertQueueSeconds = prometheus.NewHistogram(prometheus.HistogramOpts{
@@ -98,6 +101,6 @@ func NewMetrics() *Metrics {
 	}
 	m.Registry.MustRegister(m.Accepted, m.Rejected, m.Published, m.Alerts, m.Refits, m.RefitFailures,
 		m.RefitSeconds, m.Series, m.Refitting, m.Pending, m.StateBytes, m.StateResets, m.StateWriteFailures,
-		m.AlertEvalsByLabel, m.AlertsLate, m.AlertsUndecided, m.AlertsQueued, m.AlertQueueSeconds)
+		m.AlertEvalsByLabel, m.AlertsLate, m.AlertsUndecided, m.AlertPaths, m.AlertsQueued, m.AlertQueueSeconds)
 	return m
 }
