@@ -872,7 +872,7 @@ func (d *Daemon) late(j *alertJob) {
 		}
 	}
 	d.log.Warn("alert answer late: the series' next observations waited for it",
-		"topic", j.topic, "rules", rules, "origin_bucket", j.w.Bucket(), "queue_wait", j.wait,
+		"topic", j.topic, "rules", rules, "origin_bucket", j.w.Bucket(), "queue_wait", j.wait.String(),
 		"held_observations", len(j.e.pending), "queued_evaluations", len(d.alertQ), "late_not_logged", d.lateQuiet)
 	d.lateLogged, d.lateQuiet = now, 0
 }
