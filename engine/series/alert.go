@@ -3,6 +3,7 @@ package series
 import (
 	"errors"
 	"fmt"
+	"time"
 
 	"forewarn/engine/alert"
 	"forewarn/engine/arima"
@@ -49,68 +50,231 @@ type AlertRule struct {
 //   - the hysteresis (alert.Next) steps on the estimate; since the
 //     decision interval holds it, the step agrees with Decide's decision.
 //
-// ev and ps are the caller's workspaces (one per goroutine); with them
-// grown, EvaluateAlerts does not allocate unless a rule changes state or
-// fails. A rule that cannot be evaluated keeps its state and its error,
-// naming the rule, is joined into err; the other rules are still
-// evaluated.
+// EvaluateAlerts is PrepareAlerts, AlertWork.Run and FinishAlerts on one
+// goroutine, with a workspace the series keeps. ev and ps are the
+// caller's workspaces (one per goroutine); with them grown, EvaluateAlerts
+// does not allocate unless a rule changes state or fails. A rule that
+// cannot be evaluated keeps its state and its error, naming the rule, is
+// joined into err; the other rules are still evaluated.
 func (s *Series) EvaluateAlerts(dst []AlertEvent, rules []AlertRule, ev *alert.Evaluator, ps *arima.PathSystem) ([]AlertEvent, error) {
+	w := &s.work
+	w.ps, w.noPS = ps, ps == nil
+	if err := s.PrepareAlerts(w, rules, ev); err != nil {
+		return dst, err
+	}
+	if w.Pending() > 0 {
+		w.Run(ev)
+	}
+	return s.FinishAlerts(dst, w)
+}
+
+// AlertWork is one bucket close's evaluation of a series' alert rules,
+// split so that its costly part can run on another goroutine:
+//
+//   - PrepareAlerts, on the series' goroutine right after the close,
+//     captures what the evaluation needs (the forecast's means and
+//     variances, the filter's path system, each rule's model-scale
+//     threshold, seed, levels and current state) and answers every rule
+//     that the cheap screens decide (exact, marginal, skip bound, bracket);
+//   - Run, on any goroutine, simulates the rules left (Pending), touching
+//     only the work and the evaluator it is given;
+//   - FinishAlerts, back on the series' goroutine, steps the hysteresis of
+//     every rule in rule order and returns the events.
+//
+// The result is the same whatever goroutine runs Run and whenever: the
+// inputs are fixed at PrepareAlerts and the seed is a function of data
+// only. The rule states read at PrepareAlerts (alert.Rule.Current) must be
+// the ones FinishAlerts steps, so a series' next PrepareAlerts must come
+// after FinishAlerts of the previous one. A zero AlertWork is ready for
+// use and is reused: its buffers grow to the largest horizon and state
+// dimension seen.
+type AlertWork struct {
+	rules          []AlertRule
+	items          []alertItem
+	mean, variance []float64 // copies of the forecast's, for Run
+	own            arima.PathSystem
+	ps             *arima.PathSystem // &own unless EvaluateAlerts lends one
+	noPS           bool              // EvaluateAlerts was given no path system
+	hasPS          bool              // ps holds the filter's path system
+	topic          string
+	end, step      int64 // forecast origin bucket and step, for times
+	pending        int
+	prepared       bool
+}
+
+// alertItem is one rule of an AlertWork.
+type alertItem struct {
+	q    alert.Query
+	lv   alert.Rule
+	est  alert.Estimate
+	err  error
+	sim  bool // Run must simulate it
+	done bool // est (or err) is the answer
+}
+
+// Pending is the number of rules whose answer needs a simulation (Run).
+func (w *AlertWork) Pending() int { return w.pending }
+
+// Len is the number of rules of the work.
+func (w *AlertWork) Len() int { return len(w.items) }
+
+// Method says how rule i's probability was obtained (MethodNone for a
+// rule that failed or whose threshold lies outside the transform's range,
+// where p is exact); valid after Run.
+func (w *AlertWork) Method(i int) alert.Method { return w.items[i].est.Method }
+
+// Failed reports whether rule i could not be evaluated (FinishAlerts
+// returns its error).
+func (w *AlertWork) Failed(i int) bool { return w.items[i].err != nil }
+
+// Paths is the number of paths drawn for rule i (0 without simulation).
+func (w *AlertWork) Paths(i int) int { return w.items[i].est.Paths }
+
+// Undecided reports whether rule i's simulation ran out of paths before
+// its decision was known (the estimate is used anyway).
+func (w *AlertWork) Undecided(i int) bool {
+	it := &w.items[i]
+	return it.sim && it.err == nil && it.est.Decision == alert.Undecided
+}
+
+// Rule returns the name of rule i.
+func (w *AlertWork) Rule(i int) string { return w.rules[i].Name }
+
+// Bucket is the bucket index of the forecast origin the work evaluates.
+func (w *AlertWork) Bucket() int64 { return w.end }
+
+// PrepareAlerts starts the evaluation of rules on the latest forecast into
+// w (see AlertWork): it fails, with nothing prepared, when the series has
+// no forecast of its latest closed bucket. ev is the caller's evaluator;
+// it runs only the screens here. rules must not change until FinishAlerts.
+func (s *Series) PrepareAlerts(w *AlertWork, rules []AlertRule, ev *alert.Evaluator) error {
+	w.prepared = false
 	if s.filter == nil {
-		return dst, fmt.Errorf("%w: %q", ErrNoForecast, s.snap.Topic)
+		return fmt.Errorf("%w: %q", ErrNoForecast, s.snap.Topic)
 	}
 	if s.mf.End != s.snap.WindowEnd {
-		return dst, fmt.Errorf("%w: %q: forecast from bucket %d, window ends at %d (refit pending)",
+		return fmt.Errorf("%w: %q: forecast from bucket %d, window ends at %d (refit pending)",
 			ErrNoForecast, s.snap.Topic, s.mf.End, s.snap.WindowEnd)
 	}
-	var errs []error
-	var ss *alert.StateSpace
-	filled := false
+	if w.ps == nil && !w.noPS {
+		w.ps = &w.own
+	}
+	w.rules, w.topic, w.end, w.step = rules, s.snap.Topic, s.mf.End, s.mf.StepSeconds
+	w.pending, w.hasPS = 0, false
+	if cap(w.items) < len(rules) {
+		w.items = make([]alertItem, len(rules))
+	}
+	w.items = w.items[:len(rules)]
 	gauge := s.set.Kind == "gauge"
 	origin := s.mf.Origin()
 	for i := range rules {
-		r := &rules[i]
+		r, it := &rules[i], &w.items[i]
+		*it = alertItem{}
 		if r.Window < 1 || r.Window > s.set.Horizon {
-			errs = append(errs, fmt.Errorf("%w: rule %q: window %d steps, horizon %d", ErrAlertRule, r.Name, r.Window, s.set.Horizon))
+			it.err = fmt.Errorf("%w: rule %q: window %d steps, horizon %d", ErrAlertRule, r.Name, r.Window, s.set.Horizon)
 			continue
 		}
 		lv := alert.Rule{Raise: r.Raise, Clear: r.Clear}.WithDefaults()
 		if err := lv.Validate(); err != nil {
-			errs = append(errs, fmt.Errorf("%w: rule %q: %w", ErrAlertRule, r.Name, err))
+			it.err = fmt.Errorf("%w: rule %q: %w", ErrAlertRule, r.Name, err)
 			continue
 		}
 		st := s.alertState(r.Name) // nil: first evaluation, cleared
 		lv.Current = alert.StateOf(st != nil && st.Raised)
-		var est alert.Estimate
+		it.lv = lv
 		c, dir, exact, p := s.modelThreshold(r)
 		if exact {
-			est.P = p
-		} else {
-			if gauge && r.Window > 1 && !filled && ps != nil {
-				filled = true
-				if err := s.filter.PathSystem(ps); err == nil {
-					ss = (*alert.StateSpace)(ps)
-				}
+			it.est.P, it.done = p, true
+			continue
+		}
+		it.q = alert.Query{
+			Mean: s.mf.Mean, Variance: s.mf.Variance, Threshold: c, Direction: dir,
+			Window: r.Window, Monotone: !gauge, Seed: alertSeed(s.snap.Topic, r.Name, origin.Unix()),
+		}
+		est, done, err := ev.Screen(&it.q, lv)
+		if done {
+			it.est, it.done = est, true
+			if err != nil {
+				it.err = fmt.Errorf("series: alert rule %q on %q: %w", r.Name, s.snap.Topic, err)
 			}
-			q := alert.Query{
-				Mean: s.mf.Mean, Variance: s.mf.Variance, Threshold: c, Direction: dir,
-				Window: r.Window, Monotone: !gauge, Seed: alertSeed(s.snap.Topic, r.Name, origin.Unix()),
-			}
-			var err error
-			if est, err = ev.Decide(&q, ss, lv); err != nil {
-				errs = append(errs, fmt.Errorf("series: alert rule %q on %q: %w", r.Name, s.snap.Topic, err))
-				continue
+			continue
+		}
+		// Only a gauge over more than one step gets here. Without a path
+		// system Run reports ErrNoStateSpace for the rule, as Decide does.
+		if !w.hasPS && w.ps != nil {
+			if err := s.filter.PathSystem(w.ps); err == nil {
+				w.hasPS = true
 			}
 		}
+		it.sim = true
+		w.pending++
+	}
+	if w.pending > 0 {
+		// Run may happen on another goroutine after the series moved on:
+		// it works on copies.
+		w.mean = append(w.mean[:0], s.mf.Mean...)
+		w.variance = append(w.variance[:0], s.mf.Variance...)
+		for i := range w.items {
+			if it := &w.items[i]; it.sim {
+				it.q.Mean, it.q.Variance = w.mean, w.variance
+			}
+		}
+	}
+	w.prepared = true
+	return nil
+}
+
+// Run simulates the rules PrepareAlerts left (Pending) with ev, which must
+// belong to the calling goroutine. It touches only w and ev.
+func (w *AlertWork) Run(ev *alert.Evaluator) {
+	var ss *alert.StateSpace
+	if w.hasPS {
+		ss = (*alert.StateSpace)(w.ps)
+	}
+	for i := range w.items {
+		it := &w.items[i]
+		if !it.sim || it.done {
+			continue
+		}
+		est, err := ev.Decide(&it.q, ss, it.lv)
+		it.est, it.done = est, true
+		if err != nil {
+			it.err = fmt.Errorf("series: alert rule %q on %q: %w", w.rules[i].Name, w.topic, err)
+		}
+	}
+	w.pending = 0
+}
+
+// FinishAlerts steps the hysteresis of every rule of w, prepared on this
+// series and run, in rule order, records the states in the series' record
+// and appends an AlertEvent to dst for each rule whose state changed (see
+// EvaluateAlerts). The errors of the rules that could not be evaluated
+// are joined into err; those rules keep their state.
+func (s *Series) FinishAlerts(dst []AlertEvent, w *AlertWork) ([]AlertEvent, error) {
+	if !w.prepared || w.topic != s.snap.Topic || w.pending > 0 {
+		return dst, fmt.Errorf("%w: %q: alert work not prepared on this series or not run", ErrAlertRule, s.snap.Topic)
+	}
+	w.prepared = false
+	var errs []error
+	origin := time.Unix(w.end*w.step, 0).UTC()
+	for i := range w.items {
+		it, r := &w.items[i], &w.rules[i]
+		if it.err != nil {
+			errs = append(errs, it.err)
+			continue
+		}
+		st := s.alertState(r.Name)
 		if st == nil {
 			s.snap.Alerts = append(s.snap.Alerts, AlertSnapshot{Rule: r.Name})
 			st = &s.snap.Alerts[len(s.snap.Alerts)-1]
 		}
-		raised, changed := alert.Next(st.Raised, est.P, lv)
+		est := &it.est
+		raised, changed := alert.Next(st.Raised, est.P, it.lv)
 		st.Probability = est.P
 		if !changed {
 			continue
 		}
-		st.Raised, st.Since = raised, s.mf.End
+		st.Raised, st.Since = raised, w.end
 		e := AlertEvent{
 			Topic: s.snap.Topic, Rule: r.Name, Raised: raised, Direction: "below", Threshold: r.Threshold,
 			Probability: est.P, StdErr: est.StdErr, WithinSeconds: r.WithinSeconds, Origin: origin,
@@ -119,7 +283,7 @@ func (s *Series) EvaluateAlerts(dst []AlertEvent, rules []AlertRule, ev *alert.E
 			e.Direction = "above"
 		}
 		if est.Eta > 0 {
-			e.ETA, e.HasETA = s.mf.TimeAt(est.Eta), true
+			e.ETA, e.HasETA = time.Unix((w.end+int64(est.Eta))*w.step, 0).UTC(), true
 		}
 		dst = append(dst, e)
 	}

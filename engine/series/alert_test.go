@@ -5,6 +5,7 @@ import (
 	"hash/fnv"
 	"math"
 	"math/rand/v2"
+	"reflect"
 	"testing"
 
 	"forewarn/engine/alert"
@@ -390,5 +391,113 @@ func BenchmarkEvaluateAlertsK120(b *testing.B) {
 			}
 			b.ReportMetric(p, "p")
 		})
+	}
+}
+
+// The split evaluation (PrepareAlerts on the series' goroutine, Run on
+// another goroutine with its own evaluator, FinishAlerts back) gives the
+// same probabilities and events, bit for bit, as EvaluateAlerts on the
+// same data, whatever evaluator ran before: the property the daemon's
+// alert workers rely on (a seeded simulation with known truth: the
+// raise and clear of TestEvaluateAlertsRaiseOnceClearOnce).
+func TestAlertWorkSplitMatchesEvaluate(t *testing.T) {
+	climb, flat := climbThenDrop()
+	values := append(append([]float64(nil), climb...), flat...)
+	rules := []AlertRule{fullRule(), fullRule()}
+	rules[1].Name, rules[1].Threshold, rules[1].Window = "near", 1240, 8
+
+	whole, err := New("vol.used", settings())
+	if err != nil {
+		t.Fatal(err)
+	}
+	ref := newAlertRig(t, whole, rules)
+	ref.feed(values, 0)
+
+	split, err := New("vol.used", settings())
+	if err != nil {
+		t.Fatal(err)
+	}
+	loopEv, _ := alert.NewEvaluator(settings().Horizon, 0)
+	workEv, _ := alert.NewEvaluator(settings().Horizon, 0)
+	jobs, results := make(chan *AlertWork), make(chan *AlertWork)
+	go func() {
+		for w := range jobs {
+			w.Run(workEv)
+			results <- w
+		}
+		close(results)
+	}()
+	var events []AlertEvent
+	var probs []float64
+	simulated := 0
+	// The work of close i is simulated while the series applies the next
+	// observation (and so closes the next bucket): Run must use what
+	// PrepareAlerts captured, not the series' forecast of the moment.
+	var inFlight *AlertWork
+	finish := func() {
+		w := <-results
+		var err error
+		if events, err = split.FinishAlerts(events, w); err != nil {
+			t.Fatal(err)
+		}
+		probs = append(probs, split.Snapshot().Alerts[0].Probability)
+		inFlight = nil
+	}
+	works := [2]AlertWork{} // alternated, as a pool would hand them out
+	for i, v := range values {
+		o, err := split.Observe(at(int64(i)), v)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if inFlight != nil {
+			finish()
+		}
+		if o == NeedFit {
+			if o, err = split.Install(split.FitJob().Run()); err != nil {
+				t.Fatal(err)
+			}
+		}
+		if o != Published {
+			continue
+		}
+		w := &works[i%2]
+		if err := split.PrepareAlerts(w, rules, loopEv); err != nil {
+			t.Fatal(err)
+		}
+		if w.Pending() > 0 {
+			simulated++
+		}
+		inFlight = w
+		jobs <- w
+	}
+	if inFlight != nil {
+		finish()
+	}
+	close(jobs)
+	if simulated < 5 {
+		t.Fatalf("%d closes needed a simulation, want at least 5 for the test to mean something", simulated)
+	}
+	if !reflect.DeepEqual(events, ref.events) {
+		t.Errorf("split events %+v\nwhole events %+v", events, ref.events)
+	}
+	if !reflect.DeepEqual(probs, ref.probs) {
+		t.Errorf("probabilities differ:\nsplit %v\nwhole %v", probs, ref.probs)
+	}
+	if !reflect.DeepEqual(split.Snapshot().Alerts, whole.Snapshot().Alerts) {
+		t.Errorf("states %+v, want %+v", split.Snapshot().Alerts, whole.Snapshot().Alerts)
+	}
+	t.Logf("%d of %d closes simulated on the worker; %d events", simulated, len(probs), len(events))
+
+	// A work not prepared, or prepared on another series, is refused.
+	var w AlertWork
+	if _, err := split.FinishAlerts(nil, &w); !errors.Is(err, ErrAlertRule) {
+		t.Errorf("finish of an unprepared work: %v, want ErrAlertRule", err)
+	}
+	if err := whole.PrepareAlerts(&w, rules, loopEv); err != nil {
+		t.Fatal(err)
+	}
+	other, _ := New("vol.other", settings())
+	if _, err := other.FinishAlerts(nil, &w); !errors.Is(err, ErrAlertRule) {
+		t.Errorf("finish on another series: %v, want ErrAlertRule", err)
 	}
 }

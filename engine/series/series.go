@@ -71,6 +71,8 @@ type Series struct {
 	mf      ModelForecast
 	fc      Forecast
 	fcStale bool
+
+	work AlertWork // EvaluateAlerts' workspace
 }
 
 // New returns an empty series for topic.

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"log/slog"
 	"math"
+	"runtime"
 	"slices"
 	"sync"
 	"time"
@@ -14,7 +15,6 @@ import (
 
 	"forewarn/config"
 	"forewarn/engine/alert"
-	"forewarn/engine/arima"
 	"forewarn/engine/series"
 	"forewarn/state"
 	"forewarn/stream"
@@ -39,8 +39,8 @@ type Options struct {
 }
 
 // Daemon ties the intake, the series, the state store and the publisher
-// together. One loop goroutine owns every series; refits run in a bounded
-// pool of workers.
+// together. One loop goroutine owns every series; refits and the alert
+// evaluations that need a simulation run in bounded pools of workers.
 type Daemon struct {
 	opt     Options
 	cfg     *config.Config
@@ -61,6 +61,8 @@ type Daemon struct {
 	out       chan *slot     // loop → encoder, in order
 	writes    chan writeJob  // loop → writer: commit d.batch
 	committed chan writeDone // writer → loop
+	alertJobs chan *alertJob // loop → alert workers
+	alertDone chan *alertJob // alert workers → loop
 
 	// Loop-owned.
 	series    map[string]*entry
@@ -80,9 +82,16 @@ type Daemon struct {
 	toFlush    []*entry // the flush's series; toFlush[flushed:] still to encode
 	flushed    int
 	flushFloor uint64
-	evaluator  *alert.Evaluator
-	paths      arima.PathSystem    // the evaluator's state-space workspace
+	evaluator  *alert.Evaluator    // the loop's: screens only
 	events     []series.AlertEvent // alert events of one evaluation, reused
+	maxH       int                 // longest horizon, for the workers' evaluators
+	alerting   int                 // series waiting for an alert evaluation
+	alertQ     []*alertJob         // evaluations waiting for a worker, oldest first
+	alertFree  []*alertJob         // finished jobs, reused
+	scratch    *alertJob           // the next evaluation's work
+	stopping   bool                // shutdown: finished jobs no longer release held observations
+	lateLogged time.Time           // wall time of the last "late" log line
+	lateQuiet  int                 // late answers since then, not logged
 
 	mu     sync.RWMutex
 	latest map[string][]byte // latest forecast JSON per topic, for queries
@@ -96,12 +105,20 @@ type entry struct {
 	s       *series.Series
 	subject string // where its forecasts go
 	rules   []series.AlertRule
-	busy    bool
-	pending []pendingObs
-	dirty   bool
-	rejects uint64
-	seen    time.Time // wall time of the last observation, for close_after
-	refits  []int64   // bucket indices of recent refits, for charts
+	busy    bool // waiting for a refit
+	// alerting: waiting for the alert evaluation of its latest close
+	// (an alertJob in d.alertQ or on a worker). Its record is not encoded
+	// meanwhile (see flushStep).
+	alerting bool
+	pending  []pendingObs // observations held back while busy or alerting
+	dirty    bool
+	// firstDirty is the stream position of the first observation applied
+	// since the record was last encoded (0: none): what a record that is
+	// not written yet leaves unstored.
+	firstDirty uint64
+	rejects    uint64
+	seen       time.Time // wall time of the last observation, for close_after
+	refits     []int64   // bucket indices of recent refits, for charts
 }
 
 type pendingObs struct {
@@ -111,6 +128,18 @@ type pendingObs struct {
 	v       float64
 	subject string
 	recv    time.Time
+}
+
+// alertJob is one close's alert evaluation that needs a simulation: the
+// work prepared on the loop (series.Series.PrepareAlerts), run by an alert
+// worker, finished on the loop.
+type alertJob struct {
+	topic  string
+	e      *entry
+	w      series.AlertWork
+	issued time.Time     // the close's "issued" time, for the alert messages
+	queued time.Time     // wall time it entered the queue
+	wait   time.Duration // time in the queue (set by the worker)
 }
 
 type fitTask struct {
@@ -187,6 +216,10 @@ func New(o Options) (*Daemon, error) {
 		free:      make(chan *slot, outSlots),
 		out:       make(chan *slot, outSlots),
 		committed: make(chan writeDone, 1),
+		alertJobs: make(chan *alertJob),
+		alertDone: make(chan *alertJob, 64),
+		maxH:      maxH,
+		scratch:   new(alertJob),
 		series:    make(map[string]*entry),
 		latest:    make(map[string][]byte),
 		evaluator: ev,
@@ -257,10 +290,33 @@ func (d *Daemon) Run(ctx context.Context) error {
 			}
 		}()
 	}
+	var awg sync.WaitGroup
+	for range alertWorkers() {
+		ev, err := alert.NewEvaluator(d.maxH, 0)
+		if err != nil {
+			close(d.jobs)
+			wg.Wait()
+			return fmt.Errorf("daemon: %w", err)
+		}
+		awg.Add(1)
+		go func() {
+			defer awg.Done()
+			for j := range d.alertJobs {
+				j.wait = time.Since(j.queued)
+				j.w.Run(ev)
+				d.alertDone <- j
+			}
+		}()
+	}
+	stopWorkers := func() {
+		close(d.jobs)
+		close(d.alertJobs)
+		wg.Wait()
+		awg.Wait()
+	}
 	sub, err := stream.ServeQueries(d.opt.Conn, d.cfg.Output.Prefix, d.Latest)
 	if err != nil {
-		close(d.jobs)
-		wg.Wait()
+		stopWorkers()
 		return err
 	}
 	writerDone := make(chan struct{})
@@ -299,8 +355,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 	case <-d.intake.Subscribed():
 	case err := <-intakeErr:
 		stopIntake()
-		close(d.jobs)
-		wg.Wait()
+		stopWorkers()
 		close(d.out)
 		<-encoderDone
 		close(d.writes)
@@ -319,6 +374,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 loop:
 	for {
 		jobs, next := d.nextJob()
+		ajobs, anext := d.nextAlert()
 		var flushing <-chan struct{} // ready while a flush is being encoded
 		if len(d.toFlush) > 0 {
 			flushing = alwaysReady
@@ -328,6 +384,10 @@ loop:
 			d.flushStep()
 		case jobs <- next:
 			d.queue = d.queue[1:]
+		case ajobs <- anext:
+			d.alertQ = d.alertQ[1:]
+		case j := <-d.alertDone:
+			d.finishAlert(j)
 		case <-ctx.Done():
 			break loop
 		case err := <-intakeErr:
@@ -367,11 +427,15 @@ loop:
 			intakeErr = nil
 		}
 	}
-	for d.busy > 0 {
-		d.refitStep()
+	// From here a finished alert evaluation no longer releases the
+	// observations held behind it: they stay unapplied, unstored and
+	// unacknowledged (a durable stream redelivers them), so the work left
+	// is at most the evaluations already queued, one per series.
+	d.stopping = true
+	for d.busy > 0 || d.alerting > 0 {
+		d.jobStep()
 	}
-	close(d.jobs)
-	wg.Wait()
+	stopWorkers()
 	close(d.out)
 	<-encoderDone
 	d.syncFlush()
@@ -540,10 +604,10 @@ func (d *Daemon) handle(m *stream.Message) {
 		// Observations held back behind refits are bounded: past the
 		// bound the loop waits for refits to finish (the intake, and so
 		// the bus, is held back meanwhile).
-		for e.busy && d.pending >= maxPending {
-			d.refitStep()
+		for e.held() && d.pending >= maxPending {
+			d.jobStep()
 		}
-		if e.busy {
+		if e.held() {
 			e.pending = append(e.pending, p)
 			d.pending++
 			d.metrics.Pending.Inc()
@@ -583,6 +647,9 @@ func (d *Daemon) create(m *stream.Message, topic string) *entry {
 
 // apply feeds one observation to a series that is not waiting on a refit.
 func (d *Daemon) apply(topic string, e *entry, p pendingObs) {
+	if e.firstDirty == 0 {
+		e.firstDirty = p.seq
+	}
 	out, err := e.s.Observe(p.t, p.v)
 	e.s.Advance(p.seq, p.index)
 	e.dirty = true
@@ -615,17 +682,38 @@ func (d *Daemon) outcome(topic string, e *entry, out series.Outcome) {
 	}
 }
 
-// refitStep hands one waiting refit to the pool or installs one finished
-// refit, whichever can happen first.
-func (d *Daemon) refitStep() {
+// held reports whether the series' observations wait: for a refit or for
+// the alert evaluation of its latest close.
+func (e *entry) held() bool { return e.busy || e.alerting }
+
+// jobStep hands one waiting refit or alert evaluation to its pool, or
+// finishes one that is done, whichever can happen first.
+func (d *Daemon) jobStep() {
 	jobs, next := d.nextJob()
+	ajobs, anext := d.nextAlert()
 	select {
 	case jobs <- next:
 		d.queue = d.queue[1:]
 	case r := <-d.results:
 		d.finishFit(r)
+	case ajobs <- anext:
+		d.alertQ = d.alertQ[1:]
+	case j := <-d.alertDone:
+		d.finishAlert(j)
 	}
 }
+
+// nextAlert is nextJob for the alert queue.
+func (d *Daemon) nextAlert() (chan<- *alertJob, *alertJob) {
+	if len(d.alertQ) == 0 {
+		return nil, nil
+	}
+	return d.alertJobs, d.alertQ[0]
+}
+
+// alertWorkers is the size of the alert pool: one per core the process
+// may use.
+func alertWorkers() int { return max(1, runtime.GOMAXPROCS(0)) }
 
 // nextJob returns the pool's channel and the first waiting refit, or a
 // nil channel (a select case that never fires) when none waits.
@@ -656,12 +744,18 @@ func (d *Daemon) finishFit(r fitDone) {
 		}
 	}
 	d.outcome(r.topic, e, out)
-	for len(e.pending) > 0 && !e.busy {
+	d.release(r.topic, e)
+}
+
+// release applies the observations held behind a finished job, in order,
+// until the series is held again (or none is left).
+func (d *Daemon) release(topic string, e *entry) {
+	for len(e.pending) > 0 && !e.held() {
 		p := e.pending[0]
 		e.pending = e.pending[1:]
 		d.pending--
 		d.metrics.Pending.Dec()
-		d.apply(r.topic, e, p)
+		d.apply(topic, e, p)
 	}
 	if len(e.pending) == 0 {
 		e.pending = nil
@@ -726,13 +820,98 @@ func (d *Daemon) storeLatest(s *series.Series) {
 	d.mu.Unlock()
 }
 
-// evaluate updates every alert rule of the series from its latest forecast
-// (engine/series does the work) and publishes the alerts it returns.
+// evaluate starts the evaluation of the series' alert rules on its latest
+// forecast (engine/series does the work). The rules the cheap screens
+// answer (exact, marginal, skip bound, bracket) are finished here; when
+// one needs a simulation, the work goes to the alert pool and the series
+// is held, like a refit, until it comes back (finishAlert): its next
+// observations wait in its queue, so its next evaluation sees the rule
+// states this one leaves (alert.Rule.Current) and its messages keep their
+// order. Other series carry on meanwhile.
 func (d *Daemon) evaluate(topic string, e *entry, now time.Time) {
+	j := d.scratch
+	if err := e.s.PrepareAlerts(&j.w, e.rules, d.evaluator); err != nil {
+		d.log.Warn("alert evaluation failed", "topic", topic, "err", err)
+		return
+	}
+	if j.w.Pending() == 0 {
+		d.finishAlerts(topic, e, j, now)
+		return
+	}
+	if n := len(d.alertFree); n > 0 {
+		d.scratch, d.alertFree = d.alertFree[n-1], d.alertFree[:n-1]
+	} else {
+		d.scratch = new(alertJob)
+	}
+	j.topic, j.e, j.issued, j.queued = topic, e, now, time.Now()
+	e.alerting = true
+	d.alerting++
+	d.metrics.AlertsQueued.Inc()
+	d.alertQ = append(d.alertQ, j)
+}
+
+// finishAlert takes back an evaluation from the alert pool: it steps the
+// rules' hysteresis, publishes the events, counts a late answer (one that
+// observations of its series had to wait for) and releases the
+// observations held behind it (not during shutdown, see Run).
+func (d *Daemon) finishAlert(j *alertJob) {
+	e := j.e
+	e.alerting = false
+	d.alerting--
+	d.metrics.AlertsQueued.Dec()
+	d.metrics.AlertQueueSeconds.Observe(j.wait.Seconds())
+	e.dirty = true
+	d.finishAlerts(j.topic, e, j, j.issued)
+	if len(e.pending) > 0 {
+		d.late(j)
+	}
+	j.e = nil
+	d.alertFree = append(d.alertFree, j)
+	if !d.stopping {
+		d.release(j.topic, e)
+	}
+}
+
+// late counts an alert answer that came after its series' next
+// observation arrived, and logs it, at most one line a second (wall time)
+// with the number of late answers not logged since.
+func (d *Daemon) late(j *alertJob) {
+	d.metrics.AlertsLate.Inc()
+	now := time.Now()
+	if now.Sub(d.lateLogged) < time.Second {
+		d.lateQuiet++
+		return
+	}
+	rules := make([]string, 0, j.w.Len())
+	for i := range j.w.Len() {
+		if j.w.Method(i) == alert.MethodSimulation {
+			rules = append(rules, j.w.Rule(i))
+		}
+	}
+	d.log.Warn("alert answer late: the series' next observations waited for it",
+		"topic", j.topic, "rules", rules, "origin_bucket", j.w.Bucket(), "queue_wait", j.wait.String(),
+		"held_observations", len(j.e.pending), "queued_evaluations", len(d.alertQ), "late_not_logged", d.lateQuiet)
+	d.lateLogged, d.lateQuiet = now, 0
+}
+
+// finishAlerts finishes an evaluation prepared on the series (and run, if
+// it needed a simulation) and publishes the alerts it returns.
+func (d *Daemon) finishAlerts(topic string, e *entry, j *alertJob, now time.Time) {
 	var err error
-	d.events, err = e.s.EvaluateAlerts(d.events[:0], e.rules, d.evaluator, &d.paths)
+	d.events, err = e.s.FinishAlerts(d.events[:0], &j.w)
 	if err != nil {
 		d.log.Warn("alert evaluation failed", "topic", topic, "err", err)
+	}
+	for i := range j.w.Len() {
+		if !j.w.Failed(i) {
+			d.metrics.AlertEvaluations[j.w.Method(i)].Inc()
+		}
+		if n := j.w.Paths(i); n > 0 {
+			d.metrics.AlertPaths.Add(float64(n))
+		}
+		if j.w.Undecided(i) {
+			d.metrics.AlertsUndecided.Inc()
+		}
 	}
 	for i := range d.events {
 		ev := &d.events[i]
@@ -763,7 +942,7 @@ func (d *Daemon) closeIdle() {
 	now := d.now()
 	for topic, e := range d.series {
 		sc, ok := d.cfg.SeriesFor(topic)
-		if !ok || sc.CloseAfter <= 0 || e.busy || e.seen.IsZero() || now.Sub(e.seen) < sc.CloseAfter {
+		if !ok || sc.CloseAfter <= 0 || e.held() || e.seen.IsZero() || now.Sub(e.seen) < sc.CloseAfter {
 			continue
 		}
 		if out := e.s.CloseOpen(); out != series.Absorbed {
@@ -809,12 +988,23 @@ const flushChunk = 256
 func (d *Daemon) flushStep() {
 	end := min(d.flushed+flushChunk, len(d.toFlush))
 	for _, e := range d.toFlush[d.flushed:end] {
+		if e.alerting {
+			// Its record says its latest close is applied, but not yet that
+			// close's alert evaluation: stored, a restart would skip the
+			// close (Series.Handled) and the evaluation would never happen.
+			// It stays dirty for the next flush, and this flush
+			// acknowledges nothing it has applied since its last record.
+			if e.firstDirty > 0 && e.firstDirty-1 < d.flushFloor {
+				d.flushFloor = e.firstDirty - 1
+			}
+			continue
+		}
 		if err := d.batch.Add(e.s.Snapshot()); err != nil {
 			d.log.Error("series state cannot be stored", "topic", e.s.Topic(), "err", err)
 			d.metrics.StateWriteFailures.Inc()
 			continue
 		}
-		e.dirty = false
+		e.dirty, e.firstDirty = false, 0
 	}
 	d.flushed = end
 	if end < len(d.toFlush) {
@@ -831,12 +1021,17 @@ func (d *Daemon) flushStep() {
 }
 
 // ackFloor is the last stream position whose effect is in memory with
-// nothing at or before it still waiting on a refit.
+// nothing at or before it still waiting on a refit or an alert
+// evaluation, nor applied to a series whose record cannot be written
+// until its alert evaluation is back (see flushStep).
 func (d *Daemon) ackFloor() uint64 {
 	floor := d.lastSeq
 	for _, e := range d.series {
 		if len(e.pending) > 0 && e.pending[0].seq > 0 && e.pending[0].seq-1 < floor {
 			floor = e.pending[0].seq - 1
+		}
+		if e.alerting && e.firstDirty > 0 && e.firstDirty-1 < floor {
+			floor = e.firstDirty - 1
 		}
 	}
 	return floor
@@ -849,8 +1044,13 @@ func (d *Daemon) written(w writeDone) {
 	if w.err != nil {
 		d.log.Error("state write failed; will retry at the next flush", "err", w.err)
 		d.metrics.StateWriteFailures.Inc()
+		// The failed records' series may hold anything after the last
+		// acknowledged position unstored.
 		for _, e := range d.series {
 			e.dirty = true
+			if e.firstDirty == 0 || e.firstDirty > d.acked+1 {
+				e.firstDirty = d.acked + 1
+			}
 		}
 		return
 	}

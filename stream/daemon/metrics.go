@@ -3,6 +3,7 @@ package daemon
 import (
 	"github.com/prometheus/client_golang/prometheus"
 
+	"forewarn/engine/alert"
 	"forewarn/stream"
 )
 
@@ -24,6 +25,17 @@ type Metrics struct {
 	StateBytes         prometheus.Gauge
 	StateResets        prometheus.Counter
 	StateWriteFailures prometheus.Counter
+
+	// AlertEvaluations counts rule evaluations by how the probability was
+	// obtained, indexed by alert.Method (label "exact" for MethodNone: a
+	// threshold outside the transform's range).
+	AlertEvaluations  [alert.MethodSimulation + 1]prometheus.Counter
+	AlertEvalsByLabel *prometheus.CounterVec
+	AlertsLate        prometheus.Counter
+	AlertsUndecided   prometheus.Counter
+	AlertPaths        prometheus.Counter
+	AlertsQueued      prometheus.Gauge
+	AlertQueueSeconds prometheus.Histogram
 }
 
 // NewMetrics creates and registers the metrics. A labelled counter starts
@@ -59,12 +71,36 @@ func NewMetrics() *Metrics {
 		StateWriteFailures: prometheus.NewCounter(prometheus.CounterOpts{
 			Name: "forewarn_state_write_failures_total", Help: "State flushes that failed."}),
 	}
+	m.AlertEvalsByLabel = prometheus.NewCounterVec(prometheus.CounterOpts{
+		Name: "forewarn_alert_evaluations_total",
+		Help: "Alert rule evaluations, by method: exact, marginal, skip (union bound), bracket, simulation."}, []string{"method"})
+	for k := range m.AlertEvaluations {
+		name := alert.Method(k).String()
+		if alert.Method(k) == alert.MethodNone {
+			name = "exact"
+		}
+		m.AlertEvaluations[k] = m.AlertEvalsByLabel.WithLabelValues(name) // at 0 from the start
+	}
+	m.AlertsLate = prometheus.NewCounter(prometheus.CounterOpts{
+		Name: "forewarn_alert_evaluations_late_total",
+		Help: "Alert evaluations whose answer came after the next observation of their series, which waited for it."})
+	m.AlertsUndecided = prometheus.NewCounter(prometheus.CounterOpts{
+		Name: "forewarn_alert_evaluations_undecided_total",
+		Help: "Simulated rule evaluations that used their whole path budget before their decision was known."})
+	m.AlertPaths = prometheus.NewCounter(prometheus.CounterOpts{
+		Name: "forewarn_alert_paths_total", Help: "Paths drawn by the alert simulations (antithetic mirrors counted)."})
+	m.AlertsQueued = prometheus.NewGauge(prometheus.GaugeOpts{
+		Name: "forewarn_alert_evaluations_queued", Help: "Series waiting for an alert evaluation on the alert workers."})
+	m.AlertQueueSeconds = prometheus.NewHistogram(prometheus.HistogramOpts{
+		Name: "forewarn_alert_queue_wait_seconds", Help: "Time an alert evaluation waited for a worker.",
+		Buckets: prometheus.ExponentialBuckets(0.0001, 4, 10)})
 	// Every reject code is there from the start, at 0 (CONTRACT.md §2), so
 	// that a rate over the counter is defined before the first reject.
 	for _, code := range stream.RejectCodes() {
 		m.Rejected.WithLabelValues(code)
 	}
 	m.Registry.MustRegister(m.Accepted, m.Rejected, m.Published, m.Alerts, m.Refits, m.RefitFailures,
-		m.RefitSeconds, m.Series, m.Refitting, m.Pending, m.StateBytes, m.StateResets, m.StateWriteFailures)
+		m.RefitSeconds, m.Series, m.Refitting, m.Pending, m.StateBytes, m.StateResets, m.StateWriteFailures,
+		m.AlertEvalsByLabel, m.AlertsLate, m.AlertsUndecided, m.AlertPaths, m.AlertsQueued, m.AlertQueueSeconds)
 	return m
 }

@@ -46,6 +46,28 @@ type rigOptions struct {
 	window  int  // buckets kept; 0: the config default (2000)
 	// flushMax is state.flush_max; 0: the config default (150 000 messages).
 	flushMax int
+	// step and horizon of every series; zero: rigStep, rigHorizon.
+	step    time.Duration
+	horizon int
+	// rule, when set, is the one alert rule, matching every series
+	// (instead of alert's far rule).
+	rule *config.Alert
+}
+
+// stepOf is the rig's bucket width.
+func (o rigOptions) stepOf() time.Duration {
+	if o.step > 0 {
+		return o.step
+	}
+	return rigStep
+}
+
+// horizonOf is the rig's forecast horizon.
+func (o rigOptions) horizonOf() int {
+	if o.horizon > 0 {
+		return o.horizon
+	}
+	return rigHorizon
 }
 
 // rig is an in-process bus, a state store under a temporary directory and
@@ -103,7 +125,7 @@ func newRigConfig(tb testing.TB, o rigOptions) *rig {
 	}
 	cfg.Limits.MaxSeries = max(cfg.Limits.MaxSeries, o.series)
 	cfg.Series = []config.Series{{
-		Match: "bench.>", Step: rigStep, Horizon: rigHorizon, Window: o.window,
+		Match: "bench.>", Step: o.stepOf(), Horizon: o.horizonOf(), Window: o.window,
 		MinPoints: rigMinPoints, RefitEvery: rigRefitEvery,
 		Model: "1,1,1", Transform: "none",
 	}}
@@ -112,13 +134,16 @@ func newRigConfig(tb testing.TB, o rigOptions) *rig {
 		cfg.Alerts = []config.Alert{{Name: "far-above", Match: "bench.>", Above: &thr,
 			Within: rigHorizon * rigStep, Probability: 0.9}}
 	}
+	if o.rule != nil {
+		cfg.Alerts = []config.Alert{*o.rule}
+	}
 	cfg = cfg.WithDefaults()
 	if err := cfg.Validate(); err != nil {
 		tb.Fatal(err)
 	}
 	r := &rig{tb: tb, srv: srv, url: url, cfg: cfg, pub: pub, opts: o,
 		rng: rand.New(rand.NewPCG(20240611, 4))}
-	step := int64(rigStep / time.Second)
+	step := int64(o.stepOf() / time.Second)
 	// Data time starts 12 h back, well inside limits.max_past, so that
 	// a benchmark run never reaches limits.max_future.
 	r.t0 = (time.Now().Add(-12*time.Hour).Unix() / step) * step
@@ -210,7 +235,7 @@ func (r *rig) appendValue(dst []byte, t int64, v float64) []byte {
 func (r *rig) warm() {
 	tb := r.tb
 	tb.Helper()
-	step := int64(rigStep / time.Second)
+	step := int64(r.opts.stepOf() / time.Second)
 	// Every series gets the same warm-up path (offset by its own level),
 	// one on which the first fit succeeds: on 20 points of an ARIMA(1,1,1)
 	// path, maximum likelihood puts the MA root on the unit circle for
@@ -324,7 +349,7 @@ func (b *batch) payload(j int) []byte { return b.data[b.off[j]:b.off[j+1]] }
 // (1: every message closes a bucket). It continues after the buckets used
 // so far.
 func (r *rig) build(n, perBucket int) *batch {
-	step := int64(rigStep / time.Second)
+	step := int64(r.opts.stepOf() / time.Second)
 	ns := len(r.subjects)
 	b := &batch{series: make([]int32, n), off: make([]int, n+1)}
 	b.data = make([]byte, 0, n*40)

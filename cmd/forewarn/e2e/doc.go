@@ -24,6 +24,9 @@
 //     series' forecasts untouched (issue 6);
 //   - a capacity alert is raised once, with its eta, survives a restart
 //     without repeating, and is cleared (issue 5);
+//   - 200 gauges near the threshold of a 2-hour rule (120 steps) raise and
+//     clear once each across a SIGTERM restart that takes at most 5 s
+//     (issue 14);
 //   - the streamed forecast at the last bucket equals forewarn fit on the
 //     same window, and R's predict within the engine's tolerances (issue 4);
 //   - the demo prints forecast lines and an alert raised and cleared, each
