@@ -340,12 +340,12 @@ func Default() *Config {
 			Replicas: 1,
 		},
 		Cluster: Cluster{Lease: 10 * time.Second, SnapshotEvery: 30 * time.Second},
-		Output: Output{Prefix: "forewarn"},
-		State:  State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 150000},
-		HTTP:   HTTP{Listen: "127.0.0.1:8714"},
-		Log:    Log{Level: "info", Format: "auto"},
-		Limits: DefaultLimits(),
-		Series: []Series{DefaultSeries()},
+		Output:  Output{Prefix: "forewarn"},
+		State:   State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 150000},
+		HTTP:    HTTP{Listen: "127.0.0.1:8714"},
+		Log:     Log{Level: "info", Format: "auto"},
+		Limits:  DefaultLimits(),
+		Series:  []Series{DefaultSeries()},
 	}
 }
 
