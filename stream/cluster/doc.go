@@ -20,7 +20,7 @@
 // The lease bucket (EnsureBucket: history 1, per-key lifetimes, so
 // nats-server 2.11 or later) holds:
 //
-//	member.<instance>  one per live instance, written with a lifetime of one lease and renewed every lease/3
+//	member.<instance>  one per live instance, written with a lifetime of one lease and renewed every lease/4
 //	lease.<p>          one per owned partition, the same lifetime and renewal
 //
 // Every write after the first is a compare-and-set on the key's last

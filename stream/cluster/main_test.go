@@ -90,14 +90,23 @@ func startCluster(dir string) (*testCluster, error) {
 	// The cluster answers "no responders" or "insufficient resources" until
 	// its JetStream meta group has a leader and knows all three peers:
 	// wait for an R3 bucket to be creatable.
+	if err := c.waitReady(); err != nil {
+		c.shutdown()
+		return nil, fmt.Errorf("cluster not ready: %w", err)
+	}
+	return c, nil
+}
+
+// waitReady waits until an R3 bucket can be made, i.e. the meta group has
+// a leader and sees all three peers online.
+func (c *testCluster) waitReady() error {
 	nc, err := nats.Connect(c.url())
 	if err != nil {
-		c.shutdown()
-		return nil, err
+		return err
 	}
 	defer nc.Close()
 	js, _ := jetstream.New(nc)
-	err = poll(60*time.Second, func() error {
+	return poll(60*time.Second, func() error {
 		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
 		defer cancel()
 		if _, err := js.CreateOrUpdateKeyValue(ctx, jetstream.KeyValueConfig{Bucket: "READY", Replicas: 3}); err != nil {
@@ -105,11 +114,6 @@ func startCluster(dir string) (*testCluster, error) {
 		}
 		return js.DeleteKeyValue(ctx, "READY")
 	})
-	if err != nil {
-		c.shutdown()
-		return nil, fmt.Errorf("cluster not ready: %w", err)
-	}
-	return c, nil
 }
 
 func (c *testCluster) start(i int) error {

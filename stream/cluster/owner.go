@@ -115,7 +115,7 @@ func NewOwner(js jetstream.JetStream, kv jetstream.KeyValue, o Options) (*Owner,
 	return &Owner{
 		js: js, kv: kv, o: o,
 		incarnation: nuid.Next(),
-		renewEvery:  o.Lease / 3,
+		renewEvery:  o.Lease / 4,
 		margin:      o.Lease / 5,
 		reqTimeout:  max(o.Lease/4, 500*time.Millisecond),
 		changes:     make(chan Change, 2*o.Partitions+1),

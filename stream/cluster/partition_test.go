@@ -55,8 +55,11 @@ func TestPartitionMatchesServer(t *testing.T) {
 		counts := make([]int, n)
 		for i := 0; i < subjects; {
 			batch, err := cons.Fetch(1000)
-			if err != nil {
-				t.Fatal(err)
+			if err != nil { // a cluster settling after the restart test answers "no responders" for a moment
+				if ctx.Err() != nil {
+					t.Fatal(err)
+				}
+				continue
 			}
 			for m := range batch.Messages() {
 				p, orig, ok := Split(m.Subject())
@@ -69,7 +72,7 @@ func TestPartitionMatchesServer(t *testing.T) {
 				counts[p]++
 				i++
 			}
-			if err := batch.Error(); err != nil {
+			if err := batch.Error(); err != nil && ctx.Err() != nil {
 				t.Fatal(err)
 			}
 		}
