@@ -1,7 +1,9 @@
 package config
 
 import (
+	"errors"
 	"fmt"
+	"os"
 	"runtime"
 	"slices"
 	"strings"
@@ -24,6 +26,10 @@ type Config struct {
 	Log    Log
 	Refit  Refit
 	Limits Limits
+	// Cluster says how several instances share the series on one NATS
+	// cluster (package stream/cluster). Zero: one instance owns every
+	// series.
+	Cluster Cluster
 	// Series holds the per-topic settings; the first entry whose Match
 	// matches a topic applies to it. Empty: one entry matching ">" with
 	// the values of DefaultSeries. A topic that no entry matches is not
@@ -103,6 +109,29 @@ type Intake struct {
 	// MaxBytes is the stream's retention by size in bytes: the oldest
 	// messages are removed beyond it. Zero: 1 GiB.
 	MaxBytes int64
+	// Replicas is how many servers of a NATS cluster hold the intake
+	// stream and the cluster's buckets, 1..5 (3 on a three-node cluster).
+	// Zero: 1.
+	Replicas int
+}
+
+// Cluster configures several instances sharing the series of one intake
+// stream on a NATS cluster (CONTRACT.md §2, key cluster).
+type Cluster struct {
+	// Partitions cuts the intake into this many partitions, 0..MaxPartitions;
+	// each is owned by one live instance at a time. Zero: no partitions,
+	// this instance owns every series (the single-instance mode).
+	Partitions int
+	// Instance is this instance's name, unique among the instances that
+	// share the intake: letters, digits, - and _, at most 64 bytes. Zero:
+	// the host name (see InstanceName).
+	Instance string
+	// Lease is how long a partition stays with an instance that stopped
+	// renewing it, a whole number of seconds in 2s..1h. Zero: 10s.
+	Lease time.Duration
+	// SnapshotEvery is how often an owner stores its partitions' records on
+	// the bus for a handover, 1s..24h. Zero: 30s.
+	SnapshotEvery time.Duration
 }
 
 // Output says where forecasts, alerts and rejects go.
@@ -366,13 +395,15 @@ func Default() *Config {
 			Consumer: "forewarn",
 			MaxAge:   168 * time.Hour,
 			MaxBytes: 1 << 30,
+			Replicas: 1,
 		},
-		Output: Output{Prefix: "forewarn"},
-		State:  State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 150000},
-		HTTP:   HTTP{Listen: "127.0.0.1:8714"},
-		Log:    Log{Level: "info", Format: "auto"},
-		Limits: DefaultLimits(),
-		Series: []Series{DefaultSeries()},
+		Cluster: Cluster{Lease: 10 * time.Second, SnapshotEvery: 30 * time.Second},
+		Output:  Output{Prefix: "forewarn"},
+		State:   State{Dir: "./forewarn-data", FlushInterval: time.Second, FlushMax: 150000},
+		HTTP:    HTTP{Listen: "127.0.0.1:8714"},
+		Log:     Log{Level: "info", Format: "auto"},
+		Limits:  DefaultLimits(),
+		Series:  []Series{DefaultSeries()},
 	}
 }
 
@@ -433,6 +464,9 @@ func (c *Config) WithDefaults() *Config {
 	setZero(&d.Intake.Consumer, def.Intake.Consumer)
 	setZero(&d.Intake.MaxAge, def.Intake.MaxAge)
 	setZero(&d.Intake.MaxBytes, def.Intake.MaxBytes)
+	setZero(&d.Intake.Replicas, def.Intake.Replicas)
+	setZero(&d.Cluster.Lease, def.Cluster.Lease)
+	setZero(&d.Cluster.SnapshotEvery, def.Cluster.SnapshotEvery)
 	setZero(&d.Output.Prefix, def.Output.Prefix)
 	setZero(&d.State.Dir, def.State.Dir)
 	setZero(&d.State.FlushInterval, def.State.FlushInterval)
@@ -530,4 +564,32 @@ func setZero[T comparable](p *T, def T) {
 // stripSpaces removes every white-space character from s.
 func stripSpaces(s string) string {
 	return strings.Join(strings.Fields(s), "")
+}
+
+// InstanceName returns Instance, or when it is empty the host name cut at
+// its first dot, with every character other than a letter, a digit, - or _
+// replaced by _ and at most 64 bytes long, so that it can be part of a
+// key and a consumer name on the bus.
+func (c Cluster) InstanceName() (string, error) {
+	if c.Instance != "" {
+		return c.Instance, nil
+	}
+	h, err := os.Hostname()
+	if err != nil {
+		return "", fmt.Errorf("config: cluster.instance is empty and the host name is unknown (%w); set cluster.instance", err)
+	}
+	h, _, _ = strings.Cut(h, ".")
+	b := []byte(h)
+	for i, ch := range b {
+		if !(ch >= 'a' && ch <= 'z' || ch >= 'A' && ch <= 'Z' || ch >= '0' && ch <= '9' || ch == '-' || ch == '_') {
+			b[i] = '_'
+		}
+	}
+	if len(b) > maxNameLen {
+		b = b[:maxNameLen]
+	}
+	if len(b) == 0 {
+		return "", errors.New("config: cluster.instance is empty and so is the host name; set cluster.instance")
+	}
+	return string(b), nil
 }

@@ -272,6 +272,17 @@ func TestValidationRules(t *testing.T) {
 		{"max_age tiny", "intake:\n  max_age: 10ms\n", 2, "intake.max_age", "less than a second"},
 		{"max_bytes below payload", "intake:\n  max_bytes: 1000\n", 2, "intake.max_bytes", "smaller than limits.max_payload_bytes"},
 		{"prefix wildcard", "output:\n  prefix: \"fw.*\"\n", 2, "output.prefix", "wildcard"},
+		{"replicas zero on cluster", "nats: {url: nats://h:4222}\nintake:\n  replicas: 7\n", 3, "intake.replicas", "outside 1..5"},
+		{"replicas on embedded", "intake:\n  replicas: 3\n", 2, "intake.replicas", "need a NATS cluster"},
+		// cluster
+		{"partitions on embedded", "cluster:\n  partitions: 8\n", 2, "cluster.partitions", "embedded server runs no cluster routes"},
+		{"partitions negative", "nats: {url: nats://h:4222}\ncluster:\n  partitions: -1\n", 3, "cluster.partitions", "outside 0..4096"},
+		{"partitions plain intake", "nats: {url: nats://h:4222}\nintake: {durable: false}\ncluster:\n  partitions: 4\n", 4, "cluster.partitions", "intake.durable: true"},
+		{"instance name", "cluster:\n  instance: \"a.b\"\n", 2, "cluster.instance", "letters, digits"},
+		{"lease fraction", "cluster:\n  lease: 2500ms\n", 2, "cluster.lease", "whole number of seconds"},
+		{"lease short", "cluster:\n  lease: 1s\n", 2, "cluster.lease", "outside 2s..1h"},
+		{"snapshot_every negative", "cluster:\n  snapshot_every: -5s\n", 2, "cluster.snapshot_every", "positive"},
+		{"snapshot_every long", "cluster:\n  snapshot_every: 48h\n", 2, "cluster.snapshot_every", "outside 1s..24h"},
 		// state, http, log, refit, limits
 		{"flush_interval long", "state:\n  flush_interval: 2h\n", 2, "state.flush_interval", "1ms..1h"},
 		{"flush_max negative", "state:\n  flush_max: -1\n", 2, "state.flush_max", "outside 1..1000000"},
@@ -483,5 +494,31 @@ func TestPositionsFollowMovedEntries(t *testing.T) {
 	want := "f.yaml:4:13: series[2].window: 5 is less than min_points 10\nf.yaml: series[0].horizon: -1 is outside 1..1000"
 	if got != want {
 		t.Errorf("got:\n%s\nwant:\n%s", got, want)
+	}
+}
+
+// The cluster keys decode onto Cluster and Intake.Replicas (CONTRACT.md §2).
+func TestClusterKeys(t *testing.T) {
+	src := "nats: {url: \"nats://a:4222,nats://b:4222\"}\nintake: {replicas: 3}\n" +
+		"cluster: {partitions: 8, instance: fw-1, lease: 4s, snapshot_every: 1m}\n"
+	c, err := Parse([]byte(src), "c.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := Cluster{Partitions: 8, Instance: "fw-1", Lease: 4 * time.Second, SnapshotEvery: time.Minute}
+	if c.Cluster != want || c.Intake.Replicas != 3 {
+		t.Errorf("got %+v replicas %d, want %+v replicas 3", c.Cluster, c.Intake.Replicas, want)
+	}
+	if n, err := c.Cluster.InstanceName(); err != nil || n != "fw-1" {
+		t.Errorf("InstanceName = %q, %v; want fw-1", n, err)
+	}
+	c.Cluster.Instance = ""
+	n, err := c.Cluster.InstanceName()
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The fallback must itself pass the rule for cluster.instance.
+	if !instanceRE().MatchString(n) || len(n) > maxNameLen {
+		t.Errorf("host-name fallback %q is not a valid instance name", n)
 	}
 }

@@ -596,6 +596,15 @@ func (d *decoder) top(root *yaml.Node, c *Config) {
 				"consumer":  d.str(&in.Consumer),
 				"max_age":   d.duration(&in.MaxAge),
 				"max_bytes": d.size(func(v int64) { in.MaxBytes = v }),
+				"replicas":  d.integer(&in.Replicas),
+			})
+		},
+		"cluster": func(v *yaml.Node, p string) {
+			d.mapping(v, p, fields{
+				"partitions":     d.integer(&c.Cluster.Partitions),
+				"instance":       d.str(&c.Cluster.Instance),
+				"lease":          d.duration(&c.Cluster.Lease),
+				"snapshot_every": d.duration(&c.Cluster.SnapshotEvery),
 			})
 		},
 		"output": func(v *yaml.Node, p string) {

@@ -36,6 +36,11 @@ const (
 	boxCoxMin        = -1.0 // Guerrero (1993) search interval, common practice
 	boxCoxMax        = 2.0
 	maxOrder         = 10 // p and q (P and Q: arima.MaxSeasonalOrder)
+	// MaxPartitions bounds cluster.partitions: each partition is a lease
+	// key and a consumer on the bus.
+	MaxPartitions = 4096
+	// MaxReplicas bounds intake.replicas, as JetStream does.
+	MaxReplicas = 5
 )
 
 // Validate reports every problem with c, as an *Errors, or nil. It checks
@@ -166,6 +171,7 @@ func (c *Config) validate(failed map[string]bool) []Problem {
 	if why := checkSubject(c.Output.Prefix, false); why != "" {
 		v.add("output.prefix", "%q is not a valid subject prefix: %s", clip(c.Output.Prefix), why)
 	}
+	v.cluster()
 	v.state()
 	if c.HTTP.Listen != "" {
 		v.hostPort("http.listen", c.HTTP.Listen)
@@ -334,6 +340,10 @@ func (v *validator) intake() {
 	if v.positive("intake.max_age", in.MaxAge) && in.MaxAge < time.Second {
 		v.add("intake.max_age", "%v is less than a second", in.MaxAge)
 	}
+	v.intRange("intake.replicas", in.Replicas, 1, MaxReplicas)
+	if in.Replicas > 1 && v.c.NATS.URL == "" {
+		v.add("intake.replicas", "%d replicas need a NATS cluster; the embedded server is one server (set nats.url, or replicas: 1)", in.Replicas)
+	}
 	if in.MaxBytes <= 0 {
 		v.add("intake.max_bytes", "must be positive, got %d", in.MaxBytes)
 	} else if lim := int64(v.c.Limits.MaxPayloadBytes); in.MaxBytes < lim {
@@ -351,6 +361,35 @@ func (v *validator) streamName(path, name string) {
 		v.add(path, "%q contains one of . * > / \\", clip(name))
 	case strings.IndexFunc(name, func(r rune) bool { return unicode.IsSpace(r) || !unicode.IsPrint(r) }) >= 0:
 		v.add(path, "%q contains white space or a non-printable character", clip(name))
+	}
+}
+
+var instanceRE = lazyRegexp(`^[A-Za-z0-9_-]+$`)
+
+func (v *validator) cluster() {
+	c := &v.c.Cluster
+	v.intRange("cluster.partitions", c.Partitions, 0, MaxPartitions)
+	if c.Partitions > 0 {
+		if v.c.NATS.URL == "" {
+			v.add("cluster.partitions", "%d partitions need instances sharing a NATS cluster, but the embedded server runs no cluster routes; set nats.url to your cluster (or partitions: 0)", c.Partitions)
+		}
+		if !v.c.Intake.Durable {
+			v.add("cluster.partitions", "partitions need the JetStream intake (intake.durable: true)")
+		}
+	}
+	if c.Instance != "" && (len(c.Instance) > maxNameLen || !instanceRE().MatchString(c.Instance)) {
+		v.add("cluster.instance", "%q is not a name of letters, digits, - and _ of at most %d bytes", clip(c.Instance), maxNameLen)
+	}
+	if v.positive("cluster.lease", c.Lease) {
+		switch {
+		case c.Lease%time.Second != 0:
+			v.add("cluster.lease", "%v is not a whole number of seconds (the bus keeps per-key lifetimes in seconds)", c.Lease)
+		case c.Lease < 2*time.Second || c.Lease > time.Hour:
+			v.add("cluster.lease", "%v is outside 2s..1h", c.Lease)
+		}
+	}
+	if v.positive("cluster.snapshot_every", c.SnapshotEvery) && (c.SnapshotEvery < time.Second || c.SnapshotEvery > 24*time.Hour) {
+		v.add("cluster.snapshot_every", "%v is outside 1s..24h", c.SnapshotEvery)
 	}
 }
 
