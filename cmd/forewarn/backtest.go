@@ -170,7 +170,13 @@ func (r *btRequest) config(times []string, file string) (*btConfig, error) {
 // serves (the training sets are prefixes of one series), so the refits
 // behind the calibration are shared between neighbouring origins.
 func (c *btConfig) forecaster() backtest.Forecaster {
-	cache := map[int]*auto.Choice{}
+	return c.forecasterWith(map[int]*auto.Choice{})
+}
+
+// forecasterWith is forecaster with the choices kept in cache, which may
+// be shared by forecasters of the same series and model options (the
+// choice depends only on the training prefix).
+func (c *btConfig) forecasterWith(cache map[int]*auto.Choice) backtest.Forecaster {
 	choose := func(train []float64) (*auto.Choice, error) {
 		if ch := cache[len(train)]; ch != nil {
 			return ch, nil
