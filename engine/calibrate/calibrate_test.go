@@ -348,3 +348,31 @@ func BenchmarkObserve(b *testing.B) {
 		c.Issue(med, sd)
 	}
 }
+
+// TestIssueSkipsBadForecasts: a step whose median is not finite, or whose
+// sd is not positive and finite (or too small to invert in float32), is
+// not recorded and resolves nothing; a good step beside them does
+// (common practice: bad input is refused, not learnt from).
+func TestIssueSkipsBadForecasts(t *testing.T) {
+	inf, nan := math.Inf(1), math.NaN()
+	med := []float64{0, nan, inf, -inf, 0, 0, 0, 0, 0}
+	sd := []float64{1, 1, 1, 1, 0, -1, inf, nan, 1e-300}
+	H := len(med)
+	c, _ := New(Options{Horizon: H, Levels: []float64{50, 90}})
+	c.Issue(med, sd) // at bucket 0: step h targets bucket h
+	for k := 1; k <= H; k++ {
+		before := c.Updates()
+		c.Observe(100) // far outside every band that exists
+		got := c.Updates() - before
+		want := uint64(0)
+		if k == 1 {
+			want = 2 // the good step, both levels
+		}
+		if got != want {
+			t.Errorf("bucket %d (median %v, sd %v): %d updates, want %d", k, med[k-1], sd[k-1], got, want)
+		}
+	}
+	if c.Threshold(1, 0) <= c.zq[0] {
+		t.Errorf("the miss at h = 1 did not raise its threshold: %v", c.Threshold(1, 0))
+	}
+}
