@@ -170,7 +170,13 @@ func (r *btRequest) config(times []string, file string) (*btConfig, error) {
 // serves (the training sets are prefixes of one series), so the refits
 // behind the calibration are shared between neighbouring origins.
 func (c *btConfig) forecaster() backtest.Forecaster {
-	cache := map[int]*auto.Choice{}
+	return c.forecasterWith(map[int]*auto.Choice{})
+}
+
+// forecasterWith is forecaster with the choices kept in cache, which may
+// be shared by forecasters of the same series and model options (the
+// choice depends only on the training prefix).
+func (c *btConfig) forecasterWith(cache map[int]*auto.Choice) backtest.Forecaster {
 	choose := func(train []float64) (*auto.Choice, error) {
 		if ch := cache[len(train)]; ch != nil {
 			return ch, nil
@@ -233,24 +239,29 @@ func modelForecast(ch *auto.Choice, train []float64, h int) (mean, variance []fl
 	return mean, variance, nil
 }
 
-// calOrigins is the number of earlier origins whose out-of-sample errors
-// calibrate the bands of one backtest origin.
-const calOrigins = 12
+// calOrigins is the most earlier origins whose out-of-sample errors
+// calibrate the bands of one backtest origin. Learn takes each level's
+// band from the ⌈(n + 1)(1 − α)⌉-th smallest error, which is finite at
+// 95 % from n = 19 errors on; 48 origins give at least 37 errors per step
+// at horizons up to 12, and bound the refits per origin.
+const calOrigins = 48
 
 // originThresholds are the calibrated multipliers of se at the origin
 // len(train) (h × levels, step-major). They come from the errors of the
-// forecasts made at the earlier origins t = T − h − k, k = 0..calOrigins−1
-// (t ≥ T/2), each by the model chosen and fitted on train[:t] alone and
-// scored on train[t:t+h] on its own scale: every value they use lies
-// before the origin, and the refits carry the parameters' and the model
-// choice's uncertainty (empirical out-of-sample intervals, Williams &
-// Goodman 1971; calibrate.Learn).
+// forecasts made at the most recent earlier origins t = T − 1, T − 2, …
+// (at most calOrigins of them, t ≥ T/2), each by the model chosen and
+// fitted on train[:t] alone and scored on train[t:min(t+h, T)] on its own
+// scale: every value they use lies before the origin (an origin less
+// than h steps back scores its first steps only), and the refits carry
+// the parameters' and the model choice's uncertainty (empirical
+// out-of-sample intervals from rolling refits, Williams & Goodman 1971;
+// Lee & Scholtes 2014; calibrate.Learn).
 func originThresholds(choose func([]float64) (*auto.Choice, error), train []float64, h int, levels []float64) ([]float64, error) {
 	T := len(train)
 	errs := calibrate.NewErrors(h)
 	actual := make([]float64, h)
 	for k := 0; k < calOrigins; k++ {
-		t := T - h - k
+		t := T - 1 - k
 		if t < max(T/2, 2) {
 			break
 		}
@@ -262,10 +273,11 @@ func originThresholds(choose func([]float64) (*auto.Choice, error), train []floa
 		if err != nil {
 			continue
 		}
-		if err := ch.Transform.ForwardSlice(actual, train[t:t+h]); err != nil {
+		a := actual[:min(h, T-t)]
+		if err := ch.Transform.ForwardSlice(a, train[t:t+len(a)]); err != nil {
 			continue
 		}
-		errs.Add(mean, variance, actual)
+		errs.Add(mean, variance, a)
 	}
 	lv := slices.Clone(levels)
 	slices.Sort(lv)

@@ -1,15 +1,12 @@
 package main
 
 import (
-	"encoding/json"
 	"fmt"
 	"math"
-	"os"
-	"path/filepath"
-	"strconv"
 	"strings"
 	"testing"
 
+	"forewarn/engine/auto"
 	"forewarn/engine/backtest"
 )
 
@@ -87,56 +84,44 @@ func TestBacktestNoLookAhead(t *testing.T) {
 }
 
 // TestBacktestCalibratedCoverage measures the calibration on the panel of
-// TestBacktestAccuracy (R 4.2.2 `datasets`, 12 rolling origins) against R
+// TestBacktestAccuracy (R 4.2.2 `datasets`, thirteen series) against R
 // 4.2.2 forecast 8.20 `auto.arima` on the same origins
-// (testdata/backtest/coverage_panel.R → coverage_panel.json). Calibration
-// changes only the bands, so the MASE must be the same with and without it.
+// (testdata/backtest/coverage_panel.R → coverage_panel.json).
+//
+// Design: every origin T = ⌈n/2⌉, …, n − h, one step apart (panelOrigins).
+// Consecutive origins share most of their realised future, so a few of
+// them measure mostly noise: a perfectly calibrated forecaster gets a MACE
+// at 80 % of about 0.10 with the 12 last origins and about 0.05 with this
+// design (TestCoveragePanelNoiseFloor). The MACE is per series, as in the
+// script; the coverage per step ahead pooled over the series is logged
+// beside it. Calibration changes only the bands, so the MASE must be the
+// same with and without it.
 func TestBacktestCalibratedCoverage(t *testing.T) {
 	if testing.Short() {
-		t.Skip("fits some hundreds of models")
+		t.Skip("fits about two thousand models")
 	}
-	var ref struct {
-		Series []struct {
-			Name     string
-			Period   int
-			Horizon  int
-			Coverage map[string]float64
-		}
-		MACE map[string]float64 `json:"mace"`
-	}
-	raw, err := os.ReadFile(filepath.Join("..", "..", "testdata", "backtest", "coverage_panel.json"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := json.Unmarshal(raw, &ref); err != nil {
-		t.Fatal(err)
+	ref := readPanel(t)
+	if ref.Design == "" {
+		t.Skip("testdata/backtest/coverage_panel.json predates the design of every origin over the second half: rerun coverage_panel.R")
 	}
 	nominal := []float64{0.80, 0.95}
 	var macRaw, macCal, macR [2]float64
 	var table strings.Builder
-	fmt.Fprintf(&table, "\n%-15s %15s %15s %15s %8s\n", "series", "model 80/95", "calibrated", "R auto.arima", "MASE")
+	fmt.Fprintf(&table, "\n%-15s %4s %15s %15s %15s %8s\n", "series", "N", "model 80/95", "calibrated", "R auto.arima", "MASE")
 	for _, s := range ref.Series {
 		_, y, err := readSeriesCSV(datasetPath(s.Name), "")
 		if err != nil {
 			t.Fatal(err)
 		}
-		seasons := ""
-		if s.Period > 1 {
-			seasons = strconv.Itoa(s.Period)
+		N := panelOrigins(len(y), s.Horizon)
+		if s.Origins != N {
+			t.Fatalf("%s: the R reference has %d origins, the panel design %d", s.Name, s.Origins, N)
 		}
+		cache := map[int]*auto.Choice{} // the choice depends on the training prefix only
 		var rep [2]*backtest.Report
 		for i, cal := range []bool{false, true} {
-			f := backtestFlags{modelFlags: modelFlags{model: "auto", seasons: seasons, constant: "auto", transform: "auto",
-				levels: "80,95", horizon: s.Horizon}, origins: 12, every: 1, format: "table", calibrate: cal}
-			req, err := f.request()
-			if err != nil {
-				t.Fatal(err)
-			}
-			cfg, err := req.config(nil, s.Name)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if rep[i], err = backtest.Run(y, cfg.bt, cfg.forecaster(), nil); err != nil {
+			cfg := panelConfig(t, s, cal, N)
+			if rep[i], err = backtest.Run(y, cfg.bt, cfg.forecasterWith(cache), nil); err != nil {
 				t.Fatalf("%s: %v", s.Name, err)
 			}
 			if rep[i].Failed > 0 {
@@ -153,19 +138,20 @@ func TestBacktestCalibratedCoverage(t *testing.T) {
 			macCal[l] += math.Abs(rep[1].Coverage[l]-nominal[l]) / k
 			macR[l] += math.Abs(rc[l]-nominal[l]) / k
 		}
-		fmt.Fprintf(&table, "%-15s %7.3f %7.3f %7.3f %7.3f %7.3f %7.3f %8.4f\n", s.Name, rep[0].Coverage[0], rep[0].Coverage[1],
+		fmt.Fprintf(&table, "%-15s %4d %7.3f %7.3f %7.3f %7.3f %7.3f %7.3f %8.4f\n", s.Name, N, rep[0].Coverage[0], rep[0].Coverage[1],
 			rep[1].Coverage[0], rep[1].Coverage[1], rc[0], rc[1], rep[1].Model.MASE)
 	}
-	fmt.Fprintf(&table, "%-15s %7.3f %7.3f %7.3f %7.3f %7.3f %7.3f\n", "MACE", macRaw[0], macRaw[1], macCal[0], macCal[1], macR[0], macR[1])
+	fmt.Fprintf(&table, "%-15s %4s %7.3f %7.3f %7.3f %7.3f %7.3f %7.3f\n", "MACE", "", macRaw[0], macRaw[1], macCal[0], macCal[1], macR[0], macR[1])
 	t.Log(table.String())
 	for l, key := range []string{"80", "95"} {
-		// The issue's target (≤ 0.06 and under half of R's) is not met on
-		// this panel; what holds is that the calibrated bands beat R's.
-		if macCal[l] >= macR[l] {
-			t.Errorf("MACE at %s %%: calibrated %.4f, R auto.arima %.4f: want below R", key, macCal[l], macR[l])
-		}
 		if math.Abs(macR[l]-ref.MACE[key]) > 1e-9 {
 			t.Errorf("R's MACE at %s recomputed %.6f, the script says %.6f", key, macR[l], ref.MACE[key])
+		}
+		if macCal[l] > 0.06 {
+			t.Errorf("MACE at %s %%: calibrated %.4f, want ≤ 0.06 (issue 13)", key, macCal[l])
+		}
+		if macCal[l] >= macR[l]/2 {
+			t.Errorf("MACE at %s %%: calibrated %.4f, R auto.arima %.4f: want under half of R's (issue 13)", key, macCal[l], macR[l])
 		}
 	}
 }

@@ -165,39 +165,43 @@ func (c *Calibrator) Observe(y float64) {
 		c.covW[l] *= c.decay
 		c.covN[l] *= c.decay
 	}
-	ok := !math.IsNaN(y) && !math.IsInf(y, 0)
-	for h := 0; h < c.h; h++ {
-		k := c.cur[h] + 1
+	ok := y-y == 0 // finite
+	med, isd, off, cur := c.med, c.isd, c.off, c.cur[:len(c.off)]
+	miss, covW, covN := c.miss[:nl], c.covW[:nl], c.covN[:nl]
+	eta, bound := c.eta, c.bound
+	var resolved uint64
+	for h := range cur {
+		k := cur[h] + 1
 		if int(k) > h {
 			k = 0
 		}
-		c.cur[h] = k
-		i := c.off[h] + int(k)
-		m := c.med[i]
-		if math.IsNaN(m) {
+		cur[h] = k
+		i := off[h] + int(k)
+		m := med[i]
+		if m != m { // NaN: nothing pending
 			continue
 		}
-		c.med[i] = math.NaN()
+		med[i] = math.NaN()
 		if !ok {
 			continue
 		}
-		s := math.Abs(y-m) * float64(c.isd[i])
-		if !(s < c.bound) { // also +Inf and NaN
-			s = c.bound
+		s := math.Abs(y-m) * float64(isd[i])
+		if s > bound { // also +Inf
+			s = bound
 		}
 		q := c.q[h*nl : h*nl+nl]
-		miss, covW, covN := c.miss[:len(q)], c.covW[:len(q)], c.covN[:len(q)]
 		for l := range q {
-			var e float64 // err, without a branch the data would mispredict
+			e := 0.0
 			if s > q[l] {
 				e = 1
 			}
-			q[l] += c.eta * (e - miss[l])
+			q[l] += eta * (e - miss[l])
 			covW[l] += 1 - e
 			covN[l]++
 		}
-		c.updates += uint64(nl)
+		resolved++
 	}
+	c.updates += resolved * uint64(nl)
 }
 
 // Issue records the forecast issued at the bucket last passed to Observe:
@@ -209,19 +213,19 @@ func (c *Calibrator) Issue(median, sd []float64) {
 	if len(median) != c.h || len(sd) != c.h {
 		panic(fmt.Sprintf("calibrate: Issue: %d medians and %d sds, horizon %d", len(median), len(sd), c.h))
 	}
-	for h := 0; h < c.h; h++ {
-		i := c.off[h] + int(c.cur[h])
-		m, s := median[h], sd[h]
-		if math.IsNaN(m) || math.IsInf(m, 0) || !(s > 0) || math.IsInf(s, 0) {
-			c.med[i] = math.NaN()
-			continue
+	med, isd, off, cur := c.med, c.isd, c.off[:len(median)], c.cur[:len(median)]
+	sd = sd[:len(median)]
+	for h, m := range median {
+		i := off[h] + int(cur[h])
+		// One test for everything: m − m is 0 only for a finite m, and
+		// 1/sd in float32 is positive and finite only for a positive,
+		// finite sd that float32 can invert (NaN fails every comparison).
+		inv := float32(1 / sd[h])
+		if m-m == 0 && inv > 0 && inv <= math.MaxFloat32 {
+			med[i], isd[i] = m, inv
+		} else {
+			med[i] = math.NaN()
 		}
-		inv := float32(1 / s)
-		if inv == 0 || math.IsInf(float64(inv), 0) {
-			c.med[i] = math.NaN()
-			continue
-		}
-		c.med[i], c.isd[i] = m, inv
 	}
 }
 

@@ -26,10 +26,14 @@
 //
 // Empirical prediction intervals (Williams & Goodman 1971; Lee & Scholtes
 // 2014) take the band's spread from the errors of forecasts made on the
-// series' own past. Learn takes the |z| of such forecasts per horizon, sets
-// f_h = (n_h·√(Σz²/n_h) + n₀·f_{h−1})/(n_h + n₀) (f₀ = 1, n₀ = Prior), and
-// q_{h,l} = f_h·Φ⁻¹(1 − α_l/2). WarmStart collects the errors by running a
-// fitted model's filter once over a window and forecasting at up to N
+// series' own past. Learn takes the |z| of such forecasts per horizon and,
+// per level, the finite-sample conformal quantile, the ⌈(n_h+1)(1−α_l)⌉-th
+// smallest (Vovk, Gammerman & Shafer 2005; Angelopoulos & Bates 2021), or
+// the normal-shape scale √(Σz²/n_h)·Φ⁻¹(1 − α_l/2) when n_h is too small for
+// that rank; each factor is shrunk towards the previous horizon's with
+// weight n₀ = Prior (towards 1 at h = 1). WarmStart collects the errors
+// by running a fitted model's filter once over a window and forecasting at
+// up to N
 // evenly spaced origins; its parameters were fitted on that window, so its
 // errors leave out the parameters' uncertainty. Refitting at earlier
 // origins (as forewarn backtest does) includes it, at the cost of a fit per
@@ -61,8 +65,13 @@
 // The fixed state (AppendState) is 8 + 3L + H·L float64 values: 1 072 bytes
 // at H = 60 with two levels. The forecasts issued and not yet realised are
 // H(H+1)/2 (median, 1/sd) pairs, 12 bytes each in memory (21 960 bytes at
-// H = 60); AppendPending writes them as 16-byte pairs for a restart that
-// continues every update exactly. Observe costs O(H·L) and Issue O(H); they
+// H = 60); AppendPending writes them as 16-byte pairs (29 280 bytes) for a
+// restart that continues every update exactly. The record of a series
+// keeps the fixed state only: a restart without the pending forecasts
+// loses at most h updates of horizon h, which moves no threshold by more
+// than h·η·max(α, 1 − α), and on a seeded t(3) simulation changes the
+// coverage of the next 3000 buckets by under 0.001 (TestRestartWithoutPending).
+// Observe costs O(H·L) and Issue O(H); they
 // do not allocate.
 //
 // # Concurrency
@@ -76,6 +85,11 @@
 //     Journal of the American Statistical Association 66(336), 752–754.
 //   - Lee, Y. S. & Scholtes, S. (2014). Empirical prediction intervals
 //     revisited. International Journal of Forecasting 30(2), 217–234.
+//   - Vovk, V., Gammerman, A. & Shafer, G. (2005). Algorithmic Learning in
+//     a Random World. Springer (split conformal prediction).
+//   - Angelopoulos, A. N. & Bates, S. (2021). A gentle introduction to
+//     conformal prediction and distribution-free uncertainty
+//     quantification. arXiv:2107.07511, §1.1.
 //   - Gibbs, I. & Candès, E. (2021). Adaptive conformal inference under
 //     distribution shift. Advances in Neural Information Processing Systems
 //     34 (Proposition 1).

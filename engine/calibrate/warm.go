@@ -3,6 +3,7 @@ package calibrate
 import (
 	"fmt"
 	"math"
+	"slices"
 
 	"forewarn/engine/arima"
 )
@@ -40,14 +41,11 @@ type WarmInfo struct {
 //     ŷ_{t+h|t} and s_{t+h|t}.
 //  2. Each forecast with an observed target inside w gives z = (w_{t+h} −
 //     ŷ_{t+h|t})/s_{t+h|t}, kept per horizon: n_h values.
-//  3. Per horizon the empirical scale of the standardised errors,
-//     f̂_h = √(Σ z²/n_h) (a parametric empirical interval: the normal
-//     shape of the model's band with the spread its errors had), shrunk
-//     towards the previous horizon's with weight n₀:
-//     f_h = (n_h f̂_h + n₀ f_{h−1})/(n_h + n₀), f_0 = 1, and for every
-//     level q_{h,l} = f_h·Φ⁻¹(1 − α_l/2) (a horizon without errors takes
-//     its predecessor's factor). The online updates then fit each level's
-//     threshold to its own quantile.
+//  3. Learn: per horizon and level the finite-sample conformal quantile
+//     of the |z| (the normal-shape scale √(Σ z²/n_h) when n_h is too small
+//     for its rank), as a factor of Φ⁻¹(1 − α_l/2), shrunk towards the
+//     previous horizon's with weight n₀. The online updates then fit each
+//     level's threshold to its own quantile.
 //
 // The model's parameters were estimated on all of w, so these errors leave
 // out the parameters' own uncertainty; the online updates take it up.
@@ -158,10 +156,26 @@ func (e *Errors) Add(mean, variance, actual []float64) {
 	}
 }
 
-// Learn sets every threshold from the errors in e (step 3 of WarmStart):
-// per horizon the empirical scale f̂_h = √(mean z²), shrunk towards the
-// previous horizon's with weight prior (≥ 0), and q_{h,l} = f_h·Φ⁻¹(1 − α_l/2). It returns an error wrapping ErrWarm, and
-// changes nothing, when e holds no error at all or has another horizon.
+// Learn sets every threshold from the errors in e (step 3 of WarmStart).
+// Per horizon h with n_h errors and level l (miss rate α_l):
+//
+//   - when n_h is large enough for the level, ⌈(n_h + 1)(1 − α_l)⌉ ≤ n_h,
+//     the empirical factor is the finite-sample conformal quantile of the
+//     |z|, the ⌈(n_h + 1)(1 − α_l)⌉-th smallest (split conformal
+//     prediction, Vovk, Gammerman & Shafer 2005; Angelopoulos & Bates 2021,
+//     §1.1), divided by Φ⁻¹(1 − α_l/2): it takes each level's band from its
+//     own tail of the errors, whatever their shape, and the rank's n + 1
+//     widens it for few errors;
+//   - otherwise (too few errors for the rank: n_h < 19 at 95 %) it is the
+//     normal-shape scale √(mean z²) (a parametric empirical interval,
+//     Williams & Goodman 1971).
+//
+// Each factor is shrunk towards the previous horizon's at the same level
+// with weight prior (≥ 0): f_{h,l} = (n_h f̂_{h,l} + prior·f_{h−1,l})/(n_h +
+// prior), f_{0,l} = 1, and q_{h,l} = f_{h,l}·Φ⁻¹(1 − α_l/2); a horizon
+// without errors takes its predecessor's factors. It returns an error
+// wrapping ErrWarm, and changes nothing, when e holds no error at all or
+// has another horizon. It sorts each e.Z[h] in place.
 func (c *Calibrator) Learn(e *Errors, prior float64) error {
 	if len(e.Z) != c.h {
 		return fmt.Errorf("%w: errors for %d horizons, the calibrator has %d", ErrWarm, len(e.Z), c.h)
@@ -176,22 +190,30 @@ func (c *Calibrator) Learn(e *Errors, prior float64) error {
 	if total == 0 {
 		return fmt.Errorf("%w: no forecast error to learn from", ErrWarm)
 	}
-	prev := 1.0
+	prev := make([]float64, c.nl)
+	for l := range prev {
+		prev[l] = 1
+	}
 	for h := 0; h < c.h; h++ {
 		z := e.Z[h]
 		k := len(z)
-		fac := prev
 		if k > 0 {
+			slices.Sort(z)
 			ss := 0.0
 			for _, v := range z {
 				ss += v * v
 			}
-			emp := math.Sqrt(ss / float64(k))
-			fac = (float64(k)*emp + prior*prev) / (float64(k) + prior)
+			rms := math.Sqrt(ss / float64(k))
+			for l := 0; l < c.nl; l++ {
+				emp := rms
+				if r := int(math.Ceil(float64(k+1) * (1 - c.miss[l]))); r <= k {
+					emp = z[r-1] / c.zq[l]
+				}
+				prev[l] = (float64(k)*emp + prior*prev[l]) / (float64(k) + prior)
+			}
 		}
-		prev = fac
 		for l := 0; l < c.nl; l++ {
-			c.q[h*c.nl+l] = fac * c.zq[l]
+			c.q[h*c.nl+l] = prev[l] * c.zq[l]
 		}
 	}
 	return nil

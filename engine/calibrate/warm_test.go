@@ -67,3 +67,33 @@ func BenchmarkWarmStart(b *testing.B) {
 		}
 	}
 }
+
+// TestLearnConformalRank: with enough errors each level's threshold is the
+// finite-sample conformal quantile, the ⌈(n + 1)(1 − α)⌉-th smallest |z|
+// (Angelopoulos & Bates 2021, "A gentle introduction to conformal
+// prediction", §1.1); with too few for the rank it is the normal-shape
+// scale √(mean z²)·Φ⁻¹(1 − α/2). Without shrinkage (prior 0) both are
+// exact. n = 38 tells the rank apart from ⌈n(1 − α)⌉ at both levels.
+func TestLearnConformalRank(t *testing.T) {
+	c, _ := New(Options{Horizon: 2, Levels: []float64{80, 95}})
+	e := NewErrors(2)
+	for i := 38; i >= 1; i-- { // |z| = 0.1, …, 3.8 at h = 1, unsorted
+		e.Z[0] = append(e.Z[0], float64(i)/10)
+	}
+	e.Z[1] = []float64{3, 4} // n = 2 at h = 2: no finite rank at 80 % or 95 %
+	if err := c.Learn(e, 0); err != nil {
+		t.Fatal(err)
+	}
+	// ⌈39·0.8⌉ = 32 (⌈38·0.8⌉ = 31), ⌈39·0.95⌉ = 38 (⌈38·0.95⌉ = 37)
+	for l, want := range []float64{3.2, 3.8} {
+		if got := c.Threshold(1, l); math.Abs(got-want) > 1e-12 {
+			t.Errorf("h = 1, level %v: threshold %v, want %v (rank ⌈(n+1)(1−α)⌉)", c.levels[l], got, want)
+		}
+	}
+	rms := math.Sqrt((9 + 16) / 2.0)
+	for l := range c.levels {
+		if got, want := c.Threshold(2, l), math.Min(rms*c.zq[l], c.bound); math.Abs(got-want) > 1e-12 {
+			t.Errorf("h = 2, level %v: threshold %v, want √(mean z²)·z = %v", c.levels[l], got, want)
+		}
+	}
+}
