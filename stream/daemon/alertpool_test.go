@@ -100,7 +100,7 @@ func TestAlertsFromPoolMatchOneGoroutine(t *testing.T) {
 	var ps arima.PathSystem
 	events := 0
 	for i := range nSeries {
-		s, err := series.New(topic(i), settingsOf(sc))
+		s, err := series.New(topic(i), settingsOf(sc, ""))
 		if err != nil {
 			t.Fatal(err)
 		}
