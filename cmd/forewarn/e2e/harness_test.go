@@ -87,22 +87,43 @@ func readDataset(t *testing.T, name string) []float64 {
 }
 
 // freePort returns a loopback port that was free a moment ago.
+//
+// The port is free when this returns, not reserved: the caller binds it
+// later. So that two callers in this binary never get the same one (the
+// kernel may hand a just-closed port out again at once), every port given
+// out is remembered and never given again.
 func freePort(t *testing.T) int {
 	t.Helper()
-	ln, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
+	portsMu.Lock()
+	defer portsMu.Unlock()
+	for range 100 {
+		ln, err := net.Listen("tcp", "127.0.0.1:0")
+		if err != nil {
+			t.Fatal(err)
+		}
+		p := ln.Addr().(*net.TCPAddr).Port
+		ln.Close()
+		if !portsGiven[p] {
+			portsGiven[p] = true
+			return p
+		}
 	}
-	defer ln.Close()
-	return ln.Addr().(*net.TCPAddr).Port
+	t.Fatal("e2e: no port that was not given out before in 100 tries")
+	return 0
 }
 
-// startNATS runs an in-process NATS server with JetStream on a random port
+var (
+	portsMu    sync.Mutex
+	portsGiven = map[int]bool{}
+)
+
+// startNATS runs an in-process NATS server with JetStream on a port from
+// freePort
 // and returns its client URL.
 func startNATS(t *testing.T) string {
 	t.Helper()
 	s, err := server.NewServer(&server.Options{
-		Host: "127.0.0.1", Port: -1, NoLog: true, NoSigs: true,
+		Host: "127.0.0.1", Port: freePort(t), NoLog: true, NoSigs: true,
 		JetStream: true, StoreDir: t.TempDir(),
 	})
 	if err != nil {
@@ -161,10 +182,16 @@ func newDaemon(t *testing.T, mode busMode, configYAML string, extra ...string) *
 	}
 	data := filepath.Join(dir, "data")
 	d := &daemon{t: t, name: t.Name(), logPath: filepath.Join(dir, "daemon.log")}
+	// An external server binds its port before the HTTP port is chosen, so
+	// that the two cannot be the same.
+	var externalURL string
+	if mode == external {
+		externalURL = startNATS(t)
+	}
 	d.httpAddr = fmt.Sprintf("127.0.0.1:%d", freePort(t))
 	d.args = []string{"run", "--config", cfg, "--data", data, "--http", d.httpAddr}
 	if mode == external {
-		d.natsURL = startNATS(t)
+		d.natsURL = externalURL
 		d.args = append(d.args, "--nats", d.natsURL)
 	} else {
 		hp := fmt.Sprintf("127.0.0.1:%d", freePort(t))
