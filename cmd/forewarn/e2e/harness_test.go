@@ -118,8 +118,7 @@ var (
 )
 
 // startNATS runs an in-process NATS server with JetStream on a port from
-// freePort
-// and returns its client URL.
+// freePort and returns its client URL.
 func startNATS(t *testing.T) string {
 	t.Helper()
 	s, err := server.NewServer(&server.Options{
