@@ -86,7 +86,7 @@
 // O(k·(r + nnz(φ) + nnz(θ) + nnz(δ))) rather than O(k²) (Durbin & Koopman
 // 2012, §4.9, §11.3). Each noise path e is used twice, W = m ± e
 // (antithetic variates), with the control variate B of step 4
-// (Glasserman 2004, §4.1–4.2). After every Batch = 256 paths a
+// (Glasserman 2004, §4.1–4.2). After every Batch = 32 paths a
 // time-uniform confidence sequence for p (the normal-mixture boundary of
 // Robbins 1970 with an estimated variance, Waudby-Smith et al. 2024),
 // intersected with the bracket, is compared with the rule's levels; the

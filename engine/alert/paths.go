@@ -95,7 +95,7 @@ type Estimate struct {
 const (
 	// Batch is the number of paths (antithetic pairs counted twice) drawn
 	// between two checks of the stopping rule.
-	Batch = 64
+	Batch = 32
 	// DecisionError is α of the confidence sequence: the probability that
 	// the stopping rule ever excludes the true p, over all its checks.
 	DecisionError = 0.01
