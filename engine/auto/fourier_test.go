@@ -1,7 +1,9 @@
 package auto
 
 import (
+	"errors"
 	"math"
+	"strings"
 	"testing"
 
 	"forewarn/engine/arima"
@@ -93,5 +95,137 @@ func TestSeasonsChoiceMinute(t *testing.T) {
 	}
 	if math.Abs(ll-c.Result.LogLik) > 1e-6*math.Abs(ll) {
 		t.Errorf("log-likelihood from the generator %.6f, fit %.6f", ll, c.Result.LogLik)
+	}
+}
+
+// TestPoolMatchesFourier: the columns the search selects for a K vector
+// are those of arima.NewFourier for the same cycles and K, in the same
+// order, including the pruning of a weekly harmonic that repeats a daily
+// one and of the all-zero Nyquist sine (half-hourly data: 48 and 336
+// steps; the column rules are R forecast 8.20 fourier()'s, checked against
+// R in engine/arima's xreg tests).
+func TestPoolMatchesFourier(t *testing.T) {
+	o := Options{Seasons: []float64{day, week}, Step: 1800, Start: 1800, MaxARIMAPeriod: -1}
+	if err := o.normalise(); err != nil {
+		t.Fatal(err)
+	}
+	cs, err := o.splitCycles()
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := newPool(&o, cs)
+	const n = 700
+	X := p.columns(n)
+	for _, K := range [][]int{{10, 10}, {1, 7}, {0, 10}, {3, 0}, {10, 1}} {
+		sel := p.selected(K)
+		gen, err := arima.NewFourier(p.cycles(K), o.Step)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if gen.NumRegressors() != len(sel) {
+			t.Fatalf("K %v: %d columns selected, NewFourier makes %d (%v)", K, len(sel), gen.NumRegressors(), gen.Names())
+		}
+		G := gen.Matrix(o.Start, o.Step, n)
+		for j, col := range sel {
+			for i := 0; i < n; i++ {
+				if math.Abs(X[col][i]-G[j][i]) > 1e-9 {
+					t.Fatalf("K %v: column %d (%s) row %d: %v, NewFourier %v", K, j, gen.Names()[j], i, X[col][i], G[j][i])
+				}
+			}
+		}
+	}
+}
+
+// TestSplitCycles: the first whole cycle of at most MaxARIMAPeriod steps
+// gets seasonal ARIMA terms, the others Fourier terms with K ≤ min(MaxK,
+// ⌊m/2⌋) (FPP3 §10.5, §12.1); a cycle that is not a whole number of steps
+// always gets Fourier terms.
+func TestSplitCycles(t *testing.T) {
+	for _, tc := range []struct {
+		seasons []float64
+		step    float64
+		arima   int
+		kmax    []int
+	}{
+		{[]float64{day, week}, 1800, 48, []int{10}},
+		{[]float64{day, week}, 60, 0, []int{10, 10}},
+		{[]float64{16.5 * 60, day}, 60, 0, []int{8, 10}},
+		{[]float64{7}, 0, 7, nil},
+		{[]float64{5.5, 7}, 0, 7, []int{2}},
+	} {
+		o := Options{Seasons: tc.seasons, Step: tc.step}
+		if err := o.normalise(); err != nil {
+			t.Fatal(err)
+		}
+		cs, err := o.splitCycles()
+		if err != nil {
+			t.Fatal(err)
+		}
+		if cs.period != tc.arima || len(cs.kmax) != len(tc.kmax) {
+			t.Errorf("%v step %v: ARIMA period %d, K max %v; want %d, %v", tc.seasons, tc.step, cs.period, cs.kmax, tc.arima, tc.kmax)
+			continue
+		}
+		for i := range cs.kmax {
+			if cs.kmax[i] != tc.kmax[i] {
+				t.Errorf("%v: K max %v, want %v", tc.seasons, cs.kmax, tc.kmax)
+			}
+		}
+	}
+}
+
+// TestSeasonsBadOptions: a cycle shorter than two steps, and cycles a
+// fixed model cannot use, are clear errors (issue 12, bad input).
+func TestSeasonsBadOptions(t *testing.T) {
+	y := minuteSeries(t, 300, 0)
+	for _, tc := range []struct {
+		o    Options
+		want string
+	}{
+		{Options{Seasons: []float64{90}, Step: 60}, "at least 2"},
+		{Options{Seasons: []float64{-5}, Step: 60}, "positive"},
+		{Options{Seasons: []float64{day}, Step: 60, Model: "1,0,1"}, "no seasonal orders"},
+		{Options{Seasons: []float64{600, 1200}, Step: 60, Model: "0,1,1 x 0,1,1"}, "uses one cycle"},
+		{Options{Seasons: []float64{630}, Step: 60, Model: "0,1,1 x 0,1,1"}, "whole number of steps"},
+	} {
+		_, err := Select(y, tc.o)
+		if err == nil || !errors.Is(err, ErrBadOptions) || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("%+v: error %v, want ErrBadOptions naming %q", tc.o.Seasons, err, tc.want)
+		}
+	}
+}
+
+// TestSeasonsWarm: a warm refit on 60 more minutes keeps the transform,
+// the differencing and each cycle's K, records them, and tries at most the
+// ±1 neighbours of p and q (package doc, "Several cycles").
+func TestSeasonsWarm(t *testing.T) {
+	if testing.Short() {
+		t.Skip("a 20 160-point search")
+	}
+	const t0 = 1.7e9
+	y := minuteSeries(t, 20160, t0)
+	o := Options{Seasons: []float64{day, week}, Step: 60, Start: t0 + 60*60, Transform: "none"}
+	c, err := Select(y[60:], o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := &Warm{Spec: c.Spec, Params: c.Result.Model.Params(), Transform: c.Transform, Seasons: c.Seasons}
+	o.Start, o.Warm = t0, w
+	c2, err := Select(y, o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range c.Seasons {
+		if c2.Seasons[i] != c.Seasons[i] {
+			t.Errorf("cycle %d: warm %+v, cold %+v", i, c2.Seasons[i], c.Seasons[i])
+		}
+	}
+	if c2.Spec.D != c.Spec.D || c2.Spec.NX != c.Spec.NX || c2.Transform.String() != c.Transform.String() {
+		t.Errorf("warm %s %s, cold %s %s", c2.Spec.Label(), c2.Transform, c.Spec.Label(), c.Transform)
+	}
+	if len(c2.Tried) > 7 {
+		t.Errorf("warm refit tried %d fits, want at most 7", len(c2.Tried))
+	}
+	if math.Abs(c2.Result.Model.Beta[0]-c.Result.Model.Beta[0]) > 0.5 {
+		t.Errorf("first coefficient moved from %.3f to %.3f: the phase did not follow the data time", c.Result.Model.Beta[0], c2.Result.Model.Beta[0])
 	}
 }

@@ -106,7 +106,11 @@ func (s *selector) seasonsX(cs cycleSetup) (*Choice, error) {
 			bestC, bestA = c, a
 		}
 	}
-	return s.finalX(bestC, cs, pool, X, K, best.spec, best.res.Model.Params(), cons)
+	cm := consNone
+	if cons {
+		cm = consBoth
+	}
+	return s.finalX(bestC, cs, pool, X, K, best.spec, best.res.Model.Params(), cm)
 }
 
 // residualSelector is a selector for the order search on the concentrated
@@ -121,8 +125,8 @@ func (s *selector) residualSelector(e []float64) *selector {
 
 // finalX fits the chosen orders (of the differenced residuals: d = D = 0
 // in arma) with the regression on the Fourier columns of K by FitX on c's
-// scale; with cons the constant is tried on and off.
-func (s *selector) finalX(c *scaled, cs cycleSetup, pool *fourierPool, X [][]float64, K []int, arma arima.Spec, start []float64, cons bool) (*Choice, error) {
+// scale, with the constant as cons says.
+func (s *selector) finalX(c *scaled, cs cycleSetup, pool *fourierPool, X [][]float64, K []int, arma arima.Spec, start []float64, cons int) (*Choice, error) {
 	sel := pool.selected(K)
 	Xs := make([][]float64, len(sel))
 	for j, col := range sel {
@@ -133,7 +137,7 @@ func (s *selector) finalX(c *scaled, cs cycleSetup, pool *fourierPool, X [][]flo
 		spec.Period = s.period
 	}
 	specs := []arima.Spec{spec}
-	if cons {
+	if cons != consNone {
 		sc := spec
 		switch s.d + s.sd {
 		case 0:
@@ -142,6 +146,9 @@ func (s *selector) finalX(c *scaled, cs cycleSetup, pool *fourierPool, X [][]flo
 			sc.Drift = true
 		}
 		specs = append([]arima.Spec{sc}, specs...)
+		if cons == consOn {
+			specs = specs[:1]
+		}
 	}
 	var best *fitted
 	for _, sp := range specs {
@@ -253,16 +260,17 @@ func (s *selector) warmX(cs cycleSetup, pool *fourierPool, X [][]float64) (*Choi
 	if start == nil {
 		start = best.res.Model.Params()
 	}
-	// keep the previous constant choice
-	sp := best.spec
-	ch, err := s.finalXConst(c, cs, pool, X, K, sp, start, spec.Mean, spec.Drift)
-	return ch, err
+	// the previous constant choice is kept
+	cm := consNone
+	if cons {
+		cm = consOn
+	}
+	return s.finalX(c, cs, pool, X, K, best.spec, start, cm)
 }
 
-// finalXConst is finalX with the constant fixed as before.
-func (s *selector) finalXConst(c *scaled, cs cycleSetup, pool *fourierPool, X [][]float64, K []int, arma arima.Spec, start []float64, mean, drift bool) (*Choice, error) {
-	if !mean && !drift {
-		return s.finalX(c, cs, pool, X, K, arma, start, false)
-	}
-	return s.finalX(c, cs, pool, X, K, arma, start, true)
-}
+// The constant of finalX: none, on, or both tried.
+const (
+	consNone = iota
+	consOn
+	consBoth
+)
