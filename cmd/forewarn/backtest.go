@@ -6,6 +6,7 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"strconv"
 	"strings"
@@ -13,7 +14,6 @@ import (
 
 	"golang.org/x/term"
 
-	"forewarn/engine/arima"
 	"forewarn/engine/auto"
 	"forewarn/engine/backtest"
 )
@@ -135,6 +135,9 @@ type btConfig struct {
 // config resolves the seasonal cycle against the file's times and builds
 // the options of the backtest and of the model choice at each origin.
 func (r *btRequest) config(times []string, file string) (*btConfig, error) {
+	if !r.fixed() && len(r.cycles) > 0 {
+		return r.configSeasons(times, file)
+	}
 	period, err := r.period(times, file)
 	if err != nil {
 		return nil, err
@@ -177,7 +180,7 @@ func (c *btConfig) choose(train []float64) (*auto.Choice, error) {
 // steps in raw units (toRawUnits: the bias-adjusted mean, the bands mapped
 // through the monotone inverse, NaN for an unbounded end).
 func originForecast(ch *auto.Choice, train []float64, h int, levels []float64) (backtest.Forecast, error) {
-	flt, err := arima.NewFilter(ch.Result.Model, h)
+	flt, err := choiceFilter(ch, h)
 	if err != nil {
 		return backtest.Forecast{}, err
 	}
@@ -256,4 +259,27 @@ func writeBacktestTable(w io.Writer, r *backtest.Report, c *btConfig) {
 	for i, l := range r.Levels {
 		fmt.Fprintf(w, "%s%% band held the actual value %.1f%% of the time\n", levelKey(l), 100*r.Coverage[i])
 	}
+}
+
+// configSeasons is config for the automatic choice with cycles given
+// (several, or not whole numbers of steps): each origin chooses the terms
+// per cycle (engine/auto); MASE is scaled at the shortest cycle, rounded
+// to whole steps.
+func (r *btRequest) configSeasons(times []string, file string) (*btConfig, error) {
+	seasons, step, start, err := r.seasonsOptions(times, file, math.MaxInt)
+	if err != nil {
+		return nil, err
+	}
+	short := math.Inf(1)
+	for _, L := range seasons {
+		short = math.Min(short, L/step)
+	}
+	period := int(math.Round(short))
+	return &btConfig{
+		bt: backtest.Options{Horizon: r.horizon, Origins: r.origins, Every: r.every, Period: period, Levels: r.levels},
+		sel: auto.Options{Seasons: seasons, Step: step, Start: start, Transform: r.transform, Model: r.model,
+			Constant: r.constant},
+		period: period,
+		label:  "automatic choice",
+	}, nil
 }

@@ -79,6 +79,9 @@ type Choice struct {
 	// nil when no cycle has Fourier terms. Cycles lists its cycles and K.
 	Fourier *arima.Fourier
 	Cycles  []arima.Cycle
+	// Start and Step are Options.Start and Options.Step (normalised): the
+	// data time of y[0] and the spacing, for arima.NewFilterX.
+	Start, Step float64
 }
 
 // Default order bounds (Hyndman & Khandakar 2008, §3.2).

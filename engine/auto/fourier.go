@@ -48,9 +48,13 @@ type cycleSetup struct {
 	steps    []float64
 }
 
-// splitCycles decides which cycle may carry seasonal ARIMA terms: the first
-// whole cycle of 2…MaxARIMAPeriod steps; every other cycle gets Fourier
-// terms with K ≤ min(MaxK, ⌊m/2⌋) (FPP3 §10.5).
+// splitCycles decides which cycle may carry seasonal ARIMA terms: a single
+// cycle of a whole number of steps, 2…MaxARIMAPeriod (today's path). With
+// several cycles, or a cycle that is not whole or longer, every cycle gets
+// Fourier terms with K ≤ min(MaxK, ⌊m/2⌋): dynamic harmonic regression,
+// the published route for multiple seasonality (FPP3 §12.1; §10.5 for the
+// bound on K). A seasonal ARIMA search at the shorter cycle of two (period
+// 48 with a weekly cycle of half-hourly data) took over ten minutes here.
 func (o *Options) splitCycles() (cycleSetup, error) {
 	cs := cycleSetup{arimaIdx: -1}
 	for i, L := range o.Seasons {
@@ -63,7 +67,7 @@ func (o *Options) splitCycles() (cycleSetup, error) {
 		}
 		cs.steps = append(cs.steps, m)
 		whole := math.Abs(m-math.Round(m)) <= 1e-9*m
-		if cs.arimaIdx < 0 && whole && int(math.Round(m)) <= o.MaxARIMAPeriod {
+		if len(o.Seasons) == 1 && whole && int(math.Round(m)) <= o.MaxARIMAPeriod {
 			cs.arimaIdx, cs.period = i, int(math.Round(m))
 			continue
 		}

@@ -136,10 +136,10 @@ func TestPoolMatchesFourier(t *testing.T) {
 	}
 }
 
-// TestSplitCycles: the first whole cycle of at most MaxARIMAPeriod steps
-// gets seasonal ARIMA terms, the others Fourier terms with K ≤ min(MaxK,
-// ⌊m/2⌋) (FPP3 §10.5, §12.1); a cycle that is not a whole number of steps
-// always gets Fourier terms.
+// TestSplitCycles: a single whole cycle of at most MaxARIMAPeriod steps
+// gets seasonal ARIMA terms; with several cycles every cycle gets Fourier
+// terms with K ≤ min(MaxK, ⌊m/2⌋) (FPP3 §10.5, §12.1), as does a cycle
+// that is not a whole number of steps or is longer.
 func TestSplitCycles(t *testing.T) {
 	for _, tc := range []struct {
 		seasons []float64
@@ -147,11 +147,12 @@ func TestSplitCycles(t *testing.T) {
 		arima   int
 		kmax    []int
 	}{
-		{[]float64{day, week}, 1800, 48, []int{10}},
+		{[]float64{day, week}, 1800, 0, []int{10, 10}},
 		{[]float64{day, week}, 60, 0, []int{10, 10}},
 		{[]float64{16.5 * 60, day}, 60, 0, []int{8, 10}},
 		{[]float64{7}, 0, 7, nil},
-		{[]float64{5.5, 7}, 0, 7, []int{2}},
+		{[]float64{5.5, 7}, 0, 0, []int{2, 3}},
+		{[]float64{400}, 0, 0, []int{10}},
 	} {
 		o := Options{Seasons: tc.seasons, Step: tc.step}
 		if err := o.normalise(); err != nil {

@@ -186,6 +186,7 @@ func (s *selector) finalX(c *scaled, cs cycleSetup, pool *fourierPool, X [][]flo
 	}
 	ch.Seasons = s.seasonChoices(cs, ch.Spec, K)
 	ch.Cycles = pool.cycles(K)
+	ch.Start, ch.Step = s.o.Start, s.o.Step
 	if len(ch.Cycles) > 0 {
 		gen, err := arima.NewFourier(ch.Cycles, s.o.Step)
 		if err != nil {
