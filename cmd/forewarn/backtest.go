@@ -68,7 +68,7 @@ func runBacktest(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "forewarn backtest: %v\n", err)
 		return exitUsage
 	}
-	cfg, err := req.config(times, path)
+	cfg, err := req.config(times, path, len(y))
 	if err != nil {
 		fmt.Fprintf(stderr, "forewarn backtest: %v\n", err)
 		return exitUsage
@@ -134,9 +134,9 @@ type btConfig struct {
 
 // config resolves the seasonal cycle against the file's times and builds
 // the options of the backtest and of the model choice at each origin.
-func (r *btRequest) config(times []string, file string) (*btConfig, error) {
+func (r *btRequest) config(times []string, file string, n int) (*btConfig, error) {
 	if !r.fixed() && len(r.cycles) > 0 {
-		return r.configSeasons(times, file)
+		return r.configSeasons(times, file, n)
 	}
 	period, err := r.period(times, file)
 	if err != nil {
@@ -265,8 +265,8 @@ func writeBacktestTable(w io.Writer, r *backtest.Report, c *btConfig) {
 // (several, or not whole numbers of steps): each origin chooses the terms
 // per cycle (engine/auto); MASE is scaled at the shortest cycle, rounded
 // to whole steps.
-func (r *btRequest) configSeasons(times []string, file string) (*btConfig, error) {
-	seasons, step, start, err := r.seasonsOptions(times, file, math.MaxInt)
+func (r *btRequest) configSeasons(times []string, file string, n int) (*btConfig, error) {
+	seasons, step, start, err := r.seasonsOptions(times, file, n)
 	if err != nil {
 		return nil, err
 	}

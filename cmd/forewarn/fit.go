@@ -33,9 +33,13 @@ forecasts it.
 flags (before or after FILE):
   --model M            auto (the default: orders chosen by a stepwise AICc
                        search), "p,d,q" or "p,d,q x P,D,Q" (fixed orders)
-  --seasons LIST       the seasonal cycle: a duration such as 1d or 12h,
-                       which needs a time column or --step, or a whole number
-                       of steps such as 12. One cycle in this release
+  --seasons LIST       seasonal cycles: durations such as 1d,7d (which need a
+                       time column or --step; they need not be whole numbers
+                       of steps) or whole numbers of steps such as 12. With
+                       --model auto a single short whole cycle gets seasonal
+                       ARIMA terms, otherwise each cycle gets K sin/cos pairs
+                       (K chosen by AICc, up to 10) or none. A fixed
+                       seasonal model uses one whole cycle
   --step DURATION      the spacing of the rows (instead of the time column)
   --constant C         auto (a mean when d+D = 0, else none; the search tries
                        both), none, mean (needs d+D = 0) or drift (d+D = 1)
