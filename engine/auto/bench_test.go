@@ -3,6 +3,8 @@ package auto
 import (
 	"math"
 	"testing"
+
+	"forewarn/engine/internal/refdata"
 )
 
 // hourly24 is a deterministic hourly series of 2000 points with a daily
@@ -97,4 +99,19 @@ func BenchmarkWarmMinuteDailyWeekly(b *testing.B) {
 		fits = len(c.Tried)
 	}
 	b.ReportMetric(float64(fits), "fits/op")
+}
+
+// BenchmarkSelectTaylor is a cold automatic choice on the first 3 984
+// values of taylor with cycles 48 and 336 (Fourier terms for both): the
+// fit R forecast 8.20's dynamic harmonic regression makes at the last
+// origin of testdata/r/taylor_accuracy.R, whose seconds per fit that JSON
+// records (issue 12 asks for at least 50× R).
+func BenchmarkSelectTaylor(b *testing.B) {
+	x := refdata.Dataset(b, "taylor")[:3984]
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := Select(x, Options{Seasons: []float64{48, 336}, Start: 1}); err != nil {
+			b.Fatal(err)
+		}
+	}
 }
