@@ -6,6 +6,7 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"slices"
 	"strconv"
@@ -14,7 +15,6 @@ import (
 
 	"golang.org/x/term"
 
-	"forewarn/engine/arima"
 	"forewarn/engine/auto"
 	"forewarn/engine/backtest"
 	"forewarn/engine/calibrate"
@@ -72,7 +72,7 @@ func runBacktest(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "forewarn backtest: %v\n", err)
 		return exitUsage
 	}
-	cfg, err := req.config(times, path)
+	cfg, err := req.config(times, path, len(y))
 	if err != nil {
 		fmt.Fprintf(stderr, "forewarn backtest: %v\n", err)
 		return exitUsage
@@ -142,7 +142,10 @@ type btConfig struct {
 
 // config resolves the seasonal cycle against the file's times and builds
 // the options of the backtest and of the model choice at each origin.
-func (r *btRequest) config(times []string, file string) (*btConfig, error) {
+func (r *btRequest) config(times []string, file string, n int) (*btConfig, error) {
+	if !r.fixed() && len(r.cycles) > 0 {
+		return r.configSeasons(times, file, n)
+	}
 	period, err := r.period(times, file)
 	if err != nil {
 		return nil, err
@@ -225,7 +228,7 @@ func originForecast(ch *auto.Choice, train []float64, h int, levels, thr []float
 // modelForecast is the h-step forecast on the model's scale after
 // filtering train with the chosen model.
 func modelForecast(ch *auto.Choice, train []float64, h int) (mean, variance []float64, err error) {
-	flt, err := arima.NewFilter(ch.Result.Model, h)
+	flt, err := choiceFilter(ch, h)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -362,4 +365,27 @@ func writeBacktestTable(w io.Writer, r *backtest.Report, c *btConfig) {
 	for i, l := range r.Levels {
 		fmt.Fprintf(w, "%s%% band held the actual value %.1f%% of the time\n", levelKey(l), 100*r.Coverage[i])
 	}
+}
+
+// configSeasons is config for the automatic choice with cycles given
+// (several, or not whole numbers of steps): each origin chooses the terms
+// per cycle (engine/auto); MASE is scaled at the shortest cycle, rounded
+// to whole steps.
+func (r *btRequest) configSeasons(times []string, file string, n int) (*btConfig, error) {
+	seasons, step, start, err := r.seasonsOptions(times, file, n)
+	if err != nil {
+		return nil, err
+	}
+	short := math.Inf(1)
+	for _, L := range seasons {
+		short = math.Min(short, L/step)
+	}
+	period := int(math.Round(short))
+	return &btConfig{
+		bt: backtest.Options{Horizon: r.horizon, Origins: r.origins, Every: r.every, Period: period, Levels: r.levels},
+		sel: auto.Options{Seasons: seasons, Step: step, Start: start, Transform: r.transform, Model: r.model,
+			Constant: r.constant},
+		period: period,
+		label:  "automatic choice",
+	}, nil
 }

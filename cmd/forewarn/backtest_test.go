@@ -63,7 +63,7 @@ func TestBacktestAccuracy(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		cfg, err := req.config(nil, c.name)
+		cfg, err := req.config(nil, c.name, len(y))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -212,7 +212,7 @@ func TestBacktestCommandErrors(t *testing.T) {
 		{[]string{"--model", "0,1,1 x 0,1,1", datasetPath("Nile")}, exitUsage, "--seasons"},
 		{[]string{"--every", "0", datasetPath("Nile")}, exitUsage, "--every"},
 		{[]string{"--every", "30", "--origins", "5", datasetPath("Nile")}, exitUsage, "too short"},
-		{[]string{"--seasons", "1d", datasetPath("Nile")}, exitUsage, "1d is 86400 steps, more than 1000"},
+		{[]string{"--seasons", "1d", datasetPath("Nile")}, exitUsage, "--seasons 1d is 86400 steps, longer than the 100 rows"},
 		{[]string{"--origins", "200", datasetPath("Nile")}, exitUsage, "too short"},
 		{[]string{filepath.Join(t.TempDir(), "absent.csv")}, exitUsage, "absent.csv"},
 	}

@@ -26,7 +26,7 @@ func TestBacktestNoLookAhead(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	cfg, err := req.config(nil, "Nile")
+	cfg, err := req.config(nil, "Nile", len(y))
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -33,9 +33,13 @@ forecasts it.
 flags (before or after FILE):
   --model M            auto (the default: orders chosen by a stepwise AICc
                        search), "p,d,q" or "p,d,q x P,D,Q" (fixed orders)
-  --seasons LIST       the seasonal cycle: a duration such as 1d or 12h,
-                       which needs a time column or --step, or a whole number
-                       of steps such as 12. One cycle in this release
+  --seasons LIST       seasonal cycles: durations such as 1d,7d (which need a
+                       time column or --step; they need not be whole numbers
+                       of steps) or whole numbers of steps such as 12. With
+                       --model auto a single short whole cycle gets seasonal
+                       ARIMA terms, otherwise each cycle gets K sin/cos pairs
+                       (K chosen by AICc, up to 10) or none. A fixed
+                       seasonal model uses one whole cycle
   --step DURATION      the spacing of the rows (instead of the time column)
   --constant C         auto (a mean when d+D = 0, else none; the search tries
                        both), none, mean (needs d+D = 0) or drift (d+D = 1)
@@ -301,10 +305,64 @@ type fitModel struct {
 	Transform     string      `json:"transform"`
 }
 
-// fitSeason is one seasonal cycle of the model and the terms that carry it.
+// fitSeason is one seasonal cycle of the model and the terms that carry
+// it: "arima" (the seasonal orders), "fourier" (Pairs sin/cos pairs,
+// harmonics 1…Pairs) or "none" (the automatic choice found the cycle not
+// worth any terms). Steps need not be whole.
 type fitSeason struct {
-	Steps int    `json:"steps"`
-	Terms string `json:"terms"` // "arima": the seasonal orders
+	Steps float64 `json:"steps"`
+	Terms string  `json:"terms"`
+	Pairs int     `json:"pairs,omitempty"`
+}
+
+// choiceFilter is the online filter of a choice: with Fourier terms it
+// computes them from the data time of each row (Choice.Start, Step).
+func choiceFilter(ch *auto.Choice, h int) (*arima.Filter, error) {
+	if ch.Fourier != nil {
+		return arima.NewFilterX(ch.Result.Model, h, ch.Fourier, ch.Start, ch.Step)
+	}
+	return arima.NewFilter(ch.Result.Model, h)
+}
+
+// seasonsOf lists the choice per cycle for the JSON model.
+func seasonsOf(ch *auto.Choice) []fitSeason {
+	out := []fitSeason{}
+	for _, c := range ch.Seasons {
+		fs := fitSeason{Steps: c.Steps, Terms: c.Terms}
+		if c.Terms == auto.TermsFourier {
+			fs.Pairs = c.K
+		}
+		out = append(out, fs)
+	}
+	return out
+}
+
+// regressionNames names the Fourier columns as R forecast's fourier()
+// does, with the cycle in steps: "S<k>-<m>" and "C<k>-<m>", the sine and
+// cosine of harmonic k of the cycle of m steps.
+func regressionNames(ch *auto.Choice) []string {
+	if ch.Fourier == nil {
+		return nil
+	}
+	names := ch.Fourier.Names()
+	for i, nm := range names {
+		if j := strings.LastIndexByte(nm, '-'); j > 0 {
+			if L, err := strconv.ParseFloat(nm[j+1:], 64); err == nil && ch.Step > 0 {
+				names[i] = nm[:j+1] + strconv.FormatFloat(L/ch.Step, 'g', 6, 64)
+			}
+		}
+	}
+	return names
+}
+
+func regressionTerms(names []string, v []float64) []fitRegression {
+	out := []fitRegression{}
+	for i, nm := range names {
+		if i < len(v) {
+			out = append(out, fitRegression{Name: nm, Value: jsonFloat(v[i])})
+		}
+	}
+	return out
 }
 
 // fitTerms holds one number per estimated term: the estimates, or their
@@ -319,7 +377,7 @@ type fitTerms struct {
 	Regression    []fitRegression `json:"regression"`
 }
 
-// fitRegression is one other estimated term (none are estimated yet).
+// fitRegression is one other estimated term: a Fourier coefficient.
 type fitRegression struct {
 	Name  string    `json:"name"`
 	Value jsonFloat `json:"value"`
@@ -360,19 +418,31 @@ func fitFile(req fitRequest) (*fitOutput, error) {
 	if err != nil {
 		return nil, usageError{err}
 	}
-	period, err := req.period(times, req.file)
-	if err != nil {
-		return nil, err
-	}
-	ch, err := fitChoice(raw, period, req)
-	if err != nil {
-		return nil, err
+	var ch *auto.Choice
+	if req.fixed() || len(req.cycles) == 0 {
+		period, err := req.period(times, req.file)
+		if err != nil {
+			return nil, err
+		}
+		if ch, err = fitChoice(raw, period, req); err != nil {
+			return nil, err
+		}
+	} else {
+		seasons, step, start, err := req.seasonsOptions(times, req.file, len(raw))
+		if err != nil {
+			return nil, err
+		}
+		ch, err = selectModel(raw, req, auto.Options{Seasons: seasons, Step: step, Start: start,
+			Transform: req.transform, Model: req.model, Constant: req.constant})
+		if err != nil {
+			return nil, err
+		}
 	}
 	w, err := forwardSeries(ch.Transform, raw, req.file)
 	if err != nil {
 		return nil, err
 	}
-	f, err := arima.NewFilter(ch.Result.Model, req.horizon)
+	f, err := choiceFilter(ch, req.horizon)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", req.file, err)
 	}
@@ -381,6 +451,15 @@ func fitFile(req fitRequest) (*fitOutput, error) {
 	variance := make([]float64, req.horizon)
 	f.Forecast(mean, variance)
 	out := buildFitOutput(ch.Result, ch.Transform, mean, variance, req.levels)
+	if ch.Seasons != nil {
+		out.Model.Seasons = seasonsOf(ch)
+		names := regressionNames(ch)
+		out.Estimates.Regression = regressionTerms(names, ch.Result.Model.Beta)
+		se := ch.Result.StdErr
+		if nx := ch.Spec.NX; len(se) >= nx {
+			out.StdErrors.Regression = regressionTerms(names, se[len(se)-nx:])
+		}
+	}
 	for _, c := range ch.Tried {
 		fc := fitCandidate{Label: c.Spec.Label(), Orders: c.Spec.Orders(), Constant: c.Spec.ConstantName(),
 			Transform: c.Transform, AICc: jsonFloat(c.AICc), Status: "fitted", Reason: c.Err}
@@ -463,7 +542,7 @@ func buildFitOutput(res *arima.Result, tr transform.Transform, mean, variance, l
 		levels:             levels,
 	}
 	if s.Period > 0 {
-		out.Model.Seasons = append(out.Model.Seasons, fitSeason{Steps: s.Period, Terms: "arima"})
+		out.Model.Seasons = append(out.Model.Seasons, fitSeason{Steps: float64(s.Period), Terms: "arima"})
 	}
 	out.Estimates = termsOf(s, m.Params())
 	se := res.StdErr

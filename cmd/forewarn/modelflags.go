@@ -113,8 +113,8 @@ func (m *modelFlags) check() (*modelRequest, []string) {
 			}
 			r.cycles = append(r.cycles, c)
 		}
-		if len(r.cycles) > 1 {
-			probs = append(probs, fmt.Sprintf("--seasons %q: only one cycle can be used until Fourier terms arrive; keep the first, %v", m.seasons, r.cycles[0]))
+		if len(r.cycles) > 1 && r.fixed() {
+			probs = append(probs, fmt.Sprintf("--seasons %q: --model %q uses one cycle, the period of its seasonal orders; keep the first, %v, or use --model auto", m.seasons, m.model, r.cycles[0]))
 		}
 	}
 	if m.step != "" {
@@ -267,4 +267,65 @@ func parseInstant(s string) (time.Time, bool) {
 	}
 	sec, frac := math.Modf(v)
 	return time.Unix(int64(sec), int64(math.Round(frac*1e9))).UTC(), true
+}
+
+// seasonsOptions resolves every cycle for the automatic choice
+// (auto.Options Seasons, Step, Start) on the n rows of the file. Cycles all
+// given in steps, without --step or a time column, stay in steps (step 1,
+// the first row at time 1, the origin of R's fourier()). Otherwise the
+// unit is the second: the step is --step or the spacing of the time
+// column, the first row's time is the time column's (Unix seconds) or one
+// step. A cycle must span at least two steps and at most the n rows.
+func (r *modelRequest) seasonsOptions(times []string, file string, n int) (seasons []float64, step, start float64, err error) {
+	if len(r.cycles) == 0 {
+		return nil, 0, 0, nil
+	}
+	durations := false
+	for _, c := range r.cycles {
+		durations = durations || c.Length != 0
+	}
+	st := r.step
+	if st == 0 && times != nil {
+		if s, err := rowSpacing(times, file); err == nil {
+			st = s
+		} else if durations {
+			return nil, 0, 0, usageError{fmt.Errorf("--seasons: %w; give --step or the cycles in steps", err)}
+		}
+	}
+	if durations && st == 0 {
+		return nil, 0, 0, badUsage("--seasons %s holds durations, but %s has no time column; give --step (the spacing of its rows) or the cycles in steps", r.cyclesString(), file)
+	}
+	step, start = 1, 1
+	if st > 0 {
+		step = st.Seconds()
+		start = step
+		if times != nil {
+			if t0, ok := parseInstant(times[0]); ok {
+				start = float64(t0.UnixNano()) / 1e9
+			}
+		}
+	}
+	for _, c := range r.cycles {
+		L := float64(c.Steps) * step
+		if c.Length != 0 {
+			L = c.Length.Seconds()
+		}
+		m := L / step
+		switch {
+		case m < 2*(1-1e-12):
+			return nil, 0, 0, badUsage("--seasons %v is %.4g steps; a cycle needs at least 2", c, m)
+		case m > float64(n):
+			return nil, 0, 0, badUsage("--seasons %v is %.6g steps, longer than the %d rows of %s", c, m, n, file)
+		}
+		seasons = append(seasons, L)
+	}
+	return seasons, step, start, nil
+}
+
+func (r *modelRequest) cyclesString() string {
+	var parts []string
+	for _, c := range r.cycles {
+		parts = append(parts, c.String())
+	}
+	return strings.Join(parts, ",")
 }

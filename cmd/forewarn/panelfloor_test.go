@@ -219,7 +219,11 @@ func panelConfig(t *testing.T, c panelCase, calibrate bool, origins int) *btConf
 	if err != nil {
 		t.Fatal(err)
 	}
-	cfg, err := req.config(nil, c.Name)
+	_, y, err := readSeriesCSV(datasetPath(c.Name), "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg, err := req.config(nil, c.Name, len(y))
 	if err != nil {
 		t.Fatal(err)
 	}

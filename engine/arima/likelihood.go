@@ -482,6 +482,9 @@ func (e *evaluator) evalX(betas []float64, profile bool, resid []float64) (evalO
 		for i := range e.sv {
 			e.sv[i] = 0
 		}
+		if crossDots(e.sm, e.sv, e.ex, ey, k) {
+			goto solve
+		}
 		for t, vy := range ey {
 			if math.IsNaN(vy) {
 				continue
@@ -495,6 +498,7 @@ func (e *evaluator) evalX(betas []float64, profile bool, resid []float64) (evalO
 				}
 			}
 		}
+	solve:
 		if !cholesky(e.chol, e.sm, k) {
 			return out, fmt.Errorf("%w: the regression columns are collinear after filtering", ErrRegressors)
 		}
@@ -674,4 +678,54 @@ func checkShape(m *Model) error {
 		}
 	}
 	return nil
+}
+
+// crossDots fills the upper triangle of sm (k×k) with Σ_t e_i,t e_j,t and
+// sv with Σ_t e_i,t e_y,t by dot products over whole columns, when every
+// filtered value is finite (no missing rows). It reports false, leaving sm
+// and sv to the row loop, when a value is NaN. Same sums as the row loop,
+// in a cache- and pipeline-friendly order.
+func crossDots(sm, sv []float64, ex [][]float64, ey []float64, k int) bool {
+	if anyNaN(ey) {
+		return false
+	}
+	for i := 0; i < k; i++ {
+		if anyNaN(ex[i]) {
+			return false
+		}
+	}
+	for i := 0; i < k; i++ {
+		xi := ex[i]
+		sv[i] = dot4(xi, ey)
+		for j := i; j < k; j++ {
+			sm[i*k+j] = dot4(xi, ex[j])
+		}
+	}
+	return true
+}
+
+func anyNaN(x []float64) bool {
+	for _, v := range x {
+		if v != v {
+			return true
+		}
+	}
+	return false
+}
+
+// dot4 is Σ a_i b_i with four running sums (len(b) ≥ len(a)).
+func dot4(a, b []float64) float64 {
+	b = b[:len(a)]
+	var s0, s1, s2, s3 float64
+	i := 0
+	for ; i+4 <= len(a); i += 4 {
+		s0 += a[i] * b[i]
+		s1 += a[i+1] * b[i+1]
+		s2 += a[i+2] * b[i+2]
+		s3 += a[i+3] * b[i+3]
+	}
+	for ; i < len(a); i++ {
+		s0 += a[i] * b[i]
+	}
+	return (s0 + s1) + (s2 + s3)
 }

@@ -26,6 +26,24 @@ type Options struct {
 	Warm     *Warm // previous choice, for warm-started refits (may be nil)
 	// Order bounds; 0 means the defaults 5, 5, 2, 2 (Hyndman & Khandakar 2008).
 	MaxP, MaxQ, MaxSP, MaxSQ int
+
+	// Seasons lists the seasonal cycles in the unit of Step (seconds, or
+	// steps when Step is 0); they need not be whole numbers of steps. When
+	// set, Period is ignored: the first whole cycle of 2…MaxARIMAPeriod
+	// steps may get seasonal ARIMA terms, every other cycle K Fourier pairs
+	// with K chosen by AICc (package doc, "Several cycles"). A fixed Model
+	// takes at most one cycle, the period of its seasonal orders.
+	Seasons []float64
+	// Step is the spacing of y in the unit of Seasons; 0 means 1.
+	Step float64
+	// Start is the data time of y[0] in the unit of Step: the phase of
+	// the Fourier terms comes from it.
+	Start float64
+	// MaxK caps the Fourier pairs per cycle; 0 means DefaultMaxK.
+	MaxK int
+	// MaxARIMAPeriod is the longest cycle in steps that may get seasonal
+	// ARIMA terms; 0 means DefaultMaxARIMAPeriod, −1 none.
+	MaxARIMAPeriod int
 }
 
 // Warm is a previous choice that a refit starts from.
@@ -33,6 +51,9 @@ type Warm struct {
 	Spec      arima.Spec
 	Params    []float64 // in arima.Model.Params layout
 	Transform transform.Transform
+	// Seasons is the previous choice per cycle (Choice.Seasons); the
+	// Fourier cycles keep their K.
+	Seasons []SeasonChoice
 }
 
 // Candidate is one fit that Select tried.
@@ -50,6 +71,17 @@ type Choice struct {
 	Result    *arima.Result       // fit on the transformed series
 	RawAICc   float64             // AICc on the raw scale (log-Jacobian added)
 	Tried     []Candidate         // every fit, in the order tried
+	// Seasons is the choice per cycle of Options.Seasons, in its order
+	// (nil without Seasons).
+	Seasons []SeasonChoice
+	// Fourier generates the model's regressors (Spec.NX columns, Beta in
+	// Result.Model) from absolute data time in the unit of Options.Step;
+	// nil when no cycle has Fourier terms. Cycles lists its cycles and K.
+	Fourier *arima.Fourier
+	Cycles  []arima.Cycle
+	// Start and Step are Options.Start and Options.Step (normalised): the
+	// data time of y[0] and the spacing, for arima.NewFilterX.
+	Start, Step float64
 }
 
 // Default order bounds (Hyndman & Khandakar 2008, §3.2).
@@ -88,6 +120,28 @@ func Select(y []float64, o Options) (*Choice, error) {
 		return nil, fmt.Errorf("%w: %d observed values, need at least %d", ErrTooShort, nobs, minObs)
 	}
 	s := &selector{y: y, o: o}
+	if len(o.Seasons) > 0 {
+		cs, err := o.splitCycles()
+		if err != nil {
+			return nil, err
+		}
+		if len(cs.fidx) > 0 {
+			return s.seasonsX(cs)
+		}
+		s.o.Period = cs.period
+		c, err := s.plain()
+		if err != nil {
+			return nil, err
+		}
+		c.Seasons = s.seasonChoices(cs, c.Spec, nil)
+		return c, nil
+	}
+	return s.plain()
+}
+
+// plain is Select with at most one cycle, carried by seasonal ARIMA terms.
+func (s *selector) plain() (*Choice, error) {
+	o := s.o
 	if o.Warm != nil {
 		if c, err := s.warm(); err == nil {
 			return c, nil
@@ -108,6 +162,24 @@ func (o *Options) normalise() error {
 	}
 	if o.Period == 1 {
 		o.Period = 0
+	}
+	if math.IsNaN(o.Step) || math.IsInf(o.Step, 0) || o.Step < 0 || math.IsNaN(o.Start) || math.IsInf(o.Start, 0) {
+		return fmt.Errorf("%w: step %v, start %v: want a finite step ≥ 0 and a finite start", ErrBadOptions, o.Step, o.Start)
+	}
+	if o.Step == 0 {
+		o.Step = 1
+	}
+	switch {
+	case o.MaxK < 0:
+		return fmt.Errorf("%w: MaxK %d is negative", ErrBadOptions, o.MaxK)
+	case o.MaxK == 0:
+		o.MaxK = DefaultMaxK
+	}
+	switch {
+	case o.MaxARIMAPeriod < -1:
+		return fmt.Errorf("%w: MaxARIMAPeriod %d: want −1, 0 or a period", ErrBadOptions, o.MaxARIMAPeriod)
+	case o.MaxARIMAPeriod == 0:
+		o.MaxARIMAPeriod = DefaultMaxARIMAPeriod
 	}
 	for _, b := range []struct {
 		v   *int
@@ -137,6 +209,25 @@ func (o *Options) normalise() error {
 		}
 	default:
 		return fmt.Errorf("%w: constant %v: want auto, none, mean or drift", ErrBadOptions, o.Constant)
+	}
+	if o.Model != "auto" && len(o.Seasons) > 0 {
+		_, _, seasonal, err := arima.ParseOrders(o.Model)
+		if err != nil {
+			return fmt.Errorf("%w: model %q: %w", ErrBadOptions, o.Model, err)
+		}
+		switch {
+		case !seasonal:
+			return fmt.Errorf("%w: model %q has no seasonal orders to use the %d seasonal cycles; give seasonal orders \"p,d,q x P,D,Q\", model auto, or no cycles", ErrBadOptions, o.Model, len(o.Seasons))
+		case len(o.Seasons) > 1:
+			return fmt.Errorf("%w: model %q uses one cycle (the period of its seasonal orders), but %d are given; keep the first or use model auto", ErrBadOptions, o.Model, len(o.Seasons))
+		}
+		m := o.Seasons[0] / o.Step
+		if math.Abs(m-math.Round(m)) > 1e-9*m {
+			return fmt.Errorf("%w: model %q needs a cycle of a whole number of steps; the cycle is %.6g steps", ErrBadOptions, o.Model, m)
+		}
+		if o.MaxARIMAPeriod < int(math.Round(m)) {
+			o.MaxARIMAPeriod = int(math.Round(m))
+		}
 	}
 	return nil
 }

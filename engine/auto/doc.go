@@ -69,6 +69,39 @@
 // previous parameters) is tried, and the best is kept. Differencing and
 // the transform are not re-chosen on a warm refit.
 //
+// # Several cycles (Options.Seasons)
+//
+// A single cycle of a whole number of steps, at most MaxARIMAPeriod (350,
+// the bound of FPP3 §12.1), is the period of the procedure above. Every
+// other case — several cycles, a cycle that is not a whole number of steps
+// or a longer one — is dynamic harmonic regression: each cycle of m steps
+// gets K sin/cos pairs (arima.Fourier, phase from the absolute data time
+// Options.Start + i·Step), K from 0 (no terms) to min(MaxK = 10, ⌊m/2⌋),
+// chosen by AICc (Hyndman & Athanasopoulos, FPP3 §10.5 and §12.1):
+//
+//  1. Transforms as in step 1 (Guerrero's λ on subseries of the shortest
+//     cycle).
+//  2. d by KPSS (NDiffs) on the residuals of the least-squares regression
+//     of the base series on a constant and every Fourier column at the
+//     largest K (the series less its cycles).
+//  3. K, cycle by cycle from the shortest, each over 0…K max with the
+//     others at their current choice: the Fourier coefficients are
+//     concentrated out by least squares on the differenced data (cross
+//     products computed once), and the AICc is that of an ARMA(1,1) fit to
+//     the residuals with the least-squares coefficients counted.
+//  4. The stepwise order search of step 4 on the residuals at the chosen K.
+//  5. The chosen orders on every transform's residuals; the lowest
+//     raw-scale AICc wins.
+//  6. One FitX of the regression with ARIMA errors (β by GLS inside the
+//     exact likelihood) at the chosen orders and K, with the constant on
+//     and off when allowed; its AICc is the one reported.
+//
+// A warm refit with Warm.Seasons keeps the transform, d, the constant and
+// each cycle's K, compares the previous orders and ±1 on p and on q on the
+// residuals, and fits the best by FitX from the previous coefficients.
+// Choice.Seasons records the terms per cycle, Choice.Fourier the
+// regressors.
+//
 // # Contract
 //
 // Pure computation: no I/O, no goroutines; safe for concurrent use on
@@ -84,6 +117,9 @@
 //   - Box, G. E. P. & Cox, D. R. (1964). An analysis of transformations.
 //     Journal of the Royal Statistical Society B 26(2), 211–252 (the
 //     Jacobian term).
+//   - Hyndman, R. J. & Athanasopoulos, G. (2021). Forecasting: Principles
+//     and Practice, 3rd ed., §10.5 (dynamic harmonic regression) and §12.1
+//     (complex seasonality).
 //   - Hurvich, C. M. & Tsai, C.-L. (1989). Regression and time series model
 //     selection in small samples. Biometrika 76(2), 297–307 (AICc).
 //   - Kwiatkowski, D., Phillips, P. C. B., Schmidt, P. & Shin, Y. (1992).

@@ -1,0 +1,467 @@
+package auto
+
+import (
+	"fmt"
+	"math"
+	"sort"
+
+	"forewarn/engine/arima"
+	"forewarn/engine/stationarity"
+)
+
+// Terms that carry a seasonal cycle in a Choice.
+const (
+	TermsARIMA   = "arima"   // seasonal ARIMA orders at the cycle's period
+	TermsFourier = "fourier" // K sin/cos pairs (dynamic harmonic regression)
+	TermsNone    = "none"    // the search found the cycle not worth its terms
+)
+
+// Defaults of the per-cycle choice.
+const (
+	// DefaultMaxK caps the Fourier pairs searched per cycle. Hyndman &
+	// Athanasopoulos (FPP3, §12.1) search K = 1…6 for a daily cycle of
+	// half-hourly data and use K = 10 for the weekly one; K never exceeds
+	// half the cycle in steps (§10.5, 2K ≤ m).
+	DefaultMaxK = 10
+	// DefaultMaxARIMAPeriod is the longest whole cycle, in steps, that may
+	// get seasonal ARIMA terms. FPP3 §12.1: seasonal ARIMA allows periods
+	// up to 350 but is impractical beyond about 200; longer cycles use
+	// Fourier terms.
+	DefaultMaxARIMAPeriod = 350
+)
+
+// SeasonChoice is the choice for one cycle of Options.Seasons.
+type SeasonChoice struct {
+	Length float64 // the cycle, in the unit of Options.Step
+	Steps  float64 // the cycle in steps (Length / Step; need not be whole)
+	Terms  string  // TermsARIMA, TermsFourier or TermsNone
+	K      int     // Fourier pairs when Terms is TermsFourier
+}
+
+// cycleSetup is the split of Options.Seasons into at most one seasonal
+// ARIMA cycle and Fourier cycles.
+type cycleSetup struct {
+	arimaIdx int   // index of the seasonal ARIMA cycle, −1 when none
+	period   int   // its period in steps
+	fidx     []int // indices of the Fourier cycles
+	kmax     []int // per Fourier cycle: the largest K searched
+	steps    []float64
+}
+
+// splitCycles decides which cycle may carry seasonal ARIMA terms: a single
+// cycle of a whole number of steps, 2…MaxARIMAPeriod (today's path). With
+// several cycles, or a cycle that is not whole or longer, every cycle gets
+// Fourier terms with K ≤ min(MaxK, ⌊m/2⌋): dynamic harmonic regression,
+// the published route for multiple seasonality (FPP3 §12.1; §10.5 for the
+// bound on K). A seasonal ARIMA search at the shorter cycle of two (period
+// 48 with a weekly cycle of half-hourly data) took over ten minutes here.
+func (o *Options) splitCycles() (cycleSetup, error) {
+	cs := cycleSetup{arimaIdx: -1}
+	for i, L := range o.Seasons {
+		if !(L > 0) || math.IsInf(L, 0) {
+			return cs, fmt.Errorf("%w: cycle %d is %v: want a positive finite length", ErrBadOptions, i+1, L)
+		}
+		m := L / o.Step
+		if m < 2*(1-1e-12) {
+			return cs, fmt.Errorf("%w: cycle %d is %.4g steps; a cycle needs at least 2", ErrBadOptions, i+1, m)
+		}
+		cs.steps = append(cs.steps, m)
+		whole := math.Abs(m-math.Round(m)) <= 1e-9*m
+		if len(o.Seasons) == 1 && whole && int(math.Round(m)) <= o.MaxARIMAPeriod {
+			cs.arimaIdx, cs.period = i, int(math.Round(m))
+			continue
+		}
+		cs.fidx = append(cs.fidx, i)
+		cs.kmax = append(cs.kmax, min(o.MaxK, int(math.Floor(m/2+1e-9))))
+	}
+	return cs, nil
+}
+
+// harmonic is one distinct frequency of the pool of Fourier columns.
+type harmonic struct {
+	cycle, k int  // position in cycleSetup.fidx and harmonic number
+	sin      bool // whether the sine is not identically zero at the steps
+	col      int  // index of its first column in the pool (sine, then cosine)
+}
+
+// fourierPool holds every Fourier column up to each cycle's K max,
+// differenced like the data, and their cross products.
+type fourierPool struct {
+	cs    cycleSetup
+	harm  []harmonic
+	ncol  int
+	start float64
+	step  float64
+	secs  []float64 // Fourier cycle lengths in the unit of Step
+}
+
+func newPool(o *Options, cs cycleSetup) *fourierPool {
+	p := &fourierPool{cs: cs, start: o.Start, step: o.Step}
+	var seen []float64
+	for ci, i := range cs.fidx {
+		L := o.Seasons[i]
+		p.secs = append(p.secs, L)
+		for k := 1; k <= cs.kmax[ci]; k++ {
+			fr := float64(k) / L
+			dup := false
+			for _, s := range seen {
+				if math.Abs(s-fr) <= 1e-12*fr {
+					dup = true
+				}
+			}
+			if dup {
+				continue
+			}
+			seen = append(seen, fr)
+			x := 2 * float64(k) * o.Step / L
+			h := harmonic{cycle: ci, k: k, sin: math.Abs(x-math.Round(x)) > 1e-12, col: p.ncol}
+			p.harm = append(p.harm, h)
+			p.ncol++
+			if h.sin {
+				p.ncol++
+			}
+		}
+	}
+	return p
+}
+
+// columns returns the pool's columns in levels over n rows.
+func (p *fourierPool) columns(n int) [][]float64 {
+	X := make([][]float64, p.ncol)
+	for j := range X {
+		X[j] = make([]float64, n)
+	}
+	for _, h := range p.harm {
+		L := p.secs[h.cycle]
+		for i := 0; i < n; i++ {
+			t := p.start + float64(i)*p.step
+			s, c := math.Sincos(2 * math.Pi * float64(h.k) * (math.Mod(t, L) / L))
+			if h.sin {
+				X[h.col][i], X[h.col+1][i] = s, c
+			} else {
+				X[h.col][i] = c
+			}
+		}
+	}
+	return X
+}
+
+// selected lists the pool columns of the harmonics k ≤ K[cycle], in the
+// column order of arima.NewFourier for the same cycles and K (cycles in
+// order, each harmonic's sine then cosine, a frequency already generated by
+// an earlier cycle left out). A cycle with K = 0 is skipped.
+func (p *fourierPool) selected(K []int) []int {
+	type fk struct {
+		fr  float64
+		col []int
+	}
+	var out []int
+	var seen []float64
+	for ci := range p.secs {
+		for k := 1; k <= K[ci]; k++ {
+			fr := float64(k) / p.secs[ci]
+			dup := false
+			for _, s := range seen {
+				if math.Abs(s-fr) <= 1e-12*fr {
+					dup = true
+				}
+			}
+			if dup {
+				continue
+			}
+			seen = append(seen, fr)
+			for _, h := range p.harm {
+				if math.Abs(float64(h.k)/p.secs[h.cycle]-fr) <= 1e-12*fr {
+					out = append(out, h.col)
+					if h.sin {
+						out = append(out, h.col+1)
+					}
+				}
+			}
+		}
+	}
+	return out
+}
+
+// cycles returns the arima.Cycle list of K (cycles with K = 0 left out).
+func (p *fourierPool) cycles(K []int) []arima.Cycle {
+	var out []arima.Cycle
+	for ci, L := range p.secs {
+		if K[ci] > 0 {
+			out = append(out, arima.Cycle{Seconds: L, K: K[ci]})
+		}
+	}
+	return out
+}
+
+// concentrated holds the data and the pool columns differenced with the
+// chosen orders, and their cross products over the complete rows: the
+// Fourier coefficients are concentrated out by least squares on the
+// differenced data while K is compared (a first-stage estimate; the final
+// model re-estimates them by GLS in FitX).
+type concentrated struct {
+	wd   []float64   // differenced data
+	xd   [][]float64 // differenced columns; xd[0] the constant when used
+	rows []int       // complete rows
+	xtx  []float64   // m×m
+	xty  []float64
+	m    int
+	cons bool
+}
+
+func newConcentrated(w []float64, X [][]float64, d, sd, period int, constant bool) *concentrated {
+	c := &concentrated{cons: constant}
+	c.wd = diffAll(w, d, sd, period)
+	if constant {
+		c.xd = append(c.xd, constSlice(len(c.wd), 1))
+	}
+	for _, x := range X {
+		c.xd = append(c.xd, diffAll(x, d, sd, period))
+	}
+	c.m = len(c.xd)
+	for i, v := range c.wd {
+		if !math.IsNaN(v) {
+			c.rows = append(c.rows, i)
+		}
+	}
+	m := c.m
+	c.xtx = make([]float64, m*m)
+	c.xty = make([]float64, m)
+	for a := 0; a < m; a++ {
+		xa := c.xd[a]
+		s := 0.0
+		for _, i := range c.rows {
+			s += xa[i] * c.wd[i]
+		}
+		c.xty[a] = s
+		for b := a; b < m; b++ {
+			xb := c.xd[b]
+			s := 0.0
+			for _, i := range c.rows {
+				s += xa[i] * xb[i]
+			}
+			c.xtx[a*m+b], c.xtx[b*m+a] = s, s
+		}
+	}
+	return c
+}
+
+// residuals returns the differenced data less the least-squares fit on the
+// constant (when used) and the pool columns cols, NaN where data is
+// missing, and the number of coefficients.
+func (c *concentrated) residuals(cols []int) ([]float64, int, error) {
+	var idx []int
+	if c.cons {
+		idx = append(idx, 0)
+	}
+	off := 0
+	if c.cons {
+		off = 1
+	}
+	for _, j := range cols {
+		idx = append(idx, j+off)
+	}
+	e := append([]float64(nil), c.wd...)
+	k := len(idx)
+	if k == 0 {
+		return e, 0, nil
+	}
+	a := make([]float64, k*k)
+	b := make([]float64, k)
+	for i, p := range idx {
+		b[i] = c.xty[p]
+		for j, q := range idx {
+			a[i*k+j] = c.xtx[p*c.m+q]
+		}
+	}
+	beta, ok := solveSPD(a, b, k)
+	if !ok {
+		return nil, 0, fmt.Errorf("the Fourier columns are collinear on the differenced data")
+	}
+	for _, i := range c.rows {
+		s := 0.0
+		for j, p := range idx {
+			s += beta[j] * c.xd[p][i]
+		}
+		e[i] -= s
+	}
+	return e, k, nil
+}
+
+// solveSPD solves a·x = b for a symmetric positive definite k×k a by
+// Cholesky; ok is false when a is not positive definite.
+func solveSPD(a, b []float64, k int) ([]float64, bool) {
+	l := make([]float64, k*k)
+	for j := 0; j < k; j++ {
+		s := a[j*k+j]
+		for p := 0; p < j; p++ {
+			s -= l[j*k+p] * l[j*k+p]
+		}
+		if !(s > 1e-12*math.Max(1, a[j*k+j])) {
+			return nil, false
+		}
+		l[j*k+j] = math.Sqrt(s)
+		for i := j + 1; i < k; i++ {
+			s := a[i*k+j]
+			for p := 0; p < j; p++ {
+				s -= l[i*k+p] * l[j*k+p]
+			}
+			l[i*k+j] = s / l[j*k+j]
+		}
+	}
+	x := make([]float64, k)
+	for i := 0; i < k; i++ {
+		s := b[i]
+		for p := 0; p < i; p++ {
+			s -= l[i*k+p] * x[p]
+		}
+		x[i] = s / l[i*k+i]
+	}
+	for i := k - 1; i >= 0; i-- {
+		s := x[i]
+		for p := i + 1; p < k; p++ {
+			s -= l[p*k+i] * x[p]
+		}
+		x[i] = s / l[i*k+i]
+	}
+	return x, true
+}
+
+func constSlice(n int, v float64) []float64 {
+	s := make([]float64, n)
+	for i := range s {
+		s[i] = v
+	}
+	return s
+}
+
+// diffAll differences x d times at lag 1 and sd times at lag period,
+// keeping its length (the first values NaN); NaN propagates.
+func diffAll(x []float64, d, sd, period int) []float64 {
+	out := append([]float64(nil), x...)
+	lag := func(l int) {
+		for i := len(out) - 1; i >= 0; i-- {
+			if i < l {
+				out[i] = math.NaN()
+			} else {
+				out[i] -= out[i-l]
+			}
+		}
+	}
+	for i := 0; i < sd; i++ {
+		lag(period)
+	}
+	for i := 0; i < d; i++ {
+		lag(1)
+	}
+	return out
+}
+
+// aiccK is the AICc of a fit on the concentrated residuals with nb
+// least-squares coefficients counted as parameters (Hurvich & Tsai 1989).
+func aiccK(res *arima.Result, nb int) float64 {
+	k := res.Model.Spec.NumParams() + nb
+	n := res.NObs
+	if n-k-2 <= 0 {
+		return math.Inf(1)
+	}
+	return -2*res.LogLik + 2*float64(k+1) + 2*float64(k+1)*float64(k+2)/float64(n-k-2)
+}
+
+// proxySpec is the error model on which K is compared: ARMA(1,1), with a
+// seasonal MA(1) at the ARIMA cycle when there is one (the differenced
+// series' orders are found afterwards by the stepwise search).
+func proxySpec(period int) arima.Spec {
+	s := arima.Spec{P: 1, Q: 1}
+	if period >= 2 {
+		s.SQ, s.Period = 1, period
+	}
+	return s
+}
+
+// evalK fits the proxy error model to the concentrated residuals of K and
+// returns its AICc.
+func (c *concentrated) evalK(p *fourierPool, K []int, spec arima.Spec) (float64, error) {
+	e, nb, err := c.residuals(p.selected(K))
+	if err != nil {
+		return math.Inf(1), err
+	}
+	res, err := arima.Fit(e, spec, nil)
+	if err != nil {
+		return math.Inf(1), err
+	}
+	return aiccK(res, nb), nil
+}
+
+// chooseK chooses K per Fourier cycle by AICc (FPP3 §12.1: the K of the
+// lowest AICc of the regression with ARIMA errors), cycle by cycle from the
+// shortest, each over 0…K max with the others at their current choice
+// (K = 0: the cycle gets no terms).
+func (c *concentrated) chooseK(p *fourierPool, spec arima.Spec) ([]int, float64) {
+	nc := len(p.secs)
+	K := make([]int, nc)
+	order := make([]int, nc)
+	for i := range order {
+		order[i] = i
+	}
+	sort.SliceStable(order, func(a, b int) bool { return p.secs[order[a]] < p.secs[order[b]] })
+	best := math.Inf(1)
+	if a, err := c.evalK(p, K, spec); err == nil {
+		best = a
+	}
+	for _, ci := range order {
+		bk := K[ci]
+		for k := 1; k <= p.cs.kmax[ci]; k++ {
+			K[ci] = k
+			if a, err := c.evalK(p, K, spec); err == nil && a < best {
+				best, bk = a, k
+			}
+		}
+		K[ci] = bk
+	}
+	return K, best
+}
+
+// differencingX chooses D (seasonal strength at the ARIMA cycle, as
+// differencing does) and d by KPSS on the residuals of the least-squares
+// regression of the series on the Fourier columns at K max (the series
+// less its cycles, as R's forecast package does for regressors).
+func (s *selector) differencingX(base *scaled, cs cycleSetup, X [][]float64) {
+	x := interpolate(base.w)
+	lo := 0
+	for lo < len(base.w) && math.IsNaN(base.w[lo]) {
+		lo++
+	}
+	s.sd = 0
+	s.period = cs.period
+	s.seasonal = cs.period >= 2 && s.nobs >= 2*cs.period+2
+	if s.seasonal {
+		if D, err := stationarity.NSDiffs(x, cs.period, 1); err == nil {
+			s.sd = D
+		}
+	} else {
+		s.period = 0
+	}
+	r := append([]float64(nil), x...)
+	if len(X) > 0 {
+		sub := make([][]float64, len(X))
+		for j := range X {
+			sub[j] = X[j][lo : lo+len(x)]
+		}
+		c := newConcentrated(x, sub, 0, 0, 0, true)
+		all := make([]int, len(X))
+		for j := range all {
+			all[j] = j
+		}
+		if e, _, err := c.residuals(all); err == nil {
+			r = e
+		}
+	}
+	for i := 0; i < s.sd; i++ {
+		r = diff(r, s.period)
+	}
+	s.d = 0
+	if d, err := stationarity.NDiffs(r, 0.05, 2); err == nil {
+		s.d = d
+	}
+}
