@@ -186,12 +186,12 @@ func TestAlertInFlightHoldsRecordAndAck(t *testing.T) {
 			t.Error("no evaluation went to the pool")
 			return
 		}
-		queued, pending = len(r.d.alertQ), len(e.pending)
+		queued, pending = len(r.d.alerts.queue), len(e.pending)
 		h := *e.s.Snapshot() // Snapshot is the live record
 		held = &h
 		r.d.flush()
 		r.d.finishFlush()
-		floor = r.d.flushFloor
+		floor = r.d.flusher.floor
 		st, err := r.store.Load("hold.a")
 		if err == nil {
 			stored = st

@@ -177,7 +177,7 @@ func runOutputBound(b *testing.B, o rigOptions) outputRun {
 	msgs := r.build(b.N, 1)
 	fcSubjects := make([]string, len(r.subjects))
 	for i := range fcSubjects {
-		fcSubjects[i] = r.d.pub.ForecastSubject(rigTopic(i))
+		fcSubjects[i] = r.d.pub.forecastSubject(rigTopic(i))
 	}
 	twins, filter := rawTwins(fcSubjects)
 	raw := medianOf3(func() float64 { return streamtest.RawFanInRate(b, r.url, twins, filter, len(fc), max(b.N, 50_000)) })
@@ -485,8 +485,8 @@ func BenchmarkClosePath(b *testing.B) {
 					d.evaluate(topic, e, now)
 				}
 			}
-			if withRule && d.evaluator.LastMethod() != alert.MethodSkip {
-				b.Fatalf("rule evaluated by %v, want the skip bound", d.evaluator.LastMethod())
+			if withRule && d.alerts.evaluator.LastMethod() != alert.MethodSkip {
+				b.Fatalf("rule evaluated by %v, want the skip bound", d.alerts.evaluator.LastMethod())
 			}
 			if st := *s.Alerts(); withRule && (len(st) != 1 || st[0].Raised) {
 				b.Fatalf("alert states %+v", st)

@@ -4,6 +4,52 @@
 // batched transactions, acknowledging the stream only once the effect of
 // a message is on disk.
 //
+// # Parts
+//
+// Each part is a type in a file of its own that owns its goroutines and
+// its state; they talk through channels, and the loop drives them all:
+//
+//   - the loop (Daemon, daemon.go and loop.go) routes every message to
+//     its series and owns the series map and every entry in it;
+//   - Intake (intake.go) is the consumer-side interface of the source:
+//     Run, Subscribed, Ack; a stream.Intake unless Options.Intake names
+//     another;
+//   - refitPool (refits.go) runs series.FitJob on Refit.Workers workers;
+//   - alertPool (alerts.go) runs the alert evaluations that need a
+//     simulation on one worker per GOMAXPROCS;
+//   - publisher (publisher.go) runs the encoder and keeps the latest
+//     forecast of each topic;
+//   - flusher (flusher.go) encodes the records into a state.Batch, runs
+//     the writer that commits it, and acknowledges the intake.
+//
+// # Goroutines and what they own
+//
+//	goroutine        owns                                     talks through
+//	loop (Run)       series map, entries, pending counts,     batches/handled, inspect,
+//	                 refit and alert queues, free alert jobs, refitPool.jobs/results,
+//	                 the flusher's fields (but batch while    alertPool.jobs/done,
+//	                 writing), the publisher's encBuf         publisher.free/out,
+//	                                                          flusher.writes/committed
+//	intake (Run)     whatever the Intake holds                batches → loop, waits on handled
+//	refit worker ×n  the FitJob it holds (a window copy)      jobs → result on results
+//	alert worker ×n  the alertJob it holds, its Evaluator     jobs → the job back on done
+//	encoder          the slots it holds, its encode buffer    out → slot back on free;
+//	                                                          writes latest under mu
+//	writer           flusher.batch from a send on writes      writes → result on committed
+//	                 until the loop receives from committed
+//
+// Inspect runs a function on the loop, which may read the series there.
+// Latest and the query responder read the publisher's latest messages from
+// any goroutine; the encoder, and the loop while it loads the state, write
+// them, all under publisher.mu.
+//
+// # Lock order
+//
+// There is one lock, publisher.mu (the latest forecasts, for queries and
+// pages). It is held for a map access only: never while a channel, a job
+// or another lock is waited on. With no second lock there is no order to
+// keep; a part that adds one must write its order here.
+//
 // # Ownership and order
 //
 // One loop goroutine owns every series. Refits run on worker goroutines on
@@ -12,18 +58,8 @@
 // model is installed. Other series carry on. Forecasts therefore depend on
 // data time only. Alert evaluations that need a simulation work the same
 // way (series.AlertWork on the alert workers, the series held meanwhile;
-// DEVELOPERS.md, "The alert pool").
-//
-// # Goroutines
-//
-// Besides the loop: the refit workers (Refit.Workers); the alert workers
-// (one per GOMAXPROCS), each with its own alert.Evaluator, touching only
-// the job they hold; one encoder, which
-// turns forecasts into raw units, encodes, publishes and keeps the latest
-// forecast of each topic, in the order the loop made them (forecasts
-// travel on the model scale in preallocated slots, so a bucket close
-// allocates nothing); and one writer, which commits the
-// records the loop encoded into a state.Batch and hands the result back.
+// DEVELOPERS.md, "The alert pool"). Forecasts travel to the encoder on the
+// model scale in preallocated slots, so a bucket close allocates nothing.
 // Only one write is in flight; a flush asked for meanwhile waits for the
 // next trigger and then writes everything that changed since.
 //
@@ -31,18 +67,18 @@
 //
 // Each series' record holds the stream position it reflects (message and
 // observation within it), so a redelivered message has no effect. After a
-// flush the stream is acknowledged (AckAll) up to the last position such
-// that nothing at or before it still waits on a refit or an alert
-// evaluation; the record of a series whose alert evaluation is away is not
-// written, and the acknowledgement stops before what it applied since its
-// last record.
+// flush the stream is acknowledged (Intake.Ack, all up to a position) up
+// to the last position such that nothing at or before it still waits on a
+// refit or an alert evaluation; the record of a series whose alert
+// evaluation is away is not written, and the acknowledgement stops before
+// what it applied since its last record.
 //
 // # Shutdown
 //
 // When the context is cancelled: stop the intake (the batch in hand is
 // finished), finish the refits in flight and apply what waited on them,
 // finish the alert evaluations queued (what waited on those stays
-// unapplied and unacknowledged, for redelivery),
+// unapplied and unacknowledged, for redelivery), stop both pools,
 // let the encoder publish what it holds, write the state and wait for the
-// commit, acknowledge, flush the publisher.
+// commit, acknowledge, stop the writer, flush the publisher.
 package daemon

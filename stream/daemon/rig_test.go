@@ -316,7 +316,7 @@ func (r *rig) quiesce() {
 	for {
 		idle := false
 		if !r.d.Inspect(context.Background(), func(all map[string]*Entry) {
-			idle = !r.d.writing && r.d.busy == 0
+			idle = !r.d.flusher.writing && r.d.refits.busy == 0
 			for _, e := range all {
 				idle = idle && !e.e.dirty
 			}
