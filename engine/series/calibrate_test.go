@@ -166,3 +166,64 @@ func TestUncalibratedBands(t *testing.T) {
 		}
 	}
 }
+
+// Property test against simulated paths, as the alert tests do: with
+// calibration on, a gauge rule's probability of crossing within k = 6
+// steps is that of the fitted AR(1)'s paths with every innovation's sd
+// times the calibration factor f = Factor(6, widest level), estimated here
+// by 40 000 paths simulated directly from the recursion
+// x_{t+1} = μ + φ(x_t − μ) + f·σ·ε (common practice), within 4 combined
+// standard errors; and it differs from the uncalibrated probability (f = 1)
+// by more than that, so the check can tell them apart.
+func TestCalibratedAlertProbability(t *testing.T) {
+	y := ar1T(900, 0.6, 100, 21)
+	s, err := New("cal", calSettings(true))
+	if err != nil {
+		t.Fatal(err)
+	}
+	drive(t, s, y, 0)
+	ms := s.Snapshot().Model
+	phi, mu, sigma := ms.Params[0], ms.Params[1], math.Sqrt(ms.Sigma2)
+	last := y[len(y)-2] // the last closed bucket (the last value stays open)
+	const k = 6
+	f := s.Calibrator().Factor(k, 1)
+	if math.Abs(f-1) < 0.05 {
+		t.Fatalf("factor %v at h=%d: too close to 1 for the test to tell", f, k)
+	}
+	mean, variance, _ := s.ModelScale()
+	thr := mean[k-1] + 1.3*math.Sqrt(variance[k-1])
+	rule := AlertRule{Name: "up", Threshold: thr, Above: true, Window: k, Raise: 0.2, Clear: 0.19} // levels near p: the evaluator draws many paths
+	r := newAlertRig(t, s, []AlertRule{rule})
+	if _, err := s.EvaluateAlerts(nil, r.rules, r.ev, &r.ps); err != nil {
+		t.Fatal(err)
+	}
+	got := s.Snapshot().Alerts[0].Probability
+	mc := func(scale float64) (p, se float64) {
+		rng := rand.New(rand.NewPCG(99, 1))
+		const n = 40000
+		hits := 0
+		for range n {
+			x := last
+			for j := 0; j < k; j++ {
+				x = mu + phi*(x-mu) + scale*sigma*rng.NormFloat64()
+				if x > thr {
+					hits++
+					break
+				}
+			}
+		}
+		p = float64(hits) / n
+		return p, math.Sqrt(p * (1 - p) / n)
+	}
+	want, seW := mc(f)
+	raw, seR := mc(1)
+	est := s.work.items[0].est
+	tol := 4 * math.Sqrt(seW*seW+est.StdErr*est.StdErr)
+	t.Logf("factor %.3f: p %.4f (±%.4f, %d paths), simulated %.4f ± %.4f; uncalibrated %.4f ± %.4f", f, got, est.StdErr, est.Paths, want, seW, raw, seR)
+	if math.Abs(got-want) > tol {
+		t.Errorf("calibrated probability %.4f, simulated paths with the calibrated spread %.4f (tolerance %.4f)", got, want, tol)
+	}
+	if math.Abs(raw-want) <= tol+4*seR {
+		t.Errorf("uncalibrated %.4f and calibrated %.4f paths are within the tolerance: the test cannot tell them apart", raw, want)
+	}
+}
