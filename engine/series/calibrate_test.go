@@ -227,3 +227,45 @@ func TestCalibratedAlertProbability(t *testing.T) {
 		t.Errorf("uncalibrated %.4f and calibrated %.4f paths are within the tolerance: the test cannot tell them apart", raw, want)
 	}
 }
+
+// BenchmarkCloseCalibrate times one bucket close of a fitted series at the
+// default horizon (60) and levels (50, 90), with calibration off and on in
+// one run: the filter step, the forecast, and with calibration Observe,
+// Issue and the thresholds. Neither allocates.
+func BenchmarkCloseCalibrate(b *testing.B) {
+	for _, cal := range []bool{false, true} {
+		name := "off"
+		if cal {
+			name = "on"
+		}
+		b.Run(name, func(b *testing.B) {
+			set := calSettings(cal)
+			set.Horizon, set.Window, set.MinPoints, set.Model = 60, 2000, 300, "1,1,1"
+			s, err := New("bench", set)
+			if err != nil {
+				b.Fatal(err)
+			}
+			y := ar1T(2500, 0.6, 100, 5)
+			for i, v := range y {
+				o, err := s.Observe(at(int64(i)), v)
+				if err != nil {
+					b.Fatal(err)
+				}
+				if o == NeedFit {
+					if _, err := s.Install(s.FitJob().Run()); err != nil {
+						b.Fatal(err)
+					}
+				}
+			}
+			i := int64(len(y))
+			b.ReportAllocs()
+			for b.Loop() {
+				if o, err := s.Observe(at(i), y[i%int64(len(y))]); err != nil || o != Published {
+					b.Fatalf("%v %v", o, err)
+				}
+				s.Forecast()
+				i++
+			}
+		})
+	}
+}
