@@ -249,9 +249,17 @@ type Series struct {
 	// data. Zero: a bucket closes only when an observation of a later
 	// bucket arrives.
 	CloseAfter time.Duration
+	// Calibrate (key calibrate) calibrates the series' bands and alert
+	// probabilities online from the errors of its own forecasts
+	// (CONTRACT §4, package engine/calibrate). Zero (nil): true.
+	Calibrate *bool
 	// Line is the source line of the entry; 0 when not from a file.
 	Line int
 }
+
+// Calibrated reports whether the entry calibrates its bands: Calibrate,
+// true when unset.
+func (s *Series) Calibrated() bool { return s.Calibrate == nil || *s.Calibrate }
 
 // Alert is a rule that is raised when a topic's forecast is likely to
 // cross a threshold within a look-ahead window, and cleared when that
@@ -380,6 +388,7 @@ func DefaultSeries() Series {
 		Model:      "auto",
 		Constant:   "auto",
 		Transform:  "auto",
+		Calibrate:  new(true),
 	}
 }
 
@@ -521,6 +530,9 @@ func (s *Series) fillDefaults() {
 	setZero(&s.Constant, ds.Constant)
 	setZero(&s.Transform, ds.Transform)
 	s.Transform = stripSpaces(s.Transform)
+	if s.Calibrate == nil {
+		s.Calibrate = new(true)
+	}
 }
 
 // canonicalModel writes fixed orders that arima.ParseOrders reads as

@@ -134,7 +134,7 @@ func TestLoadFull(t *testing.T) {
 	s0 := c.Series[0]
 	want0 := Series{Match: "shop.*.orders", Kind: "counter", Step: time.Hour, Horizon: 48,
 		Levels: []float64{50, 80, 95}, Window: 2400, MinPoints: 72, RefitEvery: 60, Seasons: []Cycle{{Length: Day}},
-		Model: "0,1,1 x 0,1,1", Constant: "auto", Transform: "log", CloseAfter: 90 * time.Second, Line: 45}
+		Model: "0,1,1 x 0,1,1", Constant: "auto", Transform: "log", CloseAfter: 90 * time.Second, Calibrate: new(true), Line: 45}
 	if !reflect.DeepEqual(s0, want0) {
 		t.Errorf("series[0]:\n got %+v\nwant %+v", s0, want0)
 	}
@@ -520,5 +520,27 @@ func TestClusterKeys(t *testing.T) {
 	// The fallback must itself pass the rule for cluster.instance.
 	if !instanceRE().MatchString(n) || len(n) > maxNameLen {
 		t.Errorf("host-name fallback %q is not a valid instance name", n)
+	}
+}
+
+// calibrate defaults to true, reads true and false, and refuses anything
+// else with the key's line (common practice: a YAML boolean key).
+func TestSeriesCalibrate(t *testing.T) {
+	for src, want := range map[string]bool{
+		"series:\n  - match: \">\"\n":                       true,
+		"series:\n  - match: \">\"\n    calibrate: true\n":  true,
+		"series:\n  - match: \">\"\n    calibrate: false\n": false,
+	} {
+		c, err := Parse([]byte(src), "t.yaml")
+		if err != nil {
+			t.Fatalf("%q: %v", src, err)
+		}
+		if got := c.Series[0].Calibrated(); got != want {
+			t.Errorf("%q: Calibrated() = %v, want %v", src, got, want)
+		}
+	}
+	ps := problemsOf(t, "series:\n  - match: \">\"\n    calibrate: \"yes\"\n")
+	if len(ps) != 1 || ps[0].Line != 3 || !strings.Contains(ps[0].Path, "calibrate") {
+		t.Errorf("problems %+v, want one at line 3 naming calibrate", ps)
 	}
 }

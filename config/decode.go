@@ -655,6 +655,12 @@ func (d *decoder) top(root *yaml.Node, c *Config) {
 					"period":      d.renamed(`write seasons: [%s]`),
 					"transform":   d.str(&s.Transform),
 					"close_after": d.duration(&s.CloseAfter),
+					"calibrate": func(n *yaml.Node, p string) {
+						var b bool
+						if d.boolean(&b)(n, p); n.ShortTag() == "!!bool" {
+							s.Calibrate = &b
+						}
+					},
 				})
 				c.Series = append(c.Series, s)
 			})

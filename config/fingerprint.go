@@ -14,7 +14,8 @@ const fingerprintVersion = "forewarn-series-v1"
 
 // Fingerprint returns a stable hash of the settings that change the
 // maths of a series: kind, step, horizon, levels, window, min_points,
-// refit_every, seasons, model, constant, transform and close_after. Match
+// refit_every, seasons, model, constant, transform, close_after and
+// calibrate. Match
 // and Line do not enter it. Zero fields count as their defaults, levels
 // are compared as a sorted set, a cycle by its number of steps and fixed
 // orders in the form WithDefaults writes, so equal settings give equal
@@ -25,13 +26,14 @@ const fingerprintVersion = "forewarn-series-v1"
 //
 //	forewarn-series-v1\nkind=K\nstep=S\nhorizon=H\nlevels=L1,L2,…\nwindow=W\n
 //	min_points=M\nrefit_every=R\n[period=P\n]model=MODEL\n[constant=C\n]transform=T\n
-//	close_after=C\n
+//	close_after=C\n[calibrate=false\n]
 //
 // where K is gauge or counter: an entry of kind auto counts as gauge, the
 // kind its series have unless their first message names another (the
 // daemon fingerprints such a series with the kind it took). P is the first cycle of seasons in steps (Period), present only
 // when there is one, and the constant line only when the constant is not
-// auto: so fingerprints from before those keys existed stay valid
+// auto, and the calibrate line only when calibrate is false: so
+// fingerprints from before those keys existed stay valid
 // (period: P then meant what seasons: [P] means now). Durations are in
 // nanoseconds and levels in the shortest decimal form that reads back as
 // the same float64.
@@ -75,6 +77,9 @@ func (s *Series) Fingerprint() string {
 	}
 	field("transform", c.Transform)
 	field("close_after", strconv.FormatInt(int64(c.CloseAfter), 10))
+	if !c.Calibrated() { // only when off, so that fingerprints from before the key stay valid
+		field("calibrate", "false")
+	}
 	sum := sha256.Sum256([]byte(b.String()))
 	return hex.EncodeToString(sum[:])
 }

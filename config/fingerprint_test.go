@@ -33,6 +33,7 @@ func TestFingerprintSameSettings(t *testing.T) {
 		{Levels: []float64{90, 50}},
 		{Model: "auto", Transform: "auto", Horizon: 60, Constant: "auto"},
 		{Levels: []float64{90, 50}, Constant: " auto "},
+		{Calibrate: new(true)}, // calibrate: true is the default
 	}
 	for _, s := range same {
 		if got := s.Fingerprint(); got != fp {
@@ -58,6 +59,7 @@ func TestFingerprintMathsChanges(t *testing.T) {
 		"refit_every": func(s *Series) { s.RefitEvery = 59 },
 		"model":       func(s *Series) { s.Model = "1,1,1" },
 		"seasons":     func(s *Series) { s.Seasons = []Cycle{{Steps: 24}} },
+		"calibrate":   func(s *Series) { s.Calibrate = new(false) },
 		"constant":    func(s *Series) { s.Constant = "none" },
 		"transform":   func(s *Series) { s.Transform = "log" },
 		"close_after": func(s *Series) { s.CloseAfter = time.Second },

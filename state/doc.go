@@ -34,7 +34,7 @@
 // flush, never once per message. After a crash the file holds the last
 // committed batch entirely, and nothing of a batch that did not commit.
 //
-// # Record layout, format versions 1 and 2
+// # Record layout, format versions 1, 2 and 3
 //
 // A record is self-contained: it can be copied to another machine, or
 // another file, unchanged. All integers are little-endian; int and int64
@@ -53,6 +53,22 @@
 //	6       4     record length in bytes, uint32, envelope included
 //	10      ...   payload of that version
 //	len-4   4     CRC-32C (Castagnoli) of bytes [0, len-4)
+//
+// The payload of version 3 (written since the calibrated bands of CONTRACT
+// §4) is that of version 2 below followed by one field:
+//
+//	Calibration        float slice: the calibrator's fixed state
+//	                   (calibrate.Calibrator.AppendState: version, H, L,
+//	                   buckets observed, updates, η, B, memory weight, the
+//	                   levels, the thresholds H×L horizon-major, the
+//	                   coverage sums 2L); empty when the series does not
+//	                   calibrate
+//
+// At the default horizon 60 with two levels it is 134 values: 4 + 1 072
+// bytes more per series. A version-2 record decodes with no calibration;
+// the restored series then warms its calibrator from the window, as a fit
+// does. state/testdata holds real version-2 records (written by the
+// version-2 code); TestDecodeVersion2Records loads them.
 //
 // The payload of version 2 (written since the model vocabulary of CONTRACT
 // revision 2), field by field, in order (series.Snapshot):

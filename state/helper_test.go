@@ -141,6 +141,9 @@ func randomSnapshot(r *rand.Rand, maxWindow int) *series.Snapshot {
 			Probability: randomFloat(r),
 		})
 	}
+	if r.IntN(2) == 0 {
+		s.Calibration = randomFloats(r, r.IntN(200))
+	}
 	return s
 }
 

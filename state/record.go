@@ -14,7 +14,7 @@ import (
 
 // FormatVersion is the record format version Encode writes. Decode reads
 // every version from 1 to FormatVersion.
-const FormatVersion uint16 = 2
+const FormatVersion uint16 = 3
 
 // The envelope, identical in every format version (doc.go).
 var magic = [4]byte{'f', 'w', 's', 'r'}
@@ -61,6 +61,7 @@ func EncodedLen(s *series.Snapshot) int {
 	for i := range s.Alerts {
 		n += alertMinLen + len(s.Alerts[i].Rule)
 	}
+	n += sliceHead + 8*len(s.Calibration)
 	return n
 }
 
@@ -142,6 +143,7 @@ func Encode(dst []byte, s *series.Snapshot) []byte {
 		dst = le.AppendUint64(dst, uint64(a.Since))
 		dst = appendFloat(dst, a.Probability)
 	}
+	dst = appendFloats(dst, s.Calibration)
 
 	return le.AppendUint32(dst, crc32.Checksum(dst[start:], castagnoli))
 }
@@ -210,7 +212,7 @@ func Decode(b []byte) (*series.Snapshot, error) {
 		return nil, &CorruptError{Fault: FaultChecksum, Offset: int(n - crcLen), Detail: fmt.Sprintf("stored %08x, computed %08x", want, got)}
 	}
 	switch v := le.Uint16(b[4:6]); v {
-	case 1, 2:
+	case 1, 2, 3:
 		return decodePayload(body, v)
 	default:
 		return nil, &VersionError{What: "record", Found: v, Max: FormatVersion}
@@ -387,6 +389,9 @@ func decodePayload(body []byte, version uint16) (*series.Snapshot, error) {
 				a.Probability = r.f64("alert probability")
 			}
 		}
+	}
+	if version >= 3 {
+		s.Calibration = r.floats("calibration")
 	}
 
 	if r.err == nil && r.off != len(body) {

@@ -14,9 +14,9 @@ import (
 // issued at the wall time issued, to dst and returns the extended buffer:
 //
 //	{"topic":…,"issued":…,"origin":…,"step_seconds":…,"last_value":…,"kind":…,
-//	 "model":{"label":…,"transform":…,"fitted_at":…,"observations_used":…,"aicc":…},
+//	 "model":{"label":…,"transform":…,"fitted_at":…,"observations_used":…,"aicc":…,"bands":"calibrated"},
 //	 "points":[{"h":…,"time":…,"mean":…,"median":…,
-//	            "bands":[{"level":50,"low":…,"high":…},{"level":90,"low":…,"high":…}]},…]}
+//	            "bands":[{"level":50,"low":…,"high":…,"scale":…},{"level":90,"low":…,"high":…,"scale":…}]},…]}
 //
 // Keys come in this order, without white space. Times are RFC 3339 in UTC:
 // whole seconds without a fraction, otherwise with as many fractional digits
@@ -36,6 +36,14 @@ import (
 // level whatever the order of f.Levels; a level is in plain decimal (80,
 // 97.5). Lower[i] and Upper[i] are the low and high of f.Levels[i];
 // missing entries are null.
+//
+// The model's "bands" is "calibrated" when f.Calibrated (CONTRACT §4: the
+// bands come from the series' calibrator), else "model" (the model's own
+// bands). A band's "scale" is its half-width on the model scale divided by
+// the model's own, Point.Scale (6 significant digits): above 1 the
+// calibration widened the band, below 1 it narrowed it; the model's own
+// bands have scale 1. A non-finite Scale is null; a missing one is 1 for
+// the model's own bands and null for calibrated ones.
 //
 // With a dst of enough capacity AppendForecast does not allocate.
 func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
@@ -67,7 +75,12 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 	dst = strconv.AppendInt(dst, int64(f.Model.NObs), 10)
 	dst = append(dst, `,"aicc":`...)
 	dst = appendFloat(dst, f.Model.AICc)
-	dst = append(dst, `},"points":[`...)
+	if f.Calibrated {
+		dst = append(dst, `,"bands":"calibrated"},"points":[`...)
+	} else {
+		dst = append(dst, `,"bands":"model"},"points":[`...)
+	}
+	pf.calibrated = f.Calibrated
 	ascending := levelsAscending(f.Levels)
 	var days dayCache
 	for i := range f.Points {
@@ -99,8 +112,9 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 // pointFormat writes the numbers of a forecast's points (see
 // AppendForecast). dst[at:end] is last_value as written.
 type pointFormat struct {
-	last    float64
-	at, end int
+	last       float64
+	at, end    int
+	calibrated bool
 }
 
 func (p *pointFormat) append(dst []byte, v float64) []byte {
@@ -135,6 +149,19 @@ func (p *pointFormat) appendBand(dst []byte, k, j int, levels []float64, pt *ser
 	dst = p.appendBound(dst, pt.Lower, j)
 	dst = append(dst, `,"high":`...)
 	dst = p.appendBound(dst, pt.Upper, j)
+	dst = append(dst, `,"scale":`...)
+	switch {
+	case j < len(pt.Scale):
+		if v := pt.Scale[j]; math.IsNaN(v) || math.IsInf(v, 0) {
+			dst = append(dst, "null"...)
+		} else {
+			dst = strconv.AppendFloat(dst, v, 'g', 6, 64)
+		}
+	case !p.calibrated:
+		dst = append(dst, '1')
+	default:
+		dst = append(dst, "null"...)
+	}
 	return append(dst, '}')
 }
 

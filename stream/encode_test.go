@@ -67,7 +67,8 @@ func randForecast(r *rand.Rand) *series.Forecast {
 			NObs:      r.IntN(5000),
 			AICc:      randFloat(r),
 		},
-		Levels: levels,
+		Levels:     levels,
+		Calibrated: r.IntN(2) == 0,
 	}
 	if r.IntN(5) > 0 {
 		f.Model.FittedAt = randTime(r)
@@ -77,6 +78,10 @@ func randForecast(r *rand.Rand) *series.Forecast {
 		for range levels {
 			p.Lower = append(p.Lower, series.Bound{Value: randFloat(r), OK: r.IntN(4) > 0})
 			p.Upper = append(p.Upper, series.Bound{Value: randFloat(r), OK: r.IntN(4) > 0})
+			p.Scale = append(p.Scale, []float64{randFloat(r), 0.5 + r.Float64()}[r.IntN(2)])
+		}
+		if r.IntN(4) == 0 {
+			p.Scale = nil // a forecast built without scales
 		}
 		f.Points = append(f.Points, p)
 	}
@@ -112,10 +117,31 @@ func refPoint(v, last float64) any {
 
 func refTime(t time.Time) string { return t.UTC().Format(time.RFC3339Nano) }
 
+// refScale is a band's scale as AppendForecast promises it: strconv 'g'
+// with 6 digits read back; without one, 1 for the model's own bands and
+// null for calibrated ones; null when not finite.
+func refScale(p series.Point, i int, calibrated bool) any {
+	if i >= len(p.Scale) {
+		if calibrated {
+			return nil
+		}
+		return 1.0
+	}
+	v := p.Scale[i]
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return nil
+	}
+	r, err := strconv.ParseFloat(strconv.FormatFloat(v, 'g', 6, 64), 64)
+	if err != nil {
+		panic(err)
+	}
+	return r
+}
+
 // refBands is a point's bands as CONTRACT.md §2 has them: one
-// {"level","low","high"} per level, in ascending order of level (sorted
+// {"level","low","high","scale"} per level, in ascending order of level (sorted
 // here with package sort, whatever the order of levels).
-func refBands(levels []float64, p series.Point, last float64) []any {
+func refBands(levels []float64, p series.Point, last float64, calibrated bool) []any {
 	bound := func(b []series.Bound, i int) any {
 		if i < len(b) && b[i].OK {
 			return refPoint(b[i].Value, last)
@@ -129,7 +155,8 @@ func refBands(levels []float64, p series.Point, last float64) []any {
 	sort.SliceStable(idx, func(a, b int) bool { return levels[idx[a]] < levels[idx[b]] })
 	bands := []any{}
 	for _, i := range idx {
-		bands = append(bands, map[string]any{"level": levels[i], "low": bound(p.Lower, i), "high": bound(p.Upper, i)})
+		bands = append(bands, map[string]any{"level": levels[i], "low": bound(p.Lower, i), "high": bound(p.Upper, i),
+			"scale": refScale(p, i, calibrated)})
 	}
 	return bands
 }
@@ -143,7 +170,7 @@ func refForecast(f *series.Forecast, issued time.Time) []byte {
 	for _, p := range f.Points {
 		points = append(points, map[string]any{
 			"h": p.H, "time": refTime(p.Time), "mean": refPoint(p.Mean, f.LastValue), "median": refPoint(p.Median, f.LastValue),
-			"bands": refBands(f.Levels, p, f.LastValue),
+			"bands": refBands(f.Levels, p, f.LastValue, f.Calibrated),
 		})
 	}
 	b, err := json.Marshal(map[string]any{
@@ -152,6 +179,7 @@ func refForecast(f *series.Forecast, issued time.Time) []byte {
 		"model": map[string]any{
 			"label": f.Model.Spec, "transform": f.Model.Transform, "fitted_at": fitted,
 			"observations_used": f.Model.NObs, "aicc": refNum(f.Model.AICc),
+			"bands": map[bool]string{true: "calibrated", false: "model"}[f.Calibrated],
 		},
 		"points": points,
 	})
@@ -192,17 +220,18 @@ func TestAppendForecastExact(t *testing.T) {
 	f := &series.Forecast{
 		Topic: "shop.orders", Origin: origin, StepSeconds: 60, LastValue: 1834, Kind: "counter",
 		Model:  series.ModelInfo{Spec: "ARIMA 1,1,1 × 0,1,1 s=24", Transform: "log", FittedAt: origin.Add(-time.Hour), NObs: 480, AICc: -1234.5},
-		Levels: []float64{80, 97.5},
+		Levels: []float64{80, 97.5}, Calibrated: true,
 		Points: []series.Point{{H: 1, Time: origin.Add(time.Minute), Mean: 1840.2, Median: 1839.9,
 			Lower: []series.Bound{{Value: 1830.1, OK: true}, {Value: 0, OK: false}},
-			Upper: []series.Bound{{Value: 1849.8, OK: true}, {Value: math.Inf(1), OK: true}}}},
+			Upper: []series.Bound{{Value: 1849.8, OK: true}, {Value: math.Inf(1), OK: true}},
+			Scale: []float64{1.2345678, 0.9}}},
 	}
 	got := string(AppendForecast(nil, f, origin.Add(1500*time.Millisecond)))
 	want := `{"topic":"shop.orders","issued":"2024-05-01T12:00:01.5Z","origin":"2024-05-01T12:00:00Z",` +
 		`"step_seconds":60,"last_value":1834,"kind":"counter","model":{"label":"ARIMA 1,1,1 × 0,1,1 s=24",` +
-		`"transform":"log","fitted_at":"2024-05-01T11:00:00Z","observations_used":480,"aicc":-1234.5},"points":[{"h":1,` +
-		`"time":"2024-05-01T12:01:00Z","mean":1840.2,"median":1839.9,"bands":[{"level":80,"low":1830.1,"high":1849.8},` +
-		`{"level":97.5,"low":null,"high":null}]}]}`
+		`"transform":"log","fitted_at":"2024-05-01T11:00:00Z","observations_used":480,"aicc":-1234.5,"bands":"calibrated"},"points":[{"h":1,` +
+		`"time":"2024-05-01T12:01:00Z","mean":1840.2,"median":1839.9,"bands":[{"level":80,"low":1830.1,"high":1849.8,"scale":1.23457},` +
+		`{"level":97.5,"low":null,"high":null,"scale":0.9}]}]}`
 	if got != want {
 		t.Fatalf("got\n%s\nwant\n%s", got, want)
 	}
@@ -213,6 +242,7 @@ func TestAppendForecastExact(t *testing.T) {
 	p := &f.Points[0]
 	p.Lower[0], p.Lower[1] = p.Lower[1], p.Lower[0]
 	p.Upper[0], p.Upper[1] = p.Upper[1], p.Upper[0]
+	p.Scale[0], p.Scale[1] = p.Scale[1], p.Scale[0]
 	if got := string(AppendForecast(nil, f, origin.Add(1500*time.Millisecond))); got != want {
 		t.Fatalf("levels [97.5 80]: got\n%s\nwant\n%s", got, want)
 	}

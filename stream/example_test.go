@@ -43,5 +43,5 @@ func ExampleAppendForecast() {
 	}
 	fmt.Println(string(stream.AppendForecast(nil, f, origin.Add(2*time.Second))))
 	// Output:
-	// {"topic":"storage.vol1.used_bytes","issued":"2024-05-01T12:00:02Z","origin":"2024-05-01T12:00:00Z","step_seconds":3600,"last_value":8.1e+11,"kind":"gauge","model":{"label":"ARIMA 0,1,1","transform":"none","fitted_at":"2024-05-01T12:00:00Z","observations_used":200,"aicc":4012.25},"points":[{"h":1,"time":"2024-05-01T13:00:00Z","mean":820000000000,"median":820000000000,"bands":[{"level":80,"low":815000000000,"high":825000000000},{"level":95,"low":8.1e+11,"high":null}]}]}
+	// {"topic":"storage.vol1.used_bytes","issued":"2024-05-01T12:00:02Z","origin":"2024-05-01T12:00:00Z","step_seconds":3600,"last_value":8.1e+11,"kind":"gauge","model":{"label":"ARIMA 0,1,1","transform":"none","fitted_at":"2024-05-01T12:00:00Z","observations_used":200,"aicc":4012.25,"bands":"model"},"points":[{"h":1,"time":"2024-05-01T13:00:00Z","mean":820000000000,"median":820000000000,"bands":[{"level":80,"low":815000000000,"high":825000000000,"scale":1},{"level":95,"low":8.1e+11,"high":null,"scale":1}]}]}
 }

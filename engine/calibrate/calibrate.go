@@ -255,9 +255,15 @@ func (c *Calibrator) Thresholds(dst []float64) {
 	if len(dst) != c.h*c.nl {
 		panic(fmt.Sprintf("calibrate: Thresholds: len(dst) = %d, want %d", len(dst), c.h*c.nl))
 	}
-	for h := 1; h <= c.h; h++ {
-		for l := 0; l < c.nl; l++ {
-			dst[(h-1)*c.nl+l] = c.Threshold(h, l)
+	nl, bound := c.nl, c.bound
+	for i := 0; i+nl <= len(c.q); i += nl {
+		row, out := c.q[i:i+nl], dst[i:i+nl]
+		v := 0.0
+		for l, q := range row { // Threshold(h, l): the running maximum, capped at B
+			if q > v {
+				v = q
+			}
+			out[l] = min(v, bound)
 		}
 	}
 }

@@ -448,3 +448,42 @@ func TestRestartWithoutPending(t *testing.T) {
 		}
 	}
 }
+
+// Thresholds writes exactly what Threshold gives, per horizon and level
+// (the running maximum over the lower levels, capped at B), after seeded
+// updates that push some thresholds above B and others below the lower
+// level's. Property test against the method's own definition.
+func TestThresholdsMatchThreshold(t *testing.T) {
+	c, err := New(Options{Horizon: 7, Levels: []float64{50, 80, 95}, Rate: 0.5, Bound: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := rand.New(rand.NewPCG(8, 9))
+	med, sd := make([]float64, 7), make([]float64, 7)
+	for range 400 {
+		c.Observe(r.NormFloat64() * 4 * r.Float64())
+		for h := range med {
+			med[h], sd[h] = r.NormFloat64(), 0.2+r.Float64()
+		}
+		c.Issue(med, sd)
+	}
+	dst := make([]float64, 7*3)
+	c.Thresholds(dst)
+	capped, raised := 0, 0
+	for h := 1; h <= 7; h++ {
+		for l := 0; l < 3; l++ {
+			if got, want := dst[(h-1)*3+l], c.Threshold(h, l); got != want {
+				t.Errorf("h=%d l=%d: Thresholds %v, Threshold %v", h, l, got, want)
+			}
+			if c.Threshold(h, l) == 3 {
+				capped++
+			}
+			if l > 0 && c.Threshold(h, l) == c.Threshold(h, l-1) {
+				raised++
+			}
+		}
+	}
+	if capped == 0 || raised == 0 {
+		t.Errorf("%d capped at B, %d raised to the lower level's: both cases must occur", capped, raised)
+	}
+}

@@ -3,6 +3,7 @@ package series
 import (
 	"errors"
 	"fmt"
+	"math"
 	"time"
 
 	"forewarn/engine/alert"
@@ -105,6 +106,9 @@ type AlertWork struct {
 // alertItem is one rule of an AlertWork.
 type alertItem struct {
 	q    alert.Query
+	v    []float64        // the calibrated variances (calibration on), kept between calls
+	f2   float64          // the square of the calibration factor (0: none)
+	ss   alert.StateSpace // the path system with the calibrated σ², for Run
 	lv   alert.Rule
 	est  alert.Estimate
 	err  error
@@ -169,7 +173,7 @@ func (s *Series) PrepareAlerts(w *AlertWork, rules []AlertRule, ev *alert.Evalua
 	origin := s.mf.Origin()
 	for i := range rules {
 		r, it := &rules[i], &w.items[i]
-		*it = alertItem{}
+		*it = alertItem{v: it.v[:0]}
 		if r.Window < 1 || r.Window > s.set.Horizon {
 			it.err = fmt.Errorf("%w: rule %q: window %d steps, horizon %d", ErrAlertRule, r.Name, r.Window, s.set.Horizon)
 			continue
@@ -191,6 +195,16 @@ func (s *Series) PrepareAlerts(w *AlertWork, rules []AlertRule, ev *alert.Evalua
 			Mean: s.mf.Mean, Variance: s.mf.Variance, Threshold: c, Direction: dir,
 			Window: r.Window, Monotone: !gauge, Seed: alertSeed(s.snap.Topic, r.Name, origin.Unix()),
 		}
+		if f := s.alertFactor(r.Window); f != 1 {
+			// The calibrated spread: every variance of the window times
+			// f², f the calibration factor at the window's last step.
+			f2 := f * f
+			it.f2 = f2
+			for _, v := range s.mf.Variance {
+				it.v = append(it.v, v*f2)
+			}
+			it.q.Variance = it.v
+		}
 		est, done, err := ev.Screen(&it.q, lv)
 		if done {
 			it.est, it.done = est, true
@@ -211,12 +225,15 @@ func (s *Series) PrepareAlerts(w *AlertWork, rules []AlertRule, ev *alert.Evalua
 	}
 	if w.pending > 0 {
 		// Run may happen on another goroutine after the series moved on:
-		// it works on copies.
+		// it works on copies (a calibrated item's variances are its own).
 		w.mean = append(w.mean[:0], s.mf.Mean...)
 		w.variance = append(w.variance[:0], s.mf.Variance...)
 		for i := range w.items {
 			if it := &w.items[i]; it.sim {
-				it.q.Mean, it.q.Variance = w.mean, w.variance
+				it.q.Mean = w.mean
+				if it.f2 == 0 {
+					it.q.Variance = w.variance
+				}
 			}
 		}
 	}
@@ -236,7 +253,16 @@ func (w *AlertWork) Run(ev *alert.Evaluator) {
 		if !it.sim || it.done {
 			continue
 		}
-		est, err := ev.Decide(&it.q, ss, it.lv)
+		iss := ss
+		if ss != nil && it.f2 > 0 {
+			// Scaling σ² scales every forecast variance of the state
+			// space alike and leaves its means: the paths of the
+			// calibrated spread (it.v = f²·variance).
+			it.ss = *ss
+			it.ss.Sigma2 = ss.Sigma2 * it.f2
+			iss = &it.ss
+		}
+		est, err := ev.Decide(&it.q, iss, it.lv)
 		it.est, it.done = est, true
 		if err != nil {
 			it.err = fmt.Errorf("series: alert rule %q on %q: %w", w.rules[i].Name, w.topic, err)
@@ -288,6 +314,25 @@ func (s *Series) FinishAlerts(dst []AlertEvent, w *AlertWork) ([]AlertEvent, err
 		dst = append(dst, e)
 	}
 	return dst, errors.Join(errs...)
+}
+
+// alertFactor is the calibration factor of the spread a rule of a window
+// of k steps is evaluated with: Factor(k, L) of the calibrator, L the
+// widest level, or 1 without calibration. A rule's probability is a tail
+// probability, which the widest band calibrates most closely, and the
+// window's last step carries the largest spread, which decides most
+// crossings; the factor scales the spread of every step of the window
+// alike, so that the paths keep the model's correlation. A non-positive
+// or non-finite factor (a threshold at 0) counts as 1.
+func (s *Series) alertFactor(k int) float64 {
+	if s.cal == nil {
+		return 1
+	}
+	f := s.cal.Factor(k, len(s.set.Levels)-1)
+	if !(f > 0) || math.IsInf(f, 0) {
+		return 1
+	}
+	return f
 }
 
 // modelThreshold maps a rule's raw threshold onto the model scale: the

@@ -135,6 +135,9 @@ func (s *Series) install(c *auto.Choice, end int64) error {
 		FittedAt: end,
 	}
 	s.setModelInfo()
+	if s.cal != nil {
+		s.warmCalibrator()
+	}
 	return nil
 }
 

@@ -15,6 +15,9 @@ type Forecast struct {
 	Model       ModelInfo
 	Levels      []float64 // interval levels in percent, ascending, e.g. [80 95]
 	Points      []Point   // h = 1..horizon
+	// Calibrated: the bands are calibrated (CONTRACT §4, package
+	// calibrate); false: they are the model's own.
+	Calibrated bool
 }
 
 // ModelInfo describes the model a forecast came from.
@@ -35,6 +38,10 @@ type Point struct {
 	Median float64
 	Lower  []Bound
 	Upper  []Bound
+	// Scale[i] is the band's half-width at Levels[i] divided by the
+	// model's own, on the model scale: the calibration factor (1 for the
+	// model's own bands).
+	Scale []float64
 }
 
 // Bound is one band endpoint. OK is false when the endpoint falls outside

@@ -22,9 +22,14 @@ type ModelForecast struct {
 	Model       ModelInfo
 	Levels      []float64 // interval levels in percent
 	Z           []float64 // standard normal quantile of each level's upper end
-	Mean        []float64 // model-scale forecast means, h = 1..horizon
-	Variance    []float64 // and variances
-	Transform   transform.Transform
+	// Calibrated says that the bands are m ± Mult·sd on the model scale,
+	// Mult[(h−1)·L + l] the calibrator's threshold at horizon h and level
+	// l (calibrate.Calibrator.Thresholds); otherwise they are m ± Z·sd.
+	Calibrated bool
+	Mult       []float64
+	Mean       []float64 // model-scale forecast means, h = 1..horizon
+	Variance   []float64 // and variances
+	Transform  transform.Transform
 
 	// Fill's scratch for one point: the median, then the lower and upper
 	// end per level, on the model scale (w) and raw (x, ok).
@@ -42,9 +47,10 @@ func (m *ModelForecast) TimeAt(h int) time.Time {
 
 // CopyFrom makes m a copy of src, reusing m's slices.
 func (m *ModelForecast) CopyFrom(src *ModelForecast) {
-	levels, z, mean, variance := m.Levels, m.Z, m.Mean, m.Variance
+	levels, z, mean, variance, mult := m.Levels, m.Z, m.Mean, m.Variance, m.Mult
 	w, x, ok := m.ptW, m.ptX, m.ptOK
 	*m = *src
+	m.Mult = append(mult[:0], src.Mult...)
 	m.Levels = append(levels[:0], src.Levels...)
 	m.Z = append(z[:0], src.Z...)
 	m.Mean = append(mean[:0], src.Mean...)
@@ -55,13 +61,17 @@ func (m *ModelForecast) CopyFrom(src *ModelForecast) {
 // Fill writes the raw-unit forecast into dst, reusing dst's slices (it
 // allocates only when dst is smaller than the forecast).
 //
-// The median and every band endpoint map through the monotone inverse
-// transform; the mean uses the bias-adjusted back-transform. For a counter
+// The band at level l and horizon h is median ± k·sd on the model scale,
+// k the calibrated threshold Mult when Calibrated, else the normal
+// quantile Z[l]; Point.Scale is k/Z[l] (1 for the model's own bands). The
+// median and every band endpoint map through the monotone inverse
+// transform, which keeps quantiles; the mean uses the bias-adjusted back-transform. For a counter
 // every value is floored at the last closed value (a total never falls).
 func (m *ModelForecast) Fill(dst *Forecast) {
 	h, nl := len(m.Mean), len(m.Levels)
 	dst.Topic, dst.Kind, dst.StepSeconds = m.Topic, m.Kind, m.StepSeconds
 	dst.Origin, dst.LastValue, dst.Model = m.Origin(), m.Last, m.Model
+	dst.Calibrated = m.Calibrated && len(m.Mult) == h*nl
 	dst.Levels = append(dst.Levels[:0], m.Levels...)
 	if cap(dst.Points) < h {
 		dst.Points = append(dst.Points[:cap(dst.Points)], make([]Point, h-cap(dst.Points))...)
@@ -80,11 +90,19 @@ func (m *ModelForecast) Fill(dst *Forecast) {
 		if len(p.Lower) != nl {
 			p.Lower, p.Upper = make([]Bound, nl), make([]Bound, nl)
 		}
+		if len(p.Scale) != nl {
+			p.Scale = make([]float64, nl)
+		}
 		p.H = i + 1
 		p.Time = m.TimeAt(i + 1)
 		m.ptW[0] = mu
 		for j, z := range m.Z {
-			m.ptW[1+2*j], m.ptW[2+2*j] = mu-z*sd, mu+z*sd
+			k := z
+			if dst.Calibrated {
+				k = m.Mult[i*nl+j]
+			}
+			p.Scale[j] = k / z
+			m.ptW[1+2*j], m.ptW[2+2*j] = mu-k*sd, mu+k*sd
 		}
 		m.Transform.InverseSlice(m.ptX, m.ptOK, m.ptW) // the median is Inverse(mu)
 		p.Median = orNaN(m.ptX[0], m.ptOK[0])

@@ -8,6 +8,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"forewarn/engine/arima"
+	"forewarn/engine/calibrate"
 	"forewarn/engine/transform"
 )
 
@@ -25,6 +26,7 @@ type Settings struct {
 	Period      int       // seasonal period in steps (of the seasonal orders, or for automatic choice); 0: none
 	Constant    string    // "auto" (or ""), "none", "mean" or "drift" (arima.ParseConstant)
 	Transform   string    // "auto", "none", "log", "boxcox", "boxcox(λ)", "scaled-exp"
+	Calibrate   bool      // calibrate the bands and alert spreads online (package calibrate)
 	Fingerprint string    // changes whenever any field above changes
 }
 
@@ -73,6 +75,13 @@ type Series struct {
 	fcStale bool
 
 	work AlertWork // EvaluateAlerts' workspace
+
+	// cal calibrates the bands when Settings.Calibrate is set (nil
+	// otherwise): it resolves each closed bucket's pending forecasts
+	// before the filter steps (push) and records each new forecast
+	// (forecast), whose bands then use its thresholds.
+	cal *calibrate.Calibrator
+	sd  []float64 // the new forecast's sds on the model scale, for Issue
 }
 
 // New returns an empty series for topic.
@@ -92,6 +101,9 @@ func New(topic string, set Settings) (*Series, error) {
 	s.snap.Window = s.win[:0]
 	s.tr = transform.Transform{Name: transform.None, Scale: 1}
 	s.initBuffers()
+	if err := s.initCalibrator(); err != nil {
+		return nil, err
+	}
 	return s, nil
 }
 
@@ -112,6 +124,10 @@ func Restore(snap *Snapshot, set Settings) (*Series, error) {
 	s.win = make([]float64, windowCap(set.Window))
 	s.snap.Window = s.win[:copy(s.win, snap.Window[max(0, len(snap.Window)-set.Window):])]
 	s.initBuffers()
+	if err := s.initCalibrator(); err != nil {
+		return nil, err
+	}
+	s.snap.Calibration = nil // set again from the calibrator (Snapshot)
 	s.tr = transform.Transform{Name: transform.None, Scale: 1}
 	if snap.Fingerprint != set.Fingerprint {
 		s.snap.Fingerprint = set.Fingerprint
@@ -136,6 +152,14 @@ func Restore(snap *Snapshot, set Settings) (*Series, error) {
 	s.snap.Model = &ms
 	s.tr, s.model, s.filter = tr, m, f
 	s.setModelInfo()
+	if s.cal != nil {
+		// The record's calibration continues; a record without one
+		// (format 1 or 2, or calibration just turned on, which changes
+		// the fingerprint only when turned off) warms it as a fit does.
+		if len(snap.Calibration) == 0 || s.cal.SetState(snap.Calibration) != nil {
+			s.warmCalibrator()
+		}
+	}
 	if len(s.snap.Window) > 0 {
 		s.forecast() // the latest forecast is served again at once after a restart
 	}
@@ -188,6 +212,7 @@ func (s *Series) initBuffers() {
 		Z:           make([]float64, len(s.set.Levels)),
 		Mean:        make([]float64, h),
 		Variance:    make([]float64, h),
+		Mult:        make([]float64, h*len(s.set.Levels)),
 	}
 	for i, l := range s.set.Levels {
 		s.mf.Z[i] = distuv.UnitNormal.Quantile(0.5 + l/200)
@@ -197,6 +222,7 @@ func (s *Series) initBuffers() {
 	for i := range s.fc.Points {
 		s.fc.Points[i].Lower = make([]Bound, len(s.set.Levels))
 		s.fc.Points[i].Upper = make([]Bound, len(s.set.Levels))
+		s.fc.Points[i].Scale = make([]float64, len(s.set.Levels))
 	}
 	s.mf.Fill(&s.fc) // the scratch too
 }
@@ -369,6 +395,9 @@ func (s *Series) push(v float64) {
 				w = x
 			}
 		}
+		if s.cal != nil {
+			s.cal.Observe(w) // resolves the forecasts issued for this bucket
+		}
 		s.filter.Step(w)
 	}
 }
@@ -381,6 +410,9 @@ func windowCap(n int) int { return n + max(1, n/8) }
 func (s *Series) dropModel() {
 	s.model, s.filter, s.snap.Model = nil, nil, nil
 	s.snap.SinceRefit = 0
+	if s.cal != nil {
+		_ = s.initCalibrator() // the forecasts pending are of a window now gone; the settings were checked by New
+	}
 }
 
 // Forecast returns the latest forecast in raw units, filling it from the
@@ -420,6 +452,13 @@ func (s *Series) Joint(cov []float64) {
 // origin; the raw-unit one follows when asked for (Forecast).
 func (s *Series) forecast() {
 	s.filter.Forecast(s.mf.Mean, s.mf.Variance)
+	if s.cal != nil {
+		for i, v := range s.mf.Variance {
+			s.sd[i] = math.Sqrt(v)
+		}
+		s.cal.Issue(s.mf.Mean, s.sd) // Gaussian on the model scale: the median is the mean
+		s.cal.Thresholds(s.mf.Mult)
+	}
 	s.mf.End = s.snap.WindowEnd
 	s.mf.Last = s.snap.Window[len(s.snap.Window)-1]
 	s.mf.Transform = s.tr
@@ -459,7 +498,54 @@ func (s *Series) Snapshot() *Snapshot {
 	if s.filter != nil && s.snap.Model != nil {
 		s.snap.Model.Filter = s.filter.AppendState(s.snap.Model.Filter[:0])
 	}
+	if s.cal != nil {
+		s.snap.Calibration = s.cal.AppendState(s.snap.Calibration[:0])
+	} else {
+		s.snap.Calibration = nil
+	}
 	return &s.snap
+}
+
+// Calibrator returns the series' calibrator (read-only; nil when the
+// settings do not calibrate): thresholds, factors and realised coverage.
+func (s *Series) Calibrator() *calibrate.Calibrator { return s.cal }
+
+// initCalibrator makes the calibrator the settings ask for, with the
+// model's own thresholds until a fit warms it.
+func (s *Series) initCalibrator() error {
+	if !s.set.Calibrate {
+		return nil
+	}
+	c, err := calibrate.New(calibrate.Options{Horizon: s.set.Horizon, Levels: s.set.Levels})
+	if err != nil {
+		return fmt.Errorf("%w: %w", ErrSettings, err)
+	}
+	s.cal = c
+	s.sd = make([]float64, s.set.Horizon)
+	s.mf.Calibrated = true
+	c.Thresholds(s.mf.Mult)
+	return nil
+}
+
+// warmCalibrator sets the thresholds from the forecasts the current model
+// would have issued over the window (calibrate.WarmStart: one filter pass
+// and at most calibrate.DefaultWarmOrigins forecasts). When the window
+// leaves no forecast to learn from, the thresholds go back to the model's
+// own.
+func (s *Series) warmCalibrator() {
+	w := make([]float64, len(s.snap.Window))
+	for i, v := range s.snap.Window {
+		w[i] = math.NaN()
+		if !math.IsNaN(v) {
+			if x, err := s.tr.Forward(v); err == nil {
+				w[i] = x
+			}
+		}
+	}
+	if _, err := s.cal.WarmStart(s.model, w, nil); err != nil {
+		s.cal.Reset()
+	}
+	s.cal.Thresholds(s.mf.Mult)
 }
 
 // Alerts returns the alert states, one per rule evaluated, by rule name

@@ -50,6 +50,7 @@ func copyForecast(f *Forecast) Forecast {
 	for i, p := range f.Points {
 		p.Lower = append([]Bound(nil), p.Lower...)
 		p.Upper = append([]Bound(nil), p.Upper...)
+		p.Scale = append([]float64(nil), p.Scale...)
 		c.Points[i] = p
 	}
 	return c

@@ -51,6 +51,13 @@ type Snapshot struct {
 
 	// Alert rule states, one per matching rule, by rule name.
 	Alerts []AlertSnapshot
+
+	// Calibration is the fixed state of the series' calibrator
+	// (calibrate.Calibrator.AppendState: thresholds per horizon and
+	// level, the online update's settings and the coverage sums); empty
+	// when the series does not calibrate. The
+	// forecasts issued and not yet realised are not kept.
+	Calibration []float64
 }
 
 // TransformSnapshot is the state the inverse transform needs, plus the

@@ -351,6 +351,7 @@ func settingsOf(sc *config.Series, named string) series.Settings {
 		Period:      sc.Period(),
 		Constant:    sc.Constant,
 		Transform:   sc.Transform,
+		Calibrate:   sc.Calibrated(),
 		Fingerprint: sc.Fingerprint(),
 	}
 }

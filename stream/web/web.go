@@ -89,6 +89,13 @@ func View(topic string, e *daemon.Entry, history int) site.View {
 		v.Model = site.Model{Spec: m.Spec, Transform: m.Transform, FittedAt: m.FittedAt, NObs: m.NObs, AICc: m.AICc}
 		v.Forecast = forecastView(fc)
 	}
+	if c := s.Calibrator(); c != nil {
+		v.Calibrated = true
+		for l, lv := range c.Levels() {
+			share, w := c.Coverage(l)
+			v.Coverage = append(v.Coverage, site.Coverage{Level: lv, Share: share, Weight: w})
+		}
+	}
 	for _, r := range e.Rules() {
 		rv := site.Rule{Name: r.Name, Threshold: r.Threshold, Above: r.Above, Probability: math.NaN()}
 		for _, a := range snap.Alerts {

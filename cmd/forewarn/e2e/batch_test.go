@@ -59,6 +59,7 @@ func TestStreamingEqualsBatch(t *testing.T) {
     refit_every: 1
     model: %s
     transform: none
+    calibrate: false # forewarn fit prints the model's own bands
 `, horizon, window, fixedModel("1,1,1"))
 	d := newDaemon(t, external, cfg)
 	_, c, p := session(t, d)

@@ -64,6 +64,8 @@ func refView(t *testing.T, topic, id string) View {
 func fixture(t *testing.T) *fixedSource {
 	air := refView(t, "air.passengers", "AirPassengers_na_log_airline")
 	air.Rejects, air.Late = 3, 1
+	air.Calibrated = true
+	air.Coverage = []Coverage{{Level: 80, Share: 0.7843, Weight: 1234.4}, {Level: 95, Share: math.NaN()}}
 	air.Rules = []Rule{{Name: "busy-summer", Threshold: 600, Above: true, Raised: true, Probability: 0.97},
 		{Name: "quiet", Threshold: 100, Above: false, Probability: math.NaN()}}
 	gas := refView(t, "uk.gas", "UKgas_log_airline")

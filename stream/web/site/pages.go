@@ -29,7 +29,8 @@ var funcs = template.FuncMap{
 		}
 		return strconv.FormatFloat(100*p, 'f', 1, 64) + " %"
 	},
-	"at": func(xs []float64, i int) float64 { return xs[i] },
+	"at":    func(xs []float64, i int) float64 { return xs[i] },
+	"count": func(w float64) string { return strconv.FormatFloat(w, 'f', 0, 64) },
 	"step": func(s int64) string {
 		return humanfmt.Duration(time.Duration(s) * time.Second)
 	},
@@ -158,6 +159,11 @@ var seriesText = `<!doctype html>
 <table id="forecast"><tr><th>h</th><th>ahead</th><th>time</th><th>mean</th><th>median</th>{{range .Levels}}<th>{{level .}} % interval</th>{{end}}</tr>
 {{range .Points}}{{$p := .}}<tr><td class="n">{{.H}}</td><td class="n">{{ahead $.Forecast.Origin .Time}}</td><td class="muted">{{utc .Time}}</td><td class="n" title="{{full .Mean}}">{{num .Mean}}</td><td class="n" title="{{full .Median}}">{{num .Median}}</td>{{range $i, $l := $.Forecast.Levels}}<td class="n" title="{{full (at $p.Lower $i)}} … {{full (at $p.Upper $i)}}">{{bound (at $p.Lower $i)}} … {{bound (at $p.Upper $i)}}</td>{{end}}</tr>
 {{end}}</table>{{else}}<p class="muted">No forecast yet: the series is warming up.</p>{{end}}
+<h2>Band coverage</h2>
+{{if .Calibrated}}<p class="muted">Bands calibrated from the series' own forecast errors. Realised: the share of recent forecasts, all horizons, that fell inside their band.</p>
+<table id="coverage"><tr><th>level</th><th>nominal</th><th>realised</th><th>forecasts</th></tr>
+{{range .Coverage}}<tr><td>{{level .Level}} % interval</td><td class="n">{{level .Level}} %</td><td class="n">{{pct .Share}}</td><td class="n">{{count .Weight}}</td></tr>
+{{end}}</table>{{else}}<p class="muted">The bands are the model's own (calibrate: false).</p>{{end}}
 </main></body></html>
 `
 

@@ -178,9 +178,24 @@ func TestPages(t *testing.T) {
 			t.Errorf("series page has %q", bad)
 		}
 	}
+	// Band coverage next to the nominal level (common practice: a
+	// percentage with one decimal, as the alert probabilities).
+	cov := body[strings.Index(body, `<table id="coverage">`):]
+	cov = cov[:strings.Index(cov, "</table>")]
+	for _, want := range []string{
+		`<tr><td>80 % interval</td><td class="n">80 %</td><td class="n">78.4 %</td><td class="n">1234</td></tr>`,
+		`<tr><td>95 % interval</td><td class="n">95 %</td><td class="n">—</td><td class="n">0</td></tr>`,
+	} {
+		if !strings.Contains(cov, want) {
+			t.Errorf("coverage table lacks %s:\n%s", want, cov)
+		}
+	}
 	body = get(t, h, "/series/uk.gas").Body.String()
 	if want := `<td title="1250">above 1.25 k</td>`; !strings.Contains(body, want) {
 		t.Errorf("uk.gas page lacks %s", want)
+	}
+	if !strings.Contains(body, "The bands are the model's own") || strings.Contains(body, `<table id="coverage">`) {
+		t.Error("uk.gas page, not calibrated, does not say its bands are the model's own")
 	}
 	rec = get(t, h, "/series/lab.hormone")
 	if !strings.Contains(rec.Body.String(), "No forecast yet") {

@@ -48,6 +48,22 @@ type View struct {
 
 	Forecast *Forecast // nil while warming up
 	Rules    []Rule
+
+	// Calibrated: the series calibrates its bands (CONTRACT §4);
+	// Coverage then holds, per level in ascending order, the realised
+	// coverage of its recent forecasts.
+	Calibrated bool
+	Coverage   []Coverage
+}
+
+// Coverage is the realised coverage of one level's bands: the share of
+// the series' recent forecasts (all horizons, older ones weighted less)
+// whose value fell inside the band, NaN before any was resolved, and the
+// weighted number of forecasts behind it.
+type Coverage struct {
+	Level  float64 // nominal, percent
+	Share  float64 // realised, 0..1
+	Weight float64
 }
 
 // Model describes the fitted model.
