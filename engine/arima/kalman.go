@@ -688,3 +688,51 @@ func (s *ssm) replay(g *gainRec, x, resid, a, t1 []float64) {
 		}
 	}
 }
+
+// replayCols is replay for every column of cols into out (same lengths).
+// In prediction form the columns go four at a time: each column's
+// recursion is a chain of dependent operations, and four independent
+// chains per row keep the processor busy (same arithmetic, same results).
+// a and t1 are scratch vectors of length at least 4m.
+func (s *ssm) replayCols(g *gainRec, cols, out [][]float64, a, t1 []float64) {
+	j := 0
+	if g.pred {
+		r := g.m
+		phi := s.phi[:r]
+		for ; j+4 <= len(cols); j += 4 {
+			x0, x1, x2, x3 := cols[j], cols[j+1], cols[j+2], cols[j+3]
+			o0, o1, o2, o3 := out[j], out[j+1], out[j+2], out[j+3]
+			st := a[:4*r]
+			for i := range st {
+				st[i] = 0
+			}
+			s0, s1, s2, s3 := st[:r], st[r:2*r], st[2*r:3*r], st[3*r:4*r]
+			n := len(x0)
+			x1, x2, x3 = x1[:n], x2[:n], x3[:n]
+			o0, o1, o2, o3 = o0[:n], o1[:n], o2[:n], o3[:n]
+			for t := 0; t < n; t++ {
+				gi := min(t, g.steady)
+				k := g.g[gi*r : gi*r+r]
+				sd := g.sd[gi]
+				v0, v1, v2, v3 := x0[t]-s0[0], x1[t]-s1[0], x2[t]-s2[0], x3[t]-s3[0]
+				o0[t], o1[t], o2[t], o3[t] = v0*sd, v1*sd, v2*sd, v3*sd
+				a0, a1, a2, a3 := s0[0], s1[0], s2[0], s3[0]
+				for i := 0; i < r-1; i++ {
+					p, ki := phi[i], k[i]
+					s0[i] = s0[i+1] + p*a0 + ki*v0
+					s1[i] = s1[i+1] + p*a1 + ki*v1
+					s2[i] = s2[i+1] + p*a2 + ki*v2
+					s3[i] = s3[i+1] + p*a3 + ki*v3
+				}
+				p, ki := phi[r-1], k[r-1]
+				s0[r-1] = p*a0 + ki*v0
+				s1[r-1] = p*a1 + ki*v1
+				s2[r-1] = p*a2 + ki*v2
+				s3[r-1] = p*a3 + ki*v3
+			}
+		}
+	}
+	for ; j < len(cols); j++ {
+		s.replay(g, cols[j], out[j], a, t1)
+	}
+}

@@ -474,11 +474,9 @@ func (e *evaluator) evalX(betas []float64, profile bool, resid []float64) (evalO
 		return out, ErrTooShort
 	}
 	if rec := &e.ws.rec; rec.valid {
-		e.ws.xa = resize(e.ws.xa, rec.m)
+		e.ws.xa = resize(e.ws.xa, 4*rec.m)
 		e.ws.t1 = resize(e.ws.t1, rec.m)
-		for j, c := range e.cols {
-			e.s.replay(rec, c, e.ex[j], e.ws.xa, e.ws.t1)
-		}
+		e.s.replayCols(rec, e.cols, e.ex, e.ws.xa, e.ws.t1)
 	} else {
 		for j, c := range e.cols {
 			if _, err := e.run(c, nil, e.ex[j]); err != nil {
