@@ -105,6 +105,17 @@
 // Choice.Seasons records the terms per cycle, Choice.Fourier the
 // regressors.
 //
+// # Decomposition plus ARIMA (SelectMSTL)
+//
+// The published alternative for several whole cycles on a complete series
+// (Bandara, Hyndman & Bergmeir 2021): MSTL splits off one seasonal
+// component per cycle (STL, Cleveland et al. 1990, with its default
+// windows), Select without seasonal terms chooses the model of the
+// seasonally adjusted series, and each component is carried forward by its
+// last cycle. Its seasonal shape follows the recent cycles, where Fourier
+// terms hold one shape over the whole window; on taylor it forecasts
+// better (TestTaylorMSTLAgainstR). Select does not choose it yet.
+//
 // # Contract
 //
 // Pure computation: no I/O, no goroutines; safe for concurrent use on

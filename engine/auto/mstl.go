@@ -159,6 +159,7 @@ func cycleSubseries(y []float64, np, ns int, c []float64) {
 	n := len(y)
 	sub := make([]float64, 0, n/np+1)
 	sm := make([]float64, n/np+1)
+	scratch := make([]float64, ns)
 	for j := 0; j < np; j++ {
 		sub = sub[:0]
 		for t := j; t < n; t += np {
@@ -168,11 +169,11 @@ func cycleSubseries(y []float64, np, ns int, c []float64) {
 		loessAll(sub, ns, 0, jumpOf(ns), sm[:k])
 		// extrapolate to positions −1 and k (0-based)
 		lo := sm[0]
-		if v, ok := loessAt(sub, ns, 0, -1, 0, min(ns, k)-1); ok {
+		if v, ok := loessAt(sub, ns, 0, -1, 0, min(ns, k)-1, scratch); ok {
 			lo = v
 		}
 		hi := sm[k-1]
-		if v, ok := loessAt(sub, ns, 0, float64(k), max(0, k-ns), k-1); ok {
+		if v, ok := loessAt(sub, ns, 0, float64(k), max(0, k-ns), k-1, scratch); ok {
 			hi = v
 		}
 		c[j] = lo
@@ -217,6 +218,7 @@ func loessAll(y []float64, q, deg, jump int, out []float64) {
 	n := len(y)
 	nj := max(1, min(jump, n-1))
 	half := (q + 1) / 2
+	scratch := make([]float64, min(q, n))
 	at := func(i int) {
 		left, right := 0, n-1
 		if q < n {
@@ -229,7 +231,7 @@ func loessAll(y []float64, q, deg, jump int, out []float64) {
 				left, right = i-half+1, i-half+q
 			}
 		}
-		v, ok := loessAt(y, q, deg, float64(i), left, right)
+		v, ok := loessAt(y, q, deg, float64(i), left, right, scratch)
 		if !ok {
 			v = y[i]
 		}
@@ -267,7 +269,9 @@ func loessAll(y []float64, q, deg, jump int, out []float64) {
 // tricube weights over the distance h to the farthest of them (widened by
 // (q − n)/2 when the window exceeds the series), degree 0 (weighted mean)
 // or 1 (weighted line); ok is false when every weight is zero.
-func loessAt(y []float64, q, deg int, x float64, left, right int) (float64, bool) {
+// scratch holds at least right − left + 1 values.
+func loessAt(y []float64, q, deg int, x float64, left, right int, scratch []float64) (float64, bool) {
+	ws := scratch[:right-left+1]
 	n := len(y)
 	h := math.Max(x-float64(left), float64(right)-x)
 	if q > n {
@@ -275,7 +279,6 @@ func loessAt(y []float64, q, deg int, x float64, left, right int) (float64, bool
 	}
 	h9, h1 := 0.999*h, 0.001*h
 	sw := 0.0
-	ws := make([]float64, right-left+1)
 	for j := left; j <= right; j++ {
 		r := math.Abs(float64(j) - x)
 		wj := 0.0
