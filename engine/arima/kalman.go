@@ -598,7 +598,6 @@ type gainRec struct {
 	on    bool      // record during the next filter pass
 	valid bool      // the last pass recorded completely
 	pred  bool      // prediction form (Chandrasekhar): a ← T a + g v; else filtered form (dense): a ← T a, then a ← a + g v
-	aug   bool      // dense with the levels in the state (Z = zVec)
 	m     int       // state length
 	g     []float64 // per row m values: K̄_t/F_t (pred) or M_t/F_t (filtered)
 	sd    []float64 // per row 1/√F_t; 0: the error does not count; NaN: missing row
