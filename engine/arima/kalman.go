@@ -75,8 +75,15 @@ func (s *ssm) chandrasekhar(w, x []float64, ws *workspace, resid []float64) (sum
 	steady := false
 	logF := 0.0
 	phi := s.phi[:r]
+	rec := ws.rec.start(r, len(w), true)
 	for t := 0; t < len(w); t++ {
+		if rec != nil {
+			rec.put(t, K, F)
+		}
 		if steady {
+			if rec != nil {
+				rec.steady = t
+			}
 			// constant F and K: a tight loop, sums scaled by 1/F at the end
 			rest := steadyRun(w[t:], x, t, a, ax, K, phi, resid, F)
 			rest.scale(F)
@@ -144,6 +151,9 @@ func (s *ssm) chandrasekhar(w, x []float64, ws *workspace, resid []float64) (sum
 			steady = true
 			logF = math.Log(F)
 		}
+	}
+	if rec != nil {
+		rec.valid = true
 	}
 	return out, nil
 }
@@ -495,6 +505,7 @@ func (s *ssm) denseFilter(y, x []float64, aug bool, ws *workspace, resid []float
 			P[i*m+i] = kappa
 		}
 	}
+	rec := ws.rec.start(m, len(y), false)
 	for t, yt := range y {
 		if t > 0 {
 			s.tVec(t1, a, 0)
@@ -509,11 +520,20 @@ func (s *ssm) denseFilter(y, x []float64, aug bool, ws *workspace, resid []float
 			resid[t] = math.NaN()
 		}
 		if math.IsNaN(yt) {
+			if rec != nil {
+				rec.sd[t] = math.NaN()
+			}
 			continue
 		}
 		F := s.gain(P, mv, m, aug)
 		if !(F > 0) || math.IsInf(F, 0) {
 			return out, ErrNumerical
+		}
+		if rec != nil {
+			rec.put(t, mv, F)
+			if aug && F >= fThreshold {
+				rec.sd[t] = 0
+			}
 		}
 		za, zx := a[0], ax[0]
 		if aug {
@@ -537,12 +557,16 @@ func (s *ssm) denseFilter(y, x []float64, aug bool, ws *workspace, resid []float
 		}
 		rank1Down(P, mv, m, F)
 	}
+	if rec != nil {
+		rec.valid = true
+	}
 	return out, nil
 }
 
 // workspace holds the buffers of one likelihood evaluation so repeated
 // evaluations during a fit do not allocate.
 type workspace struct {
+	rec               gainRec
 	a, ax, W, K       []float64
 	P, tmp            []float64
 	xa, xx, mv, t1    []float64
@@ -563,4 +587,151 @@ func (ws *workspace) dense(m int) {
 	ws.xx = resize(ws.xx, m)
 	ws.mv = resize(ws.mv, m)
 	ws.t1 = resize(ws.t1, m)
+}
+
+// gainRec records the gains of one filter pass over the data so that the
+// regression columns can be filtered with them (evalX): the gains and the
+// prediction variances of a Kalman filter do not depend on the data, only
+// on the model and on which rows are missing, so a column needs only the
+// O(m) state update per row instead of its own covariance recursion.
+type gainRec struct {
+	on    bool      // record during the next filter pass
+	valid bool      // the last pass recorded completely
+	pred  bool      // prediction form (Chandrasekhar): a ← T a + g v; else filtered form (dense): a ← T a, then a ← a + g v
+	m     int       // state length
+	g     []float64 // per row m values: K̄_t/F_t (pred) or M_t/F_t (filtered)
+	sd    []float64 // per row 1/√F_t; 0: the error does not count; NaN: missing row
+	// steady is the row from which the gain is frozen (prediction form):
+	// rows ≥ steady use the gain and variance stored at row steady.
+	steady int
+}
+
+// maxRecord caps the recorded gains (floats); a larger state filters each
+// column by its own pass.
+const maxRecord = 1 << 22
+
+// start prepares the record for a pass of n rows with an m-state; nil when
+// recording is off or too large.
+func (g *gainRec) start(m, n int, pred bool) *gainRec {
+	g.valid = false
+	if !g.on || m*n > maxRecord {
+		return nil
+	}
+	g.pred, g.m, g.steady = pred, m, n
+	g.g = resize(g.g, m*n)
+	g.sd = resize(g.sd, n)
+	return g
+}
+
+// put stores row t's gain vector k/F and 1/√F.
+func (g *gainRec) put(t int, k []float64, F float64) {
+	inv := 1 / F
+	dst := g.g[t*g.m : (t+1)*g.m]
+	for i := range dst {
+		dst[i] = k[i] * inv
+	}
+	g.sd[t] = 1 / math.Sqrt(F)
+}
+
+// replay filters the column x with the recorded gains from a zero state
+// (the column's own pass would start there too), writing the standardised
+// one-step errors v_t/√F_t into resid (NaN where missing or not counted).
+// a and t1 are scratch vectors of length m.
+func (s *ssm) replay(g *gainRec, x, resid, a, t1 []float64) {
+	m := g.m
+	for i := range a[:m] {
+		a[i] = 0
+	}
+	if g.pred {
+		r := m
+		phi := s.phi[:r]
+		a = a[:r]
+		for t, xt := range x {
+			gi := min(t, g.steady)
+			k := g.g[gi*r : gi*r+r]
+			v := xt - a[0]
+			resid[t] = v * g.sd[gi]
+			a0 := a[0]
+			for i := 0; i < r-1; i++ {
+				a[i] = a[i+1] + phi[i]*a0 + k[i]*v
+			}
+			a[r-1] = phi[r-1]*a0 + k[r-1]*v
+		}
+		return
+	}
+	a, t1 = a[:m], t1[:m]
+	aug := m > s.r
+	for t, xt := range x {
+		if t > 0 {
+			s.tVec(t1, a, 0)
+			copy(a, t1)
+		}
+		sd := g.sd[t]
+		if sd != sd {
+			resid[t] = math.NaN()
+			continue
+		}
+		z := a[0]
+		if aug {
+			z = s.zVec(a)
+		}
+		v := xt - z
+		if sd > 0 {
+			resid[t] = v * sd
+		} else {
+			resid[t] = math.NaN()
+		}
+		k := g.g[t*m : (t+1)*m]
+		for i, ki := range k {
+			a[i] += ki * v
+		}
+	}
+}
+
+// replayCols is replay for every column of cols into out (same lengths).
+// In prediction form the columns go four at a time: each column's
+// recursion is a chain of dependent operations, and four independent
+// chains per row keep the processor busy (same arithmetic, same results).
+// a and t1 are scratch vectors of length at least 4m.
+func (s *ssm) replayCols(g *gainRec, cols, out [][]float64, a, t1 []float64) {
+	j := 0
+	if g.pred {
+		r := g.m
+		phi := s.phi[:r]
+		for ; j+4 <= len(cols); j += 4 {
+			x0, x1, x2, x3 := cols[j], cols[j+1], cols[j+2], cols[j+3]
+			o0, o1, o2, o3 := out[j], out[j+1], out[j+2], out[j+3]
+			st := a[:4*r]
+			for i := range st {
+				st[i] = 0
+			}
+			s0, s1, s2, s3 := st[:r], st[r:2*r], st[2*r:3*r], st[3*r:4*r]
+			n := len(x0)
+			x1, x2, x3 = x1[:n], x2[:n], x3[:n]
+			o0, o1, o2, o3 = o0[:n], o1[:n], o2[:n], o3[:n]
+			for t := 0; t < n; t++ {
+				gi := min(t, g.steady)
+				k := g.g[gi*r : gi*r+r]
+				sd := g.sd[gi]
+				v0, v1, v2, v3 := x0[t]-s0[0], x1[t]-s1[0], x2[t]-s2[0], x3[t]-s3[0]
+				o0[t], o1[t], o2[t], o3[t] = v0*sd, v1*sd, v2*sd, v3*sd
+				a0, a1, a2, a3 := s0[0], s1[0], s2[0], s3[0]
+				for i := 0; i < r-1; i++ {
+					p, ki := phi[i], k[i]
+					s0[i] = s0[i+1] + p*a0 + ki*v0
+					s1[i] = s1[i+1] + p*a1 + ki*v1
+					s2[i] = s2[i+1] + p*a2 + ki*v2
+					s3[i] = s3[i+1] + p*a3 + ki*v3
+				}
+				p, ki := phi[r-1], k[r-1]
+				s0[r-1] = p*a0 + ki*v0
+				s1[r-1] = p*a1 + ki*v1
+				s2[r-1] = p*a2 + ki*v2
+				s3[r-1] = p*a3 + ki*v3
+			}
+		}
+	}
+	for ; j < len(cols); j++ {
+		s.replay(g, cols[j], out[j], a, t1)
+	}
 }

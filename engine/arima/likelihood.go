@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"gonum.org/v1/gonum/blas/blas64"
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -461,16 +462,26 @@ func (e *evaluator) evalX(betas []float64, profile bool, resid []float64) (evalO
 	}
 	e.ws.resid = resize(e.ws.resid, len(d))
 	ey := e.ws.resid
+	// One pass over the data records the gains; each column is then
+	// filtered with them (gainRec).
+	e.ws.rec.on = true
 	u, err := e.run(d, nil, ey)
+	e.ws.rec.on = false
 	if err != nil {
 		return out, err
 	}
 	if u.n == 0 {
 		return out, ErrTooShort
 	}
-	for j, c := range e.cols {
-		if _, err := e.run(c, nil, e.ex[j]); err != nil {
-			return out, err
+	if rec := &e.ws.rec; rec.valid {
+		e.ws.xa = resize(e.ws.xa, 4*rec.m)
+		e.ws.t1 = resize(e.ws.t1, rec.m)
+		e.s.replayCols(rec, e.cols, e.ex, e.ws.xa, e.ws.t1)
+	} else {
+		for j, c := range e.cols {
+			if _, err := e.run(c, nil, e.ex[j]); err != nil {
+				return out, err
+			}
 		}
 	}
 	ssq := u.syy
@@ -713,19 +724,8 @@ func anyNaN(x []float64) bool {
 	return false
 }
 
-// dot4 is Σ a_i b_i with four running sums (len(b) ≥ len(a)).
+// dot4 is Σ a_i b_i (len(b) ≥ len(a)), by gonum's BLAS Ddot (assembly
+// kernel on amd64; about twice the speed of a four-sum Go loop here).
 func dot4(a, b []float64) float64 {
-	b = b[:len(a)]
-	var s0, s1, s2, s3 float64
-	i := 0
-	for ; i+4 <= len(a); i += 4 {
-		s0 += a[i] * b[i]
-		s1 += a[i+1] * b[i+1]
-		s2 += a[i+2] * b[i+2]
-		s3 += a[i+3] * b[i+3]
-	}
-	for ; i < len(a); i++ {
-		s0 += a[i] * b[i]
-	}
-	return (s0 + s1) + (s2 + s3)
+	return blas64.Dot(blas64.Vector{N: len(a), Inc: 1, Data: a}, blas64.Vector{N: len(a), Inc: 1, Data: b[:len(a)]})
 }

@@ -115,3 +115,17 @@ func BenchmarkSelectTaylor(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkSelectMSTLTaylor is the decomposition-plus-ARIMA route
+// (SelectMSTL) on the same 3 984 values of taylor, cycles 48 and 336; R
+// forecast 8.20's stlm takes the seconds testdata/r/taylor_accuracy.json
+// records as stlm_seconds.
+func BenchmarkSelectMSTLTaylor(b *testing.B) {
+	x := refdata.Dataset(b, "taylor")[:3984]
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := SelectMSTL(x, []int{48, 336}, Options{}); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

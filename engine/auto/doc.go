@@ -92,15 +92,29 @@
 //  4. The stepwise order search of step 4 on the residuals at the chosen K.
 //  5. The chosen orders on every transform's residuals; the lowest
 //     raw-scale AICc wins.
-//  6. One FitX of the regression with ARIMA errors (β by GLS inside the
-//     exact likelihood) at the chosen orders and K, with the constant on
-//     and off when allowed; its AICc is the one reported.
+//  6. The constant (mean or drift), when allowed, by AICc: the chosen
+//     orders on the concentrated residuals with and without the constant
+//     column (Hyndman & Khandakar 2008 decide it by AICc in the search).
+//  7. One FitX of the regression with ARIMA errors (β by GLS inside the
+//     exact likelihood) at the chosen orders, K and constant; its AICc is
+//     the one reported.
 //
 // A warm refit with Warm.Seasons keeps the transform, d, the constant and
 // each cycle's K, compares the previous orders and ±1 on p and on q on the
 // residuals, and fits the best by FitX from the previous coefficients.
 // Choice.Seasons records the terms per cycle, Choice.Fourier the
 // regressors.
+//
+// # Decomposition plus ARIMA (SelectMSTL)
+//
+// The published alternative for several whole cycles on a complete series
+// (Bandara, Hyndman & Bergmeir 2021): MSTL splits off one seasonal
+// component per cycle (STL, Cleveland et al. 1990, with its default
+// windows), Select without seasonal terms chooses the model of the
+// seasonally adjusted series, and each component is carried forward by its
+// last cycle. Its seasonal shape follows the recent cycles, where Fourier
+// terms hold one shape over the whole window; on taylor it forecasts
+// better (TestTaylorMSTLAgainstR). Select does not choose it yet.
 //
 // # Contract
 //

@@ -264,7 +264,7 @@ func (c *concentrated) residuals(cols []int) ([]float64, int, error) {
 	e := append([]float64(nil), c.wd...)
 	k := len(idx)
 	if k == 0 {
-		return e, 0, nil
+		return trimLead(e), 0, nil
 	}
 	a := make([]float64, k*k)
 	b := make([]float64, k)
@@ -285,7 +285,19 @@ func (c *concentrated) residuals(cols []int) ([]float64, int, error) {
 		}
 		e[i] -= s
 	}
-	return e, k, nil
+	return trimLead(e), k, nil
+}
+
+// trimLead drops the leading missing values (those differencing leaves):
+// the exact likelihood of a stationary model is the same without them (a
+// prediction from the stationary start keeps the stationary covariance),
+// and a series with no missing value takes the fast filter.
+func trimLead(e []float64) []float64 {
+	lo := 0
+	for lo < len(e) && math.IsNaN(e[lo]) {
+		lo++
+	}
+	return e[lo:]
 }
 
 // solveSPD solves a·x = b for a symmetric positive definite k×k a by

@@ -108,9 +108,39 @@ func (s *selector) seasonsX(cs cycleSetup) (*Choice, error) {
 	}
 	cm := consNone
 	if cons {
-		cm = consBoth
+		cm = s.constantX(bestC, X, pool.selected(K), best)
 	}
 	return s.finalX(bestC, cs, pool, X, K, best.spec, best.res.Model.Params(), cm)
+}
+
+// constantX decides the constant (a mean when d + D = 0, a drift when 1)
+// of the final fit by AICc on the concentrated residuals, as the stepwise
+// search of Hyndman & Khandakar (2008) decides it: the chosen orders are
+// fitted to the residuals of the least-squares regression on cols with and
+// without the constant column, the constant counted as a coefficient. One
+// FitX then fits the winner (the regression with ARIMA errors costs far more
+// than these fits).
+func (s *selector) constantX(c *scaled, X [][]float64, cols []int, best *fitted) int {
+	aic := func(cons bool) float64 {
+		cc := newConcentrated(c.w, X, s.d, s.sd, s.period, cons)
+		e, nb, err := cc.residuals(cols)
+		if err != nil {
+			return math.Inf(1)
+		}
+		res, err := arima.Fit(e, best.spec, &arima.FitOptions{Start: best.res.Model.Params()})
+		if err != nil || nearUnitRoot(res.Model) != "" {
+			return math.Inf(1)
+		}
+		return aiccK(res, nb)
+	}
+	on, off := aic(true), aic(false)
+	switch {
+	case math.IsInf(on, 1) && math.IsInf(off, 1):
+		return consBoth // undecided here: FitX compares both
+	case on < off:
+		return consOn
+	}
+	return consNone
 }
 
 // residualSelector is a selector for the order search on the concentrated
