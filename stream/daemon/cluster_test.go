@@ -1,6 +1,7 @@
 package daemon
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
 	"maps"
@@ -11,6 +12,7 @@ import (
 	"time"
 
 	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
 
 	"forewarn/engine/series"
 	"forewarn/stream"
@@ -26,6 +28,7 @@ var (
 	testCl      *clustertest.Cluster
 	testClErr   error
 	testClDir   string
+	clRuns      int // a fresh intake stream per run (go test -count)
 )
 
 func TestMain(m *testing.M) {
@@ -135,6 +138,18 @@ func (f *forecasters) of(topic string) []string {
 // partitions fed the same observations (reference: the single-instance
 // daemon, the behaviour cluster mode must reproduce).
 func TestClusterTwoInstancesShareAndHandOver(t *testing.T) {
+	clusterShareAndHandOver(t, false)
+}
+
+// The same when fw-one dies instead of leaving: its connection is cut, so
+// it can neither renew nor release its leases, and fw-two takes its
+// partitions once they lapse (cluster.lease 2 s). The lease is the floor
+// of the handover time here.
+func TestClusterHandOverAfterDeath(t *testing.T) {
+	clusterShareAndHandOver(t, true)
+}
+
+func clusterShareAndHandOver(t *testing.T, die bool) {
 	cl := natsCluster(t)
 
 	// Reference: one instance, no partitions, its own server.
@@ -165,10 +180,27 @@ func TestClusterTwoInstancesShareAndHandOver(t *testing.T) {
 	}
 	fc := &forecasters{by: map[string]map[string]int{}}
 	run := map[string]*runningDaemon{}
+	conns := map[string]*nats.Conn{}
+	clRuns++
+	streamName := fmt.Sprintf("CLTEST%d", clRuns)
+	t.Cleanup(func() { // the next run (go test -count) takes the same subjects
+		nc := streamtest.Connect(t, cl.URL())
+		js, err := jetstream.New(nc)
+		if err != nil {
+			t.Error(err)
+			return
+		}
+		ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+		defer cancel()
+		if err := js.DeleteStream(ctx, streamName); err != nil {
+			t.Errorf("delete the test stream: %v", err)
+		}
+		_ = js.DeleteKeyValue(ctx, stream.LeaseBucket(streamName))
+	})
 	for k, name := range names {
 		cfg := testConfig(t.TempDir())
 		cfg.NATS.URL = cl.URLFrom(k)
-		cfg.Intake.Stream = "CLTEST"
+		cfg.Intake.Stream = streamName
 		cfg.Intake.Replicas = 3
 		cfg.Cluster.Partitions = parts
 		cfg.Cluster.Instance = name
@@ -176,7 +208,7 @@ func TestClusterTwoInstancesShareAndHandOver(t *testing.T) {
 		if err := cfg.Validate(); err != nil {
 			t.Fatal(err)
 		}
-		run[name] = start(t, cfg.NATS.URL, cfg, fc.hook(name))
+		run[name] = start(t, cfg.NATS.URL, cfg, fc.hook(name), func(o *Options) { conns[name] = o.Conn })
 	}
 	owned := func(name string) []int {
 		return slices.Sorted(maps.Keys(run[name].d.intake.(*stream.PartitionedIntake).Owned()))
@@ -222,13 +254,24 @@ func TestClusterTwoInstancesShareAndHandOver(t *testing.T) {
 	t.Logf("series per instance: %v", perInstance)
 	checkQueriesAnsweredOnce(t, pub, run, assign, parts)
 
-	// fw-one leaves; fw-two takes its partitions and replays them.
+	// fw-one leaves (or dies); fw-two takes its partitions and replays them.
+	how := "a clean leave"
 	left := time.Now()
-	run["fw-one"].stop(t)
+	if die {
+		how = "fw-one's connection was cut"
+		conns["fw-one"].Close()
+		defer func() { // what it does now reaches nobody; only its store is closed
+			run["fw-one"].cancel()
+			<-run["fw-one"].done
+			run["fw-one"].store.Close()
+		}()
+	} else {
+		run["fw-one"].stop(t)
+	}
 	streamtest.Eventually(t, 60*time.Second, "fw-two owns every partition", func() bool {
 		return slices.Equal(owned("fw-two"), []int{0, 1, 2, 3})
 	})
-	t.Logf("handover after a clean leave: %v", time.Since(left).Round(time.Millisecond))
+	t.Logf("handover after %s: fw-two owns every partition %v later", how, time.Since(left).Round(time.Millisecond))
 	clPublish(t, pub, clPhase1, clPhase1+clPhase2)
 	got := map[string]map[string]any{}
 	streamtest.Eventually(t, 60*time.Second, "fw-two forecasts every series at the last origin", func() bool {
@@ -241,7 +284,7 @@ func TestClusterTwoInstancesShareAndHandOver(t *testing.T) {
 		}
 		return true
 	})
-	t.Logf("all %d series forecasting on fw-two %v after fw-one left", clSeries, time.Since(left).Round(time.Millisecond))
+	t.Logf("all %d series forecasting on fw-two at the last origin %v after %s", clSeries, time.Since(left).Round(time.Millisecond), how)
 	for i := range clSeries {
 		topic := clTopic(i)
 		if w, g := fmt.Sprint(want[topic]), fmt.Sprint(got[topic]); w != g {
