@@ -15,6 +15,9 @@
 //     reflection, no allocation per observation in the common case.
 //   - Intake takes messages off the bus and hands them in batches, in
 //     order, to one handler goroutine.
+//   - PartitionedIntake (cluster mode, cluster.partitions > 0) consumes
+//     the partitions a cluster.Owner holds, one consumer per partition and
+//     epoch, and hands all of them to one handler (see "Cluster mode").
 //   - AppendForecast, AppendAlert and AppendReject encode the output
 //     messages without reflection into a caller's buffer; Publisher
 //     publishes them; ServeQueries answers forewarn query.
@@ -48,6 +51,33 @@
 // effort: messages published while the daemon is down or disconnected are
 // lost, a handler that falls far behind makes the client drop messages
 // (see Intake.Dropped), and nothing is redelivered. Seq is then 0.
+//
+// # Cluster mode
+//
+// With cluster.partitions: N > 0 the intake stream is created with the
+// subject transform cluster.Transform(N) and intake.replicas copies, and
+// an existing stream cut into another count is refused (cluster.CheckStream;
+// a plain Intake checks too, so partitions: 0 refuses a partitioned
+// stream). NewClusterIntake joins the lease bucket LeaseBucket(stream) as
+// cluster.instance; PartitionedIntake.Run opens, for each partition the
+// Owner reports gained, the consumer cluster.ConsumerName(intake.consumer,
+// p, epoch) with cluster.OpenConsumer (which deletes older epochs: a paused
+// former owner is fenced), and stops it when the partition is lost. The
+// stored subject "p.metrics.x" is handed over as "metrics.x" (cluster.Split).
+//
+// In this step one handler (one daemon loop) serves every partition an
+// instance owns; the partitions' batches reach it one at a time. Each
+// partition keeps its own acknowledgement floor: Mark, called when the
+// daemon's flush takes its floor, notes what each partition has handed
+// over, and Ack(s) acknowledges min(s, mark) on each consumer.
+//
+// There are no snapshots yet: a new owner's consumer starts at the first
+// message the stream still holds, so the owner rebuilds every series it has
+// no record of from the stream's retained history (intake.max_age,
+// intake.max_bytes), and a series it has a record of skips what the record
+// already reflects. What the stream no longer holds is lost to the new
+// owner. Only the owner answers forewarn.query.<topic> (OwnsTopic with
+// ServeQueriesOwned); the others stay silent.
 //
 // # Concurrency
 //

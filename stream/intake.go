@@ -12,6 +12,7 @@ import (
 	"github.com/nats-io/nats.go/jetstream"
 
 	"forewarn/config"
+	"forewarn/stream/cluster"
 )
 
 // Message is one intake message as handed to the handler.
@@ -59,6 +60,16 @@ type IntakeOptions struct {
 	// MaxBytes is the stream's retention by size: beyond it the oldest
 	// messages are discarded. Default 1 GiB. Negative: unlimited.
 	MaxBytes int64
+	// Partitions cuts the stream into this many partitions (the config's
+	// cluster.partitions) with the subject transform cluster.Transform:
+	// each stored subject starts with its partition number. Zero: no
+	// transform (one instance owns everything). A stream that exists with
+	// another count is refused (cluster.CheckStream).
+	Partitions int
+	// Replicas is how many servers hold the stream when it is created
+	// (intake.replicas). Default 1.
+	Replicas int
+
 	// MaxAckPending bounds delivered but unacknowledged messages; the
 	// server stops delivering at the bound. Default 200 000.
 	MaxAckPending int
@@ -104,6 +115,9 @@ func (o IntakeOptions) withDefaults() IntakeOptions {
 	}
 	if o.MaxBytes == 0 {
 		o.MaxBytes = def.MaxBytes
+	}
+	if o.Replicas <= 0 {
+		o.Replicas = 1
 	}
 	if o.MaxAckPending == 0 {
 		o.MaxAckPending = 200_000
@@ -176,14 +190,7 @@ func NewIntake(nc *nats.Conn, o IntakeOptions) (*Intake, error) {
 	o = o.withDefaults()
 	ctx, cancel := context.WithTimeout(context.Background(), o.SetupTimeout)
 	defer cancel()
-	in := &Intake{
-		nc:         nc,
-		o:          o,
-		ready:      make(chan struct{}, 1),
-		full:       make(chan struct{}, 1),
-		subscribed: make(chan struct{}),
-	}
-	in.space = sync.NewCond(&in.mu)
+	in := newIntake(nc, o)
 	if !o.Durable {
 		return in, nil
 	}
@@ -202,6 +209,20 @@ func NewIntake(nc *nats.Conn, o IntakeOptions) (*Intake, error) {
 	return in, nil
 }
 
+// newIntake returns an Intake with options o (defaults applied) and no
+// consumer yet.
+func newIntake(nc *nats.Conn, o IntakeOptions) *Intake {
+	in := &Intake{
+		nc:         nc,
+		o:          o,
+		ready:      make(chan struct{}, 1),
+		full:       make(chan struct{}, 1),
+		subscribed: make(chan struct{}),
+	}
+	in.space = sync.NewCond(&in.mu)
+	return in
+}
+
 func ensureStream(ctx context.Context, js jetstream.JetStream, o IntakeOptions) (jetstream.Stream, error) {
 	want := jetstream.StreamConfig{
 		Name:        o.Stream,
@@ -213,7 +234,13 @@ func ensureStream(ctx context.Context, js jetstream.JetStream, o IntakeOptions) 
 		MaxAge:      o.MaxAge,
 		MaxBytes:    o.MaxBytes,
 		MaxMsgs:     -1,
-		Replicas:    1,
+		Replicas:    o.Replicas,
+	}
+	if o.Partitions > 0 {
+		want.SubjectTransform = cluster.Transform(o.Partitions)
+	}
+	if err := cluster.CheckStream(ctx, js, o.Stream, o.Partitions); err != nil {
+		return nil, fmt.Errorf("%w: %w", ErrIntake, err)
 	}
 	st, err := js.Stream(ctx, o.Stream)
 	if errors.Is(err, jetstream.ErrStreamNotFound) {

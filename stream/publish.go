@@ -91,6 +91,14 @@ func NoForecastReason(topic string) string {
 // copied before the next call. Unsubscribe or drain the returned
 // subscription to stop.
 func ServeQueries(nc *nats.Conn, prefix string, lookup func(topic string) ([]byte, bool)) (*nats.Subscription, error) {
+	return ServeQueriesOwned(nc, prefix, nil, lookup)
+}
+
+// ServeQueriesOwned is ServeQueries for an instance that answers only for
+// the topics owns accepts (cluster mode: the topics of its partitions); a
+// request for another topic gets no reply from it. owns nil accepts every
+// topic. owns is called on the subscription's goroutine.
+func ServeQueriesOwned(nc *nats.Conn, prefix string, owns func(topic string) bool, lookup func(topic string) ([]byte, bool)) (*nats.Subscription, error) {
 	if prefix == "" {
 		prefix = config.Default().Output.Prefix
 	}
@@ -100,6 +108,9 @@ func ServeQueries(nc *nats.Conn, prefix string, lookup func(topic string) ([]byt
 			return
 		}
 		topic, _ := strings.CutPrefix(m.Subject, base)
+		if owns != nil && !owns(topic) {
+			return // another instance owns it and answers
+		}
 		if data, ok := lookup(topic); ok {
 			_ = m.Respond(data)
 			return

@@ -54,6 +54,14 @@
 // The first needs only local clocks to run at the same rate, not to agree;
 // the second needs nothing from the former owner.
 //
+// # Consuming
+//
+// stream.PartitionedIntake puts these together for the daemon: it starts
+// an Owner, opens a partition's consumer with OpenConsumer on each gained
+// change and stops it on each lost one. Without snapshots (a later step) a
+// consumer starts at the first message the stream holds, and its owner
+// rebuilds the partition's series from the stream's retained history.
+//
 // # Goroutines and locks
 //
 // An Owner owns exactly one goroutine, started by Start and ended by

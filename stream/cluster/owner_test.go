@@ -362,19 +362,17 @@ func TestNodeRestart(t *testing.T) {
 	waitHolders(t, l, want, "three instances")
 	epochs := l.epochs()
 	t.Cleanup(func() {
-		if err := tc.waitReady(); err != nil {
+		if err := tc.WaitReady(); err != nil {
 			t.Errorf("cluster not whole again after the restart: %v", err)
 		}
 	})
-	tc.stop(1)
+	tc.StopNode(1)
 	restarted := time.Now()
-	if err := tc.start(1); err != nil {
+	if err := tc.StartNode(1); err != nil {
 		t.Fatal(err)
 	}
 	// Wait until the restarted node's JetStream is current again.
-	tc.mu.Lock()
-	s := tc.servers[1]
-	tc.mu.Unlock()
+	s := tc.Server(1)
 	if err := poll(60*time.Second, func() error {
 		if !s.JetStreamIsCurrent() {
 			return errors.New("node 2 JetStream not current")

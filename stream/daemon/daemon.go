@@ -26,8 +26,15 @@ type Options struct {
 	Store  *state.Store
 	Logger *slog.Logger
 	// Intake is where the messages come from. Nil means a stream.Intake
-	// on Conn, as Config.Intake describes it.
+	// on Conn, as Config.Intake describes it, or with
+	// Config.Cluster.Partitions > 0 a stream.PartitionedIntake
+	// (stream.NewClusterIntake), whose OwnsTopic becomes Owns.
 	Intake Intake
+	// Owns says whether this instance answers queries for a topic (cluster
+	// mode: it owns the topic's partition, stream.PartitionedIntake's
+	// OwnsTopic); for another topic it stays silent, so that the owner's
+	// answer is the one a requester gets. Nil: every topic.
+	Owns func(topic string) bool
 	// Now is the wall clock, for arrival stamps and "issued" times.
 	// Nil means time.Now.
 	Now func() time.Time
@@ -88,6 +95,17 @@ func New(o Options) (*Daemon, error) {
 	}
 	c := o.Config.WithDefaults()
 	in := o.Intake
+	if in == nil && c.Cluster.Partitions > 0 {
+		// Cluster mode: this instance consumes the partitions it owns.
+		pi, err := stream.NewClusterIntake(o.Conn, c, o.Logger)
+		if err != nil {
+			return nil, err
+		}
+		in = pi
+		if o.Owns == nil {
+			o.Owns = pi.OwnsTopic
+		}
+	}
 	if in == nil {
 		si, err := stream.NewIntake(o.Conn, stream.IntakeOptions{
 			Subjects: c.Intake.Subjects,
@@ -96,6 +114,7 @@ func New(o Options) (*Daemon, error) {
 			Consumer: c.Intake.Consumer,
 			MaxAge:   c.Intake.MaxAge,
 			MaxBytes: c.Intake.MaxBytes,
+			Replicas: c.Intake.Replicas,
 		})
 		if err != nil {
 			return nil, err
@@ -186,7 +205,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 		d.refits.stop()
 		d.alerts.stop()
 	}
-	sub, err := stream.ServeQueries(d.opt.Conn, d.cfg.Output.Prefix, d.Latest)
+	sub, err := stream.ServeQueriesOwned(d.opt.Conn, d.cfg.Output.Prefix, d.opt.Owns, d.Latest)
 	if err != nil {
 		stopWorkers()
 		return err

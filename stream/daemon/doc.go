@@ -13,7 +13,11 @@
 //     its series and owns the series map and every entry in it;
 //   - Intake (intake.go) is the consumer-side interface of the source:
 //     Run, Subscribed, Ack; a stream.Intake unless Options.Intake names
-//     another;
+//     another, or a stream.PartitionedIntake when cluster.partitions > 0
+//     (one loop serves every partition the instance owns; an intake of
+//     several consumers also implements Marker, so that each consumer is
+//     acknowledged only up to what it had handed over when the flush
+//     began);
 //   - refitPool (refits.go) runs series.FitJob on Refit.Workers workers;
 //   - alertPool (alerts.go) runs the alert evaluations that need a
 //     simulation on one worker per GOMAXPROCS;

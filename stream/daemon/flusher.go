@@ -97,6 +97,9 @@ func (f *flusher) begin(all map[string]*entry, floor uint64) {
 		}
 	}
 	f.floor = floor
+	if m, ok := f.in.(Marker); ok {
+		m.Mark()
+	}
 	if len(f.toFlush) == 0 {
 		f.ack(f.floor) // nothing new to store: every earlier write has committed
 		return
@@ -184,14 +187,14 @@ func (f *flusher) written(w writeDone, all map[string]*entry) {
 }
 
 func (f *flusher) ack(floor uint64) {
-	if floor <= f.acked {
+	if _, marks := f.in.(Marker); floor <= f.acked && !marks {
 		return
 	}
 	if err := f.in.Ack(floor); err != nil {
 		f.log.Warn("acknowledgement failed; the stream will redeliver (no effect twice)", "seq", floor, "err", err)
 		return
 	}
-	f.acked = floor
+	f.acked = max(f.acked, floor)
 }
 
 // finish encodes the rest of the flush in progress and waits for its

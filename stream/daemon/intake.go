@@ -25,4 +25,20 @@ type Intake interface {
 	Ack(seq uint64) error
 }
 
-var _ Intake = (*stream.Intake)(nil)
+// Marker is implemented by an Intake whose messages come from several
+// consumers with interleaved stream positions (stream.PartitionedIntake,
+// one consumer per partition). The flusher calls Mark on the loop when a
+// flush takes its floor; the Ack that follows that flush's commit then
+// reaches, on each consumer, only what was handed over before the Mark.
+// For such an intake the flusher acknowledges after every flush, even at
+// a floor it acknowledged before, since a consumer behind the others
+// advances below it.
+type Marker interface {
+	Mark()
+}
+
+var (
+	_ Intake = (*stream.Intake)(nil)
+	_ Intake = (*stream.PartitionedIntake)(nil)
+	_ Marker = (*stream.PartitionedIntake)(nil)
+)
