@@ -52,6 +52,10 @@ func TestPartitionMatchesServer(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
+		pending := make(map[string]int, subjects)
+		for _, w := range want {
+			pending[w]++
+		}
 		counts := make([]int, n)
 		for i := 0; i < subjects; {
 			batch, err := cons.Fetch(1000)
@@ -62,10 +66,14 @@ func TestPartitionMatchesServer(t *testing.T) {
 				continue
 			}
 			for m := range batch.Messages() {
+				// Asynchronous publications may be stored in another
+				// order than sent (a retried one lands later), so each
+				// stored subject is matched against those not yet seen.
 				p, orig, ok := Split(m.Subject())
-				if !ok || orig != want[i] {
-					t.Fatalf("n=%d message %d: stored %q, published %q", n, i, m.Subject(), want[i])
+				if !ok || pending[orig] == 0 {
+					t.Fatalf("n=%d message %d: stored %q, which was not published (or once too often)", n, i, m.Subject())
 				}
+				pending[orig]--
 				if got := Partition(orig, n); got != p {
 					t.Fatalf("n=%d: server put %q in partition %d, Partition says %d", n, orig, p, got)
 				}
