@@ -55,7 +55,9 @@ func connect(t *testing.T, first int, name string) (*nats.Conn, jetstream.JetStr
 }
 
 func ctxT(t *testing.T) context.Context {
-	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	// Generous: a test's polls of up to 30 s each run inside it, and a
+	// loaded 2-core machine (the race detector in CI) slows every request.
+	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 	t.Cleanup(cancel)
 	return ctx
 }
