@@ -223,16 +223,7 @@ func runLoad(args []string, stdout, stderr io.Writer) int {
 	batch := fs.Int("batch", 500, "observations per message, at most 1000")
 	window := fs.Int("window", 64, "messages in flight before waiting for acknowledgements")
 	timeout := fs.Duration("timeout", 30*time.Second, "how long to wait for the acknowledgements and the daemon's answer")
-	var a stream.Auth
-	fs.StringVar(&a.User, "user", "", "NATS user")
-	fs.StringVar(&a.Password, "password", "", "NATS password (visible to other local users; prefer --creds)")
-	fs.StringVar(&a.Token, "token", "", "NATS authentication token")
-	fs.StringVar(&a.NKeySeedFile, "nkey", "", "NKey seed `file`")
-	fs.StringVar(&a.CredsFile, "creds", "", "NATS credentials `file`")
-	fs.StringVar(&a.CAFile, "tls-ca", "", "PEM `file` of the roots that verify the server")
-	fs.StringVar(&a.CertFile, "tls-cert", "", "client certificate `file`")
-	fs.StringVar(&a.KeyFile, "tls-key", "", "client key `file`")
-	fs.StringVar(&a.ServerName, "tls-server-name", "", "name to verify in the server's certificate")
+	a := authFlags(fs)
 	if err := fs.Parse(args); err != nil {
 		if errors.Is(err, flag.ErrHelp) {
 			return exitOK
@@ -293,7 +284,7 @@ func runLoad(args []string, stdout, stderr io.Writer) int {
 		return exitUsage
 	}
 
-	nc, err := stream.Connect(*url, a, "forewarn load")
+	nc, err := stream.Connect(*url, *a, "forewarn load")
 	if err != nil {
 		fmt.Fprintf(stderr, "forewarn load: %v\n", err)
 		if errors.Is(err, stream.ErrAuth) {

@@ -33,16 +33,7 @@ func runQuery(args []string, stdout, stderr io.Writer) int {
 	url := fs.String("nats", "nats://"+def.NATS.Listen, "NATS server `URL` the daemon is on")
 	prefix := fs.String("prefix", def.Output.Prefix, "the daemon's output subject `prefix` (output.prefix)")
 	timeout := fs.Duration("timeout", 2*time.Second, "how long to wait for the reply")
-	var a stream.Auth
-	fs.StringVar(&a.User, "user", "", "NATS user")
-	fs.StringVar(&a.Password, "password", "", "NATS password (visible to other local users; prefer --creds)")
-	fs.StringVar(&a.Token, "token", "", "NATS authentication token")
-	fs.StringVar(&a.NKeySeedFile, "nkey", "", "NKey seed `file`")
-	fs.StringVar(&a.CredsFile, "creds", "", "NATS credentials `file`")
-	fs.StringVar(&a.CAFile, "tls-ca", "", "PEM `file` of the roots that verify the server")
-	fs.StringVar(&a.CertFile, "tls-cert", "", "client certificate `file`")
-	fs.StringVar(&a.KeyFile, "tls-key", "", "client key `file`")
-	fs.StringVar(&a.ServerName, "tls-server-name", "", "name to verify in the server's certificate")
+	a := authFlags(fs)
 	if err := fs.Parse(args); err != nil {
 		if errors.Is(err, flag.ErrHelp) {
 			return exitOK
@@ -63,7 +54,7 @@ func runQuery(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "forewarn query: --timeout must be positive, got %s\n", *timeout)
 		return exitUsage
 	}
-	nc, err := stream.Connect(*url, a, "forewarn query")
+	nc, err := stream.Connect(*url, *a, "forewarn query")
 	if err != nil {
 		fmt.Fprintf(stderr, "forewarn query: %v\n", err)
 		if errors.Is(err, stream.ErrAuth) {
@@ -98,4 +89,20 @@ func runQuery(args []string, stdout, stderr io.Writer) int {
 	}
 	fmt.Fprintf(stdout, "%s\n", m.Data)
 	return exitOK
+}
+
+// authFlags defines the flags of a client command that connects to a NATS
+// server of the operator's (query, load) and returns where they land.
+func authFlags(fs *flag.FlagSet) *stream.Auth {
+	var a stream.Auth
+	fs.StringVar(&a.User, "user", "", "NATS user")
+	fs.StringVar(&a.Password, "password", "", "NATS password (visible to other local users; prefer --creds)")
+	fs.StringVar(&a.Token, "token", "", "NATS authentication token")
+	fs.StringVar(&a.NKeySeedFile, "nkey", "", "NKey seed `file`")
+	fs.StringVar(&a.CredsFile, "creds", "", "NATS credentials `file`")
+	fs.StringVar(&a.CAFile, "tls-ca", "", "PEM `file` of the roots that verify the server")
+	fs.StringVar(&a.CertFile, "tls-cert", "", "client certificate `file`")
+	fs.StringVar(&a.KeyFile, "tls-key", "", "client key `file`")
+	fs.StringVar(&a.ServerName, "tls-server-name", "", "name to verify in the server's certificate")
+	return &a
 }
