@@ -38,7 +38,6 @@ func (e *Evaluator) factor(cov, variance []float64, h, k int) error {
 	if scale == 0 {
 		scale = 1
 	}
-	L := e.chol[:k*k]
 	for j := 0; j < k; j++ {
 		sjj := cov[j*h+j]
 		if !finite(sjj) || math.Abs(sjj-variance[j]) > symTol*scale {
@@ -49,30 +48,43 @@ func (e *Evaluator) factor(cov, variance []float64, h, k int) error {
 			if !finite(a) || !finite(b) || math.Abs(a-b) > symTol*scale {
 				return fmt.Errorf("covariance (%d,%d) = %v but (%d,%d) = %v: %w", j+1, i+1, a, i+1, j+1, b, ErrCovariance)
 			}
-			s := a
+		}
+	}
+	return cholPSD(e.chol[:k*k], k, cov, h, k, scale)
+}
+
+// cholPSD writes the lower Cholesky factor of the leading n×n block of the
+// positive semi-definite P (row-major, stride ldp) into L (stride ldl) by
+// the recursion of factor; a pivot below pivotTol·scale gives a zero
+// column, one below −psdTol·scale is ErrNotPSD. Only the lower triangle of
+// P is read.
+func cholPSD(L []float64, ldl int, P []float64, ldp, n int, scale float64) error {
+	for j := 0; j < n; j++ {
+		for i := 0; i < j; i++ {
+			s := P[j*ldp+i]
 			for l := 0; l < i; l++ {
-				s -= L[j*k+l] * L[i*k+l]
+				s -= L[j*ldl+l] * L[i*ldl+l]
 			}
-			if d := L[i*k+i]; d > 0 {
-				L[j*k+i] = s / d
+			if d := L[i*ldl+i]; d > 0 {
+				L[j*ldl+i] = s / d
 			} else {
-				L[j*k+i] = 0
+				L[j*ldl+i] = 0
 			}
 		}
-		s := sjj
+		s := P[j*ldp+j]
 		for l := 0; l < j; l++ {
-			s -= L[j*k+l] * L[j*k+l]
+			s -= L[j*ldl+l] * L[j*ldl+l]
 		}
 		switch {
 		case s < -psdTol*scale:
 			return fmt.Errorf("pivot %d is %v: %w", j+1, s, ErrNotPSD)
 		case s <= pivotTol*scale:
-			L[j*k+j] = 0
+			L[j*ldl+j] = 0
 		default:
-			L[j*k+j] = math.Sqrt(s)
+			L[j*ldl+j] = math.Sqrt(s)
 		}
-		for i := j + 1; i < k; i++ {
-			L[j*k+i] = 0
+		for i := j + 1; i < n; i++ {
+			L[j*ldl+i] = 0
 		}
 	}
 	return nil

@@ -334,54 +334,19 @@ func (e *Evaluator) loadSystem(q *Query, ss *StateSpace, sc *screened) error {
 	if v0 := q.Variance[0]; math.Abs(v1-v0) > 1e-6*math.Max(v0, v1)+1e-300 {
 		return fmt.Errorf("state space variance at step 1 is %v, query variance %v: %w", v1, v0, ErrStateSpace)
 	}
-	if err := cholPSD(w.L, ss.P, m); err != nil {
+	scale := 0.0
+	for j := 0; j < m; j++ {
+		scale = math.Max(scale, ss.P[j*m+j])
+	}
+	if scale == 0 {
+		scale = 1
+	}
+	if err := cholPSD(w.L, m, ss.P, m, m, scale); err != nil {
 		return fmt.Errorf("state covariance: %w", err)
 	}
 	s := math.Sqrt(ss.Sigma2)
 	for i := range w.L {
 		w.L[i] *= s
-	}
-	return nil
-}
-
-// cholPSD writes the lower Cholesky factor of the m×m positive
-// semi-definite P into L (row-major, stride m), a pivot within rounding of
-// zero giving a zero column (Golub & Van Loan 2013, §4.2, as factor).
-func cholPSD(L, P []float64, m int) error {
-	scale := 0.0
-	for j := 0; j < m; j++ {
-		scale = math.Max(scale, P[j*m+j])
-	}
-	if scale == 0 {
-		scale = 1
-	}
-	for j := 0; j < m; j++ {
-		for i := 0; i < j; i++ {
-			s := P[j*m+i]
-			for l := 0; l < i; l++ {
-				s -= L[j*m+l] * L[i*m+l]
-			}
-			if d := L[i*m+i]; d > 0 {
-				L[j*m+i] = s / d
-			} else {
-				L[j*m+i] = 0
-			}
-		}
-		s := P[j*m+j]
-		for l := 0; l < j; l++ {
-			s -= L[j*m+l] * L[j*m+l]
-		}
-		switch {
-		case s < -psdTol*scale:
-			return fmt.Errorf("pivot %d is %v: %w", j+1, s, ErrNotPSD)
-		case s <= pivotTol*scale:
-			L[j*m+j] = 0
-		default:
-			L[j*m+j] = math.Sqrt(s)
-		}
-		for i := j + 1; i < m; i++ {
-			L[j*m+i] = 0
-		}
 	}
 	return nil
 }
