@@ -560,16 +560,8 @@ func (f *fitter) stdErr(params []float64) []float64 {
 	}
 	x := append([]float64(nil), params...)
 	nll := func() float64 {
-		i := 0
-		ar := x[i : i+s.P]
-		i += s.P
-		ma := x[i : i+s.Q]
-		i += s.Q
-		sar := x[i : i+s.SP]
-		i += s.SP
-		sma := x[i : i+s.SQ]
-		i += s.SQ
-		out, err := e.evalB(ar, ma, sar, sma, x[i:], false, nil)
+		ar, ma, sar, sma, rest := s.split(x)
+		out, err := e.evalB(ar, ma, sar, sma, rest, false, nil)
 		if err != nil {
 			return math.NaN()
 		}
@@ -613,14 +605,7 @@ func (f *fitter) stdErrX(params, regCov []float64) []float64 {
 	}
 	x := append([]float64(nil), params[:nu]...)
 	nll := func() float64 {
-		i := 0
-		ar := x[i : i+s.P]
-		i += s.P
-		ma := x[i : i+s.Q]
-		i += s.Q
-		sar := x[i : i+s.SP]
-		i += s.SP
-		sma := x[i : i+s.SQ]
+		ar, ma, sar, sma, _ := s.split(x)
 		out, err := e.evalB(ar, ma, sar, sma, nil, true, nil)
 		if err != nil {
 			return math.NaN()
@@ -633,6 +618,17 @@ func (f *fitter) stdErrX(params, regCov []float64) []float64 {
 	}
 	hessianStdErr(se, x, params[:nu], h, nll)
 	return se
+}
+
+// split cuts a parameter vector in Params order into φ, θ, Φ, Θ and the
+// rest (the regression coefficients), as views of x.
+func (s Spec) split(x []float64) (ar, ma, sar, sma, rest []float64) {
+	i := 0
+	ar, i = x[i:i+s.P], i+s.P
+	ma, i = x[i:i+s.Q], i+s.Q
+	sar, i = x[i:i+s.SP], i+s.SP
+	sma, i = x[i:i+s.SQ], i+s.SQ
+	return ar, ma, sar, sma, x[i:]
 }
 
 // hessianStdErr writes into se[:len(h)] the standard errors from the inverse

@@ -68,6 +68,16 @@ type evalOut struct {
 	betas                []float64
 }
 
+// concentrate sets the results of the likelihood with σ² concentrated out:
+// σ̂² = ssq/n and log L = −½(n log σ̂² + Σ log F_t + n + n log 2π), from the
+// sum of squared standardised innovations ssq, Σ log F_t and n.
+func (o *evalOut) concentrate(ssq, sumlog float64, n int) {
+	nn := float64(n)
+	o.ssq, o.sumlog, o.nobs = ssq, sumlog, n
+	o.sigma2 = ssq / nn
+	o.loglik = -0.5 * (nn*math.Log(o.sigma2) + sumlog + nn + nn*math.Log(2*math.Pi))
+}
+
 // checkData validates a series: NaN is a missing value; ±Inf and
 // magnitudes above MaxAbsValue are errors.
 func checkData(y []float64) (present int, err error) {
@@ -381,10 +391,7 @@ func (e *evaluator) evalB(ar, ma, sar, sma []float64, betas []float64, profile b
 		out.beta = b + u.sxy/u.sxx
 		ssq = u.syy - u.sxy*u.sxy/u.sxx
 	}
-	nn := float64(u.n)
-	out.ssq, out.sumlog, out.nobs = ssq, u.sumlog, u.n
-	out.sigma2 = ssq / nn
-	out.loglik = -0.5 * (nn*math.Log(out.sigma2) + u.sumlog + nn + nn*math.Log(2*math.Pi))
+	out.concentrate(ssq, u.sumlog, u.n)
 	if resid != nil {
 		sd := math.Sqrt(out.sigma2)
 		for i := range resid {
@@ -517,10 +524,7 @@ func (e *evaluator) evalX(betas []float64, profile bool, resid []float64) (evalO
 		ssq -= dot(e.sv, e.betaO)
 	}
 	out.betas = e.betaO
-	nn := float64(u.n)
-	out.ssq, out.sumlog, out.nobs = ssq, u.sumlog, u.n
-	out.sigma2 = ssq / nn
-	out.loglik = -0.5 * (nn*math.Log(out.sigma2) + u.sumlog + nn + nn*math.Log(2*math.Pi))
+	out.concentrate(ssq, u.sumlog, u.n)
 	if resid != nil {
 		sd := math.Sqrt(out.sigma2)
 		for i := range resid {
