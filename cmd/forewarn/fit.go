@@ -337,20 +337,27 @@ func seasonsOf(ch *auto.Choice) []fitSeason {
 	return out
 }
 
-// regressionNames names the Fourier columns as R forecast's fourier()
-// does, with the cycle in steps: "S<k>-<m>" and "C<k>-<m>", the sine and
-// cosine of harmonic k of the cycle of m steps.
+// regressionNames names the Fourier columns for the output, in forewarn's
+// own spelling with the cycle in steps: "sin<k>/<m>" and "cos<k>/<m>", the
+// sine and cosine of harmonic k of the cycle of m steps. (The engine's
+// column names follow R forecast's fourier(), "S<k>-<L>" and "C<k>-<L>"
+// with L in seconds, so that its tests can compare them with R's.)
 func regressionNames(ch *auto.Choice) []string {
 	if ch.Fourier == nil {
 		return nil
 	}
 	names := ch.Fourier.Names()
 	for i, nm := range names {
-		if j := strings.LastIndexByte(nm, '-'); j > 0 {
-			if L, err := strconv.ParseFloat(nm[j+1:], 64); err == nil && ch.Step > 0 {
-				names[i] = nm[:j+1] + strconv.FormatFloat(L/ch.Step, 'g', 6, 64)
-			}
+		j := strings.LastIndexByte(nm, '-')
+		if j < 1 {
+			continue
 		}
+		fn := map[byte]string{'S': "sin", 'C': "cos"}[nm[0]]
+		L, err := strconv.ParseFloat(nm[j+1:], 64)
+		if fn == "" || err != nil || ch.Step <= 0 {
+			continue
+		}
+		names[i] = fn + nm[1:j] + "/" + strconv.FormatFloat(L/ch.Step, 'g', 6, 64)
 	}
 	return names
 }

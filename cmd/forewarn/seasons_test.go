@@ -12,11 +12,11 @@ import (
 // TestFitSeasonsDurations: --seasons 1d,7d on 15 days of hourly rows with
 // a time column (Unix seconds) gives Fourier terms for both cycles in the
 // automatic choice, reported in model.seasons with their pairs, and the
-// coefficients by R fourier()'s names in estimates.regression. The series
+// coefficients by name in estimates.regression (sin<k>/<m>, cos<k>/<m>). The series
 // is a seeded simulation with known truth (a property test): a daily sine
 // of amplitude 10 and a weekly cosine of amplitude 4 around 100, with
 // N(0, 1) noise; the phase starts at the data time of the first row,
-// 1.7e9 s, so S1-24 ≈ 10·cos(2π·(t₀ mod 1d)/1d) and C1-24 ≈
+// 1.7e9 s, so sin1/24 ≈ 10·cos(2π·(t₀ mod 1d)/1d) and cos1/24 ≈
 // −10·sin(2π·(t₀ mod 1d)/1d) by angle addition.
 func TestFitSeasonsDurations(t *testing.T) {
 	const t0, n = 1.7e9, 360
@@ -60,7 +60,7 @@ func TestFitSeasonsDurations(t *testing.T) {
 		t.Fatalf("seasons %+v: want 24 and 168 steps, both with Fourier pairs", s)
 	}
 	ph := 2 * math.Pi * math.Mod(t0, 86400) / 86400
-	want := map[string]float64{"S1-24": 10 * math.Cos(ph), "C1-24": -10 * math.Sin(ph)}
+	want := map[string]float64{"sin1/24": 10 * math.Cos(ph), "cos1/24": -10 * math.Sin(ph)}
 	for _, r := range doc.Estimates.Regression {
 		if v, ok := want[r.Name]; ok {
 			if math.Abs(r.Value-v) > 1 {
