@@ -6,6 +6,8 @@ import (
 
 	"gonum.org/v1/gonum/blas/blas64"
 	"gonum.org/v1/gonum/mat"
+
+	"forewarn/engine/internal/linalg"
 )
 
 // Which filter an evaluator runs.
@@ -520,7 +522,7 @@ func (e *evaluator) evalX(betas []float64, profile bool, resid []float64) (evalO
 		if !cholesky(e.chol, e.sm, k) {
 			return out, fmt.Errorf("%w: the regression columns are collinear after filtering", ErrRegressors)
 		}
-		cholSolve(e.betaO, e.chol, e.sv, k)
+		linalg.CholSolve(e.betaO, e.chol, e.sv, k)
 		ssq -= dot(e.sv, e.betaO)
 	}
 	out.betas = e.betaO
@@ -558,7 +560,7 @@ func (e *evaluator) regCov(sigma2 float64) []float64 {
 			unit[i] = 0
 		}
 		unit[j] = 1
-		cholSolve(col, e.chol, unit, k)
+		linalg.CholSolve(col, e.chol, unit, k)
 		for i := 0; i < k; i++ {
 			out[i*k+j] = sigma2 * col[i]
 		}
@@ -590,24 +592,6 @@ func cholesky(l, a []float64, k int) bool {
 		}
 	}
 	return true
-}
-
-// cholSolve solves L Lᵀ x = b (x and b may not alias).
-func cholSolve(x, l, b []float64, k int) {
-	for i := 0; i < k; i++ {
-		s := b[i]
-		for m := 0; m < i; m++ {
-			s -= l[i*k+m] * x[m]
-		}
-		x[i] = s / l[i*k+i]
-	}
-	for i := k - 1; i >= 0; i-- {
-		s := x[i]
-		for m := i + 1; m < k; m++ {
-			s -= l[m*k+i] * x[m]
-		}
-		x[i] = s / l[i*k+i]
-	}
 }
 
 // LogLik returns the exact Gaussian log-likelihood of y (NaN = missing)

@@ -6,6 +6,7 @@ import (
 	"sort"
 
 	"forewarn/engine/arima"
+	"forewarn/engine/internal/linalg"
 	"forewarn/engine/stationarity"
 )
 
@@ -304,38 +305,11 @@ func trimLead(e []float64) []float64 {
 // Cholesky; ok is false when a is not positive definite.
 func solveSPD(a, b []float64, k int) ([]float64, bool) {
 	l := make([]float64, k*k)
-	for j := 0; j < k; j++ {
-		s := a[j*k+j]
-		for p := 0; p < j; p++ {
-			s -= l[j*k+p] * l[j*k+p]
-		}
-		if !(s > 1e-12*math.Max(1, a[j*k+j])) {
-			return nil, false
-		}
-		l[j*k+j] = math.Sqrt(s)
-		for i := j + 1; i < k; i++ {
-			s := a[i*k+j]
-			for p := 0; p < j; p++ {
-				s -= l[i*k+p] * l[j*k+p]
-			}
-			l[i*k+j] = s / l[j*k+j]
-		}
+	if !linalg.Cholesky(l, a, k) {
+		return nil, false
 	}
 	x := make([]float64, k)
-	for i := 0; i < k; i++ {
-		s := b[i]
-		for p := 0; p < i; p++ {
-			s -= l[i*k+p] * x[p]
-		}
-		x[i] = s / l[i*k+i]
-	}
-	for i := k - 1; i >= 0; i-- {
-		s := x[i]
-		for p := i + 1; p < k; p++ {
-			s -= l[p*k+i] * x[p]
-		}
-		x[i] = s / l[i*k+i]
-	}
+	linalg.CholSolve(x, l, b, k)
 	return x, true
 }
 

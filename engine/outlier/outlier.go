@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"forewarn/engine/arima"
+	"forewarn/engine/internal/linalg"
 )
 
 // Kind is the kind of an effect.
@@ -327,7 +328,7 @@ func (d *design) set(e []float64, z [][]float64) {
 		}
 	}
 	d.L = resize(d.L, k*k)
-	d.ok = cholesky(d.L, G, k)
+	d.ok = linalg.Cholesky(d.L, G, k)
 }
 
 // at returns ω̂ and s (the projected Σ c²) of the candidate with response
@@ -365,7 +366,7 @@ func (d *design) at(sc *scanner, T int) (omega, s float64) {
 		}
 	}
 	if k > 0 && d.ok {
-		cholSolve(d.u, d.L, d.cz, k)
+		linalg.CholSolve(d.u, d.L, d.cz, k)
 		for j := 0; j < k; j++ {
 			num -= d.u[j] * d.ze[j]
 			den -= d.u[j] * d.cz[j]
@@ -382,50 +383,6 @@ func resize(s []float64, n int) []float64 {
 		return make([]float64, n)
 	}
 	return s[:n]
-}
-
-// cholesky sets l to the lower Cholesky factor of the k×k matrix a and
-// reports whether a is positive definite.
-func cholesky(l, a []float64, k int) bool {
-	for i := range l {
-		l[i] = 0
-	}
-	for j := 0; j < k; j++ {
-		s := a[j*k+j]
-		for p := 0; p < j; p++ {
-			s -= l[j*k+p] * l[j*k+p]
-		}
-		if !(s > 1e-12*math.Max(1, a[j*k+j])) {
-			return false
-		}
-		l[j*k+j] = math.Sqrt(s)
-		for i := j + 1; i < k; i++ {
-			v := a[i*k+j]
-			for p := 0; p < j; p++ {
-				v -= l[i*k+p] * l[j*k+p]
-			}
-			l[i*k+j] = v / l[j*k+j]
-		}
-	}
-	return true
-}
-
-// cholSolve solves L Lᵀ x = b.
-func cholSolve(x, l, b []float64, k int) {
-	for i := 0; i < k; i++ {
-		v := b[i]
-		for p := 0; p < i; p++ {
-			v -= l[i*k+p] * x[p]
-		}
-		x[i] = v / l[i*k+i]
-	}
-	for i := k - 1; i >= 0; i-- {
-		v := x[i]
-		for p := i + 1; p < k; p++ {
-			v -= l[p*k+i] * x[p]
-		}
-		x[i] = v / l[i*k+i]
-	}
 }
 
 // shifted returns the residual-domain column of an effect with response x
