@@ -30,28 +30,9 @@ func parseSeriesCSV(r io.Reader, path, column string) (times []string, values []
 	cr := csv.NewReader(r)
 	cr.TrimLeadingSpace = true
 	cr.ReuseRecord = false
-	header, err := cr.Read()
-	if errors.Is(err, io.EOF) {
-		return nil, nil, fmt.Errorf("%s: empty file: want a header row and one row per observation", path)
-	}
+	header, vcol, err := readHeader(cr, path, column)
 	if err != nil {
-		return nil, nil, csvError(path, err)
-	}
-	if len(header) > 0 {
-		header[0] = strings.TrimPrefix(header[0], "\ufeff")
-	}
-	vcol := len(header) - 1
-	if column != "" {
-		vcol = -1
-		for i, h := range header {
-			if strings.TrimSpace(h) == column {
-				vcol = i
-				break
-			}
-		}
-		if vcol < 0 {
-			return nil, nil, fmt.Errorf("%s:1: no column named %q (columns: %s)", path, column, strings.Join(header, ", "))
-		}
+		return nil, nil, err
 	}
 	tcol := -1
 	if len(header) > 1 && vcol != 0 {
@@ -87,6 +68,36 @@ func parseSeriesCSV(r io.Reader, path, column string) (times []string, values []
 		return nil, nil, fmt.Errorf("%s: no observations after the header row", path)
 	}
 	return times, values, nil
+}
+
+// readHeader reads a CSV's header row (a leading byte-order mark
+// dropped) and finds the value column: the first one named column, or the
+// last column when column is "".
+func readHeader(cr *csv.Reader, path, column string) (header []string, vcol int, err error) {
+	header, err = cr.Read()
+	if errors.Is(err, io.EOF) {
+		return nil, 0, fmt.Errorf("%s: empty file: want a header row and one row per observation", path)
+	}
+	if err != nil {
+		return nil, 0, csvError(path, err)
+	}
+	if len(header) > 0 {
+		header[0] = strings.TrimPrefix(header[0], "\ufeff")
+	}
+	vcol = len(header) - 1
+	if column != "" {
+		vcol = -1
+		for i, h := range header {
+			if strings.TrimSpace(h) == column {
+				vcol = i
+				break
+			}
+		}
+		if vcol < 0 {
+			return nil, 0, fmt.Errorf("%s:1: no column named %q (columns: %s)", path, column, strings.Join(header, ", "))
+		}
+	}
+	return header, vcol, nil
 }
 
 func csvError(path string, err error) error {

@@ -57,25 +57,9 @@ func readLoadCSV(r io.Reader, path, column string) (rows []loadRow, bad []badRow
 	cr := csv.NewReader(r)
 	cr.TrimLeadingSpace = true
 	cr.FieldsPerRecord = -1
-	header, err := cr.Read()
-	if errors.Is(err, io.EOF) {
-		return nil, nil, 0, fmt.Errorf("%s: empty file: want a header row and one row per observation", path)
-	}
+	header, vcol, err := readHeader(cr, path, column)
 	if err != nil {
-		return nil, nil, 0, csvError(path, err)
-	}
-	header[0] = strings.TrimPrefix(header[0], "\ufeff")
-	vcol := len(header) - 1
-	if column != "" {
-		vcol = -1
-		for i, h := range header {
-			if strings.TrimSpace(h) == column {
-				vcol = i
-			}
-		}
-		if vcol < 0 {
-			return nil, nil, 0, fmt.Errorf("%s:1: no column named %q (columns: %s)", path, column, strings.Join(header, ", "))
-		}
+		return nil, nil, 0, err
 	}
 	if len(header) < 2 || vcol == 0 {
 		return nil, nil, 0, fmt.Errorf("%s:1: load needs a time column first and a value column (columns: %s)", path, strings.Join(header, ", "))
