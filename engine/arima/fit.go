@@ -180,6 +180,8 @@ type fitter struct {
 	ar, ma, sar, sma []float64
 	pa, wk           []float64
 	xp, xm           []float64
+	gb               []float64 // β̂ at the point of the last gradient
+	xb               []float64 // Σ_j gb_j · column j
 	evals            int
 }
 
@@ -263,17 +265,62 @@ func (f *fitter) objective(u []float64) float64 {
 // gradStep is the central-difference step in optimiser coordinates.
 const gradStep = 1e-5
 
+// gradient is the central-difference gradient of the objective at u.
+//
+// With external regressors it uses the envelope theorem: the profiled
+// objective is min over β of the objective at (u, β), so its gradient in u
+// equals the partial gradient at β fixed at β̂(u) (∂/∂β vanishes there).
+// β̂(u) comes from one profiled evaluation at u; the 2·nu differences then
+// filter only y − Xβ̂, without the k columns and their k×k cross
+// products. Both differences are above the profiled values by the same
+// O(h²) to leading order, so the quotient keeps central differences'
+// O(h²) error.
 func (f *fitter) gradient(g, u []float64) {
 	copy(f.xp, u)
+	obj := f.objective
+	if f.e.cols != nil {
+		f.decode(u)
+		out, err := f.e.evalB(f.ar, f.ma, f.sar, f.sma, nil, true, nil)
+		if err == nil {
+			f.gb = append(f.gb[:0], out.betas...)
+			f.xb = resize(f.xb, len(f.e.data))
+			for i := range f.xb {
+				f.xb[i] = 0
+			}
+			for j, c := range f.e.cols {
+				b := f.gb[j]
+				for i, v := range c {
+					if !math.IsNaN(v) {
+						f.xb[i] += b * v
+					}
+				}
+			}
+			f.e.xbFixed = f.xb
+			defer func() { f.e.xbFixed = nil }()
+			obj = f.objectiveAt
+		}
+	}
 	for i := range u {
 		h := gradStep * math.Max(1, math.Abs(u[i]))
 		f.xp[i] = u[i] + h
-		fp := f.objective(f.xp)
+		fp := obj(f.xp)
 		f.xp[i] = u[i] - h
-		fm := f.objective(f.xp)
+		fm := obj(f.xp)
 		f.xp[i] = u[i]
 		g[i] = (fp - fm) / (2 * h)
 	}
+}
+
+// objectiveAt is the objective at u with the regression coefficients
+// fixed at f.gb (not profiled).
+func (f *fitter) objectiveAt(u []float64) float64 {
+	f.evals++
+	f.decode(u)
+	out, err := f.e.evalB(f.ar, f.ma, f.sar, f.sma, f.gb, false, nil)
+	if err != nil {
+		return 1e10
+	}
+	return 0.5*math.Log(out.sigma2) + 0.5*out.sumlog/float64(out.nobs)
 }
 
 type optResult struct {

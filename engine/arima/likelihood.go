@@ -57,7 +57,10 @@ type evaluator struct {
 	sm, sv []float64 // k×k and k: the GLS cross products
 	betaO  []float64 // the last GLS coefficients
 	chol   []float64 // k×k Cholesky factor of sm
-	b1     [1]float64
+	// xbFixed, when set, is Σ_j β_j cols_j (0 where a column is NaN) for
+	// the betas an unprofiled evalX is called with.
+	xbFixed []float64
+	b1      [1]float64
 }
 
 // evalOut is the result of one evaluation. With external regressors
@@ -459,7 +462,12 @@ func (e *evaluator) evalX(betas []float64, profile bool, resid []float64) (evalO
 	e.ws.w = resize(e.ws.w, len(e.data))
 	d := e.ws.w
 	copy(d, e.data)
-	if !profile {
+	if !profile && e.xbFixed != nil {
+		// Xβ precomputed for these betas (fitter.gradient)
+		for i, v := range e.xbFixed {
+			d[i] -= v
+		}
+	} else if !profile {
 		for j, c := range e.cols {
 			b := betas[j]
 			for i, v := range c {
@@ -472,8 +480,9 @@ func (e *evaluator) evalX(betas []float64, profile bool, resid []float64) (evalO
 	e.ws.resid = resize(e.ws.resid, len(d))
 	ey := e.ws.resid
 	// One pass over the data records the gains; each column is then
-	// filtered with them (gainRec).
-	e.ws.rec.on = true
+	// filtered with them (gainRec). With β given (not profiled) the
+	// columns' errors are not needed: the data less Xβ alone is filtered.
+	e.ws.rec.on = profile
 	u, err := e.run(d, nil, ey)
 	e.ws.rec.on = false
 	if err != nil {
@@ -482,7 +491,9 @@ func (e *evaluator) evalX(betas []float64, profile bool, resid []float64) (evalO
 	if u.n == 0 {
 		return out, ErrTooShort
 	}
-	if rec := &e.ws.rec; rec.valid {
+	if !profile {
+		// nothing to filter
+	} else if rec := &e.ws.rec; rec.valid {
 		e.ws.xa = resize(e.ws.xa, 4*rec.m)
 		e.ws.t1 = resize(e.ws.t1, rec.m)
 		e.s.replayCols(rec, e.cols, e.ex, e.ws.xa, e.ws.t1)
