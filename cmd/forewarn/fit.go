@@ -318,10 +318,7 @@ type fitSeason struct {
 // choiceFilter is the online filter of a choice: with Fourier terms it
 // computes them from the data time of each row (Choice.Start, Step).
 func choiceFilter(ch *auto.Choice, h int) (*arima.Filter, error) {
-	if ch.Fourier != nil {
-		return arima.NewFilterX(ch.Result.Model, h, ch.Fourier, ch.Start, ch.Step)
-	}
-	return arima.NewFilter(ch.Result.Model, h)
+	return ch.Filter(h)
 }
 
 // seasonsOf lists the choice per cycle for the JSON model.
@@ -343,6 +340,14 @@ func seasonsOf(ch *auto.Choice) []fitSeason {
 // column names follow R forecast's fourier(), "S<k>-<L>" and "C<k>-<L>"
 // with L in seconds, so that its tests can compare them with R's.)
 func regressionNames(ch *auto.Choice) []string {
+	if ch.Profile != nil {
+		// one seasonal-shape column per cycle: "profile/<m>"
+		var names []string
+		for _, L := range ch.ProfileCycles {
+			names = append(names, "profile/"+strconv.FormatFloat(L/ch.Step, 'g', 6, 64))
+		}
+		return names
+	}
 	if ch.Fourier == nil {
 		return nil
 	}

@@ -54,6 +54,9 @@ type Warm struct {
 	// Seasons is the previous choice per cycle (Choice.Seasons); the
 	// Fourier cycles keep their K.
 	Seasons []SeasonChoice
+	// Route is the previous Choice.Route: a refit of RouteProfile redoes
+	// the decomposition and starts the ARIMA errors from Spec and Params.
+	Route string
 }
 
 // Candidate is one fit that Select tried.
@@ -82,6 +85,23 @@ type Choice struct {
 	// Start and Step are Options.Start and Options.Step (normalised): the
 	// data time of y[0] and the spacing, for arima.NewFilterX.
 	Start, Step float64
+
+	// Route is how the cycles are carried, with Options.Seasons: RouteFourier
+	// (Fourier or seasonal ARIMA terms) or RouteProfile (package doc,
+	// "Choosing the route"); "" without Seasons.
+	Route string
+	// Profile generates the regressors of RouteProfile (nil otherwise):
+	// one column per entry of ProfileCycles (cycle lengths in the unit of
+	// Step), whose seasonal shape is the same entry of ProfileShapes,
+	// sample k at phase k/M of the cycle (M = len of the shape). The
+	// coefficients (Result.Model.Beta) are 1.
+	Profile       *arima.Profile
+	ProfileCycles []float64
+	ProfileShapes [][]float64
+	// Score is the holdout comparison of the two routes; nil when it was
+	// not made (a warm refit, a fixed model, missing values, or too short
+	// a series).
+	Score *RouteScore
 }
 
 // Default order bounds (Hyndman & Khandakar 2008, §3.2).

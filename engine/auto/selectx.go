@@ -40,9 +40,86 @@ func guerreroPeriod(cs cycleSetup) int {
 	return max(2, int(math.Round(p)))
 }
 
-// seasonsX is Select with at least one Fourier cycle (package doc,
-// "Several cycles").
+// seasonsX is Select with at least one Fourier cycle: the Fourier route
+// and the profile route compared on a holdout (package doc, "Choosing the
+// route").
 func (s *selector) seasonsX(cs cycleSetup) (*Choice, error) {
+	if w := s.o.Warm; w != nil && w.Route == RouteProfile {
+		if c, err := s.profileRoute(); err == nil {
+			return c, nil
+		}
+		s.tried = s.tried[:0]
+	}
+	H, h, ok := s.holdout(cs)
+	if !ok || (s.o.Warm != nil && s.o.Warm.Route != RouteProfile) {
+		return s.fourierRoute(cs)
+	}
+	n := len(s.y)
+	sf := &selector{y: s.y[:n-H], o: s.o}
+	sf.o.Warm = nil
+	cf, errF := sf.fourierRoute(cs)
+	sp := &selector{y: s.y[:n-H], o: sf.o}
+	cp, errP := sp.profileRoute()
+	score := &RouteScore{Fourier: math.NaN(), Profile: math.NaN(), Holdout: H, Horizon: h}
+	if errF == nil {
+		score.Fourier = holdoutMAE(cf, s.y, n-H, h)
+	}
+	if errP == nil {
+		score.Profile = holdoutMAE(cp, s.y, n-H, h)
+	}
+	var c *Choice
+	var err error
+	if score.Profile < score.Fourier || (math.IsNaN(score.Fourier) && !math.IsNaN(score.Profile)) {
+		s.o.Warm = cp.warm()
+		c, err = s.profileRoute()
+	} else {
+		if errF == nil {
+			s.o.Warm = cf.warm()
+		}
+		c, err = s.fourierRoute(cs)
+	}
+	s.o.Warm = nil
+	if err != nil {
+		return nil, err
+	}
+	c.Score = score
+	return c, nil
+}
+
+// holdout says whether the two routes are compared, and on how many final
+// steps H (the longest cycle, rounded up) and up to which lead h (the
+// shortest cycle, rounded, at most H): only for the automatic model on a
+// complete series that keeps more than two of its longest cycles before
+// the holdout (so that MSTL of the training part has every cycle).
+func (s *selector) holdout(cs cycleSetup) (H, h int, ok bool) {
+	if s.o.Model != "auto" || len(cs.steps) == 0 {
+		return 0, 0, false
+	}
+	for _, v := range s.y {
+		if math.IsNaN(v) {
+			return 0, 0, false
+		}
+	}
+	lo, hi := math.Inf(1), 0.0
+	for _, m := range cs.steps {
+		lo, hi = math.Min(lo, m), math.Max(hi, m)
+	}
+	H = int(math.Ceil(hi - 1e-9))
+	h = min(H, max(1, int(math.Round(lo))))
+	if len(s.y)-H <= 2*int(math.Round(hi)) {
+		return 0, 0, false
+	}
+	return H, h, true
+}
+
+// warm returns the choice as a Warm for a refit.
+func (c *Choice) warm() *Warm {
+	return &Warm{Spec: c.Spec, Params: c.Result.Model.Params(), Transform: c.Transform, Seasons: c.Seasons, Route: c.Route}
+}
+
+// fourierRoute is Select with at least one Fourier cycle by dynamic
+// harmonic regression (package doc, "Several cycles").
+func (s *selector) fourierRoute(cs cycleSetup) (*Choice, error) {
 	s.countObs()
 	s.o.Period = guerreroPeriod(cs)
 	pool := newPool(&s.o, cs)
@@ -217,6 +294,7 @@ func (s *selector) finalX(c *scaled, cs cycleSetup, pool *fourierPool, X [][]flo
 	ch.Seasons = s.seasonChoices(cs, ch.Spec, K)
 	ch.Cycles = pool.cycles(K)
 	ch.Start, ch.Step = s.o.Start, s.o.Step
+	ch.Route = RouteFourier
 	if len(ch.Cycles) > 0 {
 		gen, err := arima.NewFourier(ch.Cycles, s.o.Step)
 		if err != nil {
