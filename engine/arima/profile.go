@@ -73,29 +73,7 @@ func (p *Profile) Shapes() [][]float64 {
 // at is the shape of cycle c at absolute time t.
 func (p *Profile) at(c int, t float64) float64 {
 	s := p.shapes[c]
-	M := len(s)
-	L := p.cycles[c]
-	ph := math.Mod(t, L) / L // exact remainder, in (−1, 1)
-	if ph < 0 {
-		ph++
-	}
-	x := ph * float64(M)
-	i := int(x)
-	fr := x - float64(i)
-	if i >= M { // ph rounded up to 1
-		i, fr = 0, 0
-	}
-	j := i + 1
-	if j == M {
-		j = 0
-	}
-	if fr < 1e-9 {
-		return s[i]
-	}
-	if fr > 1-1e-9 {
-		return s[j]
-	}
-	return s[i] + fr*(s[j]-s[i])
+	return interp(s, phasePos(t, p.cycles[c], float64(len(s))))
 }
 
 // Regressors writes the row at absolute time t into dst. It does not
@@ -110,13 +88,59 @@ func (p *Profile) Regressors(dst []float64, t float64) {
 // It does not allocate and keeps no state.
 func (p *Profile) LinearPath(dst, beta []float64, t0, step float64) {
 	for k := range dst {
-		t := t0 + float64(k)*step
-		v := 0.0
-		for c := range p.cycles {
-			v += beta[c] * p.at(c, t)
-		}
-		dst[k] = v
+		dst[k] = 0
 	}
+	for c, L := range p.cycles {
+		s := p.shapes[c]
+		M := float64(len(s))
+		// the position in samples, advanced by the step's share of the
+		// cycle at each lead (one remainder per cycle, not per lead)
+		x := phasePos(t0, L, M)
+		dx := phasePos(step, L, M)
+		b := beta[c]
+		for k := range dst {
+			dst[k] += b * interp(s, x)
+			x += dx
+			if x >= M {
+				x -= M
+			}
+		}
+	}
+}
+
+// phasePos is (t mod L)/L·M in [0, M).
+func phasePos(t, L, M float64) float64 {
+	ph := math.Mod(t, L) / L
+	if ph < 0 {
+		ph++
+	}
+	x := ph * M
+	if x >= M {
+		x = 0
+	}
+	return x
+}
+
+// interp is the periodic linear interpolation of s at position x in
+// [0, len(s)), exact at whole positions (to 1e-9 of a sample).
+func interp(s []float64, x float64) float64 {
+	M := len(s)
+	i := int(x)
+	fr := x - float64(i)
+	if i >= M {
+		i, fr = 0, 0
+	}
+	j := i + 1
+	if j == M {
+		j = 0
+	}
+	if fr < 1e-9 {
+		return s[i]
+	}
+	if fr > 1-1e-9 {
+		return s[j]
+	}
+	return s[i] + fr*(s[j]-s[i])
 }
 
 // Matrix returns the columns at times t0, t0+step, … (n values each):

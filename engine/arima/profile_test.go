@@ -169,3 +169,40 @@ func TestProfileBadInput(t *testing.T) {
 		t.Errorf("short cycle: error %v", err)
 	}
 }
+
+// BenchmarkFilterProfileStepForecast60 is the online step plus a 60-step
+// forecast with two profile columns (a daily and a weekly shape of
+// one-minute data, 1440 and 10080 samples) and ARIMA(2,1,2) errors
+// (issue 12's online target, ≤ 10 µs and 0 allocations, for the profile
+// route).
+func BenchmarkFilterProfileStepForecast60(b *testing.B) {
+	s1 := make([]float64, 1440)
+	s2 := make([]float64, 10080)
+	for k := range s1 {
+		s1[k] = 10 * math.Sin(2*math.Pi*float64(k)/1440)
+	}
+	for k := range s2 {
+		s2[k] = 3 * math.Cos(2*math.Pi*float64(k)/10080)
+	}
+	p, err := NewProfile([]float64{86400, 604800}, [][]float64{s1, s2})
+	if err != nil {
+		b.Fatal(err)
+	}
+	m, err := NewModel(Spec{P: 2, D: 1, Q: 2, NX: 2}, []float64{0.5, -0.2, -0.3, 0.1, 1, 1}, 1)
+	if err != nil {
+		b.Fatal(err)
+	}
+	f, err := NewFilterX(m, 60, p, 1.7e9, 60)
+	if err != nil {
+		b.Fatal(err)
+	}
+	for i := 0; i < 2880; i++ {
+		f.Step(100 + math.Sin(float64(i)))
+	}
+	mean, v := make([]float64, 60), make([]float64, 60)
+	b.ReportAllocs()
+	for b.Loop() {
+		f.Step(100 + mean[0]*1e-3)
+		f.Forecast(mean, v)
+	}
+}

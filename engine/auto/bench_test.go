@@ -1,8 +1,13 @@
 package auto
 
 import (
+	"encoding/json"
 	"math"
+	"os"
+	"os/exec"
+	"sync"
 	"testing"
+	"time"
 
 	"forewarn/engine/internal/refdata"
 )
@@ -128,4 +133,65 @@ func BenchmarkSelectMSTLTaylor(b *testing.B) {
 			b.Fatal(err)
 		}
 	}
+}
+
+// BenchmarkSelectTaylorVsR is BenchmarkSelectTaylor with R's time taken in
+// the same run: when Rscript is on the PATH and FOREWARN_R_SPEED=1, it first
+// runs testdata/r/taylor_speed.R (R 4.2.2, forecast 8.20: one
+// auto.arima(xreg = fourier(K = c(10, 10))) fit and one stlm fit of the
+// same 3 984 values) and reports R's seconds and the ratio R/ours
+// (issue 12: at least 50× R's dynamic harmonic regression fit).
+func BenchmarkSelectTaylorVsR(b *testing.B) {
+	x := refdata.Dataset(b, "taylor")[:3984]
+	rDHR, rSTLM := rSpeedOnce(b)
+	b.ReportAllocs()
+	start := time.Now()
+	for b.Loop() {
+		if _, err := Select(x, Options{Seasons: []float64{48, 336}, Start: 1}); err != nil {
+			b.Fatal(err)
+		}
+	}
+	ours := time.Since(start).Seconds() / float64(b.N)
+	if rDHR > 0 {
+		b.ReportMetric(rDHR, "R-dhr-s")
+		b.ReportMetric(rSTLM, "R-stlm-s")
+		b.ReportMetric(rDHR/ours, "x-faster-than-R-dhr")
+	}
+}
+
+var rSpeed struct {
+	once      sync.Once
+	dhr, stlm float64
+}
+
+// rSpeedOnce runs testdata/r/taylor_speed.R once per process (see
+// BenchmarkSelectTaylorVsR); zeros when R is not asked for or not present.
+func rSpeedOnce(b *testing.B) (dhr, stlm float64) {
+	rSpeed.once.Do(func() {
+		if os.Getenv("FOREWARN_R_SPEED") != "1" {
+			return
+		}
+		rs, err := exec.LookPath("Rscript")
+		if err != nil {
+			b.Log("Rscript not found: R's time not measured")
+			return
+		}
+		cmd := exec.Command(rs, "testdata/r/taylor_speed.R")
+		cmd.Dir = "../.."
+		out, err := cmd.Output()
+		if err != nil {
+			b.Logf("taylor_speed.R: %v", err)
+			return
+		}
+		var r struct {
+			DHR  []float64 `json:"dhr_seconds"`
+			STLM []float64 `json:"stlm_seconds"`
+		}
+		if err := json.Unmarshal(out, &r); err != nil || len(r.DHR) == 0 || len(r.STLM) == 0 {
+			b.Logf("taylor_speed.R output %q: %v", out, err)
+			return
+		}
+		rSpeed.dhr, rSpeed.stlm = r.DHR[0], r.STLM[0]
+	})
+	return rSpeed.dhr, rSpeed.stlm
 }
