@@ -142,17 +142,18 @@
 //  1. Holdout: the last H steps, H the longest cycle rounded up; leads
 //     scored up to h, the shortest cycle rounded (at most H).
 //  2. Both routes are chosen and fitted on the series before the holdout.
-//  3. Each model's filter then runs through the holdout: at every origin
-//     its forecasts of leads 1…h (raw scale) are scored against the
-//     observations, and the observation is absorbed (parameters not
-//     re-estimated). The score is the mean absolute error over all
-//     (origin, lead) pairs (Choice.Score).
+//  3. Each model's filter then runs through the holdout, absorbing every
+//     observation (parameters not re-estimated); at 64 origins evenly
+//     spaced over it (every step when H ≤ 64) its forecasts of leads 1…h
+//     (raw scale) are scored against the observations. The score is the
+//     mean absolute error over all (origin, lead) pairs (Choice.Score).
 //  4. The route with the lower score is fitted again on the whole series,
 //     warm from its holdout fit (a tie or a failed profile route keeps
 //     Fourier).
 //
 // The cost is bounded by one cold choice per route on the shorter series,
-// one warm refit and the filter runs of the holdout (H·h forecast steps).
+// one warm refit and the filter runs of the holdout (H filter steps and at
+// most 64·h forecast steps).
 // The comparison is skipped, and the Fourier route taken, for a fixed
 // model, a warm refit (which keeps its route: Warm.Route), a series with
 // missing values (MSTL needs a complete series), or when fewer than two
