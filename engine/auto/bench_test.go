@@ -195,3 +195,21 @@ func rSpeedOnce(b *testing.B) (dhr, stlm float64) {
 	})
 	return rSpeed.dhr, rSpeed.stlm
 }
+
+// BenchmarkWarmTaylor is a warm refit of taylor one day later (4 032
+// values) from the cold choice at 3 984 (the profile route, which the
+// refit keeps: MSTL again, the ARIMA errors warm).
+func BenchmarkWarmTaylor(b *testing.B) {
+	x := refdata.Dataset(b, "taylor")
+	c, err := Select(x[:3984], Options{Seasons: []float64{48, 336}, Start: 1})
+	if err != nil {
+		b.Fatal(err)
+	}
+	w := c.warm()
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := Select(x[:4032], Options{Seasons: []float64{48, 336}, Start: 1, Warm: w}); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
