@@ -48,7 +48,9 @@ func (s *selector) seasonsX(cs cycleSetup) (*Choice, error) {
 		if c, err := s.profileRoute(); err == nil {
 			return c, nil
 		}
+		// e.g. a value now missing: choose afresh
 		s.tried = s.tried[:0]
+		s.o.Warm = nil
 	}
 	H, h, ok := s.holdout(cs)
 	if !ok || (s.o.Warm != nil && s.o.Warm.Route != RouteProfile) {
@@ -72,7 +74,9 @@ func (s *selector) seasonsX(cs cycleSetup) (*Choice, error) {
 	if score.Profile < score.Fourier || (math.IsNaN(score.Fourier) && !math.IsNaN(score.Profile)) {
 		s.o.Warm = cp.warm()
 		c, err = s.profileRoute()
-	} else {
+	}
+	if c == nil {
+		s.o.Warm = nil
 		if errF == nil {
 			s.o.Warm = cf.warm()
 		}
