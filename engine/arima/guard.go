@@ -26,7 +26,9 @@ import (
 //     filtering (a Huber-type ψ that is zero beyond the threshold: Masreliez
 //     & Martin 1977; Fahrmeir & Künstler 1999; Durbin & Koopman §14.6).
 //   - Level shift: a run of Run consecutive errors of the same sign, the
-//     first beyond Shift and the run's mean beyond Shift at every step,
+//     first beyond Shift, each later one beyond Shift/2 and the run's mean
+//     beyond Shift at every step (so one large spike followed by ordinary
+//     values is not a run; our own rule, common practice),
 //     is read as a change of level (a step intervention, Box & Tiao
 //     1975; West & Harrison 1997, ch. 11, intervention by a shift of the
 //     level with an increased prior variance; Harvey 1989, §7.6). At the
@@ -142,7 +144,7 @@ func (f *Filter) guardCheck(y float64) float64 {
 		// a run is open: its members are measured on the scale of its
 		// first step, since the members before were not absorbed
 		zr := v / math.Sqrt(f.sigma2*gd.runF)
-		if math.Copysign(1, zr) == gd.runSign && math.Abs(gd.runZ+zr) > gd.g.Shift*float64(gd.runN+1) {
+		if math.Copysign(1, zr) == gd.runSign && math.Abs(zr) > gd.g.Shift/2 && math.Abs(gd.runZ+zr) > gd.g.Shift*float64(gd.runN+1) {
 			gd.runZ += zr
 			gd.runV[gd.runN] = v
 			gd.runN++
@@ -192,4 +194,40 @@ func (f *Filter) shiftLevel(omega, vw float64) {
 			row[j] += vw
 		}
 	}
+}
+
+// GuardStateLen is the length of the state AppendGuardState writes for a
+// check with run length run.
+func GuardStateLen(run int) int { return 7 + run }
+
+// AppendGuardState appends the check's state to dst: on, the last verdict
+// and z, the open run (its length, sign, first F, sum of z and its Run
+// prediction errors). With the filter's own state (AppendState, which
+// carries the level shifts of the constant) it lets a restored filter
+// with the same Guard continue bit for bit. A filter without the check
+// appends nothing.
+func (f *Filter) AppendGuardState(dst []float64) []float64 {
+	gd := &f.gd
+	if !gd.on {
+		return dst
+	}
+	dst = append(dst, 1, float64(gd.verdict), gd.z, float64(gd.runN), gd.runSign, gd.runF, gd.runZ)
+	return append(dst, gd.runV...)
+}
+
+// SetGuardState restores what AppendGuardState wrote, into a filter whose
+// check was turned on (SetGuard) with the same Run. It errors, leaving
+// the filter unchanged, on a state of another length or out of range.
+func (f *Filter) SetGuardState(s []float64) error {
+	gd := &f.gd
+	if !gd.on || len(s) != GuardStateLen(gd.g.Run) || s[0] != 1 {
+		return fmt.Errorf("arima: set guard state: %w: %d values for a check with run %d (on %v)", ErrState, len(s), gd.g.Run, gd.on)
+	}
+	v, n := Verdict(s[1]), int(s[3])
+	if float64(v) != s[1] || v < VerdictNone || v > VerdictShift || float64(n) != s[3] || n < 0 || n >= gd.g.Run {
+		return fmt.Errorf("arima: set guard state: %w: verdict %v, run length %v", ErrState, s[1], s[3])
+	}
+	gd.verdict, gd.z, gd.runN, gd.runSign, gd.runF, gd.runZ = v, s[2], n, s[4], s[5], s[6]
+	copy(gd.runV, s[7:])
+	return nil
 }
