@@ -2,8 +2,11 @@ package state
 
 import (
 	"math"
+	"math/rand/v2"
 	"os"
+	"slices"
 	"testing"
+	"time"
 
 	"forewarn/engine/series"
 )
@@ -67,5 +70,91 @@ func TestDecodeVersion3Records(t *testing.T) {
 				t.Errorf("re-encoded record differs at %s", d)
 			}
 		})
+	}
+}
+
+// A series with a seasonal cycle given as Fourier pairs, the online check
+// and refit-time outliers, saved as a record (Encode, Decode) at points
+// inside a check's run, right after a flag and between refits, continues
+// bit for bit as the uninterrupted one: the record carries the cycles, the
+// regression design, β, the filter and the check's state.
+func TestRecordRestartExactWithCyclesGuardOutliers(t *testing.T) {
+	const step, cycle, from = 60, 5430.0, 29_000_017 // a cycle of 90.5 one-minute steps
+	r := rand.New(rand.NewPCG(5, 99))
+	y := make([]float64, 520)
+	u := 0.0
+	for i := range y {
+		ph := math.Mod(float64((from+int64(i))*step), cycle) / cycle
+		u = 0.5*u + r.NormFloat64()
+		y[i] = 100 + 6*math.Sin(2*math.Pi*ph) + 3*math.Cos(4*math.Pi*ph) + u
+	}
+	y[150] += 12 // a spike inside the first fit's window
+	y[331] += 15 // one seen by the check
+	for i := 360; i < len(y); i++ {
+		y[i] += 6 // a level shift
+	}
+	set := series.Settings{Kind: "gauge", StepSeconds: step, Horizon: 30, Levels: []float64{80, 95},
+		Window: 600, MinPoints: 300, RefitEvery: 70, Model: "auto", Transform: "none",
+		Seasons: []float64{cycle}, Guard: true, Outliers: true, Fingerprint: "cycles"} // calibration off: its pending forecasts are not in the record (series.Snapshot)
+	drive := func(s *series.Series, from0, to int) []series.Forecast {
+		var out []series.Forecast
+		for i := from0; i < to; i++ {
+			o, err := s.Observe((from+int64(i))*step*int64(time.Second), y[i])
+			if err != nil {
+				t.Fatal(err)
+			}
+			if o == series.NeedFit {
+				if o, err = s.Install(s.FitJob().Run()); err != nil {
+					t.Fatal(err)
+				}
+			}
+			if o == series.Published {
+				f := *s.Forecast()
+				f.Points = slices.Clone(f.Points)
+				for k := range f.Points {
+					p := &f.Points[k]
+					p.Lower, p.Upper, p.Scale = slices.Clone(p.Lower), slices.Clone(p.Upper), slices.Clone(p.Scale)
+				}
+				out = append(out, f)
+			}
+		}
+		return out
+	}
+	whole, err := series.New("x", set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := drive(whole, 0, len(y))
+	m := whole.Snapshot().Model
+	if m.NX == 0 || len(m.Cycles) != 1 || len(m.Outliers) == 0 || len(m.Design) != 2 {
+		t.Fatalf("last model: %d regressors, cycles %+v, outliers %+v, %d column sets; want Fourier pairs and outliers", m.NX, m.Cycles, m.Outliers, len(m.Design))
+	}
+	for _, cut := range []int{332, 362, 371, 441} {
+		first, _ := series.New("x", set)
+		a := drive(first, 0, cut)
+		rec := Encode(nil, first.Snapshot())
+		if le.Uint16(rec[4:6]) != 4 {
+			t.Fatalf("record of version %d", le.Uint16(rec[4:6]))
+		}
+		snap, err := Decode(rec)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if cut == 362 && (len(snap.Guard) == 0 || snap.Guard[3] == 0) {
+			t.Errorf("cut %d: no open run in the record's guard state %v", cut, snap.Guard)
+		}
+		second, err := series.Restore(snap, set)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got := append(a, drive(second, cut, len(y))...)
+		if len(got) != len(want) {
+			t.Fatalf("cut %d: %d forecasts, want %d", cut, len(got), len(want))
+		}
+		for i := range got {
+			if d := diff(got[i], want[i]); d != "" {
+				t.Fatalf("cut %d: forecast %d (origin %v) differs from the uninterrupted run at %s", cut, i, got[i].Origin, d)
+			}
+		}
 	}
 }
