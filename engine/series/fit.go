@@ -38,12 +38,14 @@ type FitResult struct {
 // Refit-time outlier search bounds (common practice, our own choice): the
 // window needs outlierMinPoints observed values (Chen & Liu's procedure
 // estimates the model first, and the critical value is set for series of
-// 50 and more), at most outlierMax effects are kept and at most two
-// detect–re-estimate rounds run, each one FitX of the window.
+// 50 and more), the search covers the last outlierSpan buckets, at most
+// outlierMax effects are kept and at most two detect–re-estimate rounds
+// run.
 const (
 	outlierMinPoints = 100
 	outlierMax       = 10
 	outlierRounds    = 2
+	outlierSpan      = 1000 // the most recent buckets searched
 )
 
 // FitJob returns the refit the series needs now. It copies the window.
@@ -131,31 +133,68 @@ func (j *FitJob) Run() (r FitResult) {
 	return r
 }
 
-// detect looks for outliers in the window under the chosen model and, when
-// it finds any, replaces the choice's fit by the joint fit with their
-// columns (outlier.Detect). A failure keeps the choice as it is.
+// detect looks for outliers in the recent part of the window under the
+// chosen model and, when it finds any, adds their columns to the choice's
+// model.
+//
+// Cost bound (our own simplification of Chen & Liu 1993's joint
+// estimation): the search (outlier.Detect) runs on the last outlierSpan
+// buckets of the window less the choice's Fourier part x_tᵀβ̂, with the
+// choice's ARIMA orders and constant, so that its fits are short and carry
+// only the outlier columns (the joint search over 20 160 buckets with 40
+// columns took 20 s a refit). The model keeps the choice's coefficients
+// and gains the effects' coefficients from the search's final fit. A
+// failure keeps the choice as it is.
 func (j *FitJob) detect(r *FitResult, X [][]float64) {
 	c := r.Choice
-	w := make([]float64, len(j.Window))
-	if err := c.Transform.ForwardSlice(w, j.Window); err != nil {
+	m := c.Result.Model
+	nf := len(X)
+	n := len(j.Window)
+	off := max(0, n-outlierSpan)
+	w := make([]float64, n-off)
+	if err := c.Transform.ForwardSlice(w, j.Window[off:]); err != nil {
 		return
 	}
-	d, err := outlier.Detect(w, X, c.Result.Model.Spec, &outlier.Options{MaxOutliers: outlierMax, MaxIter: outlierRounds})
+	for i := range w {
+		for k, b := range m.Beta[:nf] {
+			w[i] -= b * X[k][off+i]
+		}
+	}
+	sp := m.Spec
+	sp.NX = 0
+	d, err := outlier.Detect(w, nil, sp, &outlier.Options{MaxOutliers: outlierMax, MaxIter: outlierRounds})
 	if err != nil || len(d.Outliers) == 0 || d.Fit == nil {
 		return
 	}
-	t0 := j.End - int64(len(j.Window)) + 1
+	full := m.Spec
+	full.NX = nf + len(d.Outliers)
+	beta := d.Fit.Model.Beta
+	params := append(m.Params(), beta...)
+	nm, err := arima.NewModel(full, params, m.Sigma2)
+	if err != nil {
+		return
+	}
+	t0 := j.End - int64(n) + 1 + int64(off)
 	v := []float64{d.Delta}
-	for _, o := range d.Outliers {
+	for i, o := range d.Outliers {
 		v = append(v, float64(o.Kind), float64(t0+int64(o.Index)))
-		r.Outliers = append(r.Outliers, OutlierFound{Kind: uint8(o.Kind), Bucket: t0 + int64(o.Index), Size: o.Effect, Tau: o.Tau})
+		r.Outliers = append(r.Outliers, OutlierFound{Kind: uint8(o.Kind), Bucket: t0 + int64(o.Index), Size: beta[i], Tau: o.Tau})
 	}
 	r.Design = append(r.Design, ColumnSet{Kind: SetEffects, Values: v})
-	// The Jacobian term of the transform is the same for both fits.
+	res := *c.Result
+	res.Model = nm
+	res.Note = joinNote(res.Note, fmt.Sprintf("%d outliers in the last %d buckets", len(d.Outliers), n-off))
+	res.StdErr, res.RegCov, res.Residuals = nil, nil, nil
 	ch := *c
-	ch.RawAICc = c.RawAICc + d.Fit.AICc - c.Result.AICc
-	ch.Result, ch.Spec = d.Fit, d.Fit.Model.Spec
+	ch.Result, ch.Spec = &res, full
 	r.Choice = &ch
+}
+
+func joinNote(a, b string) string {
+	if a == "" {
+		return b
+	}
+	return a + "; " + b
 }
 
 // Install applies a finished refit. On success the new model replaces the
