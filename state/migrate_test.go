@@ -38,6 +38,17 @@ func TestDecodeVersion3Records(t *testing.T) {
 			}
 			set := c.set
 			set.Calibrate = true
+			// a record of format 3 has no check state: with the check on
+			// (the daemon's default) it starts afresh
+			guarded := set
+			guarded.Guard, guarded.Outliers = true, true
+			g, err := series.Restore(snap, guarded)
+			if err != nil {
+				t.Fatalf("restored with the check on: %v", err)
+			}
+			if gs := g.Snapshot(); len(gs.Guard) == 0 || gs.Guard[0] != 1 {
+				t.Errorf("restored with the check on: guard state %v", gs.Guard)
+			}
 			s, err := series.Restore(snap, set)
 			if err != nil {
 				t.Fatal(err)
@@ -53,9 +64,13 @@ func TestDecodeVersion3Records(t *testing.T) {
 			if !got.Calibrated {
 				t.Error("the restored forecast is not calibrated")
 			}
+			gf := g.Forecast()
 			for h := range got.Points {
 				if a, f := got.Points[h].Mean, fresh.Points[h].Mean; math.Abs(a-f) > 1e-6*math.Abs(f) {
 					t.Errorf("h=%d: restored mean %v, fitted now %v", h+1, a, f)
+				}
+				if gf.Points[h].Mean != got.Points[h].Mean {
+					t.Errorf("h=%d: restored with the check on %v, without %v", h+1, gf.Points[h].Mean, got.Points[h].Mean)
 				}
 			}
 			again := Encode(nil, snap)
