@@ -227,11 +227,13 @@ type Series struct {
 	// RefitEvery is the number of closed buckets between refits. Zero: 60.
 	RefitEvery int
 	// Seasons are the seasonal cycles (key seasons): each a duration
-	// that is a whole multiple of Step ("1d", "7d", "12h"; d is 24h and w
-	// is 7·24h), or a whole number of steps ("12"). In this release one
-	// cycle at most, of 2..arima.MaxPeriod steps: the period of the
-	// seasonal orders of a fixed Model, or the period automatic model
-	// choice considers. Zero: no seasonal part.
+	// ("1d", "7d", "12h", "90m"; d is 24h and w is 7·24h) or a whole
+	// number of steps ("12"), of at least two steps and at most the
+	// window. With Model auto there may be several, and a duration need
+	// not be a whole number of steps: each refit chooses per cycle
+	// seasonal ARIMA terms, Fourier pairs or nothing. A fixed Model with
+	// seasonal orders takes one cycle, a whole number of 2..arima.MaxPeriod
+	// steps, their period. Zero: no seasonal part.
 	Seasons []Cycle
 	// Model is "auto" or fixed orders "p,d,q" or "p,d,q x P,D,Q" (x or ×;
 	// the seasonal orders need a cycle in Seasons). WithDefaults writes
@@ -253,6 +255,12 @@ type Series struct {
 	// probabilities online from the errors of its own forecasts
 	// (CONTRACT §4, package engine/calibrate). Zero (nil): true.
 	Calibrate *bool
+	// Outliers (key outliers) runs the online spike and level-shift check
+	// on every closed bucket (an extreme one-step error is kept out of
+	// the model's state; a run of them moves the level) and has each
+	// refit find additive outliers, level shifts and temporary changes in
+	// the window and fit them as regression terms. Zero (nil): true.
+	Outliers *bool
 	// Line is the source line of the entry; 0 when not from a file.
 	Line int
 }
@@ -260,6 +268,24 @@ type Series struct {
 // Calibrated reports whether the entry calibrates its bands: Calibrate,
 // true when unset.
 func (s *Series) Calibrated() bool { return s.Calibrate == nil || *s.Calibrate }
+
+// Robust reports whether the entry runs the spike and level-shift check
+// and the refit-time outlier search: Outliers, true when unset.
+func (s *Series) Robust() bool { return s.Outliers == nil || *s.Outliers }
+
+// CycleSeconds returns the cycles of Seasons in seconds (a cycle given in
+// steps counts Step for each).
+func (s *Series) CycleSeconds() []float64 {
+	var out []float64
+	for _, c := range s.Seasons {
+		if c.Length != 0 {
+			out = append(out, c.Length.Seconds())
+		} else {
+			out = append(out, float64(c.Steps)*s.Step.Seconds())
+		}
+	}
+	return out
+}
 
 // Alert is a rule that is raised when a topic's forecast is likely to
 // cross a threshold within a look-ahead window, and cleared when that
@@ -389,6 +415,7 @@ func DefaultSeries() Series {
 		Constant:   "auto",
 		Transform:  "auto",
 		Calibrate:  new(true),
+		Outliers:   new(true),
 	}
 }
 
@@ -532,6 +559,9 @@ func (s *Series) fillDefaults() {
 	s.Transform = stripSpaces(s.Transform)
 	if s.Calibrate == nil {
 		s.Calibrate = new(true)
+	}
+	if s.Outliers == nil {
+		s.Outliers = new(true)
 	}
 }
 

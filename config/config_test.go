@@ -134,7 +134,7 @@ func TestLoadFull(t *testing.T) {
 	s0 := c.Series[0]
 	want0 := Series{Match: "shop.*.orders", Kind: "counter", Step: time.Hour, Horizon: 48,
 		Levels: []float64{50, 80, 95}, Window: 2400, MinPoints: 72, RefitEvery: 60, Seasons: []Cycle{{Length: Day}},
-		Model: "0,1,1 x 0,1,1", Constant: "auto", Transform: "log", CloseAfter: 90 * time.Second, Calibrate: new(true), Line: 45}
+		Model: "0,1,1 x 0,1,1", Constant: "auto", Transform: "log", CloseAfter: 90 * time.Second, Calibrate: new(true), Outliers: new(true), Line: 45}
 	if !reflect.DeepEqual(s0, want0) {
 		t.Errorf("series[0]:\n got %+v\nwant %+v", s0, want0)
 	}
@@ -333,10 +333,13 @@ func TestValidationRules(t *testing.T) {
 		{"old spelling drift", "series:\n  - model: \"ARIMA(0,1,1) with drift\"\n", 2, "series[0].model", `write model: "0,1,1", constant: drift`},
 		{"old spelling broken", "series:\n  - model: \"ARIMA(0,1,1)(0,1,1)\"\n", 2, "series[0].model", `is the old spelling; write model: "p,d,q" or "p,d,q x P,D,Q"`},
 		{"period renamed", "series:\n  - period: 12\n", 2, "series[0].period", "was renamed: write seasons: [12]"},
-		{"seasons not whole steps", "series:\n  - {step: 7m, seasons: [1d]}\n", 2, "series[0].seasons[0]", "1d is not a whole number of steps of 7m0s"},
-		{"seasons one step", "series:\n  - seasons: [1m]\n", 2, "series[0].seasons[0]", "1m0s is 1 step; a cycle needs at least 2"},
-		{"seasons too long", "series:\n  - seasons: [1d]\n", 2, "series[0].seasons[0]", "1d is 1440 steps, more than 1000"},
-		{"seasons two cycles", "series:\n  - {step: 1h, seasons: [1d, 7d]}\n", 2, "series[0].seasons[1]", "7d: only one cycle can be used until Fourier terms arrive"},
+		{"seasons not whole steps, fixed model", "series:\n  - {step: 7m, model: \"0,1,1 x 0,1,1\", seasons: [1d]}\n", 2, "series[0].seasons[0]", "1d is not a whole number of steps of 7m0s; model \"0,1,1 x 0,1,1\" needs a cycle of a whole number of steps"},
+		{"seasons one step", "series:\n  - seasons: [1m]\n", 2, "series[0].seasons[0]", "1m0s is 1 step of 1m0s; a cycle needs at least 2"},
+		{"seasons under two steps", "series:\n  - {step: 1m, seasons: [90s]}\n", 2, "series[0].seasons[0]", "1m30s is 1.5 step of 1m0s; a cycle needs at least 2"},
+		{"seasons longer than the window", "series:\n  - {step: 1m, seasons: [1d, 7d], window: 5000}\n", 2, "series[0].seasons[1]", "7d is 10080 steps of 1m0s, longer than the window of 5000; make the window at least 10080"},
+		{"seasons too long for seasonal orders", "series:\n  - {model: \"0,1,1 x 0,1,1\", seasons: [1d], window: 5000}\n", 2, "series[0].seasons[0]", "1d is 1440 steps, more than 1000 for the seasonal orders"},
+		{"seasons two cycles with a fixed model", "series:\n  - {step: 1h, model: \"1,0,0 x 1,0,0\", seasons: [1d, 7d]}\n", 2, "series[0].seasons[1]", `7d: model "1,0,0 x 1,0,0" uses one cycle, the period of its seasonal orders`},
+		{"outliers not a bool", "series:\n  - outliers: maybe\n", 2, "series[0].outliers", "expected"},
 		{"seasons zero", "series:\n  - seasons: [0]\n", 2, "series[0].seasons[0]", "not a number of steps"},
 		{"seasons garbage", "series:\n  - seasons: [daily]\n", 2, "series[0].seasons[0]", "is not a duration"},
 		{"seasons float", "series:\n  - seasons: [1.5]\n", 2, "series[0].seasons[0]", "expected a cycle"},
@@ -395,6 +398,8 @@ func TestAccepted(t *testing.T) {
 		"series:\n  - {model: \"2,0,0\", constant: none}\n",
 		"series:\n  - {seasons: [1w], step: 1h, constant: none}\n", // 168 steps
 		"series:\n  - {seasons: [1.5d], step: 1h}\n",
+		"limits: {max_window: 20160}\nseries:\n  - {seasons: [1d, 7d], step: 1m, window: 20160, outliers: false}\n", // two cycles, model auto
+		"series:\n  - {seasons: [90.5m], step: 1m}\n",                                                               // not a whole number of steps, model auto
 		"series:\n  - {seasons: [], model: \"1,0,0\"}\n",
 		"series:\n  - transform: boxcox(-0.5)\n",
 		"nats:\n  url: nats://h:4222\n  user: u\n  password: \"12345\"\n",

@@ -661,6 +661,12 @@ func (d *decoder) top(root *yaml.Node, c *Config) {
 							s.Calibrate = &b
 						}
 					},
+					"outliers": func(n *yaml.Node, p string) {
+						var b bool
+						if d.boolean(&b)(n, p); n.ShortTag() == "!!bool" {
+							s.Outliers = &b
+						}
+					},
 				})
 				c.Series = append(c.Series, s)
 			})

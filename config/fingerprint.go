@@ -80,6 +80,18 @@ func (s *Series) Fingerprint() string {
 	if !c.Calibrated() { // only when off, so that fingerprints from before the key stay valid
 		field("calibrate", "false")
 	}
+	if !c.Robust() { // likewise
+		field("outliers", "false")
+	}
+	if per := c.Period(); len(c.Seasons) > 1 || len(c.Seasons) == 1 && per == 0 {
+		// several cycles, or one that is not a whole number of steps
+		// (with one whole cycle, period above keeps older fingerprints)
+		cs := make([]string, len(c.Seasons))
+		for i, sec := range c.CycleSeconds() {
+			cs[i] = strconv.FormatFloat(sec, 'g', -1, 64)
+		}
+		field("seasons", strings.Join(cs, ","))
+	}
 	sum := sha256.Sum256([]byte(b.String()))
 	return hex.EncodeToString(sum[:])
 }

@@ -482,25 +482,46 @@ func (v *validator) levels(path string, levels []float64) {
 	}
 }
 
-// seasons checks the cycles: in this release one cycle, a whole number of
-// steps from 2 to arima.MaxPeriod (the period of the seasonal orders).
+// seasons checks the cycles: each at least two steps and at most the
+// window (issue 12: a shorter cycle has no shape, a longer one is never
+// seen whole in the window). With model auto there may be several and
+// they need not be whole steps; a fixed model's seasonal orders take one
+// cycle of a whole number of 2..arima.MaxPeriod steps (model checks that
+// they are given at all).
 func (v *validator) seasons(p string, s *Series) {
+	fixed := s.Model != "auto"
+	_, _, seasonal, _ := arima.ParseOrders(s.Model)
+	stepOK := s.Step > 0 && s.Step%time.Second == 0
 	for i, c := range s.Seasons {
 		path := fmt.Sprintf("%s.seasons[%d]", p, i)
-		if i > 0 {
-			v.add(path, "%v: only one cycle can be used until Fourier terms arrive; keep the first, %v", c, s.Seasons[0])
+		if fixed && seasonal && i > 0 {
+			v.add(path, "%v: model %q uses one cycle, the period of its seasonal orders; keep the first, %v, or use model: auto for several", c, s.Model, s.Seasons[0])
 			continue
 		}
-		n, err := c.InSteps(s.Step)
+		var steps float64
+		if c.Length == 0 {
+			steps = float64(c.Steps)
+		} else if stepOK {
+			steps = float64(c.Length) / float64(s.Step)
+		} else {
+			continue // the step's own problem is reported under step
+		}
 		switch {
-		case err != nil:
-			if s.Step > 0 && s.Step%time.Second == 0 {
-				v.add(path, "%v", err)
+		case steps < 2:
+			v.add(path, "%v is %.4g step of %v; a cycle needs at least 2", c, steps, s.Step)
+			continue
+		case s.Window >= 2 && steps > float64(s.Window):
+			v.add(path, "%v is %.6g steps of %v, longer than the window of %d; make the window at least %d or leave the cycle out", c, steps, s.Step, s.Window, int(math.Ceil(steps)))
+			continue
+		}
+		if fixed && seasonal {
+			n, err := c.InSteps(s.Step)
+			switch {
+			case err != nil:
+				v.add(path, "%v; model %q needs a cycle of a whole number of steps (model: auto takes any)", err, s.Model)
+			case n > arima.MaxPeriod:
+				v.add(path, "%v is %d steps, more than %d for the seasonal orders of model %q; use model: auto (Fourier pairs)", c, n, arima.MaxPeriod, s.Model)
 			}
-		case n < 2:
-			v.add(path, "%v is %d step; a cycle needs at least 2", c, n)
-		case n > arima.MaxPeriod:
-			v.add(path, "%v is %d steps, more than %d", c, n, arima.MaxPeriod)
 		}
 	}
 }
@@ -540,11 +561,11 @@ func (v *validator) model(p string, s *Series) {
 		v.add(path, "%q has seasonal orders; give their cycle in seasons, e.g. seasons: [1d] or [24]", s.Model)
 		return
 	case seasonal:
-		if period = s.Period(); period == 0 {
+		if period = s.Period(); period == 0 || period > arima.MaxPeriod || len(s.Seasons) > 1 {
 			return // the cycle's own problem is reported under seasons
 		}
 	case len(s.Seasons) > 0:
-		v.add(p+".seasons", "%v, but model %q has no seasonal orders; write model: \"%s x P,D,Q\" or leave seasons out", s.Seasons[0], s.Model, s.Model)
+		v.add(p+".seasons", "%v, but model %q has no seasonal orders to use them; write model: auto (which chooses terms per cycle), model: \"%s x P,D,Q\" for one cycle, or leave seasons out", s.Seasons[0], s.Model, s.Model)
 		return
 	}
 	if cerr != nil {

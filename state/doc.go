@@ -34,7 +34,7 @@
 // flush, never once per message. After a crash the file holds the last
 // committed batch entirely, and nothing of a batch that did not commit.
 //
-// # Record layout, format versions 1, 2 and 3
+// # Record layout, format versions 1 to 4
 //
 // A record is self-contained: it can be copied to another machine, or
 // another file, unchanged. All integers are little-endian; int and int64
@@ -53,6 +53,45 @@
 //	6       4     record length in bytes, uint32, envelope included
 //	10      ...   payload of that version
 //	len-4   4     CRC-32C (Castagnoli) of bytes [0, len-4)
+//
+// The payload of version 4 (written since several seasonal cycles, the
+// online spike and level-shift check and refit-time outliers, issue 12) is
+// that of version 3 with four more model fields after Filter:
+//
+//	NX               int64: regression columns (the last NX Params are β)
+//	column sets      uint32 count, then per set, in β's order:
+//	  Kind           byte: 1 Fourier pairs of cycles, 2 outlier effects
+//	                 (series.SetFourier, SetEffects; a new regressor kind
+//	                 is a new byte)
+//	  Values         float slice: Fourier: the step in seconds, then per
+//	                 cycle its length in seconds and its pairs K; effects:
+//	                 δ of a temporary change, then per effect its kind
+//	                 (0 AO, 1 LS, 2 TC) and bucket index
+//	cycles           uint32 count, then per cycle of the settings:
+//	  Seconds        float64
+//	  Terms          string: "arima", "fourier" or "none"
+//	  K              int64: Fourier pairs
+//	outliers         uint32 count, then per effect found at the refit:
+//	  Kind           byte (0 AO, 1 LS, 2 TC)
+//	  Bucket         int64
+//	  Size           float64 (model scale)
+//	  Tau            float64 (t value in the joint fit)
+//
+// and, after Calibration:
+//
+//	Guard              float slice: the online check's state
+//	                   (arima.Filter.AppendGuardState: on, last verdict and
+//	                   z, the open run); empty when the check is off
+//	Flag.Bucket        int64: the latest bucket the check took as an
+//	Flag.Verdict       byte:  additive outlier (1) or level shift (2); 0 none
+//	Flag.Z             float64: its standardised one-step error
+//	Flags              uint64: buckets the check has flagged
+//
+// Records of versions 1 to 3 decode with none of these (no regressors, no
+// cycles, no outliers, no check state: a restored series with the check on
+// starts it afresh). state/testdata holds real version-3 records of two
+// calibrated fits (written by the version-3 code);
+// TestDecodeVersion3Records loads them.
 //
 // The payload of version 3 (written since the calibrated bands of CONTRACT
 // §4) is that of version 2 below followed by one field:

@@ -28,8 +28,8 @@ func ExampleEncode() {
 	_, err = state.Decode(rec)
 	fmt.Println(err)
 	// Output:
-	// 249 storage.vol1.used_bytes [7.1e+11 NaN 7.3e+11]
-	// state: corrupt record: CRC mismatch at byte 245 (stored 375dc05f, computed 44c377df)
+	// 278 storage.vol1.used_bytes [7.1e+11 NaN 7.3e+11]
+	// state: corrupt record: CRC mismatch at byte 274 (stored 3d151779, computed f87549d3)
 }
 
 func ExampleStore() {

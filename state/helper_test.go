@@ -144,6 +144,24 @@ func randomSnapshot(r *rand.Rand, maxWindow int) *series.Snapshot {
 	if r.IntN(2) == 0 {
 		s.Calibration = randomFloats(r, r.IntN(200))
 	}
+	// format 4
+	if r.IntN(2) == 0 {
+		s.Guard = randomFloats(r, r.IntN(12))
+	}
+	s.Flag = series.GuardFlag{Bucket: r.Int64() - math.MaxInt64/2, Verdict: uint8(r.IntN(3)), Z: randomFloat(r)}
+	s.Flags = r.Uint64()
+	if m := s.Model; m != nil {
+		m.NX = r.IntN(60)
+		for range r.IntN(3) {
+			m.Design = append(m.Design, series.ColumnSet{Kind: uint8(1 + r.IntN(3)), Values: randomFloats(r, r.IntN(20))})
+		}
+		for range r.IntN(3) {
+			m.Cycles = append(m.Cycles, series.CycleChoice{Seconds: randomFloat(r), Terms: []string{"arima", "fourier", "none"}[r.IntN(3)], K: r.IntN(11)})
+		}
+		for range r.IntN(4) {
+			m.Outliers = append(m.Outliers, series.OutlierFound{Kind: uint8(r.IntN(3)), Bucket: r.Int64(), Size: randomFloat(r), Tau: randomFloat(r)})
+		}
+	}
 	return s
 }
 

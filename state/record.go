@@ -14,7 +14,7 @@ import (
 
 // FormatVersion is the record format version Encode writes. Decode reads
 // every version from 1 to FormatVersion.
-const FormatVersion uint16 = 3
+const FormatVersion uint16 = 4
 
 // The envelope, identical in every format version (doc.go).
 var magic = [4]byte{'f', 'w', 's', 'r'}
@@ -48,6 +48,14 @@ const (
 	fixedTransform = 8 + 8 + 8 + 8 + 8 + 8           // Lambda, Loc, Scale, RunN, RunMean, RunM2
 	fixedModel     = 7*8 + 1 + 1 + 8 + 8 + 8 + 8 + 8 // orders and period, Mean, Drift, Sigma2, LogLik, AICc, NObs, FittedAt
 	alertMinLen    = strHead + 1 + 8 + 8             // empty Rule, Raised, Since, Probability
+
+	// version 4: the model's regression design, cycles and outliers, and
+	// the online check's state and last flag
+	fixedModel4  = 8 + 3*4                   // NX, three counts
+	columnMinLen = 1 + sliceHead             // Kind, empty Values
+	cycleMinLen  = 8 + strHead + 8           // Seconds, empty Terms, K
+	outlierLen   = 1 + 8 + 8 + 8             // Kind, Bucket, Size, Tau
+	fixedTop4    = sliceHead + 8 + 1 + 8 + 8 // Guard count, Flag (Bucket, Verdict, Z), Flags
 )
 
 // EncodedLen returns the number of bytes Encode appends for s.
@@ -57,7 +65,15 @@ func EncodedLen(s *series.Snapshot) int {
 	n += sliceHead + 8*len(s.Window)
 	if m := s.Model; m != nil {
 		n += fixedModel + 2*sliceHead + 8*(len(m.Params)+len(m.Filter))
+		n += fixedModel4 + outlierLen*len(m.Outliers)
+		for _, c := range m.Design {
+			n += columnMinLen + 8*len(c.Values)
+		}
+		for _, c := range m.Cycles {
+			n += cycleMinLen + len(c.Terms)
+		}
 	}
+	n += fixedTop4 + 8*len(s.Guard)
 	for i := range s.Alerts {
 		n += alertMinLen + len(s.Alerts[i].Rule)
 	}
@@ -130,6 +146,25 @@ func Encode(dst []byte, s *series.Snapshot) []byte {
 		dst = le.AppendUint64(dst, uint64(int64(m.NObs)))
 		dst = le.AppendUint64(dst, uint64(m.FittedAt))
 		dst = appendFloats(dst, m.Filter)
+		dst = le.AppendUint64(dst, uint64(int64(m.NX)))
+		dst = le.AppendUint32(dst, uint32(len(m.Design)))
+		for _, c := range m.Design {
+			dst = append(dst, c.Kind)
+			dst = appendFloats(dst, c.Values)
+		}
+		dst = le.AppendUint32(dst, uint32(len(m.Cycles)))
+		for _, c := range m.Cycles {
+			dst = appendFloat(dst, c.Seconds)
+			dst = appendString(dst, c.Terms)
+			dst = le.AppendUint64(dst, uint64(int64(c.K)))
+		}
+		dst = le.AppendUint32(dst, uint32(len(m.Outliers)))
+		for _, o := range m.Outliers {
+			dst = append(dst, o.Kind)
+			dst = le.AppendUint64(dst, uint64(o.Bucket))
+			dst = appendFloat(dst, o.Size)
+			dst = appendFloat(dst, o.Tau)
+		}
 	}
 
 	dst = le.AppendUint64(dst, s.RefitFailures)
@@ -144,6 +179,11 @@ func Encode(dst []byte, s *series.Snapshot) []byte {
 		dst = appendFloat(dst, a.Probability)
 	}
 	dst = appendFloats(dst, s.Calibration)
+	dst = appendFloats(dst, s.Guard)
+	dst = le.AppendUint64(dst, uint64(s.Flag.Bucket))
+	dst = append(dst, s.Flag.Verdict)
+	dst = appendFloat(dst, s.Flag.Z)
+	dst = le.AppendUint64(dst, s.Flags)
 
 	return le.AppendUint32(dst, crc32.Checksum(dst[start:], castagnoli))
 }
@@ -212,7 +252,7 @@ func Decode(b []byte) (*series.Snapshot, error) {
 		return nil, &CorruptError{Fault: FaultChecksum, Offset: int(n - crcLen), Detail: fmt.Sprintf("stored %08x, computed %08x", want, got)}
 	}
 	switch v := le.Uint16(b[4:6]); v {
-	case 1, 2, 3:
+	case 1, 2, 3, 4:
 		return decodePayload(body, v)
 	default:
 		return nil, &VersionError{What: "record", Found: v, Max: FormatVersion}
@@ -289,6 +329,13 @@ func (r *reader) bool(what string) bool {
 	r.off--
 	r.fail(FaultField, fmt.Sprintf("%s is %d, want 0 or 1", what, p[0]))
 	return false
+}
+
+func (r *reader) byte(what string) byte {
+	if p := r.take(1, what); p != nil {
+		return p[0]
+	}
+	return 0
 }
 
 func (r *reader) str(what string) string {
@@ -370,6 +417,9 @@ func decodePayload(body []byte, version uint16) (*series.Snapshot, error) {
 		m.NObs = r.int("model nobs")
 		m.FittedAt = r.i64("model fitted at")
 		m.Filter = r.floats("model filter")
+		if version >= 4 {
+			decodeModel4(r, m, len(body))
+		}
 		s.Model = m
 	}
 
@@ -393,6 +443,13 @@ func decodePayload(body []byte, version uint16) (*series.Snapshot, error) {
 	if version >= 3 {
 		s.Calibration = r.floats("calibration")
 	}
+	if version >= 4 {
+		s.Guard = r.floats("guard state")
+		s.Flag.Bucket = r.i64("guard flag bucket")
+		s.Flag.Verdict = r.byte("guard flag verdict")
+		s.Flag.Z = r.f64("guard flag z")
+		s.Flags = r.u64("guard flags")
+	}
 
 	if r.err == nil && r.off != len(body) {
 		r.fail(FaultField, fmt.Sprintf("%d bytes after the last field", len(body)-r.off))
@@ -401,6 +458,44 @@ func decodePayload(body []byte, version uint16) (*series.Snapshot, error) {
 		return nil, r.err
 	}
 	return s, nil
+}
+
+// decodeModel4 reads the model fields of version 4: the regression design,
+// the choice per cycle and the outliers found. Each count is checked
+// against the bytes that remain before anything is allocated for it.
+func decodeModel4(r *reader, m *series.ModelSnapshot, size int) {
+	m.NX = r.int("model regressors")
+	room := func(n uint64, min int, what string) bool {
+		if r.err == nil && n > uint64(size-r.off)/uint64(min) {
+			r.fail(FaultTruncated, fmt.Sprintf("%d %s cannot fit in %d bytes", n, what, size-r.off))
+		}
+		return r.err == nil && n > 0
+	}
+	if n := uint64(r.u32("column set count")); room(n, columnMinLen, "column sets") {
+		m.Design = make([]series.ColumnSet, n)
+		for i := range m.Design {
+			m.Design[i].Kind = r.byte("column set kind")
+			m.Design[i].Values = r.floats("column set values")
+		}
+	}
+	if n := uint64(r.u32("cycle count")); room(n, cycleMinLen, "cycles") {
+		m.Cycles = make([]series.CycleChoice, n)
+		for i := range m.Cycles {
+			m.Cycles[i].Seconds = r.f64("cycle seconds")
+			m.Cycles[i].Terms = r.str("cycle terms")
+			m.Cycles[i].K = r.int("cycle pairs")
+		}
+	}
+	if n := uint64(r.u32("outlier count")); room(n, outlierLen, "outliers") {
+		m.Outliers = make([]series.OutlierFound, n)
+		for i := range m.Outliers {
+			o := &m.Outliers[i]
+			o.Kind = r.byte("outlier kind")
+			o.Bucket = r.i64("outlier bucket")
+			o.Size = r.f64("outlier size")
+			o.Tau = r.f64("outlier tau")
+		}
+	}
 }
 
 // migrateSpec sets the model's orders and period from the spec string of a

@@ -183,7 +183,7 @@ func TestBadFieldsBehindValidChecksum(t *testing.T) {
 			return append(b[:len(b)-4:len(b)-4], 0, 0, 0, 0, 0)
 		}, FaultField},
 		{"alert count too large", func(b []byte) []byte {
-			le.PutUint32(b[len(b)-8:], 1<<30)
+			le.PutUint32(b[len(b)-4-33-4:], 1<<30) // before the empty calibration and guard state, the flag (17 bytes) and the flag count
 			return b
 		}, FaultTruncated},
 	}

@@ -15,6 +15,7 @@ import (
 //
 //	{"topic":…,"issued":…,"origin":…,"step_seconds":…,"last_value":…,"kind":…,
 //	 "model":{"label":…,"transform":…,"fitted_at":…,"observations_used":…,"aicc":…,"bands":"calibrated"},
+//	 "last_bucket":{"taken_as":"outlier","z":…},
 //	 "points":[{"h":…,"time":…,"mean":…,"median":…,
 //	            "bands":[{"level":50,"low":…,"high":…,"scale":…},{"level":90,"low":…,"high":…,"scale":…}]},…]}
 //
@@ -44,6 +45,11 @@ import (
 // calibration widened the band, below 1 it narrowed it; the model's own
 // bands have scale 1. A non-finite Scale is null; a missing one is 1 for
 // the model's own bands and null for calibrated ones.
+//
+// "last_bucket" is present only when the series' online check took the
+// origin's bucket as an additive outlier ("outlier") or a level shift
+// ("level_shift", series.Forecast.Taken), with its standardised one-step
+// error z (6 significant digits; an addition to CONTRACT §2).
 //
 // With a dst of enough capacity AppendForecast does not allocate.
 func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
@@ -76,10 +82,18 @@ func AppendForecast(dst []byte, f *series.Forecast, issued time.Time) []byte {
 	dst = append(dst, `,"aicc":`...)
 	dst = appendFloat(dst, f.Model.AICc)
 	if f.Calibrated {
-		dst = append(dst, `,"bands":"calibrated"},"points":[`...)
+		dst = append(dst, `,"bands":"calibrated"}`...)
 	} else {
-		dst = append(dst, `,"bands":"model"},"points":[`...)
+		dst = append(dst, `,"bands":"model"}`...)
 	}
+	if f.Taken != "" {
+		dst = append(dst, `,"last_bucket":{"taken_as":`...)
+		dst = appendString(dst, f.Taken)
+		dst = append(dst, `,"z":`...)
+		dst = strconv.AppendFloat(dst, f.TakenZ, 'g', 6, 64)
+		dst = append(dst, '}')
+	}
+	dst = append(dst, `,"points":[`...)
 	pf.calibrated = f.Calibrated
 	ascending := levelsAscending(f.Levels)
 	var days dayCache

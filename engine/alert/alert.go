@@ -68,6 +68,12 @@ type Query struct {
 	// Seed seeds the path simulation. Zero means: derive the seed from the
 	// query's values, so that equal inputs give equal outputs.
 	Seed uint64
+	// Offset[j-1] is the part of Mean[j-1] that the state-space system of
+	// Decide leaves out: a regression on known future values (Fourier
+	// terms, outlier effects; arima.Filter.RegressionMean). nil: none. The
+	// paths are deviations from Mean, so only Decide's check of the
+	// system's means against Mean uses it.
+	Offset []float64
 }
 
 // Evaluator computes crossing probabilities. It owns all workspaces, so a

@@ -306,8 +306,12 @@ func (e *Evaluator) loadSystem(q *Query, ss *StateSpace, sc *screened) error {
 			y += ss.Delta[i] * u[r+i]
 		}
 		mj, vj := q.Mean[j], q.Variance[j]
-		if math.Abs(y-mj) > 1e-6*math.Sqrt(vj)+1e-9*math.Abs(mj)+1e-300 {
-			return fmt.Errorf("state space mean at step %d is %v, query mean %v: %w", j+1, y, mj, ErrStateSpace)
+		yq := y
+		if j < len(q.Offset) {
+			yq += q.Offset[j]
+		}
+		if math.Abs(yq-mj) > 1e-6*math.Sqrt(vj)+1e-9*math.Abs(mj)+1e-300 {
+			return fmt.Errorf("state space mean at step %d is %v, query mean %v: %w", j+1, yq, mj, ErrStateSpace)
 		}
 		w.d[j] = sc.c - sc.sign*mj
 		a0 := u[0]

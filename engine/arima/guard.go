@@ -26,7 +26,10 @@ import (
 //     filtering (a Huber-type ψ that is zero beyond the threshold: Masreliez
 //     & Martin 1977; Fahrmeir & Künstler 1999; Durbin & Koopman §14.6).
 //   - Level shift: a run of Run consecutive errors of the same sign, the
-//     first beyond Shift and the run's mean beyond Shift at every step,
+//     first beyond Shift, each later one beyond Shift/2, the run's mean
+//     beyond Shift at every step and its median beyond Shift at the end
+//     (so one large spike followed by ordinary values is not a shift; our
+//     own rule, common practice),
 //     is read as a change of level (a step intervention, Box & Tiao
 //     1975; West & Harrison 1997, ch. 11, intervention by a shift of the
 //     level with an increased prior variance; Harvey 1989, §7.6). At the
@@ -81,6 +84,7 @@ type guardState struct {
 	verdict Verdict
 	z       float64   // last standardised error (NaN when none)
 	runV    []float64 // prediction errors of the current run
+	runS    []float64 // scratch for their median
 	runN    int
 	runSign float64
 	runF    float64 // F of the run's first step
@@ -89,7 +93,22 @@ type guardState struct {
 	// model without differencing (f.c = the model's constant + shift); it
 	// is part of the saved state (AppendState).
 	shift float64
+	c0    float64 // the model's constant: f.c = c0 + shift after every change
+
+	// After a shift in a model without differencing the constant keeps
+	// learning for learn more steps (shiftLearn): lA is the filtered state
+	// of the shift's column, lS and ls the sums Σ x̃²/F and Σ x̃ v/F of its
+	// generalised least squares, lb the correction applied so far, lprec
+	// the prior precision 1/v_ω of the run's estimate; lK is scratch.
+	learn             int
+	lS, ls, lb, lprec float64
+	lA, lK            []float64
 }
+
+// shiftLearn is the number of steps after a level shift in a model without
+// differencing during which the constant keeps learning the shift's size
+// (our own choice, common practice: a few dozen steps pin a mean down).
+const shiftLearn = 100
 
 // SetGuard turns the spike and level-shift check on with g (see Guard).
 // It errors, leaving the filter unchanged, on thresholds that are not
@@ -102,7 +121,8 @@ func (f *Filter) SetGuard(g Guard) error {
 	if g.Inflate == 0 {
 		g.Inflate = 1
 	}
-	f.gd = guardState{on: true, g: g, z: math.NaN(), runV: make([]float64, g.Run), shift: f.gd.shift}
+	f.gd = guardState{on: true, g: g, z: math.NaN(), runV: make([]float64, g.Run), runS: make([]float64, g.Run), shift: f.gd.shift, c0: f.c - f.gd.shift,
+		lA: make([]float64, f.r), lK: make([]float64, f.r)}
 	return nil
 }
 
@@ -119,8 +139,21 @@ func (f *Filter) guardCheck(y float64) float64 {
 	gd := &f.gd
 	gd.verdict, gd.z = VerdictNone, math.NaN()
 	if math.IsNaN(y) || f.mode == modeWarm {
+		if gd.learn > 0 {
+			f.learnStep(math.NaN())
+		}
 		return y
 	}
+	y = f.guardJudge(y)
+	if gd.learn > 0 {
+		f.learnStep(y)
+	}
+	return y
+}
+
+// guardJudge is guardCheck's verdict on an observed y.
+func (f *Filter) guardJudge(y float64) float64 {
+	gd := &f.gd
 	var v, F float64
 	if f.mode == modeAug {
 		mm := f.r + f.nd
@@ -142,13 +175,18 @@ func (f *Filter) guardCheck(y float64) float64 {
 		// a run is open: its members are measured on the scale of its
 		// first step, since the members before were not absorbed
 		zr := v / math.Sqrt(f.sigma2*gd.runF)
-		if math.Copysign(1, zr) == gd.runSign && math.Abs(gd.runZ+zr) > gd.g.Shift*float64(gd.runN+1) {
+		if math.Copysign(1, zr) == gd.runSign && math.Abs(zr) > gd.g.Shift/2 && math.Abs(gd.runZ+zr) > gd.g.Shift*float64(gd.runN+1) {
 			gd.runZ += zr
 			gd.runV[gd.runN] = v
 			gd.runN++
 			if gd.runN < gd.g.Run {
 				gd.verdict = VerdictOutlier
 				return math.NaN()
+			}
+			if math.Abs(median(gd.runS, gd.runV[:gd.runN])) <= gd.g.Shift*math.Sqrt(f.sigma2*gd.runF) {
+				// one large value and ordinary ones: a spike, not a step
+				gd.runN = 0
+				goto fresh
 			}
 			omega := 0.0
 			for _, e := range gd.runV[:gd.runN] {
@@ -162,6 +200,7 @@ func (f *Filter) guardCheck(y float64) float64 {
 		}
 		gd.runN = 0 // the run broke: this step is judged afresh
 	}
+fresh:
 	if math.Abs(z) <= gd.g.Shift {
 		return y
 	}
@@ -175,10 +214,16 @@ func (f *Filter) guardCheck(y float64) float64 {
 func (f *Filter) shiftLevel(omega, vw float64) {
 	r, nd := f.r, f.nd
 	if nd == 0 {
-		f.c += omega
 		f.gd.shift += omega
+		f.c = f.gd.c0 + f.gd.shift // as SetState restores it, bit for bit
 		f.P[0] += vw
 		f.mode = modeFull
+		// the constant goes on learning the shift's size (learnStep)
+		gd := &f.gd
+		gd.learn, gd.lS, gd.ls, gd.lb, gd.lprec = shiftLearn, 0, 0, 0, 1/vw
+		for i := range gd.lA {
+			gd.lA[i] = 0
+		}
 		return
 	}
 	if f.mode != modeAug {
@@ -192,4 +237,120 @@ func (f *Filter) shiftLevel(omega, vw float64) {
 			row[j] += vw
 		}
 	}
+}
+
+// GuardStateLen is the length of the state AppendGuardState writes for a
+// check with run length run on a filter of ARMA state dimension r.
+func GuardStateLen(run, r int) int { return 7 + run + 5 + r }
+
+// AppendGuardState appends the check's state to dst: on, the last verdict
+// and z, the open run (its length, sign, first F, sum of z and its Run
+// prediction errors), and the learning of a shift's size (steps left, the
+// two sums, the correction, the prior precision and the column's state). With the filter's own state (AppendState, which
+// carries the level shifts of the constant) it lets a restored filter
+// with the same Guard continue bit for bit. A filter without the check
+// appends nothing.
+func (f *Filter) AppendGuardState(dst []float64) []float64 {
+	gd := &f.gd
+	if !gd.on {
+		return dst
+	}
+	dst = append(dst, 1, float64(gd.verdict), gd.z, float64(gd.runN), gd.runSign, gd.runF, gd.runZ)
+	dst = append(dst, gd.runV...)
+	dst = append(dst, float64(gd.learn), gd.lS, gd.ls, gd.lb, gd.lprec)
+	return append(dst, gd.lA...)
+}
+
+// SetGuardState restores what AppendGuardState wrote, into a filter whose
+// check was turned on (SetGuard) with the same Run. It errors, leaving
+// the filter unchanged, on a state of another length or out of range.
+func (f *Filter) SetGuardState(s []float64) error {
+	gd := &f.gd
+	if !gd.on || len(s) != GuardStateLen(gd.g.Run, f.r) || s[0] != 1 {
+		return fmt.Errorf("arima: set guard state: %w: %d values for a check with run %d (on %v)", ErrState, len(s), gd.g.Run, gd.on)
+	}
+	v, n := Verdict(s[1]), int(s[3])
+	if float64(v) != s[1] || v < VerdictNone || v > VerdictShift || float64(n) != s[3] || n < 0 || n >= gd.g.Run {
+		return fmt.Errorf("arima: set guard state: %w: verdict %v, run length %v", ErrState, s[1], s[3])
+	}
+	i := 7 + gd.g.Run
+	learn := int(s[i])
+	if float64(learn) != s[i] || learn < 0 || learn > shiftLearn {
+		return fmt.Errorf("arima: set guard state: %w: %v learning steps", ErrState, s[i])
+	}
+	gd.verdict, gd.z, gd.runN, gd.runSign, gd.runF, gd.runZ = v, s[2], n, s[4], s[5], s[6]
+	copy(gd.runV, s[7:i])
+	gd.learn, gd.lS, gd.ls, gd.lb, gd.lprec = learn, s[i+1], s[i+2], s[i+3], s[i+4]
+	copy(gd.lA, s[i+5:])
+	return nil
+}
+
+// learnStep refines the constant of a model without differencing after a
+// level shift, at each step before the filter absorbs y (NaN: a step it
+// only predicts). The shift's size is a regression coefficient b on the
+// step column x_t = 1 from the shift on, with the run's estimate as the
+// prior (variance v_ω); its filtered column x̃_t = 1 − Z A_t, A_t the
+// column run through the filter's own gains, gives the generalised least
+// squares estimate b̂ = Σ x̃v/F / (Σ x̃²/F + 1/v_ω), v the one-step errors of
+// the uncorrected filter (the augmented Kalman filter for a regression
+// coefficient: de Jong 1991, Ann. Statist. 19(2); Durbin & Koopman 2012,
+// §6.2). Each change Δ of b̂ moves the constant by Δ and the state by
+// −Δ·A (the filter is linear in its input), so the filter continues as if
+// it had run with the constant corrected from the shift on.
+func (f *Filter) learnStep(y float64) {
+	gd := &f.gd
+	r, A := f.r, gd.lA
+	gd.learn--
+	if math.IsNaN(y) {
+		a0 := A[0]
+		for i := 0; i < r-1; i++ {
+			A[i] = A[i+1] + f.s.phi[i]*a0
+		}
+		A[r-1] = f.s.phi[r-1] * a0
+		return
+	}
+	F := f.P[0]
+	if !(F > 0) || math.IsInf(F, 0) {
+		return
+	}
+	for i := 0; i < r; i++ {
+		next := 0.0
+		if i+1 < r {
+			next = f.P[(i+1)*r]
+		}
+		gd.lK[i] = f.s.phi[i]*f.P[0] + next
+	}
+	x := 1 - A[0]
+	v := y - f.c - f.a[0]
+	gd.lS += x * x / F
+	gd.ls += x * (v + gd.lb*x) / F
+	b := gd.ls / (gd.lS + gd.lprec)
+	d := b - gd.lb
+	gd.lb = b
+	gd.shift += d
+	f.c = gd.c0 + gd.shift
+	for i := range f.a {
+		f.a[i] -= d * A[i]
+	}
+	a0, k := A[0], x/F
+	for i := 0; i < r-1; i++ {
+		A[i] = A[i+1] + f.s.phi[i]*a0 + gd.lK[i]*k
+	}
+	A[r-1] = f.s.phi[r-1]*a0 + gd.lK[r-1]*k
+}
+
+// median returns the median of v, using buf (len ≥ len(v)) as scratch.
+func median(buf, v []float64) float64 {
+	b := buf[:len(v)]
+	copy(b, v)
+	for i := 1; i < len(b); i++ {
+		for j := i; j > 0 && b[j] < b[j-1]; j-- {
+			b[j], b[j-1] = b[j-1], b[j]
+		}
+	}
+	n := len(b)
+	if n%2 == 1 {
+		return b[n/2]
+	}
+	return (b[n/2-1] + b[n/2]) / 2
 }

@@ -111,7 +111,11 @@ func (f *Filter) SetState(s []float64) error {
 	if shifted {
 		shift = s[i]
 	}
-	f.c += shift - f.gd.shift
+	if f.gd.on {
+		f.c = f.gd.c0 + shift // as the check sets it
+	} else {
+		f.c += shift - f.gd.shift
+	}
 	f.gd.shift = shift
 	return nil
 }

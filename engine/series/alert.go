@@ -93,6 +93,7 @@ type AlertWork struct {
 	rules          []AlertRule
 	items          []alertItem
 	mean, variance []float64 // copies of the forecast's, for Run
+	offset         []float64 // the regression part of mean (models with regressors), for Run
 	own            arima.PathSystem
 	ps             *arima.PathSystem // &own unless EvaluateAlerts lends one
 	noPS           bool              // EvaluateAlerts was given no path system
@@ -228,9 +229,17 @@ func (s *Series) PrepareAlerts(w *AlertWork, rules []AlertRule, ev *alert.Evalua
 		// it works on copies (a calibrated item's variances are its own).
 		w.mean = append(w.mean[:0], s.mf.Mean...)
 		w.variance = append(w.variance[:0], s.mf.Variance...)
+		var off []float64
+		if s.design != nil {
+			// the path system describes y − xᵀβ
+			w.offset = append(w.offset[:0], s.mf.Mean...)
+			s.filter.RegressionMean(w.offset)
+			off = w.offset
+		}
 		for i := range w.items {
 			if it := &w.items[i]; it.sim {
 				it.q.Mean = w.mean
+				it.q.Offset = off
 				if it.f2 == 0 {
 					it.q.Variance = w.variance
 				}

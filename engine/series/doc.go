@@ -27,6 +27,18 @@
 // FitJob.Run may run on another goroutine while the owner holds later
 // observations back; Install is again called by the owner.
 //
+// # Cycles, spikes and level shifts
+//
+// With Settings.Seasons and model auto a refit chooses per cycle seasonal
+// ARIMA terms, Fourier pairs or nothing (auto.Select, as forewarn fit
+// --seasons); with Settings.Outliers it also looks for additive outliers,
+// level shifts and temporary changes in the recent window (outlier.Detect)
+// and fits them. Both become the model's regressors (design.go: column
+// sets by kind), evaluated at each bucket's start in data time, so the
+// phase survives restarts and gaps. Settings.Guard runs the filter's
+// online check on every closed bucket; the forecast says what it made of
+// the last one (Forecast.Taken).
+//
 // # Persistence
 //
 // Snapshot returns the plain record of everything needed to resume the

@@ -18,6 +18,13 @@ type Forecast struct {
 	// Calibrated: the bands are calibrated (CONTRACT §4, package
 	// calibrate); false: they are the model's own.
 	Calibrated bool
+	// Taken is what the online spike and level-shift check made of the
+	// last closed bucket: "" (a normal value, or the check is off),
+	// "outlier" (an additive outlier, kept out of the model's state) or
+	// "level_shift" (the level moved); TakenZ is that bucket's
+	// standardised one-step error (0 when Taken is "").
+	Taken  string
+	TakenZ float64
 }
 
 // ModelInfo describes the model a forecast came from.

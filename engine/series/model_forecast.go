@@ -30,6 +30,11 @@ type ModelForecast struct {
 	Mean       []float64 // model-scale forecast means, h = 1..horizon
 	Variance   []float64 // and variances
 	Transform  transform.Transform
+	// Taken is what the online check made of the origin's bucket: ""
+	// (a normal value), "outlier" or "level_shift"; TakenZ is its
+	// standardised one-step error (0 when Taken is "").
+	Taken  string
+	TakenZ float64
 
 	// Fill's scratch for one point: the median, then the lower and upper
 	// end per level, on the model scale (w) and raw (x, ok).
@@ -71,6 +76,7 @@ func (m *ModelForecast) Fill(dst *Forecast) {
 	h, nl := len(m.Mean), len(m.Levels)
 	dst.Topic, dst.Kind, dst.StepSeconds = m.Topic, m.Kind, m.StepSeconds
 	dst.Origin, dst.LastValue, dst.Model = m.Origin(), m.Last, m.Model
+	dst.Taken, dst.TakenZ = m.Taken, m.TakenZ
 	dst.Calibrated = m.Calibrated && len(m.Mult) == h*nl
 	dst.Levels = append(dst.Levels[:0], m.Levels...)
 	if cap(dst.Points) < h {

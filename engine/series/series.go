@@ -27,7 +27,19 @@ type Settings struct {
 	Constant    string    // "auto" (or ""), "none", "mean" or "drift" (arima.ParseConstant)
 	Transform   string    // "auto", "none", "log", "boxcox", "boxcox(λ)", "scaled-exp"
 	Calibrate   bool      // calibrate the bands and alert spreads online (package calibrate)
-	Fingerprint string    // changes whenever any field above changes
+	// Seasons are the seasonal cycles in seconds (need not be whole
+	// steps). With Model "auto" the refit chooses per cycle seasonal
+	// ARIMA terms, Fourier pairs or nothing (auto.Options.Seasons); a
+	// fixed Model takes its seasonal period from Period.
+	Seasons []float64
+	// Guard runs the online spike and level-shift check of the filter
+	// (arima.DefaultGuard) on every closed bucket.
+	Guard bool
+	// Outliers has each refit look for additive outliers, level shifts
+	// and temporary changes in the window (outlier.Detect) and fit them
+	// as regression columns.
+	Outliers    bool
+	Fingerprint string // changes whenever any field above changes
 }
 
 // Outcome says what one observation did to a series.
@@ -58,6 +70,7 @@ type Series struct {
 	tr     transform.Transform
 	model  *arima.Model
 	filter *arima.Filter
+	design *design // the model's regressors (nil without)
 	// fixed is the transform the settings fix when its domain is not
 	// every value (log, boxcox, boxcox(λ)): it bounds what Observe takes
 	// before the first fit, as tr does after. Its Name is "" otherwise.
@@ -142,7 +155,7 @@ func Restore(snap *Snapshot, set Settings) (*Series, error) {
 	if err != nil {
 		return nil, fmt.Errorf("series: restore %q: %w", snap.Topic, err)
 	}
-	m, f, err := modelFromSnapshot(snap.Model, set.Horizon)
+	m, f, d, err := modelFromSnapshot(snap.Model, snap.Guard, set)
 	if err != nil {
 		return nil, fmt.Errorf("series: restore %q: %w", snap.Topic, err)
 	}
@@ -150,7 +163,8 @@ func Restore(snap *Snapshot, set Settings) (*Series, error) {
 	ms.Params = append([]float64(nil), snap.Model.Params...)
 	ms.Filter = append([]float64(nil), snap.Model.Filter...)
 	s.snap.Model = &ms
-	s.tr, s.model, s.filter = tr, m, f
+	s.snap.Guard = append([]float64(nil), snap.Guard...)
+	s.tr, s.model, s.filter, s.design = tr, m, f, d
 	s.setModelInfo()
 	if s.cal != nil {
 		// The record's calibration continues; a record without one
@@ -199,8 +213,22 @@ func (set *Settings) check() error {
 			return fmt.Errorf("%w: level %g (want 0 < level < 100)", ErrSettings, l)
 		}
 	}
+	step := float64(set.StepSeconds)
+	for i, L := range set.Seasons {
+		switch {
+		case !(L > 0) || math.IsInf(L, 0):
+			return fmt.Errorf("%w: cycle %d is %v s (want a positive duration)", ErrSettings, i+1, L)
+		case L < 2*step:
+			return fmt.Errorf("%w: cycle %d (%v) is shorter than two steps of %v", ErrSettings, i+1, seconds(L), seconds(step))
+		case L > float64(set.Window)*step:
+			return fmt.Errorf("%w: cycle %d (%v) is longer than the window of %d steps of %v", ErrSettings, i+1, seconds(L), set.Window, seconds(step))
+		}
+	}
 	return nil
 }
+
+// seconds renders a duration given in seconds.
+func seconds(s float64) time.Duration { return time.Duration(s * float64(time.Second)) }
 
 func (s *Series) initBuffers() {
 	h := s.set.Horizon
@@ -335,11 +363,11 @@ func (s *Series) closeOpen() Outcome {
 			s.dropModel()
 		} else {
 			for k := int64(0); k < gap; k++ {
-				s.push(math.NaN())
+				s.push(sn.WindowEnd+1+k, math.NaN())
 			}
 		}
 	}
-	s.push(v)
+	s.push(b, v)
 	sn.WindowEnd = b
 	sn.Closed++
 	sn.SinceRefit++
@@ -375,9 +403,10 @@ func (s *Series) FitDue() bool {
 	return sn.SinceRefit >= s.set.RefitEvery
 }
 
-// push appends one closed bucket value to the window, dropping the oldest
-// when full, and steps the filter when there is a model.
-func (s *Series) push(v float64) {
+// push appends the value of closed bucket b to the window, dropping the
+// oldest when full, and steps the filter when there is a model, at the
+// bucket's start in data time (the phase of every regressor comes from it).
+func (s *Series) push(b int64, v float64) {
 	sn := &s.snap
 	if len(sn.Window) == s.set.Window {
 		if cap(sn.Window) == len(sn.Window) {
@@ -398,7 +427,13 @@ func (s *Series) push(v float64) {
 		if s.cal != nil {
 			s.cal.Observe(w) // resolves the forecasts issued for this bucket
 		}
-		s.filter.Step(w)
+		s.filter.StepAt(float64(b*s.set.StepSeconds), w)
+		if s.set.Guard {
+			if vd, z := s.filter.LastVerdict(); vd != arima.VerdictNone {
+				sn.Flag = GuardFlag{Bucket: b, Verdict: uint8(vd), Z: z}
+				sn.Flags++
+			}
+		}
 	}
 }
 
@@ -408,7 +443,7 @@ func (s *Series) push(v float64) {
 func windowCap(n int) int { return n + max(1, n/8) }
 
 func (s *Series) dropModel() {
-	s.model, s.filter, s.snap.Model = nil, nil, nil
+	s.model, s.filter, s.design, s.snap.Model, s.snap.Guard = nil, nil, nil, nil, nil
 	s.snap.SinceRefit = 0
 	if s.cal != nil {
 		_ = s.initCalibrator() // the forecasts pending are of a window now gone; the settings were checked by New
@@ -461,8 +496,23 @@ func (s *Series) forecast() {
 	}
 	s.mf.End = s.snap.WindowEnd
 	s.mf.Last = s.snap.Window[len(s.snap.Window)-1]
+	s.mf.Taken, s.mf.TakenZ = "", 0
+	if vd, z := s.filter.LastVerdict(); vd != arima.VerdictNone {
+		s.mf.Taken, s.mf.TakenZ = verdictName(vd), z
+	}
 	s.mf.Transform = s.tr
 	s.fcStale = true
+}
+
+// verdictName is the guard's verdict as the message and the page say it.
+func verdictName(v arima.Verdict) string {
+	switch v {
+	case arima.VerdictOutlier:
+		return "outlier"
+	case arima.VerdictShift:
+		return "level_shift"
+	}
+	return ""
 }
 
 func countFinite(x []float64) int {
@@ -497,6 +547,7 @@ func (s *Series) Status() string {
 func (s *Series) Snapshot() *Snapshot {
 	if s.filter != nil && s.snap.Model != nil {
 		s.snap.Model.Filter = s.filter.AppendState(s.snap.Model.Filter[:0])
+		s.snap.Guard = s.filter.AppendGuardState(s.snap.Guard[:0])
 	}
 	if s.cal != nil {
 		s.snap.Calibration = s.cal.AppendState(s.snap.Calibration[:0])
@@ -542,7 +593,24 @@ func (s *Series) warmCalibrator() {
 			}
 		}
 	}
-	if _, err := s.cal.WarmStart(s.model, w, nil); err != nil {
+	m := s.model
+	if s.design != nil {
+		// The filter with regressors filters u = y − xᵀβ and adds xᵀβ to
+		// its forecasts, so its forecast errors are those of the model
+		// without regressors on u: the calibrator warms on u.
+		m0 := *m
+		m0.Spec.NX, m0.Beta = 0, nil
+		m = &m0
+		x := make([]float64, s.design.NumRegressors())
+		t0 := s.snap.WindowEnd - int64(len(w)) + 1
+		for i := range w {
+			s.design.Regressors(x, float64((t0+int64(i))*s.set.StepSeconds))
+			for j, b := range s.model.Beta {
+				w[i] -= b * x[j]
+			}
+		}
+	}
+	if _, err := s.cal.WarmStart(m, w, nil); err != nil {
 		s.cal.Reset()
 	}
 	s.cal.Thresholds(s.mf.Mult)

@@ -52,6 +52,15 @@ type Snapshot struct {
 	// Alert rule states, one per matching rule, by rule name.
 	Alerts []AlertSnapshot
 
+	// Guard is the state of the online spike and level-shift check
+	// (arima.Filter.AppendGuardState: the last verdict and z and the open
+	// run); empty when the check is off or there is no model.
+	Guard []float64
+	// Flag is the latest bucket the check took as an additive outlier or
+	// a level shift (Verdict 0: none yet); Flags counts such buckets.
+	Flag  GuardFlag
+	Flags uint64
+
 	// Calibration is the fixed state of the series' calibrator
 	// (calibrate.Calibrator.AppendState: thresholds per horizon and
 	// level, the online update's settings and the coverage sums); empty
@@ -88,13 +97,53 @@ type ModelSnapshot struct {
 	NObs     int
 	FittedAt int64     // bucket index of the last bucket the fit saw
 	Filter   []float64 // filter state, as produced by the engine filter
+
+	// NX is the number of regression columns (β, the last NX Params);
+	// Design lists them, column set by column set, from absolute data
+	// time (so the filter restarts exactly).
+	NX     int
+	Design []ColumnSet
+	// Cycles is the choice per seasonal cycle of the settings (empty
+	// without cycles or with a fixed model).
+	Cycles []CycleChoice
+	// Outliers are the effects the refit found in its window and fitted
+	// (Design's SetEffects columns, in the same order).
+	Outliers []OutlierFound
+}
+
+// CycleChoice is the refit's choice for one seasonal cycle: seasonal
+// ARIMA terms ("arima"), K Fourier pairs ("fourier") or nothing ("none").
+type CycleChoice struct {
+	Seconds float64
+	Terms   string
+	K       int
+}
+
+// OutlierFound is one effect found at a refit (Chen & Liu 1993): kind AO
+// (additive outlier), LS (level shift) or TC (temporary change) as
+// outlier.Kind, at bucket index Bucket, with size Size on the model's
+// scale and its t value Tau in the joint fit.
+type OutlierFound struct {
+	Kind   uint8
+	Bucket int64
+	Size   float64
+	Tau    float64
+}
+
+// GuardFlag is a bucket the online check took as an additive outlier
+// (Verdict 1, arima.VerdictOutlier) or a level shift (2,
+// arima.VerdictShift), with its standardised one-step error Z.
+type GuardFlag struct {
+	Bucket  int64
+	Verdict uint8
+	Z       float64
 }
 
 // Spec returns the model's specification (not validated).
 func (m *ModelSnapshot) Spec() arima.Spec {
 	return arima.Spec{P: m.Order[0], D: m.Order[1], Q: m.Order[2],
 		SP: m.Seasonal[0], SD: m.Seasonal[1], SQ: m.Seasonal[2],
-		Period: m.Period, Mean: m.Mean, Drift: m.Drift}
+		Period: m.Period, Mean: m.Mean, Drift: m.Drift, NX: m.NX}
 }
 
 // AlertSnapshot is the persisted state of one alert rule on one series.

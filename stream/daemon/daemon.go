@@ -371,6 +371,9 @@ func settingsOf(sc *config.Series, named string) series.Settings {
 		Constant:    sc.Constant,
 		Transform:   sc.Transform,
 		Calibrate:   sc.Calibrated(),
+		Seasons:     sc.CycleSeconds(),
+		Guard:       sc.Robust(),
+		Outliers:    sc.Robust(),
 		Fingerprint: sc.Fingerprint(),
 	}
 }

@@ -89,6 +89,18 @@ func View(topic string, e *daemon.Entry, history int) site.View {
 		v.Model = site.Model{Spec: m.Spec, Transform: m.Transform, FittedAt: m.FittedAt, NObs: m.NObs, AICc: m.AICc}
 		v.Forecast = forecastView(fc)
 	}
+	if ms := snap.Model; ms != nil {
+		for _, c := range ms.Cycles {
+			v.Cycles = append(v.Cycles, site.Cycle{Length: time.Duration(c.Seconds * float64(time.Second)), Terms: c.Terms, Pairs: c.K})
+		}
+		for _, o := range ms.Outliers {
+			v.Outliers = append(v.Outliers, site.Outlier{Time: at(o.Bucket), Kind: outlierKinds[o.Kind%3], Size: o.Size, Tau: o.Tau})
+		}
+	}
+	if fl := snap.Flag; fl.Verdict == 1 || fl.Verdict == 2 {
+		v.Flag = site.Flag{Time: at(fl.Bucket), Kind: [...]string{"", "outlier", "level shift"}[fl.Verdict], Z: fl.Z}
+		v.Flags = snap.Flags
+	}
 	if c := s.Calibrator(); c != nil {
 		v.Calibrated = true
 		for l, lv := range c.Levels() {
@@ -110,6 +122,9 @@ func View(topic string, e *daemon.Entry, history int) site.View {
 	}
 	return v
 }
+
+// outlierKinds names outlier.Kind AO, LS and TC for the page.
+var outlierKinds = [...]string{"additive outlier", "level shift", "temporary change"}
 
 func forecastView(fc *series.Forecast) *site.Forecast {
 	f := &site.Forecast{Origin: fc.Origin, Levels: append([]float64(nil), fc.Levels...),

@@ -55,7 +55,8 @@ func startLive(t *testing.T) *live {
 	cfg.HTTP.Listen = ""
 	cfg.Series = []config.Series{
 		{Match: "air.*", Step: time.Minute, Horizon: 24, MinPoints: 60, RefitEvery: 40, Window: 400,
-			Model: "0,1,1 x 0,1,1", Seasons: []config.Cycle{{Steps: 12}}, Transform: "log"},
+			Model: "0,1,1 x 0,1,1", Seasons: []config.Cycle{{Steps: 12}}, Transform: "log",
+			Outliers: new(false)}, // the airline model alone, without outlier terms (its label is checked)
 		{Match: "uk.gas", Step: time.Minute, Horizon: 12, MinPoints: 40, RefitEvery: 30, Window: 400,
 			Model: "0,1,1 x 0,1,1", Seasons: []config.Cycle{{Steps: 4}}, Transform: "log"},
 		{Match: ">", Step: time.Minute, Horizon: 10, MinPoints: 60, Window: 400, Model: "1,0,0"},

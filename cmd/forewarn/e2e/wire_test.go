@@ -39,6 +39,11 @@ type forecast struct {
 	Kind        string
 	Model       forecastModel
 	Points      []forecastPoint
+	// TakenAs is what the online check made of the origin's bucket
+	// ("outlier", "level_shift"; "" when the message has no last_bucket),
+	// TakenZ its standardised one-step error.
+	TakenAs string
+	TakenZ  float64
 }
 
 type forecastModel struct {
@@ -89,6 +94,10 @@ type wireForecast struct {
 		ObservationsUsed int     `json:"observations_used"`
 		AICc             float64 `json:"aicc"`
 	} `json:"model"`
+	LastBucket *struct {
+		TakenAs string  `json:"taken_as"`
+		Z       float64 `json:"z"`
+	} `json:"last_bucket"`
 	Points []struct {
 		H      int        `json:"h"`
 		Time   time.Time  `json:"time"`
@@ -126,6 +135,9 @@ func parseForecast(b []byte) (forecast, error) {
 		LastValue: w.LastValue, Kind: w.Kind,
 		Model: forecastModel{Label: w.Model.Label, Transform: w.Model.Transform, FittedAt: w.Model.FittedAt,
 			ObservationsUsed: w.Model.ObservationsUsed, AICc: w.Model.AICc}}
+	if w.LastBucket != nil {
+		f.TakenAs, f.TakenZ = w.LastBucket.TakenAs, w.LastBucket.Z
+	}
 	for _, p := range w.Points {
 		bs, err := listBands(p.Bands)
 		if err != nil {

@@ -36,6 +36,23 @@ var funcs = template.FuncMap{
 	},
 	"ahead": func(origin, t time.Time) string { return humanfmt.Offset(t.Sub(origin)) },
 	"aicc":  func(x float64) string { return strconv.FormatFloat(x, 'f', 1, 64) },
+	"zval":  func(x float64) string { return strconv.FormatFloat(x, 'f', 1, 64) },
+	"dur":   func(d time.Duration) string { return humanfmt.Duration(d) },
+	"terms": cycleTerms,
+}
+
+// cycleTerms says which terms carry a cycle.
+func cycleTerms(c Cycle) string {
+	switch c.Terms {
+	case "fourier":
+		if c.Pairs == 1 {
+			return "1 Fourier pair (sin/cos of harmonic 1)"
+		}
+		return strconv.Itoa(c.Pairs) + " Fourier pairs (sin/cos of harmonics 1–" + strconv.Itoa(c.Pairs) + ")"
+	case "arima":
+		return "seasonal ARIMA terms"
+	}
+	return "none (not worth any terms at the last refit)"
 }
 
 // num writes a value for a person (humanfmt.Value); the page puts the
@@ -149,7 +166,16 @@ var seriesText = `<!doctype html>
 <dt>rejected</dt><dd>{{.Rejects}} ({{.Late}} late)</dd>
 <dt>model</dt><dd>{{if .Model.Spec}}{{.Model.Spec}}, transform {{.Model.Transform}}, fitted on {{.Model.NObs}} buckets up to {{utc .Model.FittedAt}}, AICc <span title="{{full .Model.AICc}}">{{aicc .Model.AICc}}</span>{{else}}none yet{{end}}</dd>
 <dt>failed refits</dt><dd>{{.RefitFailures}}{{if .LastRefitNote}}: {{.LastRefitNote}}{{end}}</dd>
+<dt>online check</dt><dd>{{if .Flag.Kind}}{{.Flags}} buckets taken as outliers or level shifts; the latest, {{utc .Flag.Time}}, as {{.Flag.Kind}} (z = {{zval .Flag.Z}}){{else}}no bucket taken as an outlier or a level shift{{end}}</dd>
 </dl>
+<h2>Seasonal cycles</h2>
+{{if .Cycles}}<table id="cycles"><tr><th>cycle</th><th>terms</th></tr>
+{{range .Cycles}}<tr><td>{{dur .Length}}</td><td>{{terms .}}</td></tr>
+{{end}}</table>{{else}}<p class="muted">No seasonal cycle{{if .Model.Spec}} in the model's settings{{end}}.</p>{{end}}
+<h2>Outliers found at the last refit</h2>
+{{if .Outliers}}<table id="outliers"><tr><th>bucket</th><th>type</th><th>size (model scale)</th><th>t value</th></tr>
+{{range .Outliers}}<tr><td>{{utc .Time}}</td><td>{{.Kind}}</td><td class="n" title="{{full .Size}}">{{num .Size}}</td><td class="n">{{zval .Tau}}</td></tr>
+{{end}}</table>{{else}}<p class="muted">None.</p>{{end}}
 <h2>Alert rules</h2>
 {{if .Rules}}<table id="rules"><tr><th>rule</th><th>threshold</th><th>state</th><th>probability</th><th>since</th></tr>
 {{range .Rules}}<tr><td>{{.Name}}</td><td title="{{full .Threshold}}">{{dir .Above}} {{num .Threshold}}</td><td class="{{alarm .}}">{{alarm .}}</td><td class="n">{{pct .Probability}}</td><td>{{utc .Since}}</td></tr>

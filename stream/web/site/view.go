@@ -54,6 +54,40 @@ type View struct {
 	// coverage of its recent forecasts.
 	Calibrated bool
 	Coverage   []Coverage
+
+	// Cycles is the model's choice per seasonal cycle of the series'
+	// settings; Outliers the effects the last refit found in its window
+	// and fitted. Flag is the latest bucket the online check took as an
+	// outlier or a level shift (zero Time: none), Flags how many it took.
+	Cycles   []Cycle
+	Outliers []Outlier
+	Flag     Flag
+	Flags    uint64
+}
+
+// Cycle is one seasonal cycle and the terms that carry it: "arima"
+// (seasonal ARIMA terms), "fourier" (Pairs sin/cos pairs) or "none".
+type Cycle struct {
+	Length time.Duration
+	Terms  string
+	Pairs  int
+}
+
+// Outlier is one effect found at a refit: Kind "additive outlier",
+// "level shift" or "temporary change", at the bucket starting Time, of
+// Size on the model's scale with t value Tau.
+type Outlier struct {
+	Time      time.Time
+	Kind      string
+	Size, Tau float64
+}
+
+// Flag is a bucket the online check took as "outlier" or "level shift",
+// with its standardised one-step error Z.
+type Flag struct {
+	Time time.Time
+	Kind string
+	Z    float64
 }
 
 // Coverage is the realised coverage of one level's bands: the share of

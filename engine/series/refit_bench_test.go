@@ -1,0 +1,79 @@
+package series
+
+import (
+	"math"
+	"math/rand/v2"
+	"testing"
+)
+
+// benchWindow is two weeks of one-minute data with a daily and a weekly
+// shape, AR(1) noise and (when spiky) three spikes and a level shift.
+func benchWindow(spiky bool) []float64 {
+	r := rand.New(rand.NewPCG(7, 8))
+	y := make([]float64, 20160)
+	u := 0.0
+	for i := range y {
+		d := 2 * math.Pi * float64(i%1440) / 1440
+		w := 2 * math.Pi * float64(i%10080) / 10080
+		u = 0.6*u + r.NormFloat64()
+		y[i] = 500 + 40*math.Sin(d) + 15*math.Cos(2*d) + 25*math.Sin(w) + 5*u
+	}
+	if spiky {
+		y[5000] += 80
+		y[12000] -= 70
+		y[17000] += 90
+		y[19800] += 90 // in the last 1000 buckets, which the outlier search covers
+		for i := 19900; i < len(y); i++ {
+			y[i] -= 40
+		}
+		for i := 15000; i < len(y); i++ {
+			y[i] += 30
+		}
+	}
+	return y
+}
+
+// BenchmarkRefitTwoCycles: one refit of a 20 160-bucket window with a
+// daily and a weekly cycle at 1m (issue 12: a cold fit ≤ 2 s, a warm refit
+// ≤ 300 ms), with and without the refit-time outlier search.
+func BenchmarkRefitTwoCycles(b *testing.B) {
+	for _, c := range []struct {
+		name     string
+		outliers bool
+	}{{"plain", false}, {"outliers", true}} {
+		b.Run(c.name, func(b *testing.B) {
+			set := Settings{Kind: "gauge", StepSeconds: 60, Horizon: 60, Levels: []float64{50, 90},
+				Window: 20160, MinPoints: 20160, RefitEvery: 1 << 30, Model: "auto", Transform: "none",
+				Seasons: []float64{86400, 7 * 86400}, Guard: true, Outliers: c.outliers, Fingerprint: "b"}
+			s, err := New("b", set)
+			if err != nil {
+				b.Fatal(err)
+			}
+			y := benchWindow(true)
+			for i, v := range y {
+				o, err := s.Observe(int64(i)*60e9, v)
+				if err != nil {
+					b.Fatal(err)
+				}
+				if o == NeedFit {
+					b.Fatal("fit due before the window is full")
+				}
+			}
+			if s.CloseOpen() != NeedFit {
+				b.Fatal("no fit due")
+			}
+			cold := s.FitJob().Run()
+			if _, err := s.Install(cold); err != nil {
+				b.Fatal(err)
+			}
+			b.Logf("cold fit %v: %s, %d outliers", cold.Elapsed, cold.Choice.Spec.Label(), len(cold.Outliers))
+			j := s.FitJob()
+			b.ResetTimer()
+			for range b.N {
+				if r := j.Run(); r.Err != nil {
+					b.Fatal(r.Err)
+				}
+			}
+		})
+	}
+}
