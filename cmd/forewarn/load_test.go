@@ -11,6 +11,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"sync/atomic"
 	"testing"
@@ -208,14 +209,18 @@ func TestLoadBadRows(t *testing.T) {
 // message, acknowledged the same way, without the daemon (the raw baseline
 // of DEVELOPERS.md); rawbatch_rows/s: the same payloads as load. noisy is
 // writeCSV's curve, smooth the same without noise (writeCurveCSV).
+// noisy/batch1 sends one row a message (--batch 1): the refit schedule of
+// one observation a message, every 60 closes, as before refits were
+// coalesced within a message (series.ObserveIn): the baseline.
 //
 //	go test -run '^$' -bench Load20160 -benchtime 1x ./cmd/forewarn
 func BenchmarkLoad20160(b *testing.B) {
-	b.Run("noisy", func(b *testing.B) { benchLoad(b, 3) })
-	b.Run("smooth", func(b *testing.B) { benchLoad(b, 0) })
+	b.Run("noisy", func(b *testing.B) { benchLoad(b, 3, loadMaxBatch) })
+	b.Run("smooth", func(b *testing.B) { benchLoad(b, 0, loadMaxBatch) })
+	b.Run("noisy/batch1", func(b *testing.B) { benchLoad(b, 3, 1) })
 }
 
-func benchLoad(b *testing.B, sd float64) {
+func benchLoad(b *testing.B, sd float64, batch int) {
 	const n = 20160
 	for b.Loop() {
 		_, url := streamtest.RunServer(b)
@@ -223,7 +228,7 @@ func benchLoad(b *testing.B, sd float64) {
 		path, start := writeCurveCSV(b, b.TempDir(), n, sd)
 		nc := streamtest.Connect(b, url)
 		t0 := time.Now()
-		if code := runLoad([]string{"--nats", url, path}, io.Discard, io.Discard); code != exitOK {
+		if code := runLoad([]string{"--nats", url, "--batch", strconv.Itoa(batch), path}, io.Discard, io.Discard); code != exitOK {
 			b.Fatalf("load: exit %d", code)
 		}
 		loadTook := time.Since(t0)
