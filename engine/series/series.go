@@ -374,6 +374,13 @@ func (s *Series) closeOpen() Outcome {
 // its message.
 const NoMore = math.MinInt64
 
+// FitOwed reports that a refit fell due inside the message being applied
+// and waits for a later close of it (ObserveIn). The record of a series
+// in that state must not be stored: restored, its refit would look like
+// one that was running (FitDue) and run at once, at another bucket than
+// in an uninterrupted run. It is false between messages.
+func (s *Series) FitOwed() bool { return s.fitOwed }
+
 // ObserveIn is Observe for observation of a message that may carry
 // several (a JSON array): ahead is the latest time (unix nanoseconds) of
 // the observations that follow it in the same message, or NoMore for the
