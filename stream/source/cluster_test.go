@@ -154,6 +154,13 @@ func TestClusterEachEndpointOneInstance(t *testing.T) {
 			stopIntake()
 			<-in.intakeDone
 		})
+		// One at a time, as the daemon's cluster tests start them: the
+		// second joins once the first holds every partition.
+		if k == 0 {
+			streamtest.Eventually(t, 60*time.Second, n+" holds every partition alone", func() bool {
+				return len(pi.Owned()) == parts
+			})
+		}
 	}
 	owned := func(n string) []int { return slices.Sorted(maps.Keys(inst[n].pi.Owned())) }
 	streamtest.Eventually(t, 60*time.Second, "partitions held as cluster.Assign gives them", func() bool {
