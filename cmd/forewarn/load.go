@@ -204,7 +204,10 @@ func runLoad(args []string, stdout, stderr io.Writer) int {
 	prefix := fs.String("prefix", def.Output.Prefix, "the daemon's output subject `prefix` (output.prefix), for the lateness check")
 	kind := fs.String("kind", "", "name the series' kind, gauge or counter, in the Forewarn-Kind header (a series entry with kind: auto takes it)")
 	skipBad := fs.Bool("skip-bad", false, "publish the good rows when some rows are bad (default: publish nothing)")
-	batch := fs.Int("batch", 500, "observations per message, at most 1000")
+	// Full messages by default: the daemon coalesces the refits that fall
+	// due inside one message into one at its last close, so a history of
+	// n rows costs about n/batch refits (series.ObserveIn).
+	batch := fs.Int("batch", loadMaxBatch, "observations per message, at most 1000 (the daemon refits at most once a message)")
 	window := fs.Int("window", 64, "messages in flight before waiting for acknowledgements")
 	timeout := fs.Duration("timeout", 30*time.Second, "how long to wait for the acknowledgements and the daemon's answer")
 	a := authFlags(fs)

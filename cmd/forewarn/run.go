@@ -153,6 +153,17 @@ func serve(ctx context.Context, cfg *config.Config, log *slog.Logger, demoOn boo
 		opt.OnForecast = func(f *series.Forecast) { fmt.Fprintln(stdout, demo.ForecastLine(f)) }
 		opt.OnAlert = func(e *series.AlertEvent) { fmt.Fprintln(stdout, demo.AlertLine(e)) }
 	}
+	// Cluster mode: the cluster intake is built here (daemon.New would
+	// build the same) so that the sources scrape by its leases too.
+	var owns func(*config.Source) bool
+	if cfg.Cluster.Partitions > 0 {
+		pi, err := stream.NewClusterIntake(nc, cfg.WithDefaults(), log)
+		if err != nil {
+			return err
+		}
+		opt.Intake, opt.Owns = pi, pi.OwnsTopic
+		owns = source.ByPartition(cfg.Cluster.Partitions, pi.Owned)
+	}
 	d, err := daemon.New(opt)
 	if err != nil {
 		return err
@@ -161,7 +172,7 @@ func serve(ctx context.Context, cfg *config.Config, log *slog.Logger, demoOn boo
 	var sources *source.Runner
 	if len(cfg.Sources) > 0 {
 		sources, err = source.New(source.Options{Sources: cfg.Sources, Conn: nc, Prefix: demoPrefix(cfg),
-			MaxSeries: cfg.Limits.MaxSeries, Logger: log})
+			MaxSeries: cfg.Limits.MaxSeries, Logger: log, Owns: owns})
 		if err != nil {
 			return err
 		}

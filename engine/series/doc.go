@@ -13,6 +13,10 @@
 // same forecasts, whatever the machine's speed, because refits are decided
 // by the count of closed buckets (Settings.RefitEvery) and the forecast at
 // a refit point waits for the refit (Outcome NeedFit, then Install).
+// ObserveIn applies an observation of a message that carries several:
+// refits that fall due inside one message are coalesced into one at the
+// last bucket the message closes, a rule of the data too, since message
+// boundaries are part of the input stream.
 //
 // # Counters
 //

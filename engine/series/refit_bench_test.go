@@ -77,3 +77,71 @@ func BenchmarkRefitTwoCycles(b *testing.B) {
 		})
 	}
 }
+
+// loadCurve is the shape cmd/forewarn's load tests write: a daily cycle
+// around a slow rise, one value a minute, plus seeded Gaussian noise of
+// standard deviation sd, written to 3 decimals (ours; the numbers do not
+// matter).
+func loadCurve(n int, sd float64) []float64 {
+	r := rand.New(rand.NewPCG(16, 1))
+	x := make([]float64, n)
+	for i := range x {
+		v := 500 + 0.01*float64(i) + 80*math.Sin(2*math.Pi*float64(i)/1440) + 7*math.Sin(float64(i)*0.37)
+		x[i] = math.Round((v+sd*r.NormFloat64())*1000) / 1000
+	}
+	return x
+}
+
+// defaultSettings are config.DefaultSeries' (one-minute step, window
+// 2000, refit every 60, automatic model and transform, calibrated).
+func defaultSettings() Settings {
+	return Settings{Kind: "gauge", StepSeconds: 60, Horizon: 60, Levels: []float64{50, 90},
+		Window: 2000, MinPoints: 50, RefitEvery: 60, Model: "auto", Constant: "auto",
+		Transform: "auto", Calibrate: true, Fingerprint: "bench"}
+}
+
+// BenchmarkRefitDefault2000 is one automatic refit of a full 2000-bucket
+// window under the default settings, warm from the previous model: the
+// FitJob (order search) and its Install (filter over the window and the
+// calibrator's warm start). It is the unit of work of a history load
+// (forewarn load), one per refit point. noisy: the curve with noise of
+// sd 3; smooth: without noise, only the rounding to 3 decimals (a
+// near-deterministic curve that the search fits with a slowly converging
+// ARIMA(1,1,5)).
+//
+//	go test -run '^$' -bench RefitDefault2000 -cpuprofile cpu.out ./engine/series
+func BenchmarkRefitDefault2000(b *testing.B) {
+	b.Run("noisy", func(b *testing.B) { benchRefit(b, 3) })
+	b.Run("smooth", func(b *testing.B) { benchRefit(b, 0) })
+}
+
+func benchRefit(b *testing.B, sd float64) {
+	s, err := New("bench", defaultSettings())
+	if err != nil {
+		b.Fatal(err)
+	}
+	x := loadCurve(2200, sd)
+	for i, v := range x {
+		out, err := s.Observe(int64(i)*60e9, v)
+		if err != nil {
+			b.Fatal(err)
+		}
+		if out == NeedFit {
+			if _, err := s.Install(s.FitJob().Run()); err != nil {
+				b.Fatal(err)
+			}
+		}
+	}
+	var job float64
+	for b.Loop() {
+		r := s.FitJob().Run()
+		if r.Err != nil {
+			b.Fatal(r.Err)
+		}
+		job += r.Elapsed.Seconds()
+		if _, err := s.Install(r); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(job/float64(b.N), "job_s/op")
+}

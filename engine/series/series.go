@@ -95,6 +95,15 @@ type Series struct {
 	// (forecast), whose bands then use its thresholds.
 	cal *calibrate.Calibrator
 	sd  []float64 // the new forecast's sds on the model scale, for Issue
+
+	// Refits coalesced within one message (ObserveIn). holdFit is set
+	// for the one observation being applied when a later observation of
+	// its message will close a bucket: a refit falling due at a close it
+	// makes waits. fitOwed records that one did wait, until the refit is
+	// asked for. Neither is stored: between messages both are false
+	// (ObserveIn asks for an owed refit at its message's last
+	// observation at the latest).
+	holdFit, fitOwed bool
 }
 
 // New returns an empty series for topic.
@@ -376,13 +385,58 @@ func (s *Series) closeOpen() Outcome {
 	sn.Transform.RunN, sn.Transform.RunMean, sn.Transform.RunM2 = run.N, run.Mean, run.M2
 
 	if s.FitDue() {
-		return NeedFit
+		if !s.holdFit {
+			s.fitOwed = false
+			return NeedFit
+		}
+		s.fitOwed = true // ObserveIn: the refit moves to a later close of the message
 	}
 	if s.model == nil {
 		return Warming
 	}
 	s.forecast()
 	return Published
+}
+
+// NoMore is the ahead argument of ObserveIn for the last observation of
+// its message.
+const NoMore = math.MinInt64
+
+// FitOwed reports that a refit fell due inside the message being applied
+// and waits for a later close of it (ObserveIn). The record of a series
+// in that state must not be stored: restored, its refit would look like
+// one that was running (FitDue) and run at once, at another bucket than
+// in an uninterrupted run. It is false between messages.
+func (s *Series) FitOwed() bool { return s.fitOwed }
+
+// ObserveIn is Observe for observation of a message that may carry
+// several (a JSON array): ahead is the latest time (unix nanoseconds) of
+// the observations that follow it in the same message, or NoMore for the
+// last one. Refits that fall due inside one message are coalesced into
+// one, at the last bucket the message closes: a refit point reached at a
+// close made by an observation whose message goes on to close a later
+// bucket publishes from the current model (Published; Warming before the
+// first fit) and the refit waits, counted in SinceRefit, for that later
+// close. If the message's last observation leaves a refit owed (the
+// later close did not happen: its observation was refused), ObserveIn
+// returns NeedFit after it, also with an error, and the refit is of the
+// last closed bucket, whose forecast the new model then issues again.
+//
+// Message boundaries are part of the input stream, so the rule depends on
+// the data alone: a redelivered or replayed message ends the same way. A
+// stream of one observation per message refits exactly as Observe.
+func (s *Series) ObserveIn(t int64, v float64, ahead int64) (Outcome, error) {
+	step := s.set.StepSeconds * int64(time.Second)
+	s.holdFit = ahead != NoMore && floorDiv(ahead, step) > floorDiv(t, step)
+	out, err := s.Observe(t, v)
+	s.holdFit = false
+	if ahead == NoMore && s.fitOwed && out != NeedFit {
+		s.fitOwed = false
+		if s.FitDue() {
+			return NeedFit, err
+		}
+	}
+	return out, err
 }
 
 // FitDue reports whether the last closed bucket is a refit point whose

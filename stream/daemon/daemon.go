@@ -75,8 +75,9 @@ type Daemon struct {
 	pending  int      // observations held back behind refits, all series
 	due      []string // restored series whose refit was in flight at the last save
 	obsBuf   []stream.Observation
-	lastSeq  uint64 // highest stream position handled
-	stopping bool   // shutdown: finished jobs no longer release held observations
+	ahead    []int64 // handle's per-message latest later times (series.ObserveIn)
+	lastSeq  uint64  // highest stream position handled
+	stopping bool    // shutdown: finished jobs no longer release held observations
 
 	ready chan struct{}
 	done  chan struct{} // closed when Run returns

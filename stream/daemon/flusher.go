@@ -112,10 +112,13 @@ func (f *flusher) begin(all map[string]*entry, floor uint64) {
 func (f *flusher) step() {
 	end := min(f.flushed+flushChunk, len(f.toFlush))
 	for _, e := range f.toFlush[f.flushed:end] {
-		if e.alerting {
+		if e.alerting || e.s.FitOwed() {
 			// Its record says its latest close is applied, but not yet that
 			// close's alert evaluation: stored, a restart would skip the
 			// close (Series.Handled) and the evaluation would never happen.
+			// Likewise a refit owed inside a message (left so by a shutdown
+			// between two of its observations): restored, it would run at
+			// once, at another bucket (series.FitOwed).
 			// It stays dirty for the next flush, and this flush
 			// acknowledges nothing it has applied since its last record.
 			if e.firstDirty > 0 && e.firstDirty-1 < f.floor {
@@ -155,7 +158,7 @@ func ackFloor(all map[string]*entry, last uint64) uint64 {
 		if len(e.pending) > 0 && e.pending[0].seq > 0 && e.pending[0].seq-1 < floor {
 			floor = e.pending[0].seq - 1
 		}
-		if e.alerting && e.firstDirty > 0 && e.firstDirty-1 < floor {
+		if (e.alerting || e.s.FitOwed()) && e.firstDirty > 0 && e.firstDirty-1 < floor {
 			floor = e.firstDirty - 1
 		}
 	}

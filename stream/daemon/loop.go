@@ -43,6 +43,7 @@ type pendingObs struct {
 	v       float64
 	subject string
 	recv    time.Time
+	ahead   int64 // latest time of the message's later observations (series.ObserveIn)
 }
 
 // maxPending bounds the observations held back behind refits, all series
@@ -138,11 +139,22 @@ func (d *Daemon) handle(m *stream.Message) {
 		}
 	}
 	e.seen = m.Received
+	// Refits falling due inside the message wait for its last close
+	// (series.ObserveIn): each observation carries the latest time of
+	// those after it, over the whole message, redelivered or not.
+	d.ahead = d.ahead[:0]
+	for i := range obs {
+		d.ahead = append(d.ahead, obs[i].Time.UnixNano())
+	}
+	after := int64(series.NoMore)
+	for i := len(d.ahead) - 1; i >= 0; i-- {
+		d.ahead[i], after = after, max(after, d.ahead[i])
+	}
 	for i := range obs {
 		if e.s.Handled(m.Seq, i) {
 			continue // a redelivered message: its effect is already in the state
 		}
-		p := pendingObs{seq: m.Seq, index: i, t: obs[i].Time.UnixNano(), v: obs[i].Value, subject: m.Subject, recv: m.Received}
+		p := pendingObs{seq: m.Seq, index: i, t: obs[i].Time.UnixNano(), v: obs[i].Value, subject: m.Subject, recv: m.Received, ahead: d.ahead[i]}
 		// Observations held back behind refits are bounded: past the
 		// bound the loop waits for refits to finish (the intake, and so
 		// the bus, is held back meanwhile).
@@ -192,7 +204,7 @@ func (d *Daemon) apply(topic string, e *entry, p pendingObs) {
 	if e.firstDirty == 0 {
 		e.firstDirty = p.seq
 	}
-	out, err := e.s.Observe(p.t, p.v)
+	out, err := e.s.ObserveIn(p.t, p.v, p.ahead)
 	e.s.Advance(p.seq, p.index)
 	e.dirty = true
 	if err != nil {
@@ -206,6 +218,9 @@ func (d *Daemon) apply(topic string, e *entry, p pendingObs) {
 			code = stream.CodeNotFinite
 		}
 		d.reject(p.subject, topic, p.recv, code, err.Error())
+		if out == series.NeedFit { // a refit owed by its message (ObserveIn)
+			d.outcome(topic, e, out)
+		}
 		return
 	}
 	d.metrics.Accepted.Inc()

@@ -80,6 +80,15 @@
 // limits.max_series: new ones beyond it are left out, always the same
 // ones since samples go in topic order.
 //
+// # Cluster mode
+//
+// With cluster.partitions > 0 each endpoint is scraped by exactly one
+// instance: the holder of the lease of Partition(URL, n), the partition
+// FNV-1a of the endpoint's URL falls in, the hash and the leases of the
+// series' partitions (Options.Owns, ByPartition; cluster.go says how a
+// handover goes). forewarn_source_scraping{source} is 1 on the instance
+// that scrapes it.
+//
 // # Concurrency
 //
 // Run may be called once. Metrics may be read from any goroutine. Parse,

@@ -46,6 +46,7 @@ type Metrics struct {
 	Dropped   *prometheus.CounterVec   // source, reason
 	Series    *prometheus.GaugeVec     // source
 	Duration  *prometheus.HistogramVec // source
+	Scraping  *prometheus.GaugeVec     // source: 1 while this instance scrapes it (cluster.go)
 }
 
 func newMetrics(names []string) *Metrics {
@@ -65,11 +66,15 @@ func newMetrics(names []string) *Metrics {
 		Duration: prometheus.NewHistogramVec(prometheus.HistogramOpts{
 			Name: "forewarn_source_scrape_duration_seconds", Help: "Time from the start of a scrape to its last publication.",
 			Buckets: prometheus.ExponentialBuckets(0.001, 2, 16)}, []string{"source"}),
+		Scraping: prometheus.NewGaugeVec(prometheus.GaugeOpts{
+			Name: "forewarn_source_scraping", Help: "1 while this instance scrapes the source, 0 while another instance of the cluster does."},
+			[]string{"source"}),
 	}
 	for _, n := range names {
 		m.Scrapes.WithLabelValues(n)
 		m.Published.WithLabelValues(n)
 		m.Series.WithLabelValues(n)
+		m.Scraping.WithLabelValues(n)
 		for _, c := range Causes() {
 			m.Failures.WithLabelValues(n, c)
 		}
@@ -82,5 +87,5 @@ func newMetrics(names []string) *Metrics {
 
 // Collectors returns the metrics, to register on a registry.
 func (m *Metrics) Collectors() []prometheus.Collector {
-	return []prometheus.Collector{m.Scrapes, m.Failures, m.Published, m.Dropped, m.Series, m.Duration}
+	return []prometheus.Collector{m.Scrapes, m.Failures, m.Published, m.Dropped, m.Series, m.Duration, m.Scraping}
 }

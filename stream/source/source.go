@@ -42,6 +42,10 @@ type Options struct {
 	Client *http.Client
 	// Now is the wall clock that stamps a scrape. Nil: time.Now.
 	Now func() time.Time
+	// Owns reports whether this instance scrapes src now; it is asked
+	// before every scrape, from the source's goroutine. Nil: every
+	// source, always. Cluster mode passes ByPartition (cluster.go).
+	Owns func(src *config.Source) bool
 }
 
 // Runner scrapes every source in a goroutine of its own and publishes the
@@ -161,7 +165,12 @@ func (s *scraper) loop(ctx context.Context) {
 	t := time.NewTicker(s.src.Every)
 	defer t.Stop()
 	for {
-		s.scrape(ctx)
+		if s.r.o.Owns == nil || s.r.o.Owns(s.src) {
+			s.r.metrics.Scraping.WithLabelValues(s.src.Name).Set(1)
+			s.scrape(ctx)
+		} else {
+			s.r.metrics.Scraping.WithLabelValues(s.src.Name).Set(0)
+		}
 		select {
 		case <-ctx.Done():
 			return
