@@ -213,3 +213,49 @@ func TestObserveInOwedRefit(t *testing.T) {
 		t.Fatalf("refused last observation: refits %v, error %v; want %v with ErrDomain", fits, errs[4], want)
 	}
 }
+
+// An owed refit of a series that already has a model: the bucket it
+// refits at has published its forecast from the old model, so Install
+// does not publish it again (each origin once), and the next close
+// publishes from the new model.
+func TestObserveInOwedRefitPublishesOnce(t *testing.T) {
+	set := settings()
+	set.Transform = "log" // values ≤ 0 are refused (ErrDomain)
+	x := trend(80, 24)
+	s, _ := New("s", set)
+	for _, m := range singles(1, 0, x[:65]) { // buckets 0…64; the first fit at 40 closed
+		deliverIn(s, m, false)
+	}
+	if !s.HasModel() {
+		t.Fatal("no model after the first fit")
+	}
+	m := message{seq: 70, obs: []obs{
+		{b: 65, v: x[65]},          // closes 64: 65 closed, a refit point; waits (bucket 66 comes later)
+		{b: 66, v: -1},             // refused: would have closed 65
+		{b: 65, sec: 30, v: x[65]}, // the open bucket again; the message ends with the refit owed
+	}}
+	ah := aheads(m)
+	var outs []Outcome
+	var installed []Outcome
+	for i, o := range m.obs {
+		out, _ := s.ObserveIn(at(o.b)+o.sec*1e9, o.v, ah[i])
+		s.Advance(m.seq, i)
+		outs = append(outs, out)
+		if out == NeedFit {
+			got, err := s.Install(s.FitJob().Run())
+			if err != nil {
+				t.Fatal(err)
+			}
+			installed = append(installed, got)
+		}
+	}
+	if outs[0] != Published {
+		t.Fatalf("close at the refit point inside the message: %v, want Published (from the old model)", outs[0])
+	}
+	if want := []Outcome{Absorbed}; !reflect.DeepEqual(installed, want) {
+		t.Fatalf("owed refit installed with %v, want %v: its origin's forecast is already out", installed, want)
+	}
+	if out, err := s.ObserveIn(at(66), x[66], NoMore); out != Published || err != nil {
+		t.Fatalf("next close: %v, %v; want Published from the new model", out, err)
+	}
+}

@@ -212,13 +212,22 @@ func (s *Series) Install(r FitResult) (Outcome, error) {
 		sn.RefitFailures++
 		sn.LastRefitNote = r.Err.Error()
 		if s.model == nil {
+			s.reissue = false
 			return Warming, r.Err
 		}
 		s.forecast()
+		if s.reissue {
+			s.reissue = false
+			return Absorbed, r.Err
+		}
 		return Published, r.Err
 	}
 	sn.LastRefitNote = r.Choice.Result.Note
 	s.forecast()
+	if s.reissue { // see ObserveIn: this origin's forecast is already out
+		s.reissue = false
+		return Absorbed, nil
+	}
 	return Published, nil
 }
 

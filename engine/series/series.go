@@ -104,6 +104,10 @@ type Series struct {
 	// (ObserveIn asks for an owed refit at its message's last
 	// observation at the latest).
 	holdFit, fitOwed bool
+	// reissue marks a refit asked for after its message ended (ObserveIn):
+	// its bucket's forecast, if the old model made one, is already out, so
+	// Install does not publish it again.
+	reissue bool
 }
 
 // New returns an empty series for topic.
@@ -420,7 +424,9 @@ func (s *Series) FitOwed() bool { return s.fitOwed }
 // close. If the message's last observation leaves a refit owed (the
 // later close did not happen: its observation was refused), ObserveIn
 // returns NeedFit after it, also with an error, and the refit is of the
-// last closed bucket, whose forecast the new model then issues again.
+// last closed bucket. That bucket's forecast came from the old model and
+// is already out, so Install then returns Absorbed: the new model
+// publishes from the next close, and no origin is published twice.
 //
 // Message boundaries are part of the input stream, so the rule depends on
 // the data alone: a redelivered or replayed message ends the same way. A
@@ -433,6 +439,7 @@ func (s *Series) ObserveIn(t int64, v float64, ahead int64) (Outcome, error) {
 	if ahead == NoMore && s.fitOwed && out != NeedFit {
 		s.fitOwed = false
 		if s.FitDue() {
+			s.reissue = s.model != nil
 			return NeedFit, err
 		}
 	}
