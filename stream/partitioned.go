@@ -244,6 +244,41 @@ func (pi *PartitionedIntake) Ack(seq uint64) error {
 	return errors.Join(errs...)
 }
 
+// h27 (issue 15, several loops): MarkWhere and AckWhere are Mark and Ack
+// for the partitions sel selects, so that each of the daemon's loops marks
+// and acknowledges the partitions it owns (daemon.PartMarker).
+
+// MarkWhere is Mark for the partitions p with sel(p).
+func (pi *PartitionedIntake) MarkWhere(sel func(p int) bool) {
+	pi.mu.Lock()
+	defer pi.mu.Unlock()
+	for p, pt := range pi.parts {
+		if sel(p) {
+			pt.mark = pt.handed
+		}
+	}
+}
+
+// AckWhere is Ack for the partitions p with sel(p).
+func (pi *PartitionedIntake) AckWhere(seq uint64, sel func(p int) bool) error {
+	pi.mu.Lock()
+	var ins []*Intake
+	var seqs []uint64
+	for p, pt := range pi.parts {
+		if s := min(seq, pt.mark); s > 0 && sel(p) {
+			ins, seqs = append(ins, pt.in), append(seqs, s)
+		}
+	}
+	pi.mu.Unlock()
+	var errs []error
+	for i, in := range ins {
+		if err := in.Ack(seqs[i]); err != nil {
+			errs = append(errs, err)
+		}
+	}
+	return errors.Join(errs...)
+}
+
 // Owned returns the partitions this instance consumes, with their epochs.
 func (pi *PartitionedIntake) Owned() map[int]uint64 {
 	pi.mu.Lock()

@@ -177,7 +177,7 @@ func runOutputBound(b *testing.B, o rigOptions) outputRun {
 	msgs := r.build(b.N, 1)
 	fcSubjects := make([]string, len(r.subjects))
 	for i := range fcSubjects {
-		fcSubjects[i] = r.d.pub.forecastSubject(rigTopic(i))
+		fcSubjects[i] = r.d.loops[0].pub.forecastSubject(rigTopic(i))
 	}
 	twins, filter := rawTwins(fcSubjects)
 	raw := medianOf3(func() float64 { return streamtest.RawFanInRate(b, r.url, twins, filter, len(fc), max(b.N, 50_000)) })
@@ -457,6 +457,7 @@ func BenchmarkClosePath(b *testing.B) {
 				b.Fatal(err)
 			}
 			topic := rigTopic(0)
+			l := d.loops[0]
 			sc, _ := r.cfg.SeriesFor(topic)
 			s, err := series.Restore(r.template(window), settingsOf(sc, ""))
 			if err != nil {
@@ -482,11 +483,11 @@ func BenchmarkClosePath(b *testing.B) {
 				}
 				buf = stream.AppendForecast(buf[:0], s.Forecast(), now)
 				if len(e.rules) > 0 {
-					d.evaluate(topic, e, now)
+					l.evaluate(topic, e, now)
 				}
 			}
-			if withRule && d.alerts.evaluator.LastMethod() != alert.MethodSkip {
-				b.Fatalf("rule evaluated by %v, want the skip bound", d.alerts.evaluator.LastMethod())
+			if withRule && l.alerts.evaluator.LastMethod() != alert.MethodSkip {
+				b.Fatalf("rule evaluated by %v, want the skip bound", l.alerts.evaluator.LastMethod())
 			}
 			if st := *s.Alerts(); withRule && (len(st) != 1 || st[0].Raised) {
 				b.Fatalf("alert states %+v", st)

@@ -316,7 +316,10 @@ func (r *rig) quiesce() {
 	for {
 		idle := false
 		if !r.d.Inspect(context.Background(), func(all map[string]*Entry) {
-			idle = !r.d.flusher.writing && r.d.refits.busy == 0
+			idle = true
+			for _, l := range r.d.loops {
+				idle = idle && !l.flusher.writing && l.refits.busy == 0
+			}
 			for _, e := range all {
 				idle = idle && !e.e.dirty
 			}
