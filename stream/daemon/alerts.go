@@ -87,9 +87,9 @@ type alertJob struct {
 	topic  string
 	e      *entry
 	w      series.AlertWork
-	issued time.Time       // the close's "issued" time, for the alert messages
-	queued time.Time       // wall time it entered the queue
-	wait   time.Duration   // time in the queue (set by the worker)
+	issued time.Time        // the close's "issued" time, for the alert messages
+	queued time.Time        // wall time it entered the queue
+	wait   time.Duration    // time in the queue (set by the worker)
 	reply  chan<- *alertJob // the sending loop's done
 }
 

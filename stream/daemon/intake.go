@@ -49,6 +49,6 @@ type PartMarker interface {
 var (
 	_ Intake     = (*stream.Intake)(nil)
 	_ PartMarker = (*stream.PartitionedIntake)(nil)
-	_ Intake = (*stream.PartitionedIntake)(nil)
-	_ Marker = (*stream.PartitionedIntake)(nil)
+	_ Intake     = (*stream.PartitionedIntake)(nil)
+	_ Marker     = (*stream.PartitionedIntake)(nil)
 )
