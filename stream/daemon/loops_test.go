@@ -1,7 +1,23 @@
 package daemon
 
 import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"math"
+	"reflect"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
+
+	"forewarn/config"
+	"forewarn/engine/alert"
+	"forewarn/engine/series"
 	"forewarn/stream"
+	"forewarn/stream/streamtest"
 )
 
 // Test helpers over the loops; only inside Inspect (every loop paused).
@@ -19,3 +35,140 @@ func (d *Daemon) handleBatch(batch []stream.Message) {
 
 // entryOf is topic's entry, on whichever loop owns it (nil: none).
 func (d *Daemon) entryOf(topic string) *entry { return d.loopFor(topic).series[topic] }
+
+// Shape of TestLoopsDeterminism.
+const (
+	detSeries = 24
+	detObs    = 160
+	detT0     = 1_700_000_040 // a whole minute
+)
+
+func detTopic(i int) string { return fmt.Sprintf("det.s%02d", i) }
+
+// detMsg is observation j of series i: the tests' deterministic walk,
+// offset per series, every third series a counter (by its kind header).
+func detMsg(i, j int) *nats.Msg {
+	v := 1000 + 7*float64(i) + 3*float64(j) + 5*math.Sin(float64(j)*0.7+float64(i))
+	if i%3 == 2 {
+		v = 10*float64(j*j) + float64(i) // a rising counter
+	}
+	m := nats.NewMsg("metrics." + detTopic(i))
+	m.Data = fmt.Appendf(nil, `{"time": %d, "value": %g}`, detT0+60*j, v)
+	if i%3 == 2 {
+		m.Header.Set(stream.KindHeader, "counter")
+	}
+	return m
+}
+
+// detRun publishes the input through JetStream to a fresh server and a
+// daemon with the given number of loops, waits until every series has
+// published the forecast of its last closed bucket and nothing waits on a
+// refit or an alert evaluation, stops the daemon and returns every
+// series' record and latest forecast message (without "issued", the one
+// wall-time field), and how many series each loop owned.
+func detRun(t *testing.T, loops int) (map[string]*series.Snapshot, map[string]map[string]any, []int) {
+	t.Helper()
+	_, url := streamtest.RunServer(t)
+	cfg := testConfig(t.TempDir())
+	cfg.Intake.Loops = loops
+	cfg.Series = append([]config.Series{{Match: "det.>", Kind: "auto", Step: time.Minute, Horizon: 6,
+		Levels: []float64{80, 95}, Window: 200, MinPoints: 20, RefitEvery: 25,
+		Model: "1,1,0", Transform: "none"}}, cfg.Series...)
+	thr := 1000 + 3*float64(detObs)*0.6 // crossed by the gauges half-way: simulations, raises
+	cfg.Alerts = []config.Alert{{Name: "high", Match: "det.>", Above: &thr, Within: 3 * time.Minute, Probability: 0.5}}
+	cfg = cfg.WithDefaults()
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	r := start(t, url, cfg)
+	if r.d.Loops() != loops {
+		t.Fatalf("daemon runs %d loops, want %d", r.d.Loops(), loops)
+	}
+	nc := streamtest.Connect(t, url)
+	js, err := jetstream.New(nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	for j := range detObs { // series interleaved, every publication acknowledged
+		for i := range detSeries {
+			if _, err := js.PublishMsg(ctx, detMsg(i, j)); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	origin := time.Unix(detT0+60*(detObs-2), 0).UTC().Format(time.RFC3339)
+	m := r.d.metrics
+	defer func() {
+		if t.Failed() {
+			for i := range detSeries {
+				b, _ := r.d.Latest(detTopic(i))
+				t.Logf("%s: %.200s", detTopic(i), b)
+			}
+			t.Logf("refitting %v pending %v queued %v rejected %v accepted %v want origin %s", gaugeValue(m.Refitting), gaugeValue(m.Pending), gaugeValue(m.AlertsQueued), rejectedTotal(r.d), counterValue(m.Accepted), origin)
+		}
+	}()
+	waitUntil(t, 20*time.Second, "every series' last forecast, nothing waiting", func() bool {
+		for i := range detSeries {
+			b, ok := r.d.Latest(detTopic(i))
+			if !ok || !strings.Contains(string(b), `"origin":"`+origin+`"`) {
+				return false
+			}
+		}
+		return gaugeValue(m.Refitting) == 0 && gaugeValue(m.Pending) == 0 && gaugeValue(m.AlertsQueued) == 0
+	})
+	per := make([]int, loops)
+	r.d.Inspect(ctx, func(map[string]*Entry) {
+		for k, l := range r.d.loops {
+			per[k] = len(l.series)
+		}
+	})
+	fcs := map[string]map[string]any{}
+	for i := range detSeries {
+		b, _ := r.d.Latest(detTopic(i))
+		var f map[string]any
+		if err := json.Unmarshal(b, &f); err != nil {
+			t.Fatal(err)
+		}
+		delete(f, "issued")
+		fcs[detTopic(i)] = f
+	}
+	if counterValue(m.Refits) < detSeries*(detObs/25-1) {
+		t.Errorf("%v refits: the input should refit every series several times", counterValue(m.Refits))
+	}
+	if counterValue(m.AlertEvaluations[alert.MethodSimulation]) == 0 {
+		t.Error("no alert evaluation reached the alert workers")
+	}
+	r.stop(t)
+	recs := map[string]*series.Snapshot{}
+	for i := range detSeries {
+		recs[detTopic(i)] = load(t, cfg.State.Dir, detTopic(i))
+	}
+	return recs, fcs, per
+}
+
+// A series' results do not depend on the number of loops (issue 15,
+// "Inside one process"; doc.go): the same input through one loop and
+// through two gives every series the same record and the same latest
+// forecast, byte for byte apart from the forecast's wall-time "issued".
+// Property test with a known truth: the single loop's run. The input
+// refits every series several times, holds observations behind alert
+// simulations, and mixes gauges and counters.
+func TestLoopsDeterminism(t *testing.T) {
+	recs1, fcs1, _ := detRun(t, 1)
+	recs2, fcs2, per := detRun(t, 2)
+	for k, n := range per {
+		if n == 0 {
+			t.Errorf("loop %d of 2 owns no series (per loop: %v): the test would not compare anything", k, per)
+		}
+	}
+	for i := range detSeries {
+		topic := detTopic(i)
+		if d := snapshotDiff(recs2[topic], recs1[topic]); d != "" {
+			t.Errorf("%s: record with 2 loops differs from 1 loop:%s", topic, d)
+		}
+		if !reflect.DeepEqual(fcs2[topic], fcs1[topic]) {
+			t.Errorf("%s: latest forecast with 2 loops differs from 1 loop:\n%v\n%v", topic, fcs2[topic], fcs1[topic])
+		}
+	}
+}

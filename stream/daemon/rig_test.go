@@ -49,6 +49,8 @@ type rigOptions struct {
 	// step and horizon of every series; zero: rigStep, rigHorizon.
 	step    time.Duration
 	horizon int
+	// loops is intake.loops; 0: the config default (one per core).
+	loops int
 	// rule, when set, is the one alert rule, matching every series
 	// (instead of alert's far rule).
 	rule *config.Alert
@@ -120,6 +122,7 @@ func newRigConfig(tb testing.TB, o rigOptions) *rig {
 	cfg.State.Dir = tb.TempDir()
 	cfg.HTTP.Listen = ""
 	cfg.Intake.Durable = o.durable
+	cfg.Intake.Loops = o.loops
 	if o.flushMax > 0 {
 		cfg.State.FlushMax = o.flushMax
 	}
