@@ -279,6 +279,11 @@ func (pi *PartitionedIntake) AckWhere(seq uint64, sel func(p int) bool) error {
 	return errors.Join(errs...)
 }
 
+// LeaseOwners returns the instance holding each partition's lease as
+// this instance's Owner last saw the bucket, "" for a free partition
+// (h27, issue 15: pages name the owners).
+func (pi *PartitionedIntake) LeaseOwners() []string { return pi.owner.Owners() }
+
 // Owned returns the partitions this instance consumes, with their epochs.
 func (pi *PartitionedIntake) Owned() map[int]uint64 {
 	pi.mu.Lock()

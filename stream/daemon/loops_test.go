@@ -7,6 +7,7 @@ import (
 	"math"
 	"reflect"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -171,4 +172,26 @@ func TestLoopsDeterminism(t *testing.T) {
 			t.Errorf("%s: latest forecast with 2 loops differs from 1 loop:\n%v\n%v", topic, fcs2[topic], fcs1[topic])
 		}
 	}
+}
+
+// For owners_web_test.go (package daemon_test, which may import the web
+// package): the shared 3-node cluster, the test configuration, and a
+// daemon run until the test's end.
+var (
+	NatsClusterForTest = natsCluster
+	TestConfigForTest  = testConfig
+	ClPublishForTest   = clPublish
+	ClTopicForTest     = clTopic
+)
+
+const ClSeriesForTest = clSeries
+
+// StartForTest runs a daemon on cfg until the test ends (or stop is
+// called).
+func StartForTest(t *testing.T, url string, cfg *config.Config) (d *Daemon, stop func()) {
+	r := start(t, url, cfg)
+	var once sync.Once
+	stop = func() { once.Do(func() { r.stop(t) }) }
+	t.Cleanup(stop)
+	return r.d, stop
 }
