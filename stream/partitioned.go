@@ -42,7 +42,13 @@ type PartitionedIntake struct {
 	log   *slog.Logger
 
 	subscribed chan struct{}
-	handleMu   sync.Mutex // serialises the partitions' calls of the handler
+	handleMu   sync.Mutex // serialises the partitions' calls of the handler (unless Concurrent)
+
+	// Concurrent lets the partitions call the handler at the same time,
+	// each with its own batches in order (h27, issue 15: the daemon's
+	// handler splits them among its loops and may be called so). Set it
+	// before Run.
+	Concurrent bool
 
 	mu    sync.Mutex // guards parts and owned; never held while calling out
 	parts map[int]*part
@@ -162,8 +168,10 @@ func (pi *PartitionedIntake) gain(ctx context.Context, c cluster.Change, handle 
 					batch[i].Subject = subj
 				}
 			}
-			pi.handleMu.Lock()
-			defer pi.handleMu.Unlock()
+			if !pi.Concurrent {
+				pi.handleMu.Lock()
+				defer pi.handleMu.Unlock()
+			}
 			if pctx.Err() != nil {
 				return // lost or leaving: another owner applies these
 			}

@@ -200,8 +200,11 @@ const loopRounds = 3
 // (loop1_obs/s, loops_obs/s), the ratio of the medians (ratio; target
 // ≥ 1.3 on a 2-core machine) and each rate's ratios to the raw rates. The
 // durable case does the same through the JetStream intake, whose one
-// consumer the loops acknowledge together (ackJoin). Run it with a fixed
-// count, for instance
+// consumer the loops acknowledge together (ackJoin). The partitioned case
+// runs cluster mode with cluster.partitions 8 on the rig's one server, the
+// instance owning all eight (lease bucket, one consumer per partition):
+// there the loops own the stream's partitions, and each acknowledges its
+// own consumers (PartMarker). Run it with a fixed count, for instance
 //
 //	go test ./stream/daemon -run '^$' -bench IntakeBoundLoops -benchtime 400000x
 func BenchmarkIntakeBoundLoops(b *testing.B) {
@@ -211,6 +214,7 @@ func BenchmarkIntakeBoundLoops(b *testing.B) {
 	}{
 		{"plain", rigOptions{}},
 		{"durable", rigOptions{durable: true}},
+		{"partitioned", rigOptions{durable: true, partitions: 8}},
 	} {
 		b.Run(c.name, func(b *testing.B) {
 			b.StopTimer()

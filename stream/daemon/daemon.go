@@ -148,6 +148,11 @@ func New(o Options) (*Daemon, error) {
 	if n > 1 && !marks {
 		d.acks = &ackJoin{in: in, floors: make([]uint64, n)}
 	}
+	if pi, ok := in.(*stream.PartitionedIntake); ok && n > 1 {
+		// dispatch may run for several partitions at once: the loops
+		// they go to then work in parallel.
+		pi.Concurrent = true
+	}
 	for k := range n {
 		var a acker = directAcker{in}
 		switch {

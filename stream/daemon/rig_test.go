@@ -51,6 +51,9 @@ type rigOptions struct {
 	horizon int
 	// loops is intake.loops; 0: the config default (one per core).
 	loops int
+	// partitions is cluster.partitions (with durable): this one instance
+	// owns every partition of the rig's server, through the lease bucket.
+	partitions int
 	// rule, when set, is the one alert rule, matching every series
 	// (instead of alert's far rule).
 	rule *config.Alert
@@ -123,6 +126,11 @@ func newRigConfig(tb testing.TB, o rigOptions) *rig {
 	cfg.HTTP.Listen = ""
 	cfg.Intake.Durable = o.durable
 	cfg.Intake.Loops = o.loops
+	if o.partitions > 0 {
+		cfg.NATS.URL = url
+		cfg.Cluster.Partitions = o.partitions
+		cfg.Cluster.Instance = "bench"
+	}
 	if o.flushMax > 0 {
 		cfg.State.FlushMax = o.flushMax
 	}
