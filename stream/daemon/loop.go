@@ -256,9 +256,22 @@ func (d *loop) create(m *stream.Message, topic string) *entry {
 		d.reject(m.Subject, topic, m.Received, stream.CodeBadSettings, err.Error())
 		return nil
 	}
+	// limits.max_series counts every loop's series: take a place, unless
+	// another loop has taken the last one since the check above.
+	for {
+		n := d.top.nseries.Load()
+		if n >= int64(d.cfg.Limits.MaxSeries) {
+			d.reject(m.Subject, topic, m.Received, stream.CodeTooManySeries,
+				fmt.Sprintf("the daemon already tracks %d series (limits.max_series); new topic %q is not accepted", n, topic))
+			return nil
+		}
+		if d.top.nseries.CompareAndSwap(n, n+1) {
+			d.metrics.Series.Inc()
+			break
+		}
+	}
 	e := &entry{s: s, subject: d.pub.forecastSubject(topic), rules: d.top.rulesFor(topic, sc)}
 	d.series[topic] = e
-	d.metrics.Series.Set(float64(d.top.nseries.Add(1)))
 	return e
 }
 
