@@ -195,3 +195,41 @@ func StartForTest(t *testing.T, url string, cfg *config.Config) (d *Daemon, stop
 	t.Cleanup(stop)
 	return r.d, stop
 }
+
+// limits.max_series bounds the series of every loop together (CONTRACT
+// §2, limits): with two loops and max_series 5, of 20 new topics exactly 5
+// become series and 15 are rejected as too_many_series.
+func TestMaxSeriesOverLoops(t *testing.T) {
+	_, url := streamtest.RunServer(t)
+	cfg := testConfig(t.TempDir())
+	cfg.Intake.Loops = 2
+	cfg.Limits.MaxSeries = 5
+	r := start(t, url, cfg)
+	defer r.stop(t)
+	nc := streamtest.Connect(t, url)
+	const topics = 20
+	streamtest.PublishAcked(t, nc, topics, func(i int) (string, []byte) {
+		return fmt.Sprintf("metrics.max.t%02d", i), []byte(`{"time": 1700000040, "value": 1}`)
+	})
+	m := r.d.metrics
+	waitUntil(t, 30*time.Second, "every message accepted or rejected", func() bool {
+		return counterValue(m.Accepted)+rejectedTotal(r.d) >= topics
+	})
+	var n int
+	per := make([]int, 2)
+	r.d.Inspect(context.Background(), func(all map[string]*Entry) {
+		n = len(all)
+		for k, l := range r.d.loops {
+			per[k] = len(l.series)
+		}
+	})
+	if n != 5 || counterValue(m.Accepted) != 5 {
+		t.Errorf("%d series (per loop %v), %v accepted; want 5 and 5", n, per, counterValue(m.Accepted))
+	}
+	if got := counterValue(m.Rejected.WithLabelValues(stream.CodeTooManySeries)); got != topics-5 {
+		t.Errorf("%v rejected as %s, want %d", got, stream.CodeTooManySeries, topics-5)
+	}
+	if g := gaugeValue(m.Series); g != 5 {
+		t.Errorf("forewarn_series %v, want 5", g)
+	}
+}
