@@ -188,7 +188,7 @@ func (r *rig) timedIntake(n int) float64 {
 // loopRounds is how many times BenchmarkIntakeBoundLoops times each rig,
 // alternating: on a machine shared with other work single runs swing by a
 // factor of two, and alternation exposes both rigs to the same swings.
-const loopRounds = 3
+const loopRounds = 5
 
 // BenchmarkIntakeBoundLoops (issue 15, "One machine, several loops"):
 // BenchmarkIntakeBound's traffic through a daemon with one loop and one
