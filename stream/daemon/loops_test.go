@@ -18,6 +18,7 @@ import (
 	"forewarn/engine/alert"
 	"forewarn/engine/series"
 	"forewarn/stream"
+	"forewarn/stream/cluster"
 	"forewarn/stream/streamtest"
 )
 
@@ -232,4 +233,72 @@ func TestMaxSeriesOverLoops(t *testing.T) {
 	if g := gaugeValue(m.Series); g != 5 {
 		t.Errorf("forewarn_series %v, want 5", g)
 	}
+}
+
+// With cluster.partitions and several loops, each loop acknowledges the
+// consumers of the partitions it owns (PartMarker), so that once every
+// record is written every partition's consumer is acknowledged up to the
+// last message of its partition: a loop that acknowledged only some of
+// its partitions would leave the others behind. One instance owns all four partitions of a
+// one-server stream here (common practice for the check: the consumer's
+// ack floor as the server reports it).
+func TestLoopsAckOwnPartitions(t *testing.T) {
+	_, url := streamtest.RunServer(t)
+	cfg := testConfig(t.TempDir())
+	cfg.NATS.URL = url
+	cfg.Intake.Stream = "LOOPACK"
+	cfg.Intake.Loops = 2
+	cfg.Cluster.Partitions = 4
+	cfg.Cluster.Instance = "solo"
+	cfg.Cluster.Lease = 2 * time.Second
+	if err := cfg.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	r := start(t, url, cfg)
+	defer r.stop(t)
+	if r.d.Loops() != 2 {
+		t.Fatalf("%d loops, want 2", r.d.Loops())
+	}
+	nc := streamtest.Connect(t, url)
+	const ns, nobs = 12, 30
+	last := map[int]uint64{} // partition → last stream position
+	streamtest.PublishAcked(t, nc, ns*nobs, func(k int) (string, []byte) {
+		i, j := k%ns, k/ns
+		subj := fmt.Sprintf("metrics.ack.s%02d", i)
+		last[cluster.Partition(subj, 4)] = uint64(k + 1) // one stream, positions from 1
+		return subj, fmt.Appendf(nil, `{"time": %d, "value": %g}`, detT0+60*j, 100+float64(j%7)+float64(i))
+	})
+	if len(last) != 4 {
+		t.Fatalf("the topics fall in %d of 4 partitions: pick others", len(last))
+	}
+	js, err := jetstream.New(nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	st, err := js.Stream(ctx, cfg.Intake.Stream)
+	if err != nil {
+		t.Fatal(err)
+	}
+	floors := func() map[int]uint64 {
+		out := map[int]uint64{}
+		for info := range st.ListConsumers(ctx).Info() {
+			var p int
+			var epoch uint64
+			if _, err := fmt.Sscanf(info.Name, cfg.Intake.Consumer+"-p%d-e%d", &p, &epoch); err == nil {
+				out[p] = info.AckFloor.Stream
+			}
+		}
+		return out
+	}
+	var got map[int]uint64
+	streamtest.Eventually(t, 30*time.Second, "every partition acknowledged up to its last message", func() bool {
+		got = floors()
+		for p, want := range last {
+			if got[p] != want {
+				return false
+			}
+		}
+		return true
+	})
 }
