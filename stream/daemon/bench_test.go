@@ -40,6 +40,7 @@ import (
 	"strconv"
 	"strings"
 	"sync/atomic"
+	"syscall"
 	"testing"
 	"time"
 
@@ -116,7 +117,7 @@ func runIntakeBound(b *testing.B, o rigOptions, full bool) intakeRun {
 	b.StopTimer()
 	r := newIntakeRig(b, o, full)
 	ir := r.rawIntake(b.N)
-	ir.rate = r.timedIntake(b.N)
+	ir.rate, _ = r.timedIntake(b.N)
 	return ir
 }
 
@@ -148,8 +149,10 @@ func (r *rig) rawIntake(n int) intakeRun {
 
 // timedIntake sends n messages, ten per bucket, with the benchmark timer
 // running, until every observation is applied, checks that every one was
-// accepted and every closed bucket published, and returns the rate.
-func (r *rig) timedIntake(n int) float64 {
+// accepted and every closed bucket published, and returns the rate and
+// the cores the process used meanwhile (its CPU time, user and system,
+// over the wall time; the in-process server and publisher included).
+func (r *rig) timedIntake(n int) (rate, cores float64) {
 	b := r.tb.(*testing.B)
 	msgs := r.build(n, 10)
 	acc0, pub0, rej0 := counterValue(r.d.metrics.Accepted), counterValue(r.d.metrics.Published), r.rejected()
@@ -158,11 +161,13 @@ func (r *rig) timedIntake(n int) float64 {
 
 	b.StartTimer()
 	stopProfile := profileTimed(b)
+	cpu0 := processCPU()
 	start := time.Now()
 	r.send(msgs)
 	end := waitUntil(b, 120*time.Second, "every observation applied", func() bool {
 		return counterValue(r.d.metrics.Accepted) >= want
 	})
+	cpu := processCPU() - cpu0
 	b.StopTimer()
 	stopProfile()
 
@@ -182,7 +187,17 @@ func (r *rig) timedIntake(n int) float64 {
 		b.Fatalf("published %v forecasts, want %d", got, closes)
 	}
 	r.quiesce()
-	return float64(n) / end.Sub(start).Seconds()
+	wall := end.Sub(start).Seconds()
+	return float64(n) / wall, cpu.Seconds() / wall
+}
+
+// processCPU is the process's CPU time so far, user and system.
+func processCPU() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		panic(err)
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
 
 // loopRounds is how many times BenchmarkIntakeBoundLoops times each rig,
@@ -198,7 +213,10 @@ const loopRounds = 5
 // (see the top of this file), then each rig is timed loopRounds times,
 // alternating, b.N messages each time. Reported: the median obs/s of each
 // (loop1_obs/s, loops_obs/s), the ratio of the medians (ratio; target
-// ≥ 1.3 on a 2-core machine) and each rate's ratios to the raw rates. The
+// ≥ 1.3 on a 2-core machine), each rate's ratios to the raw rates, and the
+// median cores the process used while timed (loop1_cores, loops_cores:
+// CPU time over wall time; on a machine shared with other work they show
+// whether a second core was there to use). The
 // durable case does the same through the JetStream intake, whose one
 // consumer the loops acknowledge together (ackJoin). The partitioned case
 // runs cluster mode with cluster.partitions 8 on the rig's one server, the
@@ -226,15 +244,22 @@ func BenchmarkIntakeBoundLoops(b *testing.B) {
 				b.Fatalf("loops %d and %d, want 1 and %d", r1.d.Loops(), rn.d.Loops(), n)
 			}
 			i1, in := r1.rawIntake(b.N), rn.rawIntake(b.N)
-			var rates1, ratesN []float64
+			var rates1, ratesN, cores1, coresN []float64
 			for range loopRounds {
-				rates1 = append(rates1, r1.timedIntake(b.N))
-				ratesN = append(ratesN, rn.timedIntake(b.N))
+				rate, cores := r1.timedIntake(b.N)
+				rates1, cores1 = append(rates1, rate), append(cores1, cores)
+				rate, cores = rn.timedIntake(b.N)
+				ratesN, coresN = append(ratesN, rate), append(coresN, cores)
 			}
-			b.Logf("obs/s, 1 loop: %.0f; %d loops: %.0f", rates1, n, ratesN)
-			slices.Sort(rates1)
-			slices.Sort(ratesN)
-			i1.rate, in.rate = rates1[loopRounds/2], ratesN[loopRounds/2]
+			b.Logf("obs/s, 1 loop: %.0f (cores %.2f); %d loops: %.0f (cores %.2f)", rates1, cores1, n, ratesN, coresN)
+			median := func(x []float64) float64 {
+				x = slices.Clone(x)
+				slices.Sort(x)
+				return x[len(x)/2]
+			}
+			i1.rate, in.rate = median(rates1), median(ratesN)
+			b.ReportMetric(median(cores1), "loop1_cores")
+			b.ReportMetric(median(coresN), "loops_cores")
 			b.ReportMetric(i1.rate, "loop1_obs/s")
 			b.ReportMetric(in.rate, "loops_obs/s")
 			b.ReportMetric(float64(n), "loops")
