@@ -185,7 +185,21 @@ func (d *Daemon) Latest(topic string) ([]byte, bool) {
 	if len(d.loops) == 1 {
 		return d.loops[0].pub.Latest(topic)
 	}
-	return d.loops[d.route.loopOfTopic(topic)].pub.Latest(topic)
+	k := d.route.loopOfTopic(topic)
+	if b, ok := d.loops[k].pub.Latest(topic); ok {
+		return b, true
+	}
+	// In cluster mode a topic that arrives on another intake subject than
+	// the first that can carry it lives on the loop of that subject's
+	// partition.
+	for i, l := range d.loops {
+		if i != k {
+			if b, ok := l.pub.Latest(topic); ok {
+				return b, true
+			}
+		}
+	}
+	return nil, false
 }
 
 // Inspect runs fn with every loop paused, where it may read (not keep)
@@ -205,6 +219,8 @@ func (d *Daemon) Inspect(ctx context.Context, fn func(all map[string]*Entry)) bo
 		case <-ctx.Done():
 			return false
 		case <-l.exited:
+			return false
+		case <-d.done: // Run returned, perhaps before the loops started
 			return false
 		}
 	}
