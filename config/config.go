@@ -113,6 +113,14 @@ type Intake struct {
 	// stream and the cluster's buckets, 1..5 (3 on a three-node cluster).
 	// Zero: 1.
 	Replicas int
+	// Loops is how many loop goroutines apply the intake's messages to
+	// their series, 0..MaxLoops. Each loop owns a set of partitions
+	// (cluster.partitions, or in single-instance mode as many internal
+	// partitions as loops, by topic) with their series and their
+	// flush/acknowledgement pipeline, so that one instance uses more than
+	// one core. A series' results do not depend on the number. Zero:
+	// GOMAXPROCS, at most cluster.partitions when that is set (LoopCount).
+	Loops int
 }
 
 // Cluster configures several instances sharing the series of one intake
@@ -361,6 +369,20 @@ func (s *Source) TimeoutOrDefault() time.Duration {
 		return s.Timeout
 	}
 	return min(s.Every, MaxSourceTimeout)
+}
+
+// LoopCount returns the number of loops for gomaxprocs usable cores:
+// Loops, or gomaxprocs when Loops is zero; never more than partitions
+// when partitions > 0 (a loop owns whole partitions), never less than 1.
+func (in Intake) LoopCount(gomaxprocs, partitions int) int {
+	n := in.Loops
+	if n <= 0 {
+		n = gomaxprocs
+	}
+	if partitions > 0 {
+		n = min(n, partitions)
+	}
+	return max(n, 1)
 }
 
 // WorkerCount returns the number of refit workers: Workers, or the number

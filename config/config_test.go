@@ -528,6 +528,30 @@ func TestClusterKeys(t *testing.T) {
 	}
 }
 
+// intake.loops decodes, is checked against its range with its key named,
+// and LoopCount caps it by the partitions (a loop owns whole partitions;
+// common practice: never fewer than one).
+func TestIntakeLoops(t *testing.T) {
+	c, err := Parse([]byte("intake: {loops: 3}\n"), "c.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c.Intake.Loops != 3 {
+		t.Errorf("loops %d, want 3", c.Intake.Loops)
+	}
+	_, err = Parse([]byte("intake: {loops: -1}\n"), "c.yaml")
+	if err == nil || !strings.Contains(err.Error(), "intake.loops") {
+		t.Errorf("loops -1: error %v, want one naming intake.loops", err)
+	}
+	for _, c := range []struct{ loops, procs, parts, want int }{
+		{0, 2, 0, 2}, {0, 8, 4, 4}, {3, 2, 0, 3}, {3, 2, 2, 2}, {0, 0, 0, 1}, {5, 1, 1, 1},
+	} {
+		if got := (Intake{Loops: c.loops}).LoopCount(c.procs, c.parts); got != c.want {
+			t.Errorf("LoopCount(loops %d, procs %d, partitions %d) = %d, want %d", c.loops, c.procs, c.parts, got, c.want)
+		}
+	}
+}
+
 // calibrate defaults to true, reads true and false, and refuses anything
 // else with the key's line (common practice: a YAML boolean key).
 func TestSeriesCalibrate(t *testing.T) {

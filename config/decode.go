@@ -597,6 +597,7 @@ func (d *decoder) top(root *yaml.Node, c *Config) {
 				"max_age":   d.duration(&in.MaxAge),
 				"max_bytes": d.size(func(v int64) { in.MaxBytes = v }),
 				"replicas":  d.integer(&in.Replicas),
+				"loops":     d.integer(&in.Loops),
 			})
 		},
 		"cluster": func(v *yaml.Node, p string) {

@@ -41,6 +41,9 @@ const (
 	MaxPartitions = 4096
 	// MaxReplicas bounds intake.replicas, as JetStream does.
 	MaxReplicas = 5
+	// MaxLoops bounds intake.loops: more loops than cores only add
+	// switching.
+	MaxLoops = 256
 )
 
 // Validate reports every problem with c, as an *Errors, or nil. It checks
@@ -341,6 +344,7 @@ func (v *validator) intake() {
 		v.add("intake.max_age", "%v is less than a second", in.MaxAge)
 	}
 	v.intRange("intake.replicas", in.Replicas, 1, MaxReplicas)
+	v.intRange("intake.loops", in.Loops, 0, MaxLoops)
 	if in.Replicas > 1 && v.c.NATS.URL == "" {
 		v.add("intake.replicas", "%d replicas need a NATS cluster; the embedded server is one server (set nats.url, or replicas: 1)", in.Replicas)
 	}

@@ -42,7 +42,13 @@ type PartitionedIntake struct {
 	log   *slog.Logger
 
 	subscribed chan struct{}
-	handleMu   sync.Mutex // serialises the partitions' calls of the handler
+	handleMu   sync.Mutex // serialises the partitions' calls of the handler (unless Concurrent)
+
+	// Concurrent lets the partitions call the handler at the same time,
+	// each with its own batches in order (h27, issue 15: the daemon's
+	// handler splits them among its loops and may be called so). Set it
+	// before Run.
+	Concurrent bool
 
 	mu    sync.Mutex // guards parts and owned; never held while calling out
 	parts map[int]*part
@@ -162,8 +168,10 @@ func (pi *PartitionedIntake) gain(ctx context.Context, c cluster.Change, handle 
 					batch[i].Subject = subj
 				}
 			}
-			pi.handleMu.Lock()
-			defer pi.handleMu.Unlock()
+			if !pi.Concurrent {
+				pi.handleMu.Lock()
+				defer pi.handleMu.Unlock()
+			}
 			if pctx.Err() != nil {
 				return // lost or leaving: another owner applies these
 			}
@@ -243,6 +251,46 @@ func (pi *PartitionedIntake) Ack(seq uint64) error {
 	}
 	return errors.Join(errs...)
 }
+
+// h27 (issue 15, several loops): MarkWhere and AckWhere are Mark and Ack
+// for the partitions sel selects, so that each of the daemon's loops marks
+// and acknowledges the partitions it owns (daemon.PartMarker).
+
+// MarkWhere is Mark for the partitions p with sel(p).
+func (pi *PartitionedIntake) MarkWhere(sel func(p int) bool) {
+	pi.mu.Lock()
+	defer pi.mu.Unlock()
+	for p, pt := range pi.parts {
+		if sel(p) {
+			pt.mark = pt.handed
+		}
+	}
+}
+
+// AckWhere is Ack for the partitions p with sel(p).
+func (pi *PartitionedIntake) AckWhere(seq uint64, sel func(p int) bool) error {
+	pi.mu.Lock()
+	var ins []*Intake
+	var seqs []uint64
+	for p, pt := range pi.parts {
+		if s := min(seq, pt.mark); s > 0 && sel(p) {
+			ins, seqs = append(ins, pt.in), append(seqs, s)
+		}
+	}
+	pi.mu.Unlock()
+	var errs []error
+	for i, in := range ins {
+		if err := in.Ack(seqs[i]); err != nil {
+			errs = append(errs, err)
+		}
+	}
+	return errors.Join(errs...)
+}
+
+// LeaseOwners returns the instance holding each partition's lease as
+// this instance's Owner last saw the bucket, "" for a free partition
+// (h27, issue 15: pages name the owners).
+func (pi *PartitionedIntake) LeaseOwners() []string { return pi.owner.Owners() }
 
 // Owned returns the partitions this instance consumes, with their epochs.
 func (pi *PartitionedIntake) Owned() map[int]uint64 {

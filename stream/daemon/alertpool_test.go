@@ -170,7 +170,7 @@ func TestAlertInFlightHoldsRecordAndAck(t *testing.T) {
 		// Apply up to the close that queues an evaluation, then two more.
 		for i := 21; i < len(msgs)-2; i++ {
 			r.d.handleBatch(msgs[i : i+1])
-			if e := r.d.series["hold.a"]; e != nil && e.alerting && closing == 0 {
+			if e := r.d.entryOf("hold.a"); e != nil && e.alerting && closing == 0 {
 				closing = msgs[i].Seq
 				seq++
 				b := int64(i) + 1 // two more buckets, each the last value again
@@ -181,17 +181,18 @@ func TestAlertInFlightHoldsRecordAndAck(t *testing.T) {
 				break
 			}
 		}
-		e := r.d.series["hold.a"]
+		e := r.d.entryOf("hold.a")
 		if e == nil || !e.alerting {
 			t.Error("no evaluation went to the pool")
 			return
 		}
-		queued, pending = len(r.d.alerts.queue), len(e.pending)
+		queued, pending = len(r.d.loopFor("hold.a").alerts.queue), len(e.pending)
 		h := *e.s.Snapshot() // Snapshot is the live record
 		held = &h
-		r.d.flush()
-		r.d.finishFlush()
-		floor = r.d.flusher.floor
+		l := r.d.loopFor("hold.a")
+		l.flush()
+		l.finishFlush()
+		floor = l.flusher.floor
 		st, err := r.store.Load("hold.a")
 		if err == nil {
 			stored = st

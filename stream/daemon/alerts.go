@@ -10,20 +10,64 @@ import (
 	"forewarn/engine/series"
 )
 
-// alertPool runs the alert evaluations that need a simulation on a pool
-// of workers, one per core the process may use (DEVELOPERS.md, "The alert
-// pool").
-//
-// A worker owns, while it holds it, one alertJob and its own
-// alert.Evaluator; it touches nothing else. Jobs go loop → worker on jobs
-// and come back on done. Everything else here is the loop's: the queue
-// (first in, first out), the free list, the loop's own evaluator (the
-// cheap screens) and the late-answer log's state.
-type alertPool struct {
-	jobs chan *alertJob // loop → workers, unbuffered
-	done chan *alertJob // workers → loop
+// alertWorkers run the alert evaluations that need a simulation, for
+// every loop, one worker per core the process may use (DEVELOPERS.md,
+// "The alert pool"). A worker owns, while it holds it, one alertJob and
+// its own alert.Evaluator; it touches nothing else, and hands the job
+// back to the loop that sent it (alertJob.reply).
+type alertWorkers struct {
+	jobs chan *alertJob // loops → workers, unbuffered
 	maxH int            // longest horizon, for the workers' evaluators
 	wg   sync.WaitGroup
+}
+
+func newAlertWorkers(maxH int) *alertWorkers {
+	return &alertWorkers{jobs: make(chan *alertJob), maxH: maxH}
+}
+
+// alertWorkerCount is the size of the alert pool: one per core the
+// process may use.
+func alertWorkerCount() int { return max(1, runtime.GOMAXPROCS(0)) }
+
+// start runs n workers, each with its own evaluator. If an evaluator
+// cannot be made, no worker runs.
+func (w *alertWorkers) start(n int) error {
+	evs := make([]*alert.Evaluator, n)
+	for i := range evs {
+		ev, err := alert.NewEvaluator(w.maxH, 0)
+		if err != nil {
+			return fmt.Errorf("daemon: %w", err)
+		}
+		evs[i] = ev
+	}
+	for _, ev := range evs {
+		w.wg.Add(1)
+		go func() {
+			defer w.wg.Done()
+			for j := range w.jobs {
+				j.wait = time.Since(j.queued)
+				j.w.Run(ev)
+				j.reply <- j
+			}
+		}()
+	}
+	return nil
+}
+
+// stop ends the workers once they have finished their jobs; every loop
+// must have taken every job back first (alerting is 0).
+func (w *alertWorkers) stop() {
+	close(w.jobs)
+	w.wg.Wait()
+}
+
+// alertPool is one loop's side of the alert workers. Jobs go loop →
+// worker on jobs and come back on done. Everything else here is the
+// loop's: the queue (first in, first out), the free list, the loop's own
+// evaluator (the cheap screens) and the late-answer log's state.
+type alertPool struct {
+	jobs chan<- *alertJob // the workers'
+	done chan *alertJob   // workers → this loop
 
 	// Loop-owned.
 	evaluator  *alert.Evaluator    // the loop's: screens only
@@ -43,59 +87,23 @@ type alertJob struct {
 	topic  string
 	e      *entry
 	w      series.AlertWork
-	issued time.Time     // the close's "issued" time, for the alert messages
-	queued time.Time     // wall time it entered the queue
-	wait   time.Duration // time in the queue (set by the worker)
+	issued time.Time        // the close's "issued" time, for the alert messages
+	queued time.Time        // wall time it entered the queue
+	wait   time.Duration    // time in the queue (set by the worker)
+	reply  chan<- *alertJob // the sending loop's done
 }
 
-func newAlertPool(maxH int) (*alertPool, error) {
-	ev, err := alert.NewEvaluator(maxH, 0)
+func newAlertPool(w *alertWorkers) (*alertPool, error) {
+	ev, err := alert.NewEvaluator(w.maxH, 0)
 	if err != nil {
 		return nil, fmt.Errorf("daemon: %w", err)
 	}
 	return &alertPool{
-		jobs:      make(chan *alertJob),
+		jobs:      w.jobs,
 		done:      make(chan *alertJob, 64),
-		maxH:      maxH,
 		evaluator: ev,
 		scratch:   new(alertJob),
 	}, nil
-}
-
-// alertWorkers is the size of the alert pool: one per core the process
-// may use.
-func alertWorkers() int { return max(1, runtime.GOMAXPROCS(0)) }
-
-// start runs n workers, each with its own evaluator. If an evaluator
-// cannot be made, no worker runs.
-func (p *alertPool) start(n int) error {
-	evs := make([]*alert.Evaluator, n)
-	for i := range evs {
-		ev, err := alert.NewEvaluator(p.maxH, 0)
-		if err != nil {
-			return fmt.Errorf("daemon: %w", err)
-		}
-		evs[i] = ev
-	}
-	for _, ev := range evs {
-		p.wg.Add(1)
-		go func() {
-			defer p.wg.Done()
-			for j := range p.jobs {
-				j.wait = time.Since(j.queued)
-				j.w.Run(ev)
-				p.done <- j
-			}
-		}()
-	}
-	return nil
-}
-
-// stop ends the workers once they have finished their jobs; the loop
-// must have taken every job back first (alerting is 0).
-func (p *alertPool) stop() {
-	close(p.jobs)
-	p.wg.Wait()
 }
 
 // next is refitPool.next for the alert queue.
@@ -117,7 +125,7 @@ func (p *alertPool) sent() { p.queue = p.queue[1:] }
 // observations wait in its queue, so its next evaluation sees the rule
 // states this one leaves (alert.Rule.Current) and its messages keep their
 // order. Other series carry on meanwhile.
-func (d *Daemon) evaluate(topic string, e *entry, now time.Time) {
+func (d *loop) evaluate(topic string, e *entry, now time.Time) {
 	p := d.alerts
 	j := p.scratch
 	if err := e.s.PrepareAlerts(&j.w, e.rules, p.evaluator); err != nil {
@@ -133,7 +141,7 @@ func (d *Daemon) evaluate(topic string, e *entry, now time.Time) {
 	} else {
 		p.scratch = new(alertJob)
 	}
-	j.topic, j.e, j.issued, j.queued = topic, e, now, time.Now()
+	j.topic, j.e, j.issued, j.queued, j.reply = topic, e, now, time.Now(), p.done
 	e.alerting = true
 	p.alerting++
 	d.metrics.AlertsQueued.Inc()
@@ -144,7 +152,7 @@ func (d *Daemon) evaluate(topic string, e *entry, now time.Time) {
 // rules' hysteresis, publishes the events, counts a late answer (one that
 // observations of its series had to wait for) and releases the
 // observations held behind it (not during shutdown, see Run).
-func (d *Daemon) finishAlert(j *alertJob) {
+func (d *loop) finishAlert(j *alertJob) {
 	p := d.alerts
 	e := j.e
 	e.alerting = false
@@ -166,7 +174,7 @@ func (d *Daemon) finishAlert(j *alertJob) {
 // late counts an alert answer that came after its series' next
 // observation arrived, and logs it, at most one line a second (wall time)
 // with the number of late answers not logged since.
-func (d *Daemon) late(j *alertJob) {
+func (d *loop) late(j *alertJob) {
 	p := d.alerts
 	d.metrics.AlertsLate.Inc()
 	now := time.Now()
@@ -188,7 +196,7 @@ func (d *Daemon) late(j *alertJob) {
 
 // finishAlerts finishes an evaluation prepared on the series (and run, if
 // it needed a simulation) and publishes the alerts it returns.
-func (d *Daemon) finishAlerts(topic string, e *entry, j *alertJob, now time.Time) {
+func (d *loop) finishAlerts(topic string, e *entry, j *alertJob, now time.Time) {
 	p := d.alerts
 	var err error
 	p.events, err = e.s.FinishAlerts(p.events[:0], &j.w)
@@ -211,7 +219,9 @@ func (d *Daemon) finishAlerts(topic string, e *entry, j *alertJob, now time.Time
 		d.pub.alert(topic, ev, now)
 		d.metrics.Alerts.Inc()
 		if d.opt.OnAlert != nil {
+			d.top.hookMu.Lock()
 			d.opt.OnAlert(ev)
+			d.top.hookMu.Unlock()
 		}
 	}
 }

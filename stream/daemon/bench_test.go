@@ -40,6 +40,7 @@ import (
 	"strconv"
 	"strings"
 	"sync/atomic"
+	"syscall"
 	"testing"
 	"time"
 
@@ -84,62 +85,188 @@ func BenchmarkIntakeBound(b *testing.B) {
 		{"plain_full_window", rigOptions{window: fullWindow}, true},
 	} {
 		b.Run(c.name, func(b *testing.B) {
-			var r *rig
-			if c.full {
-				r = newRigFull(b, c.o)
-			} else {
-				r = newRig(b, c.o)
-				r.warm()
-			}
-			msgs := r.build(b.N, 10)
-			size := len(msgs.data) / max(b.N, 1)
-			twins, filter := rawTwins(r.subjects)
-			raw := medianOf3(func() float64 { return streamtest.RawFanInRate(b, r.url, twins, filter, size, max(b.N, 100_000)) })
-			raw1 := medianOf3(func() float64 { return streamtest.RawPubSubRate(b, r.url, size, max(b.N, 100_000)) })
-			var rawJS float64
-			if c.o.durable {
-				rawJS = medianOf3(func() float64 {
-					return streamtest.RawDurableRate(b, r.url, twins, filter, size, max(b.N, 100_000))
-				})
-			}
-			acc0, pub0, rej0 := counterValue(r.d.metrics.Accepted), counterValue(r.d.metrics.Published), r.rejected()
-			want := acc0 + float64(b.N)
-			runtime.GC() // the raw runs' garbage is not the daemon's to collect
+			ir := runIntakeBound(b, c.o, c.full)
+			b.ReportMetric(ir.rate, "obs/s")
+			ir.report(b, "")
+		})
+	}
+}
 
-			b.ResetTimer()
-			stopProfile := profileTimed(b)
-			start := time.Now()
-			r.send(msgs)
-			end := waitUntil(b, 120*time.Second, "every observation applied", func() bool {
-				return counterValue(r.d.metrics.Accepted) >= want
-			})
+// intakeRun is one intake-bound measurement, with the raw rates measured
+// on the same server just before it.
+type intakeRun struct {
+	rate, raw, raw1, rawJS float64
+}
+
+// report reports the raw rates and the rate's ratios to them, the names
+// prefixed with prefix.
+func (ir intakeRun) report(b *testing.B, prefix string) {
+	b.ReportMetric(ir.raw, prefix+"raw_msgs/s")
+	b.ReportMetric(100*ir.rate/ir.raw, prefix+"pct_raw")
+	b.ReportMetric(ir.raw1, prefix+"raw1_msgs/s")
+	b.ReportMetric(100*ir.rate/ir.raw1, prefix+"pct_raw1")
+	if ir.rawJS > 0 {
+		b.ReportMetric(ir.rawJS, prefix+"rawjs_msgs/s")
+		b.ReportMetric(100*ir.rate/ir.rawJS, prefix+"pct_rawjs")
+	}
+}
+
+// runIntakeBound sends b.N messages, ten per bucket, on a fresh rig and
+// times them until every observation is applied (BenchmarkIntakeBound).
+func runIntakeBound(b *testing.B, o rigOptions, full bool) intakeRun {
+	b.StopTimer()
+	r := newIntakeRig(b, o, full)
+	ir := r.rawIntake(b.N)
+	ir.rate, _ = r.timedIntake(b.N)
+	return ir
+}
+
+func newIntakeRig(b *testing.B, o rigOptions, full bool) *rig {
+	if full {
+		return newRigFull(b, o)
+	}
+	r := newRig(b, o)
+	r.warm()
+	return r
+}
+
+// rawIntake measures the raw rates for n messages of the size of the
+// intake-bound benchmark's on the rig's server.
+func (r *rig) rawIntake(n int) intakeRun {
+	b := r.tb.(*testing.B)
+	size := len(r.appendObs(nil, 0, r.t0+r.next*int64(r.opts.stepOf()/time.Second)))
+	twins, filter := rawTwins(r.subjects)
+	var ir intakeRun
+	ir.raw = medianOf3(func() float64 { return streamtest.RawFanInRate(b, r.url, twins, filter, size, max(n, 100_000)) })
+	ir.raw1 = medianOf3(func() float64 { return streamtest.RawPubSubRate(b, r.url, size, max(n, 100_000)) })
+	if r.opts.durable {
+		ir.rawJS = medianOf3(func() float64 {
+			return streamtest.RawDurableRate(b, r.url, twins, filter, size, max(n, 100_000))
+		})
+	}
+	return ir
+}
+
+// timedIntake sends n messages, ten per bucket, with the benchmark timer
+// running, until every observation is applied, checks that every one was
+// accepted and every closed bucket published, and returns the rate and
+// the cores the process used meanwhile (its CPU time, user and system,
+// over the wall time; the in-process server and publisher included).
+func (r *rig) timedIntake(n int) (rate, cores float64) {
+	b := r.tb.(*testing.B)
+	msgs := r.build(n, 10)
+	acc0, pub0, rej0 := counterValue(r.d.metrics.Accepted), counterValue(r.d.metrics.Published), r.rejected()
+	want := acc0 + float64(n)
+	runtime.GC() // the raw runs' garbage is not the daemon's to collect
+
+	b.StartTimer()
+	stopProfile := profileTimed(b)
+	cpu0 := processCPU()
+	start := time.Now()
+	r.send(msgs)
+	end := waitUntil(b, 120*time.Second, "every observation applied", func() bool {
+		return counterValue(r.d.metrics.Accepted) >= want
+	})
+	cpu := processCPU() - cpu0
+	b.StopTimer()
+	stopProfile()
+
+	if got := counterValue(r.d.metrics.Accepted); got != want {
+		b.Fatalf("accepted %v, want %v", got, want)
+	}
+	if got := r.rejected(); got != rej0 {
+		b.Fatalf("%v observations rejected", got-rej0)
+	}
+	// Bucket closes: every series' buckets before its last one (the rig's
+	// series each start a batch with a bucket that the batch opens).
+	closes := closesOf(n, len(r.subjects), 10)
+	waitUntil(b, 30*time.Second, "forecasts of every closed bucket", func() bool {
+		return counterValue(r.d.metrics.Published) >= pub0+float64(closes)
+	})
+	if got := counterValue(r.d.metrics.Published) - pub0; got != float64(closes) {
+		b.Fatalf("published %v forecasts, want %d", got, closes)
+	}
+	r.quiesce()
+	wall := end.Sub(start).Seconds()
+	return float64(n) / wall, cpu.Seconds() / wall
+}
+
+// processCPU is the process's CPU time so far, user and system.
+func processCPU() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		panic(err)
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
+}
+
+// loopRounds is how many times BenchmarkIntakeBoundLoops times each rig,
+// alternating: on a machine shared with other work single runs swing by a
+// factor of two, and alternation exposes both rigs to the same swings.
+const loopRounds = 5
+
+// BenchmarkIntakeBoundLoops (issue 15, "One machine, several loops"):
+// BenchmarkIntakeBound's traffic through a daemon with one loop and one
+// with intake.loops = GOMAXPROCS (at least 2) loops, which split the
+// series by internal partition (route.go). Both rigs run side by side,
+// each on its own server; the raw rates are measured on each server first
+// (see the top of this file), then each rig is timed loopRounds times,
+// alternating, b.N messages each time. Reported: the median obs/s of each
+// (loop1_obs/s, loops_obs/s), the ratio of the medians (ratio; target
+// ≥ 1.3 on a 2-core machine), each rate's ratios to the raw rates, and the
+// median cores the process used while timed (loop1_cores, loops_cores:
+// CPU time over wall time; on a machine shared with other work they show
+// whether a second core was there to use). The
+// durable case does the same through the JetStream intake, whose one
+// consumer the loops acknowledge together (ackJoin). The partitioned case
+// runs cluster mode with cluster.partitions 8 on the rig's one server, the
+// instance owning all eight (lease bucket, one consumer per partition):
+// there the loops own the stream's partitions, and each acknowledges its
+// own consumers (PartMarker). Run it with a fixed count, for instance
+//
+//	go test ./stream/daemon -run '^$' -bench IntakeBoundLoops -benchtime 400000x
+func BenchmarkIntakeBoundLoops(b *testing.B) {
+	for _, c := range []struct {
+		name string
+		o    rigOptions
+	}{
+		{"plain", rigOptions{}},
+		{"durable", rigOptions{durable: true}},
+		{"partitioned", rigOptions{durable: true, partitions: 8}},
+	} {
+		b.Run(c.name, func(b *testing.B) {
 			b.StopTimer()
-			stopProfile()
-
-			if got := counterValue(r.d.metrics.Accepted); got != want {
-				b.Fatalf("accepted %v, want %v", got, want)
+			n := max(2, runtime.GOMAXPROCS(0))
+			one, many := c.o, c.o
+			one.loops, many.loops = 1, n
+			r1, rn := newIntakeRig(b, one, false), newIntakeRig(b, many, false)
+			if r1.d.Loops() != 1 || rn.d.Loops() != n {
+				b.Fatalf("loops %d and %d, want 1 and %d", r1.d.Loops(), rn.d.Loops(), n)
 			}
-			if got := r.rejected(); got != rej0 {
-				b.Fatalf("%v observations rejected", got-rej0)
+			i1, in := r1.rawIntake(b.N), rn.rawIntake(b.N)
+			var rates1, ratesN, cores1, coresN []float64
+			for range loopRounds {
+				rate, cores := r1.timedIntake(b.N)
+				rates1, cores1 = append(rates1, rate), append(cores1, cores)
+				rate, cores = rn.timedIntake(b.N)
+				ratesN, coresN = append(ratesN, rate), append(coresN, cores)
 			}
-			// Bucket closes: every series' buckets before its last one.
-			closes := closesOf(b.N, len(r.subjects), 10)
-			waitUntil(b, 30*time.Second, "forecasts of every closed bucket", func() bool {
-				return counterValue(r.d.metrics.Published) >= pub0+float64(closes)
-			})
-			if got := counterValue(r.d.metrics.Published) - pub0; got != float64(closes) {
-				b.Fatalf("published %v forecasts, want %d", got, closes)
+			b.Logf("obs/s, 1 loop: %.0f (cores %.2f); %d loops: %.0f (cores %.2f)", rates1, cores1, n, ratesN, coresN)
+			median := func(x []float64) float64 {
+				x = slices.Clone(x)
+				slices.Sort(x)
+				return x[len(x)/2]
 			}
-			rate := float64(b.N) / end.Sub(start).Seconds()
-			b.ReportMetric(rate, "obs/s")
-			b.ReportMetric(raw, "raw_msgs/s")
-			b.ReportMetric(100*rate/raw, "pct_raw")
-			b.ReportMetric(raw1, "raw1_msgs/s")
-			b.ReportMetric(100*rate/raw1, "pct_raw1")
-			if rawJS > 0 {
-				b.ReportMetric(rawJS, "rawjs_msgs/s")
-				b.ReportMetric(100*rate/rawJS, "pct_rawjs")
-			}
+			i1.rate, in.rate = median(rates1), median(ratesN)
+			b.ReportMetric(median(cores1), "loop1_cores")
+			b.ReportMetric(median(coresN), "loops_cores")
+			b.ReportMetric(i1.rate, "loop1_obs/s")
+			b.ReportMetric(in.rate, "loops_obs/s")
+			b.ReportMetric(float64(n), "loops")
+			b.ReportMetric(in.rate/i1.rate, "ratio")
+			i1.report(b, "loop1_")
+			in.report(b, "loops_")
+			b.ReportMetric(0, "ns/op")
 		})
 	}
 }
@@ -177,7 +304,7 @@ func runOutputBound(b *testing.B, o rigOptions) outputRun {
 	msgs := r.build(b.N, 1)
 	fcSubjects := make([]string, len(r.subjects))
 	for i := range fcSubjects {
-		fcSubjects[i] = r.d.pub.forecastSubject(rigTopic(i))
+		fcSubjects[i] = r.d.loops[0].pub.forecastSubject(rigTopic(i))
 	}
 	twins, filter := rawTwins(fcSubjects)
 	raw := medianOf3(func() float64 { return streamtest.RawFanInRate(b, r.url, twins, filter, len(fc), max(b.N, 50_000)) })
@@ -457,6 +584,7 @@ func BenchmarkClosePath(b *testing.B) {
 				b.Fatal(err)
 			}
 			topic := rigTopic(0)
+			l := d.loops[0]
 			sc, _ := r.cfg.SeriesFor(topic)
 			s, err := series.Restore(r.template(window), settingsOf(sc, ""))
 			if err != nil {
@@ -482,11 +610,11 @@ func BenchmarkClosePath(b *testing.B) {
 				}
 				buf = stream.AppendForecast(buf[:0], s.Forecast(), now)
 				if len(e.rules) > 0 {
-					d.evaluate(topic, e, now)
+					l.evaluate(topic, e, now)
 				}
 			}
-			if withRule && d.alerts.evaluator.LastMethod() != alert.MethodSkip {
-				b.Fatalf("rule evaluated by %v, want the skip bound", d.alerts.evaluator.LastMethod())
+			if withRule && l.alerts.evaluator.LastMethod() != alert.MethodSkip {
+				b.Fatalf("rule evaluated by %v, want the skip bound", l.alerts.evaluator.LastMethod())
 			}
 			if st := *s.Alerts(); withRule && (len(st) != 1 || st[0].Raised) {
 				b.Fatalf("alert states %+v", st)

@@ -21,7 +21,7 @@ import (
 // at once, at another bucket. Restarted and handed the stream again, the
 // series ends exactly as in the uninterrupted run.
 //
-// The shutdown is started (d.stopping, what Run sets when it begins to
+// The shutdown is started (the loop's stopping, what Run sets when it begins to
 // stop) at the moment the scenario arises, which the test reaches by
 // stepping the loop's jobs itself, so that it does not depend on timing.
 func TestShutdownWithRefitOwedInsideArray(t *testing.T) {
@@ -47,9 +47,10 @@ func TestShutdownWithRefitOwedInsideArray(t *testing.T) {
 
 	// drain steps the jobs until the series has applied everything.
 	drain := func(d *Daemon) {
-		e := d.series[topic]
+		l := d.loopFor(topic)
+		e := l.series[topic]
 		for e.held() || len(e.pending) > 0 {
-			d.jobStep()
+			l.jobStep()
 		}
 	}
 
@@ -74,12 +75,13 @@ func TestShutdownWithRefitOwedInsideArray(t *testing.T) {
 	reached := false
 	b.d.Inspect(context.Background(), func(map[string]*Entry) {
 		b.d.handleBatch(all)
-		e := b.d.series[topic]
+		l := b.d.loopFor(topic)
+		e := l.series[topic]
 		for !(e.alerting && e.s.FitOwed()) && (e.held() || len(e.pending) > 0) {
-			b.d.jobStep()
+			l.jobStep()
 		}
 		if reached = e.alerting && e.s.FitOwed(); reached {
-			b.d.stopping = true // the shutdown begins here
+			l.stopping = true // the shutdown begins here
 		}
 	})
 	b.stop(t)

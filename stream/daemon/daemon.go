@@ -6,7 +6,10 @@ import (
 	"fmt"
 	"log/slog"
 	"math"
+	"runtime"
 	"slices"
+	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/nats-io/nats.go"
@@ -46,11 +49,12 @@ type Options struct {
 }
 
 // Daemon ties the intake, the series, the state store and the publisher
-// together. Its loop goroutine routes messages to the series, which it
-// owns (loop.go); the parts it drives each own their goroutines: the
-// refit pool (refits.go), the alert pool (alerts.go), the encoder and
-// publisher (publisher.go) and the writer and acknowledger (flusher.go).
-// doc.go gives the ownership and the lock order.
+// together. Its loops (loop.go) each own a set of partitions and the
+// series in them, with their own publisher (publisher.go) and flush and
+// acknowledgement pipeline (flusher.go); the refit and alert worker pools
+// (refits.go, alerts.go) are shared by the loops. The intake's batches are
+// split among the loops by partition (route.go). doc.go gives the
+// ownership and the lock order.
 type Daemon struct {
 	opt     Options
 	cfg     *config.Config
@@ -61,23 +65,13 @@ type Daemon struct {
 	limits  stream.Limits
 	metrics *Metrics
 
-	refits  *refitPool
-	alerts  *alertPool
-	pub     *publisher
-	flusher *flusher
-
-	batches chan []stream.Message // intake → loop
-	handled chan struct{}         // loop → intake: the batch is applied
-	inspect chan func()
-
-	// Loop-owned.
-	series   map[string]*entry
-	pending  int      // observations held back behind refits, all series
-	due      []string // restored series whose refit was in flight at the last save
-	obsBuf   []stream.Observation
-	ahead    []int64 // handle's per-message latest later times (series.ObserveIn)
-	lastSeq  uint64  // highest stream position handled
-	stopping bool    // shutdown: finished jobs no longer release held observations
+	refitWorkers *refitWorkers
+	alertWorkers *alertWorkers
+	loops        []*loop
+	route        router
+	acks         *ackJoin     // several loops on one acknowledgement floor; nil otherwise
+	nseries      atomic.Int64 // series of every loop, for limits.max_series
+	hookMu       sync.Mutex   // serialises OnForecast and OnAlert over the loops
 
 	ready chan struct{}
 	done  chan struct{} // closed when Run returns
@@ -126,30 +120,52 @@ func New(o Options) (*Daemon, error) {
 	for _, s := range c.Series {
 		maxH = max(maxH, s.Horizon)
 	}
-	alerts, err := newAlertPool(maxH)
-	if err != nil {
-		return nil, err
-	}
 	m := NewMetrics()
 	d := &Daemon{
-		opt:     o,
-		cfg:     c,
-		log:     o.Logger,
-		now:     o.Now,
-		store:   o.Store,
-		intake:  in,
-		limits:  stream.LimitsOf(c.Limits),
-		metrics: m,
-		refits:  newRefitPool(),
-		alerts:  alerts,
-		pub:     newPublisher(o.Conn, c.Output.Prefix, o.Logger, m),
-		flusher: newFlusher(o.Store, in, o.Logger, m),
-		batches: make(chan []stream.Message),
-		handled: make(chan struct{}),
-		inspect: make(chan func()),
-		series:  make(map[string]*entry),
-		ready:   make(chan struct{}),
-		done:    make(chan struct{}),
+		opt:          o,
+		cfg:          c,
+		log:          o.Logger,
+		now:          o.Now,
+		store:        o.Store,
+		intake:       in,
+		limits:       stream.LimitsOf(c.Limits),
+		metrics:      m,
+		refitWorkers: newRefitWorkers(),
+		alertWorkers: newAlertWorkers(maxH),
+		ready:        make(chan struct{}),
+		done:         make(chan struct{}),
+	}
+	n := c.Intake.LoopCount(runtime.GOMAXPROCS(0), c.Cluster.Partitions)
+	d.route = newRouter(c, n)
+	_, marks := in.(Marker)
+	pm, partMarks := in.(PartMarker)
+	if n > 1 && marks && !partMarks {
+		// Each loop acknowledges its own partitions; an intake that cannot
+		// mark a subset gets one loop.
+		n = 1
+		d.route = newRouter(c, 1)
+	}
+	if n > 1 && !marks {
+		d.acks = &ackJoin{in: in, floors: make([]uint64, n)}
+	}
+	if pi, ok := in.(*stream.PartitionedIntake); ok && n > 1 {
+		// dispatch may run for several partitions at once: the loops
+		// they go to then work in parallel.
+		pi.Concurrent = true
+	}
+	for k := range n {
+		var a acker = directAcker{in}
+		switch {
+		case n > 1 && marks:
+			a = partAcker{pm: pm, sel: d.route.owns(k)}
+		case n > 1:
+			a = joinAcker{j: d.acks, k: k}
+		}
+		l, err := newLoop(d, k, a)
+		if err != nil {
+			return nil, err
+		}
+		d.loops = append(d.loops, l)
 	}
 	return d, nil
 }
@@ -157,88 +173,135 @@ func New(o Options) (*Daemon, error) {
 // Metrics returns the daemon's metrics, for the HTTP endpoint.
 func (d *Daemon) Metrics() *Metrics { return d.metrics }
 
+// Loops returns the number of loops the daemon runs (intake.loops).
+func (d *Daemon) Loops() int { return len(d.loops) }
+
 // Ready is closed once the state is loaded and intake runs.
 func (d *Daemon) Ready() <-chan struct{} { return d.ready }
 
 // Latest returns a copy of the latest forecast message of topic. Safe for
 // concurrent use.
-func (d *Daemon) Latest(topic string) ([]byte, bool) { return d.pub.Latest(topic) }
+func (d *Daemon) Latest(topic string) ([]byte, bool) {
+	if len(d.loops) == 1 {
+		return d.loops[0].pub.Latest(topic)
+	}
+	k := d.route.loopOfTopic(topic)
+	if b, ok := d.loops[k].pub.Latest(topic); ok {
+		return b, true
+	}
+	// In cluster mode a topic that arrives on another intake subject than
+	// the first that can carry it lives on the loop of that subject's
+	// partition.
+	for i, l := range d.loops {
+		if i != k {
+			if b, ok := l.pub.Latest(topic); ok {
+				return b, true
+			}
+		}
+	}
+	return nil, false
+}
 
-// Inspect runs fn on the loop goroutine, where it may read (not keep) the
-// series; it returns false when the daemon is not running (or stops) or
-// ctx ends first.
+// Inspect runs fn with every loop paused, where it may read (not keep)
+// the series of all of them; it returns false when the daemon is not
+// running (or stops) or ctx ends first.
 func (d *Daemon) Inspect(ctx context.Context, fn func(all map[string]*Entry)) bool {
-	done := make(chan struct{})
-	f := func() {
-		defer close(done)
-		view := make(map[string]*Entry, len(d.series))
-		for k, e := range d.series {
+	paused := make(chan struct{}, len(d.loops))
+	release := make(chan struct{})
+	defer close(release)
+	pause := func() {
+		paused <- struct{}{}
+		<-release
+	}
+	for _, l := range d.loops {
+		select {
+		case l.inspect <- pause:
+		case <-ctx.Done():
+			return false
+		case <-l.exited:
+			return false
+		case <-d.done: // Run returned, perhaps before the loops started
+			return false
+		}
+	}
+	for range d.loops {
+		<-paused
+	}
+	n := 0
+	for _, l := range d.loops {
+		n += len(l.series)
+	}
+	view := make(map[string]*Entry, n)
+	for _, l := range d.loops {
+		for k, e := range l.series {
 			view[k] = &Entry{e: e}
 		}
-		fn(view)
 	}
-	select {
-	case d.inspect <- f:
-	case <-ctx.Done():
-		return false
-	case <-d.done:
-		return false
-	}
-	<-done
+	fn(view)
 	return true
 }
 
-// Run loads the state, starts the refit workers, the intake and the query
-// responder, and processes messages until ctx is cancelled. It then stops
-// the intake, finishes refits in flight, applies what waited on them,
-// writes the state and acknowledges it.
+// Run loads the state, starts the worker pools, the loops, the intake and
+// the query responder, and processes messages until ctx is cancelled. It
+// then stops the intake, lets every loop apply what it was handed and
+// finish the refits in flight, applies what waited on them, writes the
+// state and acknowledges it.
 func (d *Daemon) Run(ctx context.Context) error {
 	defer close(d.done)
 	if err := d.load(); err != nil {
 		return err
 	}
-	d.refits.start(d.cfg.Refit.WorkerCount())
-	if err := d.alerts.start(alertWorkers()); err != nil {
-		d.refits.stop()
+	d.refitWorkers.start(d.cfg.Refit.WorkerCount())
+	if err := d.alertWorkers.start(alertWorkerCount()); err != nil {
+		d.refitWorkers.stop()
 		return err
 	}
 	stopWorkers := func() {
-		d.refits.stop()
-		d.alerts.stop()
+		d.refitWorkers.stop()
+		d.alertWorkers.stop()
 	}
 	sub, err := stream.ServeQueriesOwned(d.opt.Conn, d.cfg.Output.Prefix, d.opt.Owns, d.Latest)
 	if err != nil {
 		stopWorkers()
 		return err
 	}
-	d.flusher.start()
-	d.pub.start()
 	defer sub.Unsubscribe()
+	quit := make(chan struct{})
+	var loops sync.WaitGroup
+	for _, l := range d.loops {
+		l.flusher.start()
+		l.pub.start()
+		loops.Add(1)
+		go func() {
+			defer loops.Done()
+			defer close(l.exited)
+			l.run(quit)
+		}()
+	}
+	// finish stops the loops once the intake has returned, then the
+	// pools, and writes and acknowledges every loop's state.
+	finish := func() {
+		close(quit)
+		loops.Wait()
+		stopWorkers()
+		for _, l := range d.loops {
+			l.pub.stop()
+			l.syncFlush()
+			l.flusher.stop()
+			l.pub.flush()
+		}
+	}
 
 	intakeCtx, stopIntake := context.WithCancel(context.Background())
+	defer stopIntake()
 	intakeErr := make(chan error, 1)
-	go func() {
-		intakeErr <- d.intake.Run(intakeCtx, func(batch []stream.Message) {
-			select {
-			case d.batches <- batch:
-				<-d.handled
-			case <-intakeCtx.Done():
-			}
-		})
-	}()
-	for _, t := range d.due {
-		d.outcome(t, d.series[t], series.NeedFit)
-	}
-	d.due = nil
+	go func() { intakeErr <- d.intake.Run(intakeCtx, d.dispatch) }()
 	// Ready once the intake is on the server, so that nothing published
 	// after Ready is missed (plain mode has no replay).
 	select {
 	case <-d.intake.Subscribed():
 	case err := <-intakeErr:
-		stopIntake()
-		stopWorkers()
-		d.pub.stop()
-		d.flusher.stop()
+		finish()
 		if err == nil {
 			err = errors.New("daemon: intake stopped before it subscribed")
 		}
@@ -247,39 +310,18 @@ func (d *Daemon) Run(ctx context.Context) error {
 	}
 	close(d.ready)
 
-	ended, runErr := d.loop(ctx, intakeErr)
-	if ended {
-		intakeErr = nil
-	}
-
-	// Shutdown: stop intake first (a batch in hand is still handled), then
-	// finish the refits in flight, then persist and acknowledge.
-	stopIntake()
-	for intakeErr != nil {
-		select {
-		case batch := <-d.batches:
-			d.handleBatch(batch)
-			d.handled <- struct{}{}
-		case err := <-intakeErr:
-			if err != nil && !errors.Is(err, context.Canceled) && runErr == nil {
-				runErr = err
-			}
-			intakeErr = nil
+	var runErr error
+	select {
+	case <-ctx.Done():
+		// Shutdown: stop intake first (the batches in hand are still
+		// handled), then let the loops finish.
+		stopIntake()
+		if err := <-intakeErr; err != nil && !errors.Is(err, context.Canceled) {
+			runErr = err
 		}
+	case runErr = <-intakeErr:
 	}
-	// From here a finished alert evaluation no longer releases the
-	// observations held behind it: they stay unapplied, unstored and
-	// unacknowledged (a durable stream redelivers them), so the work left
-	// is at most the evaluations already queued, one per series.
-	d.stopping = true
-	for d.refits.busy > 0 || d.alerts.alerting > 0 {
-		d.jobStep()
-	}
-	stopWorkers()
-	d.pub.stop()
-	d.syncFlush()
-	d.flusher.stop()
-	d.pub.flush()
+	finish()
 	return runErr
 }
 
@@ -311,27 +353,31 @@ func (d *Daemon) load() error {
 				return rerr
 			}
 		}
-		e := &entry{s: s, subject: d.pub.forecastSubject(topic), rules: d.rulesFor(topic, sc)}
-		d.series[topic] = e
+		l := d.loops[d.route.loopOfTopic(topic)]
+		e := &entry{s: s, subject: l.pub.forecastSubject(topic), rules: d.rulesFor(topic, sc)}
+		l.series[topic] = e
+		d.nseries.Add(1)
 		if s.HasModel() {
-			d.pub.storeLatest(s, d.now())
+			l.pub.storeLatest(s, d.now())
 		}
 		return nil
 	})
 	if err != nil {
 		return fmt.Errorf("daemon: load state: %w", err)
 	}
-	d.metrics.Series.Set(float64(len(d.series)))
+	d.metrics.Series.Set(float64(d.nseries.Load()))
 	// A record saved while its refit ran resumes with that refit, so the
 	// schedule is the uninterrupted run's. Topics in order: deterministic.
-	topics := make([]string, 0, len(d.series))
-	for t, e := range d.series {
-		if e.s.FitDue() {
-			topics = append(topics, t)
+	for _, l := range d.loops {
+		topics := make([]string, 0, len(l.series))
+		for t, e := range l.series {
+			if e.s.FitDue() {
+				topics = append(topics, t)
+			}
 		}
+		slices.Sort(topics)
+		l.due = topics
 	}
-	slices.Sort(topics)
-	d.due = topics
 	return nil
 }
 

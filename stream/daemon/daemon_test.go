@@ -326,7 +326,7 @@ func TestRedeliveryHasNoEffect(t *testing.T) {
 	var mid *series.Snapshot
 	r.d.Inspect(context.Background(), func(map[string]*Entry) {
 		r.d.handleBatch(all)
-		e := r.d.series["s.straddle"] // begun by handleBatch: not in Inspect's view
+		e := r.d.entryOf("s.straddle") // begun by handleBatch: not in Inspect's view
 		if e == nil {
 			return
 		}
@@ -381,7 +381,7 @@ func TestRedeliveryHasNoEffect(t *testing.T) {
 		states := func() map[string]*series.Snapshot {
 			out := map[string]*series.Snapshot{}
 			for topic := range want {
-				snap, err := state.Decode(state.Encode(nil, r.d.series[topic].s.Snapshot()))
+				snap, err := state.Decode(state.Encode(nil, r.d.entryOf(topic).s.Snapshot()))
 				if err != nil {
 					t.Error(err)
 				}
@@ -512,7 +512,7 @@ func TestCloseAfterClosesIdleBucket(t *testing.T) {
 	look := func() view {
 		var v view
 		r.d.Inspect(context.Background(), func(map[string]*Entry) {
-			if e := r.d.series["d.four"]; e != nil {
+			if e := r.d.entryOf("d.four"); e != nil {
 				sn := e.s.Snapshot()
 				v = view{closed: sn.Closed, open: sn.HasOpen, written: !e.dirty}
 			}

@@ -167,9 +167,11 @@ func (r *rig) nearRules() float64 {
 		thr = p.Mean + fleetZ*sd
 		r.d.cfg.Alerts = []config.Alert{{Name: "near", Match: "bench.>", Above: &thr,
 			Within: fleetWithin, Probability: 0.9}}
-		for topic, e := range r.d.series {
-			sc, _ := r.d.cfg.SeriesFor(topic)
-			e.rules = r.d.rulesFor(topic, sc)
+		for _, l := range r.d.loops {
+			for topic, e := range l.series {
+				sc, _ := r.d.cfg.SeriesFor(topic)
+				e.rules = r.d.rulesFor(topic, sc)
+			}
 		}
 	})
 	if !ok {

@@ -20,7 +20,7 @@ import (
 // the send on writes until the loop receives from committed.
 type flusher struct {
 	store     *state.Store
-	in        Intake
+	acks      acker // the loop's way to mark and acknowledge the intake
 	log       *slog.Logger
 	metrics   *Metrics
 	writes    chan writeJob  // loop → writer: commit batch
@@ -50,10 +50,10 @@ type writeDone struct {
 // kilobytes, well under a millisecond of the loop.
 const flushChunk = 256
 
-func newFlusher(store *state.Store, in Intake, log *slog.Logger, m *Metrics) *flusher {
+func newFlusher(store *state.Store, a acker, log *slog.Logger, m *Metrics) *flusher {
 	return &flusher{
 		store:     store,
-		in:        in,
+		acks:      a,
 		log:       log,
 		metrics:   m,
 		writes:    make(chan writeJob),
@@ -85,7 +85,7 @@ func (f *flusher) busy() bool { return f.writing || len(f.toFlush) > 0 }
 func (f *flusher) encoding() bool { return len(f.toFlush) > 0 }
 
 // begin starts a flush of every changed series of all, acknowledging up
-// to floor once written (Daemon.flush); the flusher must not be busy.
+// to floor once written (loop.flush); the flusher must not be busy.
 // The floor is taken when the flush starts: every record encoded
 // afterwards reflects at least that position.
 func (f *flusher) begin(all map[string]*entry, floor uint64) {
@@ -97,9 +97,7 @@ func (f *flusher) begin(all map[string]*entry, floor uint64) {
 		}
 	}
 	f.floor = floor
-	if m, ok := f.in.(Marker); ok {
-		m.Mark()
-	}
+	f.acks.mark()
 	if len(f.toFlush) == 0 {
 		f.ack(f.floor) // nothing new to store: every earlier write has committed
 		return
@@ -190,10 +188,10 @@ func (f *flusher) written(w writeDone, all map[string]*entry) {
 }
 
 func (f *flusher) ack(floor uint64) {
-	if _, marks := f.in.(Marker); floor <= f.acked && !marks {
+	if floor <= f.acked && !f.acks.every() {
 		return
 	}
-	if err := f.in.Ack(floor); err != nil {
+	if err := f.acks.ack(floor); err != nil {
 		f.log.Warn("acknowledgement failed; the stream will redeliver (no effect twice)", "seq", floor, "err", err)
 		return
 	}

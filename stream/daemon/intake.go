@@ -37,8 +37,18 @@ type Marker interface {
 	Mark()
 }
 
+// PartMarker is implemented by a Marker intake whose consumers are
+// partitions (stream.PartitionedIntake): with several loops each loop
+// marks and acknowledges only the partitions it owns (sel), when its own
+// flush takes its floor and once its own records are written.
+type PartMarker interface {
+	MarkWhere(sel func(p int) bool)
+	AckWhere(seq uint64, sel func(p int) bool) error
+}
+
 var (
-	_ Intake = (*stream.Intake)(nil)
-	_ Intake = (*stream.PartitionedIntake)(nil)
-	_ Marker = (*stream.PartitionedIntake)(nil)
+	_ Intake     = (*stream.Intake)(nil)
+	_ PartMarker = (*stream.PartitionedIntake)(nil)
+	_ Intake     = (*stream.PartitionedIntake)(nil)
+	_ Marker     = (*stream.PartitionedIntake)(nil)
 )

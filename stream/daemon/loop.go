@@ -1,9 +1,9 @@
 package daemon
 
 import (
-	"context"
 	"errors"
 	"fmt"
+	"log/slog"
 	"time"
 
 	"forewarn/config"
@@ -11,9 +11,59 @@ import (
 	"forewarn/stream"
 )
 
-// The loop: one goroutine that routes every message to its series, owns
-// the series map and every entry in it, and drives the other parts
-// (refits, alerts, publisher, flusher) through their channels.
+// A loop: one goroutine that routes every message of its share of the
+// intake to its series, owns its series map and every entry in it, and
+// drives its parts (refit and alert queues, publisher, flusher) through
+// their channels. A daemon runs one or more loops (route.go).
+type loop struct {
+	top *Daemon // shared: configuration, metrics, worker pools
+	id  int
+
+	// Copies of the daemon's, read only.
+	opt     Options
+	cfg     *config.Config
+	log     *slog.Logger
+	now     func() time.Time
+	limits  stream.Limits
+	metrics *Metrics
+
+	refits  *refitPool
+	alerts  *alertPool
+	pub     *publisher
+	flusher *flusher
+
+	batches chan work // dispatch → loop
+	inspect chan func()
+	exited  chan struct{} // closed when run returns
+
+	// Loop-owned.
+	series   map[string]*entry
+	pending  int      // observations held back behind refits, all series
+	due      []string // restored series whose refit was in flight at the last save
+	obsBuf   []stream.Observation
+	ahead    []int64 // handle's per-message latest later times (series.ObserveIn)
+	lastSeq  uint64  // highest stream position handled (work.upTo included)
+	stopping bool    // shutdown: finished jobs no longer release held observations
+}
+
+func newLoop(d *Daemon, id int, a acker) (*loop, error) {
+	alerts, err := newAlertPool(d.alertWorkers)
+	if err != nil {
+		return nil, err
+	}
+	return &loop{
+		top: d, id: id,
+		opt: d.opt, cfg: d.cfg, log: d.log, now: d.now, limits: d.limits, metrics: d.metrics,
+		refits:  newRefitPool(d.refitWorkers),
+		alerts:  alerts,
+		pub:     newPublisher(d.opt.Conn, d.cfg.Output.Prefix, d.log, d.metrics),
+		flusher: newFlusher(d.store, a, d.log, d.metrics),
+		batches: make(chan work, loopQueue),
+		inspect: make(chan func()),
+		exited:  make(chan struct{}),
+		series:  make(map[string]*entry),
+	}, nil
+}
 
 // entry is one live series and its bookkeeping on the loop.
 type entry struct {
@@ -50,14 +100,19 @@ type pendingObs struct {
 // together (about 100 bytes each).
 const maxPending = 1 << 20
 
-// loop processes messages, results and ticks until ctx ends or the
-// intake stops. ended reports that the intake stopped (its result, taken
-// from intakeErr, is err).
-func (d *Daemon) loop(ctx context.Context, intakeErr <-chan error) (ended bool, err error) {
+// run resumes the refits due at load, then processes messages, results
+// and ticks until quit is closed (the intake has returned: every batch is
+// in batches), applies what is left in batches, and finishes the refits
+// and alert evaluations in flight (shutdown, see Daemon.Run).
+func (d *loop) run(quit <-chan struct{}) {
+	for _, t := range d.due {
+		d.outcome(t, d.series[t], series.NeedFit)
+	}
+	d.due = nil
 	tick := time.NewTicker(d.cfg.State.FlushInterval)
 	defer tick.Stop()
 	f := d.flusher
-	for {
+	for running := true; running; {
 		jobs, next := d.refits.next()
 		ajobs, anext := d.alerts.next()
 		var flushing <-chan struct{} // ready while a flush is being encoded
@@ -73,16 +128,10 @@ func (d *Daemon) loop(ctx context.Context, intakeErr <-chan error) (ended bool, 
 			d.alerts.sent()
 		case j := <-d.alerts.done:
 			d.finishAlert(j)
-		case <-ctx.Done():
-			return false, nil
-		case err := <-intakeErr:
-			return true, err
-		case batch := <-d.batches:
-			d.handleBatch(batch)
-			d.handled <- struct{}{}
-			if f.sinceSave >= d.cfg.State.FlushMax {
-				d.flush()
-			}
+		case <-quit:
+			running = false
+		case w := <-d.batches:
+			d.take(w)
 		case r := <-d.refits.results:
 			d.finishFit(r)
 		case w := <-f.committed:
@@ -94,16 +143,43 @@ func (d *Daemon) loop(ctx context.Context, intakeErr <-chan error) (ended bool, 
 			fn()
 		}
 	}
+	for {
+		select {
+		case w := <-d.batches:
+			d.take(w)
+			continue
+		default:
+		}
+		break
+	}
+	// From here a finished alert evaluation no longer releases the
+	// observations held behind it: they stay unapplied, unstored and
+	// unacknowledged (a durable stream redelivers them), so the work left
+	// is at most the evaluations already queued, one per series.
+	d.stopping = true
+	for d.refits.busy > 0 || d.alerts.alerting > 0 {
+		d.jobStep()
+	}
+}
+
+// take applies one share of a batch, and flushes past state.flush_max.
+func (d *loop) take(w work) {
+	d.handleBatch(w.msgs)
+	d.lastSeq = max(d.lastSeq, w.upTo)
+	w.done()
+	if d.flusher.sinceSave >= d.cfg.State.FlushMax {
+		d.flush()
+	}
 }
 
 // handleBatch applies one batch of messages in order.
-func (d *Daemon) handleBatch(batch []stream.Message) {
+func (d *loop) handleBatch(batch []stream.Message) {
 	for i := range batch {
 		d.handle(&batch[i])
 	}
 }
 
-func (d *Daemon) handle(m *stream.Message) {
+func (d *loop) handle(m *stream.Message) {
 	if m.Seq > d.lastSeq {
 		d.lastSeq = m.Seq
 	}
@@ -171,10 +247,10 @@ func (d *Daemon) handle(m *stream.Message) {
 	}
 }
 
-func (d *Daemon) create(m *stream.Message, topic string) *entry {
-	if len(d.series) >= d.cfg.Limits.MaxSeries {
+func (d *loop) create(m *stream.Message, topic string) *entry {
+	if n := d.top.nseries.Load(); n >= int64(d.cfg.Limits.MaxSeries) {
 		d.reject(m.Subject, topic, m.Received, stream.CodeTooManySeries,
-			fmt.Sprintf("the daemon already tracks %d series (limits.max_series); new topic %q is not accepted", len(d.series), topic))
+			fmt.Sprintf("the daemon already tracks %d series (limits.max_series); new topic %q is not accepted", n, topic))
 		return nil
 	}
 	sc, ok := d.cfg.SeriesFor(topic)
@@ -193,14 +269,27 @@ func (d *Daemon) create(m *stream.Message, topic string) *entry {
 		d.reject(m.Subject, topic, m.Received, stream.CodeBadSettings, err.Error())
 		return nil
 	}
-	e := &entry{s: s, subject: d.pub.forecastSubject(topic), rules: d.rulesFor(topic, sc)}
+	// limits.max_series counts every loop's series: take a place, unless
+	// another loop has taken the last one since the check above.
+	for {
+		n := d.top.nseries.Load()
+		if n >= int64(d.cfg.Limits.MaxSeries) {
+			d.reject(m.Subject, topic, m.Received, stream.CodeTooManySeries,
+				fmt.Sprintf("the daemon already tracks %d series (limits.max_series); new topic %q is not accepted", n, topic))
+			return nil
+		}
+		if d.top.nseries.CompareAndSwap(n, n+1) {
+			d.metrics.Series.Inc()
+			break
+		}
+	}
+	e := &entry{s: s, subject: d.pub.forecastSubject(topic), rules: d.top.rulesFor(topic, sc)}
 	d.series[topic] = e
-	d.metrics.Series.Set(float64(len(d.series)))
 	return e
 }
 
 // apply feeds one observation to a series that is not waiting on a refit.
-func (d *Daemon) apply(topic string, e *entry, p pendingObs) {
+func (d *loop) apply(topic string, e *entry, p pendingObs) {
 	if e.firstDirty == 0 {
 		e.firstDirty = p.seq
 	}
@@ -227,7 +316,7 @@ func (d *Daemon) apply(topic string, e *entry, p pendingObs) {
 	d.outcome(topic, e, out)
 }
 
-func (d *Daemon) outcome(topic string, e *entry, out series.Outcome) {
+func (d *loop) outcome(topic string, e *entry, out series.Outcome) {
 	switch out {
 	case series.Published:
 		d.publish(topic, e)
@@ -244,7 +333,7 @@ func (e *entry) held() bool { return e.busy || e.alerting }
 
 // jobStep hands one waiting refit or alert evaluation to its pool, or
 // finishes one that is done, whichever can happen first.
-func (d *Daemon) jobStep() {
+func (d *loop) jobStep() {
 	jobs, next := d.refits.next()
 	ajobs, anext := d.alerts.next()
 	select {
@@ -256,11 +345,15 @@ func (d *Daemon) jobStep() {
 		d.alerts.sent()
 	case j := <-d.alerts.done:
 		d.finishAlert(j)
+	case fn := <-d.inspect:
+		// Paused here, the loop holds no worker back: every loop can
+		// pause, whatever the others wait for.
+		fn()
 	}
 }
 
 // finishFit installs a refit and then applies what waited on it, in order.
-func (d *Daemon) finishFit(r fitDone) {
+func (d *loop) finishFit(r fitDone) {
 	e := d.series[r.topic]
 	d.refits.taken()
 	d.metrics.Refitting.Dec()
@@ -284,7 +377,7 @@ func (d *Daemon) finishFit(r fitDone) {
 
 // release applies the observations held behind a finished job, in order,
 // until the series is held again (or none is left).
-func (d *Daemon) release(topic string, e *entry) {
+func (d *loop) release(topic string, e *entry) {
 	for len(e.pending) > 0 && !e.held() {
 		p := e.pending[0]
 		e.pending = e.pending[1:]
@@ -299,11 +392,13 @@ func (d *Daemon) release(topic string, e *entry) {
 
 // publish hands the series' latest forecast to the publisher, then
 // evaluates its alert rules.
-func (d *Daemon) publish(topic string, e *entry) {
+func (d *loop) publish(topic string, e *entry) {
 	now := d.now()
 	d.pub.forecast(e.s.ModelForecast(), now, e.subject)
 	if d.opt.OnForecast != nil {
+		d.top.hookMu.Lock()
 		d.opt.OnForecast(e.s.Forecast())
+		d.top.hookMu.Unlock()
 	}
 	if len(e.rules) > 0 {
 		d.evaluate(topic, e, now)
@@ -312,7 +407,7 @@ func (d *Daemon) publish(topic string, e *entry) {
 
 // reject counts and publishes one reject; code is one of stream's Code…
 // constants.
-func (d *Daemon) reject(subject, topic string, received time.Time, code, reason string) {
+func (d *loop) reject(subject, topic string, received time.Time, code, reason string) {
 	d.metrics.Rejected.WithLabelValues(code).Inc()
 	if e := d.series[topic]; e != nil {
 		e.rejects++
@@ -323,7 +418,7 @@ func (d *Daemon) reject(subject, topic string, received time.Time, code, reason 
 // closeIdle closes open buckets that saw no data for close_after (wall
 // time). This is the one rule that depends on wall time; it is off unless
 // configured.
-func (d *Daemon) closeIdle() {
+func (d *loop) closeIdle() {
 	now := d.now()
 	for topic, e := range d.series {
 		sc, ok := d.cfg.SeriesFor(topic)
@@ -342,7 +437,7 @@ func (d *Daemon) closeIdle() {
 // acknowledgement waits for the commit. Only one flush is in flight: one
 // asked for meanwhile is skipped, and the next trigger writes everything
 // that changed since.
-func (d *Daemon) flush() {
+func (d *loop) flush() {
 	if d.flusher.busy() {
 		return
 	}
@@ -351,11 +446,11 @@ func (d *Daemon) flush() {
 
 // finishFlush encodes the rest of the flush in progress and waits for its
 // write.
-func (d *Daemon) finishFlush() { d.flusher.finish(d.series) }
+func (d *loop) finishFlush() { d.flusher.finish(d.series) }
 
 // syncFlush writes everything and waits for it (shutdown): the flush in
 // progress, if any, then one of everything that changed since.
-func (d *Daemon) syncFlush() {
+func (d *loop) syncFlush() {
 	d.finishFlush()
 	d.flush()
 	d.finishFlush()

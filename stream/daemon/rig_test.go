@@ -49,6 +49,11 @@ type rigOptions struct {
 	// step and horizon of every series; zero: rigStep, rigHorizon.
 	step    time.Duration
 	horizon int
+	// loops is intake.loops; 0: the config default (one per core).
+	loops int
+	// partitions is cluster.partitions (with durable): this one instance
+	// owns every partition of the rig's server, through the lease bucket.
+	partitions int
 	// rule, when set, is the one alert rule, matching every series
 	// (instead of alert's far rule).
 	rule *config.Alert
@@ -120,6 +125,12 @@ func newRigConfig(tb testing.TB, o rigOptions) *rig {
 	cfg.State.Dir = tb.TempDir()
 	cfg.HTTP.Listen = ""
 	cfg.Intake.Durable = o.durable
+	cfg.Intake.Loops = o.loops
+	if o.partitions > 0 {
+		cfg.NATS.URL = url
+		cfg.Cluster.Partitions = o.partitions
+		cfg.Cluster.Instance = "bench"
+	}
 	if o.flushMax > 0 {
 		cfg.State.FlushMax = o.flushMax
 	}
@@ -316,7 +327,10 @@ func (r *rig) quiesce() {
 	for {
 		idle := false
 		if !r.d.Inspect(context.Background(), func(all map[string]*Entry) {
-			idle = !r.d.flusher.writing && r.d.refits.busy == 0
+			idle = true
+			for _, l := range r.d.loops {
+				idle = idle && !l.flusher.writing && l.refits.busy == 0
+			}
 			for _, e := range all {
 				idle = idle && !e.e.dirty
 			}

@@ -224,7 +224,10 @@ func PublishAcked(tb testing.TB, nc *nats.Conn, n int, msg func(i int) (subject 
 	}
 	for i := range n {
 		subj, data := msg(i)
-		if _, err := js.PublishAsync(subj, data); err != nil {
+		// A publisher that waits past the client's default 200 ms for an
+		// acknowledgement fails: on a loaded machine the server takes
+		// longer at times. The stall only throttles, so wait longer.
+		if _, err := js.PublishAsync(subj, data, jetstream.WithStallWait(30*time.Second)); err != nil {
 			tb.Fatalf("streamtest: publish: %v", err)
 		}
 	}

@@ -40,6 +40,12 @@ func (s Source) Ready() <-chan struct{} { return s.D.Ready() }
 // Latest implements site.Source.
 func (s Source) Latest(topic string) ([]byte, bool) { return s.D.Latest(topic) }
 
+// Ownership implements site.Owners.
+func (s Source) Ownership() (string, []string, bool) { return s.D.Ownership() }
+
+// PartitionOf implements site.Owners.
+func (s Source) PartitionOf(topic string) (int, bool) { return s.D.PartitionOf(topic) }
+
 // Views implements site.Source.
 func (s Source) Views(ctx context.Context, topic string, history int) ([]site.View, error) {
 	ctx, cancel := context.WithTimeout(ctx, InspectTimeout)

@@ -11,6 +11,7 @@
 //	GET /api/series                       JSON list of Summary, sorted by topic
 //	GET /api/series/{topic}               the latest forecast message (CONTRACT.md §2)
 //	GET /api/series/{topic}/chart.svg     chart; ?w= and ?h= in pixels, ?points= history buckets
+//	GET /api/partitions                   cluster mode: the instance owning each partition (owners.go)
 //	GET /                                 index page: every series with a small chart
 //	GET /series/{topic}                   one series: big chart, rules, forecast table
 //

@@ -132,6 +132,9 @@ var indexText = `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>forewarn — series</title>` + style + `</head>
 <body><header><a href="./">forewarn</a></header><main>
 <h1>Series <span class="muted">({{len .Series}})</span></h1>
+{{with .Cluster}}<p id="owners">Instance <b>{{.Instance}}</b> shows the series of the partitions it owns, of {{.Partitions}}:
+{{range .Groups}}<span class="owner" data-instance="{{.Instance}}">{{if .Self}}this instance{{else if .Instance}}instance <b>{{.Instance}}</b>{{else}}no instance (free){{end}}: {{range $i, $p := .Partitions}}{{if $i}}, {{end}}{{$p}}{{else}}none{{end}}</span>; {{end}}
+JSON: <a href="api/partitions">api/partitions</a></p>{{end}}
 {{if not .Series}}<p class="muted">No series yet: nothing has arrived on the intake subjects.</p>{{else}}
 <table id="series">
 <tr><th>topic</th><th>status</th><th>last value</th><th>model</th><th>rejects</th><th>alerts</th><th>history and forecast</th></tr>
@@ -200,8 +203,9 @@ func (s *server) index(w http.ResponseWriter, r *http.Request) {
 	}
 	render(w, indexTmpl(), struct {
 		Info
-		Series []View
-	}{s.info, vs})
+		Series  []View
+		Cluster *Cluster
+	}{s.info, vs, s.cluster()})
 }
 
 func (s *server) page(w http.ResponseWriter, r *http.Request) {

@@ -44,6 +44,7 @@ func Handler(src Source, metrics prometheus.Gatherer, info Info) http.Handler {
 	mux.HandleFunc("GET /api/series", s.list)
 	mux.HandleFunc("GET /api/series/{topic}", s.latest)
 	mux.HandleFunc("GET /api/series/{topic}/chart.svg", s.chart)
+	mux.HandleFunc("GET /api/partitions", s.partitions)
 	mux.HandleFunc("GET /{$}", s.index)
 	mux.HandleFunc("GET /series/{topic}", s.page)
 	return mux
@@ -78,6 +79,10 @@ type Summary struct {
 	Late          uint64         `json:"late"`
 	RefitFailures uint64         `json:"refit_failures"`
 	Alerts        []AlertSummary `json:"alerts"`
+	// Partition and Owner, in cluster mode: the series' partition and
+	// the instance that owns it (owners.go).
+	Partition *int   `json:"partition,omitempty"`
+	Owner     string `json:"owner,omitempty"`
 }
 
 // AlertSummary is the state of one alert rule in a Summary.
@@ -143,6 +148,7 @@ func (s *server) views(w http.ResponseWriter, r *http.Request, topic string, his
 		http.Error(w, err.Error(), http.StatusInternalServerError)
 		return nil, false
 	}
+	vs = s.owned(vs)
 	sortViews(vs)
 	return vs, true
 }
@@ -150,6 +156,9 @@ func (s *server) views(w http.ResponseWriter, r *http.Request, topic string, his
 // one reads a single topic, answering 404 when there is none.
 func (s *server) one(w http.ResponseWriter, r *http.Request, history int) (*View, bool) {
 	topic := r.PathValue("topic")
+	if s.elsewhere(w, topic, false) {
+		return nil, false
+	}
 	vs, ok := s.views(w, r, topic, history)
 	if !ok {
 		return nil, false
@@ -169,13 +178,18 @@ func (s *server) list(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	out := make([]Summary, len(vs))
+	c := s.cluster()
 	for i := range vs {
 		out[i] = Summarize(&vs[i])
+		s.annotate(c, &out[i])
 	}
 	writeJSON(w, http.StatusOK, out)
 }
 
 func (s *server) latest(w http.ResponseWriter, r *http.Request) {
+	if s.elsewhere(w, r.PathValue("topic"), true) {
+		return
+	}
 	b, ok := s.src.Latest(r.PathValue("topic"))
 	if !ok {
 		writeJSON(w, http.StatusNotFound, map[string]string{"error": "no forecast for this topic yet"})
