@@ -3,6 +3,8 @@ package series
 import (
 	"fmt"
 	"math"
+	"strconv"
+	"strings"
 	"time"
 
 	"forewarn/engine/arima"
@@ -65,6 +67,13 @@ func (s *Series) FitJob() *FitJob {
 		sp.NX = 0
 		p := s.model.Params()
 		j.Warm = &auto.Warm{Spec: sp, Params: p[:len(p)-s.model.Spec.NX], Transform: s.tr}
+		if ms := s.snap.Model; len(ms.Cycles) > 0 {
+			// the route is kept (auto.Warm.Route)
+			j.Warm.Route = auto.RouteFourier
+			if len(ms.Design) > 0 && ms.Design[0].Kind == SetProfile {
+				j.Warm.Route = auto.RouteProfile
+			}
+		}
 		for _, c := range s.snap.Model.Cycles {
 			j.Warm.Seasons = append(j.Warm.Seasons, auto.SeasonChoice{Length: c.Seconds,
 				Steps: c.Seconds / float64(s.set.StepSeconds), Terms: c.Terms, K: c.K})
@@ -119,7 +128,12 @@ func (j *FitJob) Run() (r FitResult) {
 		r.Cycles = append(r.Cycles, CycleChoice{Seconds: sc.Length, Terms: sc.Terms, K: sc.K})
 	}
 	var X [][]float64
-	if c.Fourier != nil {
+	switch {
+	case c.Profile != nil:
+		// the profile route: one shape column per cycle, coefficient 1
+		r.Design = append(r.Design, profileSet(c.ProfileCycles, c.ProfileShapes))
+		X = c.Profile.Matrix(t0, step, len(j.Window))
+	case c.Fourier != nil:
 		v := []float64{step}
 		for _, cy := range c.Cycles {
 			v = append(v, cy.Seconds, float64(cy.K))
@@ -139,7 +153,7 @@ func (j *FitJob) Run() (r FitResult) {
 //
 // Cost bound (our own simplification of Chen & Liu 1993's joint
 // estimation): the search (outlier.Detect) runs on the last outlierSpan
-// buckets of the window less the choice's Fourier part x_tᵀβ̂, with the
+// buckets of the window less the choice's seasonal part x_tᵀβ̂ (Fourier or profile), with the
 // choice's ARIMA orders and constant, so that its fits are short and carry
 // only the outlier columns (the joint search over 20 160 buckets with 40
 // columns took 20 s a refit). The model keeps the choice's coefficients
@@ -273,12 +287,35 @@ func (s *Series) setModelInfo() {
 	ms := s.snap.Model
 	s.fcStale = true
 	s.mf.Model = ModelInfo{
-		Spec:      s.model.Spec.Label(),
+		Spec:      modelLabel(s.model.Spec, ms.Design),
 		Transform: s.tr.String(),
 		FittedAt:  time.Unix(ms.FittedAt*s.set.StepSeconds, 0).UTC(),
 		NObs:      ms.NObs,
 		AICc:      ms.AICc,
 	}
+}
+
+// modelLabel is the model's label (arima.Spec.Label); a profile-route
+// model says so: "ARIMA 1,0,1 + mean + profile of 2 cycles" (its other
+// regression columns, outlier effects, counted after it).
+func modelLabel(sp arima.Spec, sets []ColumnSet) string {
+	if len(sets) == 0 || sets[0].Kind != SetProfile {
+		return sp.Label()
+	}
+	cycles, _, err := profileValues(sets[0].Values)
+	if err != nil {
+		return sp.Label()
+	}
+	others := sp.NX - len(cycles)
+	sp.NX = 0
+	l := sp.Label() + " + profile of " + strconv.Itoa(len(cycles)) + " cycle"
+	if len(cycles) > 1 {
+		l += "s"
+	}
+	if others > 0 {
+		l += strings.TrimPrefix(arima.Spec{NX: others}.Label(), arima.Spec{}.Label())
+	}
+	return l
 }
 
 func transformFromSnapshot(t TransformSnapshot) (transform.Transform, error) {

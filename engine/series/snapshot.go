@@ -112,7 +112,8 @@ type ModelSnapshot struct {
 }
 
 // CycleChoice is the refit's choice for one seasonal cycle: seasonal
-// ARIMA terms ("arima"), K Fourier pairs ("fourier") or nothing ("none").
+// ARIMA terms ("arima"), K Fourier pairs ("fourier"), a seasonal profile
+// column ("profile", auto.RouteProfile) or nothing ("none").
 type CycleChoice struct {
 	Seconds float64
 	Terms   string
