@@ -21,6 +21,12 @@ type FitJob struct {
 	End      int64
 	Settings Settings
 	Warm     *auto.Warm
+	// Known are the effects of the model being replaced and SearchedTo
+	// the last bucket its outlier search saw (0: none): the search starts
+	// from them and looks for new effects only after SearchedTo less
+	// outlierMargin (detect).
+	Known      []OutlierFound
+	SearchedTo int64
 }
 
 // FitResult is the outcome of a FitJob.
@@ -48,6 +54,7 @@ const (
 	outlierMax       = 10
 	outlierRounds    = 2
 	outlierSpan      = 1000 // the most recent buckets searched
+	outlierMargin    = 100  // buckets before the last refit's end searched again
 )
 
 // FitJob returns the refit the series needs now. It copies the window.
@@ -57,6 +64,12 @@ func (s *Series) FitJob() *FitJob {
 		Window:   append([]float64(nil), s.snap.Window...),
 		End:      s.snap.WindowEnd,
 		Settings: s.set,
+	}
+	if ms := s.snap.Model; ms != nil && s.set.Outliers && ms.NObs >= outlierMinPoints {
+		// the last refit searched its window (detect): its effects are
+		// known, and only the buckets since are new
+		j.Known = append([]OutlierFound(nil), ms.Outliers...)
+		j.SearchedTo = ms.FittedAt
 	}
 	// Warm starts serve the order search. A fixed order is fitted cold, so
 	// that the daemon's model at a refit point is exactly the one an
@@ -153,12 +166,22 @@ func (j *FitJob) Run() (r FitResult) {
 //
 // Cost bound (our own simplification of Chen & Liu 1993's joint
 // estimation): the search (outlier.Detect) runs on the last outlierSpan
-// buckets of the window less the choice's seasonal part x_tᵀβ̂ (Fourier or profile), with the
-// choice's ARIMA orders and constant, so that its fits are short and carry
-// only the outlier columns (the joint search over 20 160 buckets with 40
-// columns took 20 s a refit). The model keeps the choice's coefficients
-// and gains the effects' coefficients from the search's final fit. A
-// failure keeps the choice as it is.
+// buckets of the window less the choice's seasonal part x_tᵀβ̂ (Fourier or
+// profile), with the choice's ARIMA orders and constant, so that its fits
+// are short and carry only the outlier columns (the joint search over
+// 20 160 buckets with 40 columns took 20 s a refit). At a refit after one
+// that searched (FitJob.Known, SearchedTo), the effects it found that are
+// still in the span start in the model, as if found in an earlier round
+// of the procedure, and are re-estimated and re-tested jointly with any
+// new ones (Chen & Liu's stage II); new effects are sought only in the
+// buckets after SearchedTo less outlierMargin (the margin judges again
+// the last buckets the previous search saw with few values after them).
+// What Chen & Liu's procedure keeps: its test statistics and critical
+// value, the iterative detect–re-estimate rounds and the joint
+// re-estimation that drops effects no longer significant; what it gives
+// up: a search of older buckets under the new model. The model keeps the
+// choice's coefficients and gains the effects' coefficients from the
+// search's final fit. A failure keeps the choice as it is.
 func (j *FitJob) detect(r *FitResult, X [][]float64) {
 	c := r.Choice
 	m := c.Result.Model
@@ -176,7 +199,17 @@ func (j *FitJob) detect(r *FitResult, X [][]float64) {
 	}
 	sp := m.Spec
 	sp.NX = 0
-	d, err := outlier.Detect(w, nil, sp, &outlier.Options{MaxOutliers: outlierMax, MaxIter: outlierRounds})
+	first := j.End - int64(n) + 1 + int64(off) // the bucket of w[0]
+	opt := &outlier.Options{MaxOutliers: outlierMax, MaxIter: outlierRounds}
+	if j.SearchedTo > 0 {
+		for _, o := range j.Known {
+			if o.Bucket >= first && o.Bucket <= j.End {
+				opt.Known = append(opt.Known, outlier.Outlier{Kind: outlier.Kind(o.Kind), Index: int(o.Bucket - first)})
+			}
+		}
+		opt.From = int(min(max(j.SearchedTo-outlierMargin+1-first, 0), int64(len(w))))
+	}
+	d, err := outlier.Detect(w, nil, sp, opt)
 	if err != nil || len(d.Outliers) == 0 || d.Fit == nil {
 		return
 	}
@@ -188,7 +221,7 @@ func (j *FitJob) detect(r *FitResult, X [][]float64) {
 	if err != nil {
 		return
 	}
-	t0 := j.End - int64(n) + 1 + int64(off)
+	t0 := first
 	v := []float64{d.Delta}
 	for i, o := range d.Outliers {
 		v = append(v, float64(o.Kind), float64(t0+int64(o.Index)))

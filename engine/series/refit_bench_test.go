@@ -92,3 +92,45 @@ func BenchmarkRefitTwoCycles(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkRefitOutlierSearch: the refit-time outlier search alone
+// (FitJob.detect on the last outlierSpan buckets, with the choice of a
+// warm refit of the 20 160-bucket two-cycle window), to tell its share of
+// BenchmarkRefitTwoCycles/outliers.
+func BenchmarkRefitOutlierSearch(b *testing.B) {
+	set := Settings{Kind: "gauge", StepSeconds: 60, Horizon: 60, Levels: []float64{50, 90},
+		Window: 20160, MinPoints: 20160, RefitEvery: 1 << 30, Model: "auto", Transform: "none",
+		Seasons: []float64{86400, 7 * 86400}, Guard: true, Outliers: true, Fingerprint: "b"}
+	s, err := New("b", set)
+	if err != nil {
+		b.Fatal(err)
+	}
+	for i, v := range benchWindow(true) {
+		if _, err := s.Observe(int64(i)*60e9, v); err != nil {
+			b.Fatal(err)
+		}
+	}
+	s.CloseOpen()
+	if _, err := s.Install(s.FitJob().Run()); err != nil {
+		b.Fatal(err)
+	}
+	j := s.FitJob()
+	j.Settings.Outliers = false
+	base := j.Run()
+	if base.Err != nil || base.Choice.Fourier == nil {
+		b.Fatalf("warm refit: %v", base.Err)
+	}
+	n := len(j.Window)
+	X := base.Choice.Fourier.Matrix(float64((j.End-int64(n)+1)*60), 60, n)
+	found := 0
+	b.ResetTimer()
+	c0 := cpuTime()
+	for range b.N {
+		r := base
+		r.Design = append([]ColumnSet(nil), base.Design...)
+		j.detect(&r, X)
+		found = len(r.Outliers)
+	}
+	b.ReportMetric(float64((cpuTime()-c0).Microseconds())/1000/float64(b.N), "cpu-ms/op")
+	b.ReportMetric(float64(found), "effects")
+}
