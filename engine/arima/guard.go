@@ -43,9 +43,9 @@ import (
 //     from the run itself (Box & Tiao 1975's intervention estimate): the
 //     filter goes back to its state before the run, absorbs the run's
 //     values while the coefficient is re-estimated at each (shiftReplay,
-//     learnStep), and the estimate's variance (times Inflate) is added to
-//     the ARMA state's first component; the coefficient goes on learning
-//     for 100 steps. The current observation is then absorbed normally.
+//     learnStep); the coefficient goes on learning for 100 steps, and
+//     while it does the forecasts' error variances include its variance
+//     (times Inflate), as those of a regression coefficient do. The current observation is then absorbed normally.
 //
 // The defaults (DefaultGuard) are Spike 4.5, Shift 3 and Run 3 (common
 // practice: a 4.5σ rule keeps the false-alarm rate of a Gaussian series
@@ -113,6 +113,7 @@ type guardState struct {
 	learn             int
 	lS, ls, lb, lprec float64
 	lA, lK            []float64
+	xs                []float64 // scratch of the forecasts' sensitivity to it
 }
 
 // shiftLearn is the number of steps after a level shift in a model without
@@ -133,7 +134,7 @@ func (f *Filter) SetGuard(g Guard) error {
 	}
 	f.gd = guardState{on: true, g: g, z: math.NaN(), runV: make([]float64, g.Run), runS: make([]float64, g.Run), shift: f.gd.shift, c0: f.c - f.gd.shift,
 		runY: make([]float64, g.Run), runA: make([]float64, f.r), runP: make([]float64, f.r*f.r),
-		lA: make([]float64, f.r), lK: make([]float64, f.r)}
+		lA: make([]float64, f.r), lK: make([]float64, f.r), xs: make([]float64, f.maxH)}
 	return nil
 }
 
@@ -260,9 +261,8 @@ func (f *Filter) shiftLevel(omega, vw float64) {
 // goes back to its predicted state at the run's first step (the run was
 // kept out of it) and absorbs the run's values with learnStep correcting
 // the constant as it goes, which then continues for shiftLearn steps in
-// all. The estimate's variance, 1/Σ x̃²/F, widens the state's first
-// component (times Inflate), as the shift's variance does with
-// differencing.
+// all. The estimate's variance, 1/Σ x̃²/F, widens the forecasts' bands
+// meanwhile (shiftVariance).
 func (f *Filter) shiftReplay() {
 	gd := &f.gd
 	n := gd.runN
@@ -277,8 +277,59 @@ func (f *Filter) shiftReplay() {
 		f.learnStep(y)
 		f.fullStep(y - f.c)
 	}
-	if gd.lS > 0 {
-		f.P[0] += gd.g.Inflate / gd.lS
+}
+
+// shiftSens writes into x[k] the sensitivity of the forecast k+1 steps
+// ahead to the shift's coefficient while it is learnt (model without
+// differencing): x̃_k = 1 − Z T^k A, A the shift column's state through
+// the filter (learnStep). It returns the coefficient's variance on the
+// σ² scale times Inflate, 0 when nothing is being learnt.
+func (f *Filter) shiftSens(x []float64) float64 {
+	gd := &f.gd
+	if !gd.on || gd.learn <= 0 || f.nd != 0 || !(gd.lS+gd.lprec > 0) {
+		return 0
+	}
+	r, u := f.r, gd.lK // lK: scratch outside learnStep
+	copy(u, gd.lA)
+	for k := range x {
+		x[k] = 1 - u[0]
+		u0 := u[0]
+		for i := 0; i < r-1; i++ {
+			u[i] = u[i+1] + f.s.phi[i]*u0
+		}
+		u[r-1] = f.s.phi[r-1] * u0
+	}
+	return gd.g.Inflate * f.sigma2 / (gd.lS + gd.lprec)
+}
+
+// shiftVariance adds the shift coefficient's uncertainty to forecast
+// error variances (Forecast): Var(b̂) x̃_k² (the augmented filter's mean
+// square error, P + A S⁻¹ Aᵀ: Durbin & Koopman 2012, §6.2.2; de Jong
+// 1991).
+func (f *Filter) shiftVariance(variance []float64) {
+	if f.gd.learn <= 0 {
+		return
+	}
+	x := f.gd.xs[:len(variance)]
+	if vb := f.shiftSens(x); vb > 0 {
+		for k, v := range x {
+			variance[k] += vb * v * v
+		}
+	}
+}
+
+// shiftCov is shiftVariance for the joint covariance (ForecastJoint, h×h).
+func (f *Filter) shiftCov(cov []float64, h int) {
+	if f.gd.learn <= 0 {
+		return
+	}
+	x := f.gd.xs[:h]
+	if vb := f.shiftSens(x); vb > 0 {
+		for i := 0; i < h; i++ {
+			for j := 0; j < h; j++ {
+				cov[i*h+j] += vb * x[i] * x[j]
+			}
+		}
 	}
 }
 

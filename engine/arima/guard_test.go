@@ -169,7 +169,8 @@ func TestSetGuardRejectsBadInput(t *testing.T) {
 	}
 }
 
-// After a shift of the constant (no differencing) the state round-trips.
+// After a shift of the constant (no differencing) the state and the
+// check's state round-trip.
 func TestGuardShiftStateRoundTrip(t *testing.T) {
 	m := guardModels(t)["ar1mean"]
 	y := simulate(m, 120, 7)
@@ -179,7 +180,15 @@ func TestGuardShiftStateRoundTrip(t *testing.T) {
 	_, _, f := runGuarded(t, m, y[:110], 10, true)
 	st := f.AppendState(nil)
 	g, _ := NewFilter(m, 10)
+	if err := g.SetGuard(DefaultGuard); err != nil {
+		t.Fatal(err)
+	}
 	if err := g.SetState(st); err != nil {
+		t.Fatal(err)
+	}
+	// the check's state carries the shift's learning, whose variance is
+	// in the forecasts' while it lasts
+	if err := g.SetGuardState(f.AppendGuardState(nil)); err != nil {
 		t.Fatal(err)
 	}
 	a, va, b, vb := make([]float64, 10), make([]float64, 10), make([]float64, 10), make([]float64, 10)
@@ -279,6 +288,37 @@ func TestGuardRunStateRoundTrip(t *testing.T) {
 			if got[h] != whole[h] {
 				t.Fatalf("cut at %d: h=%d forecast %v, uninterrupted %v", cut, h+1, got[h], whole[h])
 			}
+		}
+	}
+}
+
+// While a shift's size is learnt (model without differencing) the
+// forecasts' error variances include its variance (property of the
+// augmented filter, Durbin & Koopman 2012 §6.2.2: P + A S⁻¹ Aᵀ): right
+// after the shift the long-horizon variance exceeds the clean series' by
+// Var(b̂) ≈ σ²/Σ x̃²/F, which is at least σ²/n for the n values seen since
+// the shift's start (a mean known no better than from n independent
+// values) and at most σ² (one value's worth); 100 steps later the
+// learning has ended and the variances are the clean series'.
+func TestGuardShiftWidensBands(t *testing.T) {
+	m := guardModels(t)["ar1mean"]
+	y := simulate(m, 320, 3)
+	sh := append([]float64(nil), y...)
+	for i := 200; i < len(sh); i++ {
+		sh[i] += 8
+	}
+	for _, c := range []struct{ n, after int }{{3, 3}, {5, 5}, {320 - 200, 0}} {
+		_, sc, _ := runGuarded(t, m, y[:200+c.n], 24, true)
+		_, ss, f := runGuarded(t, m, sh[:200+c.n], 24, true)
+		d := ss[23]*ss[23] - sc[23]*sc[23]
+		if c.after == 0 {
+			if d != 0 || f.gd.learn != 0 {
+				t.Errorf("%d steps after the shift: variance differs by %v (learning %d steps more)", c.n, d, f.gd.learn)
+			}
+			continue
+		}
+		if !(d >= 1/float64(c.after) && d <= 1) {
+			t.Errorf("%d values into the shift: long-horizon variance wider by %.4f σ², want within [1/%d, 1]", c.n, d, c.after)
 		}
 	}
 }
