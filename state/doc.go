@@ -84,7 +84,9 @@
 //
 //	Guard              float slice: the online check's state
 //	                   (arima.Filter.AppendGuardState: on, last verdict and
-//	                   z, the open run); empty when the check is off
+//	                   z, the open run with its values and the filter's
+//	                   state at its start, the learning of a shift's size);
+//	                   empty when the check is off
 //	Flag.Bucket        int64: the latest bucket the check took as an
 //	Flag.Verdict       byte:  additive outlier (1) or level shift (2); 0 none
 //	Flag.Z             float64: its standardised one-step error
