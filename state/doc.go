@@ -79,6 +79,9 @@
 //	  Bucket         int64
 //	  Size           float64 (model scale)
 //	  Tau            float64 (t value in the joint fit)
+//	SearchedTo       int64: the bucket the refit's outlier search covered
+//	                 to (its FittedAt; 0: no search), where the next one
+//	                 resumes
 //
 // and, after Calibration:
 //

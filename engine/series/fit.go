@@ -38,6 +38,8 @@ type FitResult struct {
 	Design   []ColumnSet
 	Outliers []OutlierFound
 	Cycles   []CycleChoice
+	// Searched: the outlier search ran to its end (found or not).
+	Searched bool
 	Err      error
 	Elapsed  time.Duration
 	End      int64
@@ -65,11 +67,11 @@ func (s *Series) FitJob() *FitJob {
 		End:      s.snap.WindowEnd,
 		Settings: s.set,
 	}
-	if ms := s.snap.Model; ms != nil && s.set.Outliers && ms.NObs >= outlierMinPoints {
+	if ms := s.snap.Model; ms != nil && s.set.Outliers && ms.SearchedTo > 0 {
 		// the last refit searched its window (detect): its effects are
 		// known, and only the buckets since are new
 		j.Known = append([]OutlierFound(nil), ms.Outliers...)
-		j.SearchedTo = ms.FittedAt
+		j.SearchedTo = ms.SearchedTo
 	}
 	// Warm starts serve the order search. A fixed order is fitted cold, so
 	// that the daemon's model at a refit point is exactly the one an
@@ -210,7 +212,11 @@ func (j *FitJob) detect(r *FitResult, X [][]float64) {
 		opt.From = int(min(max(j.SearchedTo-outlierMargin+1-first, 0), int64(len(w))))
 	}
 	d, err := outlier.Detect(w, nil, sp, opt)
-	if err != nil || len(d.Outliers) == 0 || d.Fit == nil {
+	if err != nil {
+		return
+	}
+	r.Searched = true
+	if len(d.Outliers) == 0 || d.Fit == nil {
 		return
 	}
 	full := m.Spec
@@ -308,6 +314,9 @@ func (s *Series) install(r *FitResult) error {
 		Design:   r.Design,
 		Cycles:   r.Cycles,
 		Outliers: r.Outliers,
+	}
+	if r.Searched {
+		s.snap.Model.SearchedTo = end
 	}
 	s.setModelInfo()
 	if s.cal != nil {

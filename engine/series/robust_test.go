@@ -213,7 +213,8 @@ func TestSnapshotResumeWithCyclesGuardOutliers(t *testing.T) {
 // longer searches there, beside a spike at bucket 420 found by a later
 // refit; the same last job without the known effects does not find the
 // spike at 150 (its search starts outlierMargin buckets before the last
-// refit's end).
+// refit's end); after a model whose refit did not search, the whole span
+// is searched again.
 func TestRefitOutliersResumeFromKnown(t *testing.T) {
 	const from = 29_000_017
 	y, _ := seasonalAt(from, 520, 5)
@@ -245,5 +246,18 @@ func TestRefitOutliersResumeFromKnown(t *testing.T) {
 	j.Known = nil
 	if r := j.Run(); at(r.Outliers, from+150) {
 		t.Fatalf("without the known effects the search found bucket %d, before its start", from+150)
+	}
+	// a model whose refit did not search (SearchedTo 0: a format-3 record,
+	// a failed search) is followed by a search of the whole span
+	snap := *s.Snapshot()
+	m := *snap.Model
+	m.SearchedTo, snap.Model = 0, &m
+	s2, err := Restore(&snap, set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	j2 := s2.FitJob()
+	if r := j2.Run(); j2.SearchedTo != 0 || !at(r.Outliers, from+150) || !r.Searched {
+		t.Fatalf("after a model without a search: job searched to %d, found %+v; want a full search finding bucket %d", j2.SearchedTo, r.Outliers, from+150)
 	}
 }
