@@ -198,7 +198,9 @@ type Limits struct {
 	MaxPayloadBytes int
 	// MaxBatch is the most elements in one JSON array payload. Zero: 1000.
 	MaxBatch int
-	// MaxWindow is the largest Window a series entry may ask for. Zero: 20000.
+	// MaxWindow is the largest Window a series entry may ask for. Zero: 50400
+	// (five weeks at one minute: a weekly cycle with room for the automatic
+	// choice's route holdout, which needs more than three longest cycles).
 	MaxWindow int
 	// MaxFuture: observations stamped further ahead of their arrival time
 	// are rejected (bad_time). Zero: 24h.
@@ -473,7 +475,7 @@ func DefaultLimits() Limits {
 		MaxSeries:       10000,
 		MaxPayloadBytes: 65536,
 		MaxBatch:        1000,
-		MaxWindow:       20000,
+		MaxWindow:       50400,
 		MaxFuture:       24 * time.Hour,
 		MaxPast:         8760 * time.Hour,
 	}

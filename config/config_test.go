@@ -312,7 +312,7 @@ func TestValidationRules(t *testing.T) {
 		{"too many levels", "series:\n  - levels: [1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11]\n", 2, "series[0].levels", "more than 10"},
 		{"level not a number", "series:\n  - levels: [80, high]\n", 2, "series[0].levels[1]", "expected a number"},
 		{"window below min_points", "series:\n  - {window: 40, min_points: 50}\n", 2, "series[0].window", "less than min_points"},
-		{"window above max", "series:\n  - window: 20001\n", 2, "series[0].window", "more than limits.max_window"},
+		{"window above max", "series:\n  - window: 50401\n", 2, "series[0].window", "more than limits.max_window"},
 		{"min_points small", "series:\n  - min_points: 9\n", 2, "series[0].min_points", "less than 10"},
 		{"refit_every negative", "series:\n  - refit_every: -1\n", 2, "series[0].refit_every", "less than 1"},
 		{"model syntax", "series:\n  - model: \"ARMA(1,1)\"\n", 2, "series[0].model", `is not auto, "p,d,q" or "p,d,q x P,D,Q"`},

@@ -60,28 +60,36 @@
 //
 //	NX               int64: regression columns (the last NX Params are β)
 //	column sets      uint32 count, then per set, in β's order:
-//	  Kind           byte: 1 Fourier pairs of cycles, 2 outlier effects
-//	                 (series.SetFourier, SetEffects; a new regressor kind
-//	                 is a new byte)
+//	  Kind           byte: 1 Fourier pairs of cycles, 2 outlier effects,
+//	                 3 seasonal profiles of cycles (series.SetFourier,
+//	                 SetEffects, SetProfile; a new regressor kind is a new
+//	                 byte)
 //	  Values         float slice: Fourier: the step in seconds, then per
 //	                 cycle its length in seconds and its pairs K; effects:
 //	                 δ of a temporary change, then per effect its kind
-//	                 (0 AO, 1 LS, 2 TC) and bucket index
+//	                 (0 AO, 1 LS, 2 TC) and bucket index; profile: per
+//	                 cycle its length in seconds, its number of samples M
+//	                 and the M samples of its shape (sample k at phase k/M)
 //	cycles           uint32 count, then per cycle of the settings:
 //	  Seconds        float64
-//	  Terms          string: "arima", "fourier" or "none"
+//	  Terms          string: "arima", "fourier", "profile" or "none"
 //	  K              int64: Fourier pairs
 //	outliers         uint32 count, then per effect found at the refit:
 //	  Kind           byte (0 AO, 1 LS, 2 TC)
 //	  Bucket         int64
 //	  Size           float64 (model scale)
 //	  Tau            float64 (t value in the joint fit)
+//	SearchedTo       int64: the bucket the refit's outlier search covered
+//	                 to (its FittedAt; 0: no search), where the next one
+//	                 resumes
 //
 // and, after Calibration:
 //
 //	Guard              float slice: the online check's state
 //	                   (arima.Filter.AppendGuardState: on, last verdict and
-//	                   z, the open run); empty when the check is off
+//	                   z, the open run with its values and the filter's
+//	                   state at its start, the learning of a shift's size);
+//	                   empty when the check is off
 //	Flag.Bucket        int64: the latest bucket the check took as an
 //	Flag.Verdict       byte:  additive outlier (1) or level shift (2); 0 none
 //	Flag.Z             float64: its standardised one-step error

@@ -161,6 +161,7 @@ func randomSnapshot(r *rand.Rand, maxWindow int) *series.Snapshot {
 		for range r.IntN(4) {
 			m.Outliers = append(m.Outliers, series.OutlierFound{Kind: uint8(r.IntN(3)), Bucket: r.Int64(), Size: randomFloat(r), Tau: randomFloat(r)})
 		}
+		m.SearchedTo = r.Int64()
 	}
 	return s
 }

@@ -1,6 +1,7 @@
 package state
 
 import (
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -111,6 +112,64 @@ func TestRecordRestartExactWithCyclesGuardOutliers(t *testing.T) {
 	set := series.Settings{Kind: "gauge", StepSeconds: step, Horizon: 30, Levels: []float64{80, 95},
 		Window: 600, MinPoints: 300, RefitEvery: 70, Model: "auto", Transform: "none",
 		Seasons: []float64{cycle}, Guard: true, Outliers: true, Fingerprint: "cycles"} // calibration off: its pending forecasts are not in the record (series.Snapshot)
+	restartExact(t, set, y, from, []int{332, 362, 371, 441}, 362, func(m *series.ModelSnapshot) string {
+		if m.NX == 0 || len(m.Cycles) != 1 || len(m.Outliers) == 0 || len(m.Design) != 2 {
+			return fmt.Sprintf("last model: %d regressors, cycles %+v, outliers %+v, %d column sets; want Fourier pairs and outliers", m.NX, m.Cycles, m.Outliers, len(m.Design))
+		}
+		return ""
+	})
+}
+
+// The same with two cycles carried by the profile route (auto.Select's
+// holdout picks it on these cornered seasonal shapes): the record's
+// profile column set (kind 3: cycles and shapes) with the refit-time
+// outlier effects after it, the check's state, and warm refits that keep
+// the route; a restart continues bit for bit.
+func TestRecordRestartExactWithProfileGuardOutliers(t *testing.T) {
+	const step, from = 60, 29_000_017
+	const short, long = 24 * step, 168 * step
+	r := rand.New(rand.NewPCG(11, 7))
+	y := make([]float64, 1000)
+	u := 0.0
+	for i := range y {
+		tt := float64((from + int64(i)) * step)
+		m := 50 + 6*math.Mod(tt, short)/short
+		if math.Mod(tt, long)/long < 40.0/168 {
+			m -= 8
+		}
+		u = 0.6*u + 0.5*r.NormFloat64()
+		y[i] = m + u
+	}
+	y[500] += 8 // a spike inside the first fit's window
+	y[850] += 9 // one seen by the check
+	for i := 900; i < len(y); i++ {
+		y[i] += 4 // a level shift
+	}
+	set := series.Settings{Kind: "gauge", StepSeconds: step, Horizon: 30, Levels: []float64{80, 95},
+		Window: 800, MinPoints: 800, RefitEvery: 60, Model: "auto", Transform: "none",
+		Seasons: []float64{short, long}, Guard: true, Outliers: true, Fingerprint: "profile"}
+	restartExact(t, set, y, from, []int{851, 902, 905, 961}, 902, func(m *series.ModelSnapshot) string {
+		if len(m.Design) != 2 || m.Design[0].Kind != series.SetProfile || m.Design[1].Kind != series.SetEffects || len(m.Outliers) == 0 {
+			return fmt.Sprintf("last model: design %+v, outliers %+v; want the profile column set, then outlier effects", m.Design, m.Outliers)
+		}
+		for _, c := range m.Cycles {
+			if c.Terms != "profile" {
+				return fmt.Sprintf("cycles %+v: want the profile route kept at the warm refits", m.Cycles)
+			}
+		}
+		return ""
+	})
+}
+
+// restartExact drives y (one value a bucket from bucket from) through a
+// series of the settings, once whole and, for each cut, up to the cut,
+// through Encode and Decode (a format-4 record) and Restore, then on: the
+// forecasts must be equal bit for bit. check looks at the whole run's
+// last model ("" when it is what the test needs). The record cut at
+// runCut must hold an open run of the check.
+func restartExact(t *testing.T, set series.Settings, y []float64, from int64, cuts []int, runCut int, check func(*series.ModelSnapshot) string) {
+	t.Helper()
+	step := set.StepSeconds
 	drive := func(s *series.Series, from0, to int) []series.Forecast {
 		var out []series.Forecast
 		for i := from0; i < to; i++ {
@@ -140,11 +199,10 @@ func TestRecordRestartExactWithCyclesGuardOutliers(t *testing.T) {
 		t.Fatal(err)
 	}
 	want := drive(whole, 0, len(y))
-	m := whole.Snapshot().Model
-	if m.NX == 0 || len(m.Cycles) != 1 || len(m.Outliers) == 0 || len(m.Design) != 2 {
-		t.Fatalf("last model: %d regressors, cycles %+v, outliers %+v, %d column sets; want Fourier pairs and outliers", m.NX, m.Cycles, m.Outliers, len(m.Design))
+	if msg := check(whole.Snapshot().Model); msg != "" {
+		t.Fatal(msg)
 	}
-	for _, cut := range []int{332, 362, 371, 441} {
+	for _, cut := range cuts {
 		first, _ := series.New("x", set)
 		a := drive(first, 0, cut)
 		rec := Encode(nil, first.Snapshot())
@@ -155,7 +213,7 @@ func TestRecordRestartExactWithCyclesGuardOutliers(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if cut == 362 && (len(snap.Guard) == 0 || snap.Guard[3] == 0) {
+		if cut == runCut && (len(snap.Guard) == 0 || snap.Guard[3] == 0) {
 			t.Errorf("cut %d: no open run in the record's guard state %v", cut, snap.Guard)
 		}
 		second, err := series.Restore(snap, set)

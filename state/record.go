@@ -51,7 +51,7 @@ const (
 
 	// version 4: the model's regression design, cycles and outliers, and
 	// the online check's state and last flag
-	fixedModel4  = 8 + 3*4                   // NX, three counts
+	fixedModel4  = 8 + 3*4 + 8               // NX, three counts, SearchedTo
 	columnMinLen = 1 + sliceHead             // Kind, empty Values
 	cycleMinLen  = 8 + strHead + 8           // Seconds, empty Terms, K
 	outlierLen   = 1 + 8 + 8 + 8             // Kind, Bucket, Size, Tau
@@ -165,6 +165,7 @@ func Encode(dst []byte, s *series.Snapshot) []byte {
 			dst = appendFloat(dst, o.Size)
 			dst = appendFloat(dst, o.Tau)
 		}
+		dst = le.AppendUint64(dst, uint64(m.SearchedTo))
 	}
 
 	dst = le.AppendUint64(dst, s.RefitFailures)
@@ -496,6 +497,7 @@ func decodeModel4(r *reader, m *series.ModelSnapshot, size int) {
 			o.Tau = r.f64("outlier tau")
 		}
 	}
+	m.SearchedTo = r.i64("outlier search end")
 }
 
 // migrateSpec sets the model's orders and period from the spec string of a

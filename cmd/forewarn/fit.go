@@ -38,8 +38,15 @@ flags (before or after FILE):
                        of steps) or whole numbers of steps such as 12. With
                        --model auto a single short whole cycle gets seasonal
                        ARIMA terms, otherwise each cycle gets K sin/cos pairs
-                       (K chosen by AICc, up to 10) or none. A fixed
-                       seasonal model uses one whole cycle
+                       (K chosen by AICc, up to 10) or none. When a cycle
+                       would take sin/cos pairs and the series is complete
+                       and longer than three of its longest cycles, auto
+                       also fits a seasonal profile (each cycle's last
+                       decomposed shape as one term, with non-seasonal
+                       ARIMA errors) and keeps whichever forecasts the last
+                       longest cycle better; such cycles show terms
+                       "profile". A fixed seasonal model uses one whole
+                       cycle
   --step DURATION      the spacing of the rows (instead of the time column)
   --constant C         auto (a mean when d+D = 0, else none; the search tries
                        both), none, mean (needs d+D = 0) or drift (d+D = 1)

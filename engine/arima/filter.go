@@ -608,6 +608,7 @@ func (f *Filter) Forecast(mean, variance []float64) {
 		variance[k] = f.sigma2 * (quad(P, g, mm) + f.psi2[k])
 		f.rowT(g)
 	}
+	f.shiftVariance(variance)
 }
 
 // ForecastJoint writes the forecasts (as Forecast) and the joint covariance
@@ -655,6 +656,7 @@ func (f *Filter) ForecastJoint(mean, cov []float64) {
 			cov[j*h+i] = v * f.sigma2
 		}
 	}
+	f.shiftCov(cov, h)
 }
 
 // forecastMean propagates x̂ = (a, L) (or the augmented state) h steps.

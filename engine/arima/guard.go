@@ -33,14 +33,19 @@ import (
 //     is read as a change of level (a step intervention, Box & Tiao
 //     1975; West & Harrison 1997, ch. 11, intervention by a shift of the
 //     level with an increased prior variance; Harvey 1989, §7.6). At the
-//     Run-th such step the level moves by ω̂, the mean of the run's
-//     prediction errors, and its uncertainty widens by the variance of
-//     that estimate, Inflate · σ² F_t / Run. With differencing, every level
-//     in the state moves by ω̂ (the differences, and so the ARMA part, are
-//     unchanged) and the common shift's variance is added to the levels'
-//     covariance; without differencing the constant (the mean of the
-//     series) moves by ω̂ and the variance is added to the ARMA state's
-//     first component. The current observation is then absorbed normally.
+//     Run-th such step the level moves. With differencing it moves by ω̂,
+//     the mean of the run's prediction errors: every level in the state
+//     moves by ω̂ (the differences, and so the ARMA part, are unchanged)
+//     and the estimate's variance, Inflate · σ² F_t / Run, is added to the
+//     levels' covariance. Without differencing the constant (the mean of
+//     the series) carries the shift as a regression coefficient on a step
+//     from the run's first value, estimated by generalised least squares
+//     from the run itself (Box & Tiao 1975's intervention estimate): the
+//     filter goes back to its state before the run, absorbs the run's
+//     values while the coefficient is re-estimated at each (shiftReplay,
+//     learnStep); the coefficient goes on learning for 100 steps, and
+//     while it does the forecasts' error variances include its variance
+//     (times Inflate), as those of a regression coefficient do. The current observation is then absorbed normally.
 //
 // The defaults (DefaultGuard) are Spike 4.5, Shift 3 and Run 3 (common
 // practice: a 4.5σ rule keeps the false-alarm rate of a Gaussian series
@@ -85,10 +90,15 @@ type guardState struct {
 	z       float64   // last standardised error (NaN when none)
 	runV    []float64 // prediction errors of the current run
 	runS    []float64 // scratch for their median
-	runN    int
-	runSign float64
-	runF    float64 // F of the run's first step
-	runZ    float64 // Σ of the run's errors on that scale
+	// Without differencing: the run's values (regressors removed) and
+	// the filter's predicted state at its first step (a and P), from
+	// which a shift's size is estimated by replaying the run (shiftReplay).
+	runY       []float64
+	runA, runP []float64
+	runN       int
+	runSign    float64
+	runF       float64 // F of the run's first step
+	runZ       float64 // Σ of the run's errors on that scale
 	// shift is the sum of the level shifts applied to the constant of a
 	// model without differencing (f.c = the model's constant + shift); it
 	// is part of the saved state (AppendState).
@@ -103,6 +113,7 @@ type guardState struct {
 	learn             int
 	lS, ls, lb, lprec float64
 	lA, lK            []float64
+	xs                []float64 // scratch of the forecasts' sensitivity to it
 }
 
 // shiftLearn is the number of steps after a level shift in a model without
@@ -122,7 +133,8 @@ func (f *Filter) SetGuard(g Guard) error {
 		g.Inflate = 1
 	}
 	f.gd = guardState{on: true, g: g, z: math.NaN(), runV: make([]float64, g.Run), runS: make([]float64, g.Run), shift: f.gd.shift, c0: f.c - f.gd.shift,
-		lA: make([]float64, f.r), lK: make([]float64, f.r)}
+		runY: make([]float64, g.Run), runA: make([]float64, f.r), runP: make([]float64, f.r*f.r),
+		lA: make([]float64, f.r), lK: make([]float64, f.r), xs: make([]float64, f.maxH)}
 	return nil
 }
 
@@ -178,6 +190,7 @@ func (f *Filter) guardJudge(y float64) float64 {
 		if math.Copysign(1, zr) == gd.runSign && math.Abs(zr) > gd.g.Shift/2 && math.Abs(gd.runZ+zr) > gd.g.Shift*float64(gd.runN+1) {
 			gd.runZ += zr
 			gd.runV[gd.runN] = v
+			gd.runY[gd.runN] = y
 			gd.runN++
 			if gd.runN < gd.g.Run {
 				gd.verdict = VerdictOutlier
@@ -187,6 +200,12 @@ func (f *Filter) guardJudge(y float64) float64 {
 				// one large value and ordinary ones: a spike, not a step
 				gd.runN = 0
 				goto fresh
+			}
+			if f.nd == 0 {
+				f.shiftReplay()
+				gd.runN = 0
+				gd.verdict = VerdictShift
+				return y
 			}
 			omega := 0.0
 			for _, e := range gd.runV[:gd.runN] {
@@ -205,27 +224,19 @@ fresh:
 		return y
 	}
 	gd.runN, gd.runF, gd.runSign, gd.runZ = 1, F, math.Copysign(1, z), z
-	gd.runV[0] = v
+	gd.runV[0], gd.runY[0] = v, y
+	if f.nd == 0 {
+		copy(gd.runA, f.a)
+		copy(gd.runP, f.P)
+	}
 	gd.verdict = VerdictOutlier
 	return math.NaN()
 }
 
-// shiftLevel moves the level by omega with variance vw (unit-σ² scale).
+// shiftLevel moves the levels of a model with differencing by omega with
+// variance vw (unit-σ² scale).
 func (f *Filter) shiftLevel(omega, vw float64) {
 	r, nd := f.r, f.nd
-	if nd == 0 {
-		f.gd.shift += omega
-		f.c = f.gd.c0 + f.gd.shift // as SetState restores it, bit for bit
-		f.P[0] += vw
-		f.mode = modeFull
-		// the constant goes on learning the shift's size (learnStep)
-		gd := &f.gd
-		gd.learn, gd.lS, gd.ls, gd.lb, gd.lprec = shiftLearn, 0, 0, 0, 1/vw
-		for i := range gd.lA {
-			gd.lA[i] = 0
-		}
-		return
-	}
 	if f.mode != modeAug {
 		f.enterAug()
 	}
@@ -239,13 +250,97 @@ func (f *Filter) shiftLevel(omega, vw float64) {
 	}
 }
 
+// shiftReplay is the level shift of a model without differencing,
+// declared at the last step of the run (whose value the caller absorbs
+// next): the shift's size is a regression coefficient on a step column
+// from the run's first step on, estimated by generalised least squares
+// from the run's own values, not from a prior (intervention analysis: Box
+// & Tiao 1975, J. Am. Stat. Assoc. 70(349), the step's coefficient
+// estimated given the model; as a regression coefficient in the augmented
+// Kalman filter, de Jong 1991; Durbin & Koopman 2012, §6.2). The filter
+// goes back to its predicted state at the run's first step (the run was
+// kept out of it) and absorbs the run's values with learnStep correcting
+// the constant as it goes, which then continues for shiftLearn steps in
+// all. The estimate's variance, 1/Σ x̃²/F, widens the forecasts' bands
+// meanwhile (shiftVariance).
+func (f *Filter) shiftReplay() {
+	gd := &f.gd
+	n := gd.runN
+	copy(f.a, gd.runA)
+	copy(f.P, gd.runP)
+	f.mode = modeFull
+	gd.learn, gd.lS, gd.ls, gd.lb, gd.lprec = shiftLearn, 0, 0, 0, 0
+	for i := range gd.lA {
+		gd.lA[i] = 0
+	}
+	for _, y := range gd.runY[:n-1] {
+		f.learnStep(y)
+		f.fullStep(y - f.c)
+	}
+}
+
+// shiftSens writes into x[k] the sensitivity of the forecast k+1 steps
+// ahead to the shift's coefficient while it is learnt (model without
+// differencing): x̃_k = 1 − Z T^k A, A the shift column's state through
+// the filter (learnStep). It returns the coefficient's variance on the
+// σ² scale times Inflate, 0 when nothing is being learnt.
+func (f *Filter) shiftSens(x []float64) float64 {
+	gd := &f.gd
+	if !gd.on || gd.learn <= 0 || f.nd != 0 || !(gd.lS+gd.lprec > 0) {
+		return 0
+	}
+	r, u := f.r, gd.lK // lK: scratch outside learnStep
+	copy(u, gd.lA)
+	for k := range x {
+		x[k] = 1 - u[0]
+		u0 := u[0]
+		for i := 0; i < r-1; i++ {
+			u[i] = u[i+1] + f.s.phi[i]*u0
+		}
+		u[r-1] = f.s.phi[r-1] * u0
+	}
+	return gd.g.Inflate * f.sigma2 / (gd.lS + gd.lprec)
+}
+
+// shiftVariance adds the shift coefficient's uncertainty to forecast
+// error variances (Forecast): Var(b̂) x̃_k² (the augmented filter's mean
+// square error, P + A S⁻¹ Aᵀ: Durbin & Koopman 2012, §6.2.2; de Jong
+// 1991).
+func (f *Filter) shiftVariance(variance []float64) {
+	if f.gd.learn <= 0 {
+		return
+	}
+	x := f.gd.xs[:len(variance)]
+	if vb := f.shiftSens(x); vb > 0 {
+		for k, v := range x {
+			variance[k] += vb * v * v
+		}
+	}
+}
+
+// shiftCov is shiftVariance for the joint covariance (ForecastJoint, h×h).
+func (f *Filter) shiftCov(cov []float64, h int) {
+	if f.gd.learn <= 0 {
+		return
+	}
+	x := f.gd.xs[:h]
+	if vb := f.shiftSens(x); vb > 0 {
+		for i := 0; i < h; i++ {
+			for j := 0; j < h; j++ {
+				cov[i*h+j] += vb * x[i] * x[j]
+			}
+		}
+	}
+}
+
 // GuardStateLen is the length of the state AppendGuardState writes for a
 // check with run length run on a filter of ARMA state dimension r.
-func GuardStateLen(run, r int) int { return 7 + run + 5 + r }
+func GuardStateLen(run, r int) int { return 7 + 2*run + r + r*r + 5 + r }
 
 // AppendGuardState appends the check's state to dst: on, the last verdict
-// and z, the open run (its length, sign, first F, sum of z and its Run
-// prediction errors), and the learning of a shift's size (steps left, the
+// and z, the open run (its length, sign, first F, sum of z, its Run
+// prediction errors and values, and the filter's predicted state a and P
+// at its first step), and the learning of a shift's size (steps left, the
 // two sums, the correction, the prior precision and the column's state). With the filter's own state (AppendState, which
 // carries the level shifts of the constant) it lets a restored filter
 // with the same Guard continue bit for bit. A filter without the check
@@ -257,6 +352,9 @@ func (f *Filter) AppendGuardState(dst []float64) []float64 {
 	}
 	dst = append(dst, 1, float64(gd.verdict), gd.z, float64(gd.runN), gd.runSign, gd.runF, gd.runZ)
 	dst = append(dst, gd.runV...)
+	dst = append(dst, gd.runY...)
+	dst = append(dst, gd.runA...)
+	dst = append(dst, gd.runP...)
 	dst = append(dst, float64(gd.learn), gd.lS, gd.ls, gd.lb, gd.lprec)
 	return append(dst, gd.lA...)
 }
@@ -273,13 +371,18 @@ func (f *Filter) SetGuardState(s []float64) error {
 	if float64(v) != s[1] || v < VerdictNone || v > VerdictShift || float64(n) != s[3] || n < 0 || n >= gd.g.Run {
 		return fmt.Errorf("arima: set guard state: %w: verdict %v, run length %v", ErrState, s[1], s[3])
 	}
-	i := 7 + gd.g.Run
+	i := 7 + 2*gd.g.Run + f.r + f.r*f.r
 	learn := int(s[i])
 	if float64(learn) != s[i] || learn < 0 || learn > shiftLearn {
 		return fmt.Errorf("arima: set guard state: %w: %v learning steps", ErrState, s[i])
 	}
 	gd.verdict, gd.z, gd.runN, gd.runSign, gd.runF, gd.runZ = v, s[2], n, s[4], s[5], s[6]
-	copy(gd.runV, s[7:i])
+	j := 7 + gd.g.Run
+	copy(gd.runV, s[7:j])
+	copy(gd.runY, s[j:j+gd.g.Run])
+	j += gd.g.Run
+	copy(gd.runA, s[j:j+f.r])
+	copy(gd.runP, s[j+f.r:i])
 	gd.learn, gd.lS, gd.ls, gd.lb, gd.lprec = learn, s[i+1], s[i+2], s[i+3], s[i+4]
 	copy(gd.lA, s[i+5:])
 	return nil

@@ -86,9 +86,12 @@ func TestGuardSpike(t *testing.T) {
 			if g := maxGap(ms, mh, se, 0); g > 1e-9 {
 				t.Fatalf("%s seed %d: the flagged spike moved the forecasts by %.3gσ against a missing bucket", name, seed, g)
 			}
+			// without the check, against the clean series without it (a
+			// false shift in the checked clean series would blur this)
 			mp, _, _ := runGuarded(t, m, spiky, h, false)
+			mu, su, _ := runGuarded(t, m, clean, h, false)
 			gaps = append(gaps, maxGap(ms, mc, se, 0))
-			minRaw = math.Min(minRaw, maxGap(mp, mc, se, 0))
+			minRaw = math.Min(minRaw, maxGap(mp, mu, su, 0))
 		}
 		sort.Float64s(gaps)
 		below := sort.SearchFloat64s(gaps, 1)
@@ -106,9 +109,13 @@ func TestGuardSpike(t *testing.T) {
 // A level shift of 5σ (property test): the forecasts (h = 1..24) come
 // within 1σ_h of the clean series' forecasts plus the shift after at most 5
 // buckets in every one of 200 seeds for the differenced models; the check
-// reports the shift. For the stationary AR(1) with a mean, whose constant
-// moves by an estimate from the run alone, the fraction is logged and must
-// be at least 75 %.
+// reports the shift. For the stationary AR(1) with a mean the fraction is
+// logged and must be at least 85 %: its long-horizon forecasts are the
+// shifted mean, which five values pin down only to about 0.8σ against
+// σ_h = 1.25σ (GLS of a mean under AR(1) with φ = 0.6), so that even the
+// efficient estimate (the run replayed, Box & Tiao 1975) misses in about
+// one seed in ten; the run's mean with a prior (the rule before) reached
+// 82 %.
 func TestGuardLevelShift(t *testing.T) {
 	const n, T, h, reps = 240, 200, 24, 200
 	for _, name := range []string{"airline12", "arima111", "ar1mean"} {
@@ -140,7 +147,7 @@ func TestGuardLevelShift(t *testing.T) {
 		t.Logf("%s: 5σ level shift followed within 5 buckets in %d/%d seeds (worst k %d), shift verdicts %d", name, within, reps, worst, shifts)
 		want := reps
 		if name == "ar1mean" {
-			want = reps * 3 / 4
+			want = reps * 85 / 100
 		}
 		if within < want {
 			t.Errorf("%s: followed within 5 buckets in %d/%d seeds, want ≥ %d", name, within, reps, want)
@@ -162,7 +169,8 @@ func TestSetGuardRejectsBadInput(t *testing.T) {
 	}
 }
 
-// After a shift of the constant (no differencing) the state round-trips.
+// After a shift of the constant (no differencing) the state and the
+// check's state round-trip.
 func TestGuardShiftStateRoundTrip(t *testing.T) {
 	m := guardModels(t)["ar1mean"]
 	y := simulate(m, 120, 7)
@@ -172,7 +180,15 @@ func TestGuardShiftStateRoundTrip(t *testing.T) {
 	_, _, f := runGuarded(t, m, y[:110], 10, true)
 	st := f.AppendState(nil)
 	g, _ := NewFilter(m, 10)
+	if err := g.SetGuard(DefaultGuard); err != nil {
+		t.Fatal(err)
+	}
 	if err := g.SetState(st); err != nil {
+		t.Fatal(err)
+	}
+	// the check's state carries the shift's learning, whose variance is
+	// in the forecasts' while it lasts
+	if err := g.SetGuardState(f.AppendGuardState(nil)); err != nil {
 		t.Fatal(err)
 	}
 	a, va, b, vb := make([]float64, 10), make([]float64, 10), make([]float64, 10), make([]float64, 10)
@@ -235,5 +251,74 @@ func TestGuardStepAllocs(t *testing.T) {
 	})
 	if allocs != 0 {
 		t.Errorf("guarded step allocates %v times per call", allocs)
+	}
+}
+
+// A filter of a model without differencing saved and restored (AppendState
+// and AppendGuardState) at every step around a level shift, before, inside
+// the run, at the shift and while its size is learnt, continues bit for
+// bit as the uninterrupted one (property of the saved state: the run's
+// values and the state at its first step are part of it).
+func TestGuardRunStateRoundTrip(t *testing.T) {
+	m := guardModels(t)["ar1mean"]
+	y := simulate(m, 140, 7)
+	for i := 100; i < 140; i++ {
+		y[i] += 8
+	}
+	whole, _, wf := runGuarded(t, m, y, 10, true)
+	if wf.gd.shift == 0 {
+		t.Fatal("no shift of the constant was applied")
+	}
+	for cut := 99; cut <= 110; cut++ {
+		_, _, f := runGuarded(t, m, y[:cut], 10, true)
+		g, _ := NewFilter(m, 10)
+		if err := g.SetGuard(DefaultGuard); err != nil {
+			t.Fatal(err)
+		}
+		if err := g.SetState(f.AppendState(nil)); err != nil {
+			t.Fatal(err)
+		}
+		if err := g.SetGuardState(f.AppendGuardState(nil)); err != nil {
+			t.Fatal(err)
+		}
+		g.Steps(y[cut:])
+		got, v := make([]float64, 10), make([]float64, 10)
+		g.Forecast(got, v)
+		for h := range got {
+			if got[h] != whole[h] {
+				t.Fatalf("cut at %d: h=%d forecast %v, uninterrupted %v", cut, h+1, got[h], whole[h])
+			}
+		}
+	}
+}
+
+// While a shift's size is learnt (model without differencing) the
+// forecasts' error variances include its variance (property of the
+// augmented filter, Durbin & Koopman 2012 §6.2.2: P + A S⁻¹ Aᵀ): right
+// after the shift the long-horizon variance exceeds the clean series' by
+// Var(b̂) ≈ σ²/Σ x̃²/F, which is at least σ²/n for the n values seen since
+// the shift's start (a mean known no better than from n independent
+// values) and at most σ² (one value's worth); 100 steps later the
+// learning has ended and the variances are the clean series'.
+func TestGuardShiftWidensBands(t *testing.T) {
+	m := guardModels(t)["ar1mean"]
+	y := simulate(m, 320, 3)
+	sh := append([]float64(nil), y...)
+	for i := 200; i < len(sh); i++ {
+		sh[i] += 8
+	}
+	for _, c := range []struct{ n, after int }{{3, 3}, {5, 5}, {320 - 200, 0}} {
+		_, sc, _ := runGuarded(t, m, y[:200+c.n], 24, true)
+		_, ss, f := runGuarded(t, m, sh[:200+c.n], 24, true)
+		d := ss[23]*ss[23] - sc[23]*sc[23]
+		if c.after == 0 {
+			if d != 0 || f.gd.learn != 0 {
+				t.Errorf("%d steps after the shift: variance differs by %v (learning %d steps more)", c.n, d, f.gd.learn)
+			}
+			continue
+		}
+		if !(d >= 1/float64(c.after) && d <= 1) {
+			t.Errorf("%d values into the shift: long-horizon variance wider by %.4f σ², want within [1/%d, 1]", c.n, d, c.after)
+		}
 	}
 }

@@ -65,6 +65,15 @@ type Options struct {
 	Step  time.Duration
 	// Fit is passed to arima.FitX.
 	Fit *arima.FitOptions
+	// Known are effects found before (Kind and Index are used): the
+	// procedure starts with them in the model, as if its own earlier
+	// rounds had found them, re-estimates them jointly with what it finds
+	// and drops them when they no longer pass (Chen & Liu 1993, stage
+	// II); nil means none.
+	Known []Outlier
+	// From is the first index searched for new effects (0: all); the
+	// model is still fitted to the whole series.
+	From int
 }
 
 // Result is the outcome of Detect.
@@ -448,6 +457,18 @@ func Detect(y []float64, X [][]float64, spec arima.Spec, opt *Options) (*Result,
 
 	var found []candidate
 	taken := make(map[int]bool)
+	if opt.From < 0 || opt.From > n {
+		return nil, fmt.Errorf("%w: search from index %d of %d values", ErrInput, opt.From, n)
+	}
+	for _, o := range opt.Known {
+		if o.Kind < AO || o.Kind > TC || o.Index < 0 || o.Index >= n || taken[o.Index] {
+			return nil, fmt.Errorf("%w: known effect %v at index %d of %d values", ErrInput, o.Kind, o.Index, n)
+		}
+		if len(found) < maxOut {
+			found = append(found, candidate{o.Kind, o.Index})
+			taken[o.Index] = true
+		}
+	}
 	fit := func(cands []candidate) (*arima.Result, [][]float64, error) {
 		cols := append([][]float64(nil), X...)
 		for _, c := range cands {
@@ -458,7 +479,13 @@ func Detect(y []float64, X [][]float64, spec arima.Spec, opt *Options) (*Result,
 		r, err := arima.FitX(y, cols, sp, opt.Fit)
 		return r, cols, err
 	}
-	res, cols, err := fit(nil)
+	res, cols, err := fit(found)
+	if err != nil && len(found) > 0 {
+		// the known effects do not fit together now: start without them
+		found = nil
+		clear(taken)
+		res, cols, err = fit(nil)
+	}
 	if err != nil {
 		return nil, fmt.Errorf("outlier: fit without effects: %w", err)
 	}
@@ -507,7 +534,7 @@ func Detect(y []float64, X [][]float64, spec arima.Spec, opt *Options) (*Result,
 				if k != AO && lo < 1 {
 					lo = 1 // a step from the first value is the constant
 				}
-				for T := lo; T < n; T++ {
+				for T := max(lo, opt.From); T < n; T++ {
 					if taken[T] || math.IsNaN(y[T]) {
 						continue
 					}

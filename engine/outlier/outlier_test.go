@@ -234,12 +234,77 @@ func simulate(m *arima.Model, n int, seed uint64) []float64 {
 // Bad input gives a clear error.
 func TestDetectRejectsBadInput(t *testing.T) {
 	y := refdata.Dataset(t, "Nile")
-	for _, o := range []Options{{Critical: -1}, {Delta: 1.5}, {Kinds: []Kind{7}}} {
+	for _, o := range []Options{{Critical: -1}, {Delta: 1.5}, {Kinds: []Kind{7}}, {From: -1}, {From: len(y) + 1},
+		{Known: []Outlier{{Kind: LS, Index: len(y)}}}, {Known: []Outlier{{Kind: 9, Index: 3}}},
+		{Known: []Outlier{{Kind: AO, Index: 3}, {Kind: LS, Index: 3}}}} {
 		if _, err := Detect(y, nil, arima.Spec{Mean: true}, &o); err == nil {
 			t.Errorf("%+v accepted", o)
 		}
 	}
 	if _, err := Detect(y, nil, arima.Spec{Mean: true, NX: 1}, nil); err == nil {
 		t.Error("NX without columns accepted")
+	}
+}
+
+// The search resumed from known effects (Options.Known, From; property
+// test on seeded simulations with known truth): with the effects a full
+// search found in the first part of a series given as known and the search
+// limited to the rest, the effects of the whole series are found as the
+// full search finds them (same kinds and indices, coefficients within
+// 1e-6), in at least 90 % of 40 seeds; a known effect that is really
+// there is kept; without Known and with From after it, it is not found.
+func TestDetectResumesFromKnown(t *testing.T) {
+	spec := arima.Spec{P: 1, D: 1, Q: 1}
+	m := model(t, spec, []float64{0.5, -0.3})
+	same, seeds := 0, 40
+	for seed := uint64(1); seed <= uint64(seeds); seed++ {
+		y := simulate(m, 300, seed)
+		ao, ls := Column(AO, 80, 300, Delta), Column(LS, 260, 300, Delta)
+		for i := range y {
+			y[i] += 6*ao[i] + 5*ls[i]
+		}
+		full, err := Detect(y, nil, spec, &Options{MaxIter: 2})
+		if err != nil {
+			t.Fatal(err)
+		}
+		early, err := Detect(y[:240], nil, spec, &Options{MaxIter: 2})
+		if err != nil {
+			t.Fatal(err)
+		}
+		resumed, err := Detect(y, nil, spec, &Options{MaxIter: 2, Known: early.Outliers, From: 140})
+		if err != nil {
+			t.Fatal(err)
+		}
+		hasAO := false
+		for _, o := range resumed.Outliers {
+			hasAO = hasAO || (o.Kind == AO && o.Index == 80)
+		}
+		if !hasAO {
+			t.Errorf("seed %d: the known AO at 80 was dropped (resumed %v)", seed, resumed.Outliers)
+		}
+		blind, err := Detect(y, nil, spec, &Options{MaxIter: 2, From: 140})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, o := range blind.Outliers {
+			if o.Index < 140 {
+				t.Fatalf("seed %d: %v found before From", seed, o)
+			}
+		}
+		if len(full.Outliers) != len(resumed.Outliers) {
+			continue
+		}
+		ok := true
+		for i, o := range full.Outliers {
+			r := resumed.Outliers[i]
+			ok = ok && o.Kind == r.Kind && o.Index == r.Index && math.Abs(o.Effect-r.Effect) < 1e-6
+		}
+		if ok {
+			same++
+		}
+	}
+	t.Logf("resumed search as the full one in %d/%d seeds", same, seeds)
+	if same < seeds*9/10 {
+		t.Errorf("the resumed search found the full search's effects in %d/%d seeds, want ≥ 90 %%", same, seeds)
 	}
 }

@@ -34,8 +34,10 @@
 // # Cycles, spikes and level shifts
 //
 // With Settings.Seasons and model auto a refit chooses per cycle seasonal
-// ARIMA terms, Fourier pairs or nothing (auto.Select, as forewarn fit
-// --seasons); with Settings.Outliers it also looks for additive outliers,
+// ARIMA terms, Fourier pairs or nothing, or, with several cycles, the
+// profile route (each cycle's seasonal shape as one column with
+// coefficient 1, chosen by a holdout; auto.Select, as forewarn fit
+// --seasons; a warm refit keeps the route); with Settings.Outliers it also looks for additive outliers,
 // level shifts and temporary changes in the recent window (outlier.Detect)
 // and fits them. Both become the model's regressors (design.go: column
 // sets by kind), evaluated at each bucket's start in data time, so the

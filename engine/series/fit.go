@@ -3,6 +3,8 @@ package series
 import (
 	"fmt"
 	"math"
+	"strconv"
+	"strings"
 	"time"
 
 	"forewarn/engine/arima"
@@ -19,6 +21,12 @@ type FitJob struct {
 	End      int64
 	Settings Settings
 	Warm     *auto.Warm
+	// Known are the effects of the model being replaced and SearchedTo
+	// the last bucket its outlier search saw (0: none): the search starts
+	// from them and looks for new effects only after SearchedTo less
+	// outlierMargin (detect).
+	Known      []OutlierFound
+	SearchedTo int64
 }
 
 // FitResult is the outcome of a FitJob.
@@ -30,6 +38,8 @@ type FitResult struct {
 	Design   []ColumnSet
 	Outliers []OutlierFound
 	Cycles   []CycleChoice
+	// Searched: the outlier search ran to its end (found or not).
+	Searched bool
 	Err      error
 	Elapsed  time.Duration
 	End      int64
@@ -46,6 +56,7 @@ const (
 	outlierMax       = 10
 	outlierRounds    = 2
 	outlierSpan      = 1000 // the most recent buckets searched
+	outlierMargin    = 100  // buckets before the last refit's end searched again
 )
 
 // FitJob returns the refit the series needs now. It copies the window.
@@ -56,6 +67,12 @@ func (s *Series) FitJob() *FitJob {
 		End:      s.snap.WindowEnd,
 		Settings: s.set,
 	}
+	if ms := s.snap.Model; ms != nil && s.set.Outliers && ms.SearchedTo > 0 {
+		// the last refit searched its window (detect): its effects are
+		// known, and only the buckets since are new
+		j.Known = append([]OutlierFound(nil), ms.Outliers...)
+		j.SearchedTo = ms.SearchedTo
+	}
 	// Warm starts serve the order search. A fixed order is fitted cold, so
 	// that the daemon's model at a refit point is exactly the one an
 	// offline fit of the same window gives.
@@ -65,6 +82,13 @@ func (s *Series) FitJob() *FitJob {
 		sp.NX = 0
 		p := s.model.Params()
 		j.Warm = &auto.Warm{Spec: sp, Params: p[:len(p)-s.model.Spec.NX], Transform: s.tr}
+		if ms := s.snap.Model; len(ms.Cycles) > 0 {
+			// the route is kept (auto.Warm.Route)
+			j.Warm.Route = auto.RouteFourier
+			if len(ms.Design) > 0 && ms.Design[0].Kind == SetProfile {
+				j.Warm.Route = auto.RouteProfile
+			}
+		}
 		for _, c := range s.snap.Model.Cycles {
 			j.Warm.Seasons = append(j.Warm.Seasons, auto.SeasonChoice{Length: c.Seconds,
 				Steps: c.Seconds / float64(s.set.StepSeconds), Terms: c.Terms, K: c.K})
@@ -119,7 +143,12 @@ func (j *FitJob) Run() (r FitResult) {
 		r.Cycles = append(r.Cycles, CycleChoice{Seconds: sc.Length, Terms: sc.Terms, K: sc.K})
 	}
 	var X [][]float64
-	if c.Fourier != nil {
+	switch {
+	case c.Profile != nil:
+		// the profile route: one shape column per cycle, coefficient 1
+		r.Design = append(r.Design, profileSet(c.ProfileCycles, c.ProfileShapes))
+		X = c.Profile.Matrix(t0, step, len(j.Window))
+	case c.Fourier != nil:
 		v := []float64{step}
 		for _, cy := range c.Cycles {
 			v = append(v, cy.Seconds, float64(cy.K))
@@ -139,12 +168,22 @@ func (j *FitJob) Run() (r FitResult) {
 //
 // Cost bound (our own simplification of Chen & Liu 1993's joint
 // estimation): the search (outlier.Detect) runs on the last outlierSpan
-// buckets of the window less the choice's Fourier part x_tᵀβ̂, with the
-// choice's ARIMA orders and constant, so that its fits are short and carry
-// only the outlier columns (the joint search over 20 160 buckets with 40
-// columns took 20 s a refit). The model keeps the choice's coefficients
-// and gains the effects' coefficients from the search's final fit. A
-// failure keeps the choice as it is.
+// buckets of the window less the choice's seasonal part x_tᵀβ̂ (Fourier or
+// profile), with the choice's ARIMA orders and constant, so that its fits
+// are short and carry only the outlier columns (the joint search over
+// 20 160 buckets with 40 columns took 20 s a refit). At a refit after one
+// that searched (FitJob.Known, SearchedTo), the effects it found that are
+// still in the span start in the model, as if found in an earlier round
+// of the procedure, and are re-estimated and re-tested jointly with any
+// new ones (Chen & Liu's stage II); new effects are sought only in the
+// buckets after SearchedTo less outlierMargin (the margin judges again
+// the last buckets the previous search saw with few values after them).
+// What Chen & Liu's procedure keeps: its test statistics and critical
+// value, the iterative detect–re-estimate rounds and the joint
+// re-estimation that drops effects no longer significant; what it gives
+// up: a search of older buckets under the new model. The model keeps the
+// choice's coefficients and gains the effects' coefficients from the
+// search's final fit. A failure keeps the choice as it is.
 func (j *FitJob) detect(r *FitResult, X [][]float64) {
 	c := r.Choice
 	m := c.Result.Model
@@ -162,8 +201,22 @@ func (j *FitJob) detect(r *FitResult, X [][]float64) {
 	}
 	sp := m.Spec
 	sp.NX = 0
-	d, err := outlier.Detect(w, nil, sp, &outlier.Options{MaxOutliers: outlierMax, MaxIter: outlierRounds})
-	if err != nil || len(d.Outliers) == 0 || d.Fit == nil {
+	first := j.End - int64(n) + 1 + int64(off) // the bucket of w[0]
+	opt := &outlier.Options{MaxOutliers: outlierMax, MaxIter: outlierRounds}
+	if j.SearchedTo > 0 {
+		for _, o := range j.Known {
+			if o.Bucket >= first && o.Bucket <= j.End {
+				opt.Known = append(opt.Known, outlier.Outlier{Kind: outlier.Kind(o.Kind), Index: int(o.Bucket - first)})
+			}
+		}
+		opt.From = int(min(max(j.SearchedTo-outlierMargin+1-first, 0), int64(len(w))))
+	}
+	d, err := outlier.Detect(w, nil, sp, opt)
+	if err != nil {
+		return
+	}
+	r.Searched = true
+	if len(d.Outliers) == 0 || d.Fit == nil {
 		return
 	}
 	full := m.Spec
@@ -174,7 +227,7 @@ func (j *FitJob) detect(r *FitResult, X [][]float64) {
 	if err != nil {
 		return
 	}
-	t0 := j.End - int64(n) + 1 + int64(off)
+	t0 := first
 	v := []float64{d.Delta}
 	for i, o := range d.Outliers {
 		v = append(v, float64(o.Kind), float64(t0+int64(o.Index)))
@@ -271,6 +324,9 @@ func (s *Series) install(r *FitResult) error {
 		Cycles:   r.Cycles,
 		Outliers: r.Outliers,
 	}
+	if r.Searched {
+		s.snap.Model.SearchedTo = end
+	}
 	s.setModelInfo()
 	if s.cal != nil {
 		s.warmCalibrator()
@@ -282,12 +338,35 @@ func (s *Series) setModelInfo() {
 	ms := s.snap.Model
 	s.fcStale = true
 	s.mf.Model = ModelInfo{
-		Spec:      s.model.Spec.Label(),
+		Spec:      modelLabel(s.model.Spec, ms.Design),
 		Transform: s.tr.String(),
 		FittedAt:  time.Unix(ms.FittedAt*s.set.StepSeconds, 0).UTC(),
 		NObs:      ms.NObs,
 		AICc:      ms.AICc,
 	}
+}
+
+// modelLabel is the model's label (arima.Spec.Label); a profile-route
+// model says so: "ARIMA 1,0,1 + mean + profile of 2 cycles" (its other
+// regression columns, outlier effects, counted after it).
+func modelLabel(sp arima.Spec, sets []ColumnSet) string {
+	if len(sets) == 0 || sets[0].Kind != SetProfile {
+		return sp.Label()
+	}
+	cycles, _, err := profileValues(sets[0].Values)
+	if err != nil {
+		return sp.Label()
+	}
+	others := sp.NX - len(cycles)
+	sp.NX = 0
+	l := sp.Label() + " + profile of " + strconv.Itoa(len(cycles)) + " cycle"
+	if len(cycles) > 1 {
+		l += "s"
+	}
+	if others > 0 {
+		l += strings.TrimPrefix(arima.Spec{NX: others}.Label(), arima.Spec{}.Label())
+	}
+	return l
 }
 
 func transformFromSnapshot(t TransformSnapshot) (transform.Transform, error) {

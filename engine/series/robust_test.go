@@ -205,3 +205,59 @@ func TestSnapshotResumeWithCyclesGuardOutliers(t *testing.T) {
 		}
 	}
 }
+
+// A refit after one that searched for outliers starts from the effects it
+// found and looks for new ones only in the buckets since, less a margin
+// (FitJob.detect, Chen & Liu 1993 resumed): seeded, a spike at bucket 150
+// found by the first refit stays in the model of the last one, which no
+// longer searches there, beside a spike at bucket 420 found by a later
+// refit; the same last job without the known effects does not find the
+// spike at 150 (its search starts outlierMargin buckets before the last
+// refit's end); after a model whose refit did not search, the whole span
+// is searched again.
+func TestRefitOutliersResumeFromKnown(t *testing.T) {
+	const from = 29_000_017
+	y, _ := seasonalAt(from, 520, 5)
+	y[150] += 12
+	y[420] += 15
+	set := cycleSettings()
+	set.Outliers, set.RefitEvery = true, 70
+	s, err := New("k", set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	drive(t, s, y, from)
+	ms := s.Snapshot().Model
+	at := func(os []OutlierFound, b int64) bool {
+		for _, o := range os {
+			if o.Bucket == b && o.Kind == 0 { // an additive outlier
+				return true
+			}
+		}
+		return false
+	}
+	if !at(ms.Outliers, from+150) || !at(ms.Outliers, from+420) {
+		t.Fatalf("last model's outliers %+v: want additive outliers at buckets %d and %d", ms.Outliers, from+150, from+420)
+	}
+	j := s.FitJob()
+	if j.SearchedTo != ms.FittedAt || len(j.Known) != len(ms.Outliers) {
+		t.Fatalf("job: searched to %d, %d known; want %d and %d", j.SearchedTo, len(j.Known), ms.FittedAt, len(ms.Outliers))
+	}
+	j.Known = nil
+	if r := j.Run(); at(r.Outliers, from+150) {
+		t.Fatalf("without the known effects the search found bucket %d, before its start", from+150)
+	}
+	// a model whose refit did not search (SearchedTo 0: a format-3 record,
+	// a failed search) is followed by a search of the whole span
+	snap := *s.Snapshot()
+	m := *snap.Model
+	m.SearchedTo, snap.Model = 0, &m
+	s2, err := Restore(&snap, set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	j2 := s2.FitJob()
+	if r := j2.Run(); j2.SearchedTo != 0 || !at(r.Outliers, from+150) || !r.Searched {
+		t.Fatalf("after a model without a search: job searched to %d, found %+v; want a full search finding bucket %d", j2.SearchedTo, r.Outliers, from+150)
+	}
+}

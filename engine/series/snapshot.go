@@ -107,12 +107,16 @@ type ModelSnapshot struct {
 	// without cycles or with a fixed model).
 	Cycles []CycleChoice
 	// Outliers are the effects the refit found in its window and fitted
-	// (Design's SetEffects columns, in the same order).
-	Outliers []OutlierFound
+	// (Design's SetEffects columns, in the same order). SearchedTo is
+	// FittedAt when the refit's outlier search ran (0: it did not), so
+	// that the next refit resumes it (FitJob.Known).
+	Outliers   []OutlierFound
+	SearchedTo int64
 }
 
 // CycleChoice is the refit's choice for one seasonal cycle: seasonal
-// ARIMA terms ("arima"), K Fourier pairs ("fourier") or nothing ("none").
+// ARIMA terms ("arima"), K Fourier pairs ("fourier"), a seasonal profile
+// column ("profile", auto.RouteProfile) or nothing ("none").
 type CycleChoice struct {
 	Seconds float64
 	Terms   string

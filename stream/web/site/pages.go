@@ -51,6 +51,8 @@ func cycleTerms(c Cycle) string {
 		return strconv.Itoa(c.Pairs) + " Fourier pairs (sin/cos of harmonics 1–" + strconv.Itoa(c.Pairs) + ")"
 	case "arima":
 		return "seasonal ARIMA terms"
+	case "profile":
+		return "profile (the cycle's shape at the last refit, by the phase of data time)"
 	}
 	return "none (not worth any terms at the last refit)"
 }

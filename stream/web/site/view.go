@@ -66,7 +66,9 @@ type View struct {
 }
 
 // Cycle is one seasonal cycle and the terms that carry it: "arima"
-// (seasonal ARIMA terms), "fourier" (Pairs sin/cos pairs) or "none".
+// (seasonal ARIMA terms), "fourier" (Pairs sin/cos pairs), "profile" (the
+// cycle's seasonal shape, the profile route of the automatic choice) or
+// "none".
 type Cycle struct {
 	Length time.Duration
 	Terms  string
