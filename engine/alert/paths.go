@@ -103,6 +103,12 @@ const (
 	// interval near csTarget pairs at a per-pair variance near csVar.
 	csTarget = 256
 	csVar    = 0.05
+	// PrecisionSE is the Rule.Precision for a probability that is
+	// published, not only compared with the levels: a standard error of
+	// 0.01 (the MinPaths premise) keeps the estimate's noise well below
+	// the width of a reliability bin (engine/series
+	// TestAlertReliabilityCalibrated).
+	PrecisionSE = 0.01
 )
 
 // pathWork is the workspace of the path simulation, grown to the largest
@@ -163,7 +169,11 @@ func growF(s []float64, n int) []float64 {
 // for a Cleared rule the simulation stops once [Lo, Hi] lies at or above
 // Raise or below it (AboveRaise, BelowRaise), for a Raised rule once it
 // lies below Clear or at or above it (BelowClear, AboveClear), so a p near
-// the other level no longer draws the whole budget. Since Lo ≤ P ≤ Hi,
+// the other level no longer draws the whole budget. With rule.Precision
+// > 0 the simulation also goes on until the estimate's standard error is
+// at most Precision (or the budget is spent): a decision taken after a
+// few dozen paths is sound, but the estimate P it leaves is too noisy to
+// be published as the rule's probability (PrecisionSE). Since Lo ≤ P ≤ Hi,
 // Next(raised, P, rule) then takes the transition the decision names. The floor
 // 1/(4n) on σ̂² guards the first checks against a variance estimated as
 // zero. A zero Rule (Raise = Clear = 0) disables the stopping rule: all
@@ -457,7 +467,9 @@ func (e *Evaluator) simulatePaths(ss *StateSpace, sc *screened, rule Rule, noSto
 		est.Hi = math.Min(sc.hi, math.Max(sc.lo, p+hw))
 		est.Paths = 2 * n
 		if !noStop {
-			if est.Decision = place(est.Lo, est.Hi, rule); est.Decision != Undecided {
+			// With rule.Precision set the estimate must also be that
+			// precise before the simulation stops.
+			if est.Decision = place(est.Lo, est.Hi, rule); est.Decision != Undecided && (rule.Precision == 0 || est.StdErr <= rule.Precision) {
 				return
 			}
 		}

@@ -259,3 +259,43 @@ func TestDecideOnlyTheLevelThatMatters(t *testing.T) {
 		t.Logf("%+v: %v after %d paths, p = %.4f in [%.4f, %.4f]", tc.rule, est.Decision, est.Paths, est.P, est.Lo, est.Hi)
 	}
 }
+
+// With Rule.Precision the stopping rule waits, after the decision, until
+// the estimate's standard error is at most Precision; without it, the
+// decision alone stops the simulation (TestDecideStopsEarly). The true p
+// is R mvtnorm pmvnorm's (crossing.csv, rw_drift_up, p = 0.2768), far
+// from the levels 0.9 / 0.45, so the decision comes within two batches
+// (common practice: a published probability needs a stated precision;
+// the estimate must lie within 4 of its standard errors and pmvnorm's
+// error of pmvnorm). A negative or NaN precision is an invalid rule.
+func TestDecidePrecision(t *testing.T) {
+	e := newEval(t, 60, 0)
+	c := loadCases(t)[0]
+	q, ss := c.query(false), c.stateSpace()
+	base, err := e.Decide(q, ss, Rule{Raise: 0.9, Clear: 0.45})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, prec := range []float64{PrecisionSE, 0.004} {
+		est, err := e.Decide(q, ss, Rule{Raise: 0.9, Clear: 0.45, Precision: prec})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if est.Decision != BelowClear {
+			t.Errorf("precision %v: decision %v, want %v", prec, est.Decision, BelowClear)
+		}
+		if est.StdErr > prec || est.Paths <= base.Paths {
+			t.Errorf("precision %v: stopped at SE %.4f after %d paths (decision alone: SE %.4f after %d)",
+				prec, est.StdErr, est.Paths, base.StdErr, base.Paths)
+		}
+		if d := math.Abs(est.P - c.pGenz); d > 4*math.Hypot(est.StdErr, c.genzErr) {
+			t.Errorf("precision %v: p %.4f, pmvnorm %.4f", prec, est.P, c.pGenz)
+		}
+		t.Logf("precision %v: p %.4f ± %.4f after %d paths; decision alone %.4f ± %.4f after %d", prec, est.P, est.StdErr, est.Paths, base.P, base.StdErr, base.Paths)
+	}
+	for _, prec := range []float64{-0.01, math.NaN(), 1} {
+		if _, err := e.Decide(q, ss, Rule{Raise: 0.9, Clear: 0.45, Precision: prec}); !errors.Is(err, ErrRule) {
+			t.Errorf("precision %v: error %v, want ErrRule", prec, err)
+		}
+	}
+}
