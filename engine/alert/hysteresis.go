@@ -19,10 +19,11 @@ type Rule struct {
 	// answer can change that state, so the stopping rule of Decide is not
 	// held up by the other level. Next ignores it.
 	Current State
-	// Precision, when positive, is the largest Monte Carlo standard error
-	// of the estimate at which Decide may stop once the decision is known
-	// (PrecisionSE for a probability that is published). Zero: the
-	// decision alone stops it. Next ignores it.
+	// Precision, when positive, is the Monte Carlo standard error Decide
+	// plans the estimate for once the decision is known, from fresh paths
+	// when the deciding ones were fewer (PrecisionSE for a probability
+	// that is published). Zero: the estimate of the deciding paths. Next
+	// ignores it.
 	Precision float64
 }
 

@@ -260,9 +260,10 @@ func TestDecideOnlyTheLevelThatMatters(t *testing.T) {
 	}
 }
 
-// With Rule.Precision the stopping rule waits, after the decision, until
-// the estimate's standard error is at most Precision; without it, the
-// decision alone stops the simulation (TestDecideStopsEarly). The true p
+// With Rule.Precision the estimate after the decision comes from fresh
+// paths planned for a standard error of Precision (checked to within
+// 1.5 times it: the plan uses the deciding paths' variance); without it,
+// the decision alone stops the simulation (TestDecideStopsEarly). The true p
 // is R mvtnorm pmvnorm's (crossing.csv, rw_drift_up, p = 0.2768), far
 // from the levels 0.9 / 0.45, so the decision comes within two batches
 // (common practice: a published probability needs a stated precision;
@@ -284,7 +285,7 @@ func TestDecidePrecision(t *testing.T) {
 		if est.Decision != BelowClear {
 			t.Errorf("precision %v: decision %v, want %v", prec, est.Decision, BelowClear)
 		}
-		if est.StdErr > prec || est.Paths <= base.Paths {
+		if est.StdErr > 1.5*prec || est.Paths <= base.Paths {
 			t.Errorf("precision %v: stopped at SE %.4f after %d paths (decision alone: SE %.4f after %d)",
 				prec, est.StdErr, est.Paths, base.StdErr, base.Paths)
 		}
