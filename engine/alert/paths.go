@@ -323,7 +323,11 @@ func (e *Evaluator) loadSystem(q *Query, ss *StateSpace, sc *screened) error {
 		if math.Abs(y-mj) > 1e-6*math.Sqrt(vj)+1e-9*math.Abs(mj)+1e-300 {
 			return fmt.Errorf("state space mean at step %d is %v, query mean %v: %w", j+1, y, mj, ErrStateSpace)
 		}
+		// W_j = m_j + f_j e_j > c  ⟺  e_j > (c − m_j)/f_j (sign-adjusted).
 		w.d[j] = sc.c - sc.sign*mj
+		if q.Scale != nil {
+			w.d[j] /= q.Scale[j]
+		}
 		a0 := u[0]
 		copy(u[:r-1], u[1:r])
 		u[r-1] = 0
@@ -345,6 +349,9 @@ func (e *Evaluator) loadSystem(q *Query, ss *StateSpace, sc *screened) error {
 		}
 	}
 	v1 *= ss.Sigma2
+	if q.Scale != nil {
+		v1 *= q.Scale[0] * q.Scale[0]
+	}
 	if v0 := q.Variance[0]; math.Abs(v1-v0) > 1e-6*math.Max(v0, v1)+1e-300 {
 		return fmt.Errorf("state space variance at step 1 is %v, query variance %v: %w", v1, v0, ErrStateSpace)
 	}
