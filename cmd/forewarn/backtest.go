@@ -385,7 +385,8 @@ func (r *btRequest) configSeasons(times []string, file string, n int) (*btConfig
 		bt: backtest.Options{Horizon: r.horizon, Origins: r.origins, Every: r.every, Period: period, Levels: r.levels},
 		sel: auto.Options{Seasons: seasons, Step: step, Start: start, Transform: r.transform, Model: r.model,
 			Constant: r.constant},
-		period: period,
-		label:  "automatic choice",
+		period:    period,
+		label:     "automatic choice",
+		calibrate: r.calibrate,
 	}, nil
 }

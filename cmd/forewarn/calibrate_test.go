@@ -88,11 +88,13 @@ func TestBacktestNoLookAhead(t *testing.T) {
 // 4.2.2 forecast 8.20 `auto.arima` on the same origins
 // (testdata/backtest/coverage_panel.R → coverage_panel.json).
 //
-// Design: every origin T = ⌈n/2⌉, …, n − h, one step apart (panelOrigins).
+// Design: the reference's (coverage_panel.json, "every" = k per series):
+// origins T = n − h, n − h − k, … down to ⌈n/2⌉ (panelOrigins), the same
+// for both engines, each refitting its automatic model at every origin.
 // Consecutive origins share most of their realised future, so a few of
 // them measure mostly noise: a perfectly calibrated forecaster gets a MACE
-// at 80 % of about 0.10 with the 12 last origins and about 0.05 with this
-// design (TestCoveragePanelNoiseFloor). The MACE is per series, as in the
+// at 80 % of about 0.10 with the 12 last origins and about 0.05 over the
+// second half (TestCoveragePanelNoiseFloor logs it for this design). The MACE is per series, as in the
 // script; the coverage per step ahead pooled over the series is logged
 // beside it. Calibration changes only the bands, so the MASE must be the
 // same with and without it.
@@ -113,14 +115,14 @@ func TestBacktestCalibratedCoverage(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		N := panelOrigins(len(y), s.Horizon)
+		N := panelOrigins(len(y), s.Horizon, s.every())
 		if s.Origins != N {
 			t.Fatalf("%s: the R reference has %d origins, the panel design %d", s.Name, s.Origins, N)
 		}
 		cache := map[int]*auto.Choice{} // the choice depends on the training prefix only
 		var rep [2]*backtest.Report
 		for i, cal := range []bool{false, true} {
-			cfg := panelConfig(t, s, cal, N)
+			cfg := panelConfig(t, s, cal, N, s.every())
 			if rep[i], err = backtest.Run(y, cfg.bt, cfg.forecasterWith(cache), nil); err != nil {
 				t.Fatalf("%s: %v", s.Name, err)
 			}
@@ -153,5 +155,55 @@ func TestBacktestCalibratedCoverage(t *testing.T) {
 		if macCal[l] >= macR[l]/2 {
 			t.Errorf("MACE at %s %%: calibrated %.4f, R auto.arima %.4f: want under half of R's (issue 13)", key, macCal[l], macR[l])
 		}
+	}
+}
+
+// TestBacktestSeasonsCalibrates: `forewarn backtest --seasons` (the
+// automatic choice with a seasonal cycle) calibrates its bands like the
+// other paths (CONTRACT §3: --calibrate defaults to true). On R 4.2.2
+// `datasets` UKgas, cycle 4, three origins: the calibrated bands differ
+// from the model's own, and the point forecasts do not (common practice:
+// calibration moves only the bands). The --seasons configuration once
+// dropped the flag, and the panel's seasonal series went uncalibrated.
+func TestBacktestSeasonsCalibrates(t *testing.T) {
+	c := panelCase{Name: "UKgas", Period: 4, Horizon: 4}
+	_, y, err := readSeriesCSV(datasetPath(c.Name), "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	cache := map[int]*auto.Choice{}
+	var fc [2][]backtest.Forecast
+	for i, cal := range []bool{false, true} {
+		cfg := panelConfig(t, c, cal, 3, 1)
+		if !cfg.calibrate != !cal {
+			t.Errorf("--seasons 4 --calibrate=%v: configuration calibrate %v", cal, cfg.calibrate)
+		}
+		inner := cfg.forecasterWith(cache)
+		rec := func(train []float64, h int, levels []float64) (backtest.Forecast, error) {
+			f, err := inner(train, h, levels)
+			fc[i] = append(fc[i], f)
+			return f, err
+		}
+		if _, err := backtest.Run(y, cfg.bt, rec, nil); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if len(fc[0]) != 3 || len(fc[1]) != 3 {
+		t.Fatalf("%d and %d forecasts, want 3 each", len(fc[0]), len(fc[1]))
+	}
+	differ := false
+	for o := range fc[0] {
+		a, b := fc[0][o], fc[1][o]
+		for j := range a.Mean {
+			if a.Mean[j] != b.Mean[j] {
+				t.Errorf("origin %d step %d: mean %v calibrated, %v not", o, j+1, b.Mean[j], a.Mean[j])
+			}
+			for l := range a.Lower {
+				differ = differ || a.Lower[l][j] != b.Lower[l][j] || a.Upper[l][j] != b.Upper[l][j]
+			}
+		}
+	}
+	if !differ {
+		t.Error("--seasons 4: the calibrated bands equal the model's own at every origin, step and level: not calibrated")
 	}
 }

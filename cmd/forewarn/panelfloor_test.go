@@ -2,6 +2,7 @@ package main
 
 import (
 	"encoding/json"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -15,10 +16,10 @@ import (
 )
 
 // floorDesign is one rolling-origin design of the coverage panel: per
-// series the number of origins (one step apart, the last at n − h) and
-// the horizon.
+// series the number of origins, the steps between them (the last at
+// n − h) and the horizon.
 type floorDesign struct {
-	origins, horizon []int
+	origins, every, horizon []int
 }
 
 // coverageFloor simulates, rep times, the per-series coverage that a
@@ -51,12 +52,13 @@ func coverageFloor(psi [][]float64, d floorDesign, nominal []float64, reps int, 
 				sd[j] = math.Sqrt(ss)
 			}
 			// ε over the evaluated span: index u ↔ ε at time first+u.
-			eps := make([]float64, N+h)
+			k := d.every[i]
+			eps := make([]float64, (N-1)*k+h)
 			for u := range eps {
 				eps[u] = rng.NormFloat64()
 			}
 			hits := make([]int, len(nominal))
-			for o := 0; o < N; o++ {
+			for o := 0; o < N*k; o += k {
 				for j := 1; j <= h; j++ {
 					e := 0.0
 					for k := 0; k < j; k++ {
@@ -89,7 +91,7 @@ func panelPsi(t *testing.T, cases []panelCase) [][]float64 {
 		if err != nil {
 			t.Fatal(err)
 		}
-		cfg := panelConfig(t, c, false, 1)
+		cfg := panelConfig(t, c, false, 1, 1)
 		ch, err := cfg.choose(y)
 		if err != nil {
 			t.Fatalf("%s: %v", c.Name, err)
@@ -123,24 +125,30 @@ func mean(x []float64) float64 {
 // true model; property test): the design must be able to show the
 // acceptance target of 0.06. The former design, 12 consecutive origins per
 // series, could not: its floor is logged for the record and checked to be
-// above the target at 80 %. The panel's design (panelOrigins: every origin
-// over the second half of each series) must put the mean floor below the
-// target at both levels. Its floor at 80 % stays near 0.05 however many
-// origins: the short seasonal series (72 months, h = 12) have only some
-// thirty distinct future values in their second half.
+// above the target at 80 %. Every origin over the second half of each
+// series, and the reference's design (coverage_panel.json: every k-th of
+// those origins, the last at n − h, panelOrigins) must put the mean floor
+// below the target at both levels. The floor at 80 % stays near 0.05
+// however many origins: the short seasonal series (72 months, h = 12) have
+// only some thirty distinct future values in their second half.
 func TestCoveragePanelNoiseFloor(t *testing.T) {
 	cases := readPanel(t).Series
 	psi := panelPsi(t, cases)
 	nominal := []float64{0.80, 0.95}
-	old, cur := floorDesign{}, floorDesign{}
+	var old, all, cur floorDesign
 	for _, c := range cases {
 		_, y, err := readSeriesCSV(datasetPath(c.Name), "")
 		if err != nil {
 			t.Fatal(err)
 		}
 		old.origins = append(old.origins, 12)
-		cur.origins = append(cur.origins, panelOrigins(len(y), c.Horizon))
+		all.origins = append(all.origins, panelOrigins(len(y), c.Horizon, 1))
+		cur.origins = append(cur.origins, panelOrigins(len(y), c.Horizon, c.every()))
+		old.every = append(old.every, 1)
+		all.every = append(all.every, 1)
+		cur.every = append(cur.every, c.every())
 		old.horizon = append(old.horizon, c.Horizon)
+		all.horizon = append(all.horizon, c.Horizon)
 		cur.horizon = append(cur.horizon, c.Horizon)
 	}
 	const reps = 2000
@@ -154,9 +162,14 @@ func TestCoveragePanelNoiseFloor(t *testing.T) {
 				t.Errorf("12 origins, 80 %%: mean floor %.4f; expected above the 0.06 target (the reason for the design)", mu)
 			}
 		}},
-		{"every origin over the second half", cur, func(l int, mu, q95 float64) {
+		{"every origin over the second half", all, func(l int, mu, q95 float64) {
 			if mu > 0.06 {
-				t.Errorf("panel design, %v: mean floor %.4f above the 0.06 target: the design cannot show it", nominal[l], mu)
+				t.Errorf("every origin, %v: mean floor %.4f above the 0.06 target: the design cannot show it", nominal[l], mu)
+			}
+		}},
+		{fmt.Sprintf("the reference's design, every %v-th origin", cur.every), cur, func(l int, mu, q95 float64) {
+			if mu > 0.06 {
+				t.Errorf("reference design (every %v), %v: mean floor %.4f above the 0.06 target: the design cannot show it", cur.every, nominal[l], mu)
 			}
 		}},
 	} {
@@ -176,9 +189,14 @@ type panelCase struct {
 	Name     string
 	Period   int
 	Horizon  int
+	Every    int
 	Origins  int
 	Coverage map[string]float64
 }
+
+// every is the stride of the series' origins in the reference (1 when
+// the file predates the field).
+func (c panelCase) every() int { return max(c.Every, 1) }
 
 type panelRef struct {
 	Source string
@@ -200,21 +218,22 @@ func readPanel(t *testing.T) panelRef {
 	return ref
 }
 
-// panelOrigins is the coverage panel's design: every training length T
-// from ⌈n/2⌉ to n − h, one step apart (coverage_panel.R uses the same).
-func panelOrigins(n, h int) int { return n - h - (n+1)/2 + 1 }
+// panelOrigins is the number of origins of the coverage panel's design:
+// training lengths T = n − h, n − h − every, … down to ⌈n/2⌉
+// (coverage_panel.R uses the same).
+func panelOrigins(n, h, every int) int { return (n-h-(n+1)/2)/every + 1 }
 
 // panelConfig is the backtest configuration of one panel series: the
 // automatic model and transform, levels 80 and 95, the series' horizon,
-// origins one step apart.
-func panelConfig(t *testing.T, c panelCase, calibrate bool, origins int) *btConfig {
+// origins every apart.
+func panelConfig(t *testing.T, c panelCase, calibrate bool, origins, every int) *btConfig {
 	t.Helper()
 	seasons := ""
 	if c.Period > 1 {
 		seasons = strconv.Itoa(c.Period)
 	}
 	f := backtestFlags{modelFlags: modelFlags{model: "auto", seasons: seasons, constant: "auto", transform: "auto",
-		levels: "80,95", horizon: c.Horizon}, origins: origins, every: 1, format: "table", calibrate: calibrate}
+		levels: "80,95", horizon: c.Horizon}, origins: origins, every: every, format: "table", calibrate: calibrate}
 	req, err := f.request()
 	if err != nil {
 		t.Fatal(err)

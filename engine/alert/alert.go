@@ -74,6 +74,14 @@ type Query struct {
 	// paths are deviations from Mean, so only Decide's check of the
 	// system's means against Mean uses it.
 	Offset []float64
+	// Scale, when not nil (length h, each positive and finite), widens
+	// the forecast errors step by step: W_j = Mean_j + Scale_j·e_j, e the
+	// errors of the joint covariance or the state space, so the paths keep
+	// their correlation and step j has variance Scale_j²·(its model
+	// variance). Variance must already hold the widened variances (the
+	// shortcuts use them alone); joint and the state space give the model's
+	// own. Nil: every factor 1.
+	Scale []float64
 }
 
 // Evaluator computes crossing probabilities. It owns all workspaces, so a
@@ -190,6 +198,13 @@ func (e *Evaluator) Probability(q *Query, joint func(cov []float64)) (p float64,
 	}
 	cov := e.cov[:h*h]
 	joint(cov)
+	if q.Scale != nil {
+		for i := 0; i < h; i++ {
+			for j := 0; j < h; j++ {
+				cov[i*h+j] *= q.Scale[i] * q.Scale[j]
+			}
+		}
+	}
 	if err := e.factor(cov, q.Variance, h, k); err != nil {
 		return 0, etaStep, fmt.Errorf("alert: probability: %w", err)
 	}
@@ -246,6 +261,16 @@ func (e *Evaluator) screen(q *Query, sc *screened) (p float64, done bool, err er
 	}
 	if !finite(q.Threshold) {
 		return 0, true, fmt.Errorf("alert: probability: threshold %v: %w", q.Threshold, ErrNotFinite)
+	}
+	if q.Scale != nil {
+		if len(q.Scale) != h {
+			return 0, true, fmt.Errorf("alert: probability: %d scale factors, horizon %d: %w", len(q.Scale), h, ErrShape)
+		}
+		for j, f := range q.Scale {
+			if !(f > 0 && f <= math.MaxFloat64) {
+				return 0, true, fmt.Errorf("alert: probability: step %d scale %v: %w", j+1, f, ErrNotFinite)
+			}
+		}
 	}
 	c := sign * q.Threshold
 	sc.h, sc.k, sc.sign, sc.c = h, k, sign, c

@@ -95,7 +95,14 @@
 // Paths() paths. Given the rule's state (Rule.Current), only the level
 // that can change it is tested: Raise for a cleared rule, Clear for a
 // raised one, so a p near the other level stops as early
-// (BenchmarkDecideK120NearClear). The seed derives from the query's values as in step 4.
+// (BenchmarkDecideK120NearClear). With Rule.Precision set (the daemon
+// sets PrecisionSE = 0.01, because it publishes the probability), a
+// decision whose estimate is less precise is followed by fresh paths,
+// as many as give that standard error, and the probability is theirs: a
+// probability left after the first batch decides the levels soundly but
+// is too noisy to be read as a probability, and one from paths drawn
+// until they look precise is biased (engine/series
+// TestAlertReliabilityCalibrated). The seed derives from the query's values as in step 4.
 // Measured on the shared 2-core machine, one core, k = 120, m = 8, p =
 // 0.26 against Raise 0.9 / Clear 0.45: 0.30 ms and 256 paths
 // (BenchmarkDecideK120); all 10 000 paths: 13 ms, against 37 ms for step 4

@@ -19,6 +19,12 @@ type Rule struct {
 	// answer can change that state, so the stopping rule of Decide is not
 	// held up by the other level. Next ignores it.
 	Current State
+	// Precision, when positive, is the Monte Carlo standard error Decide
+	// plans the estimate for once the decision is known, from fresh paths
+	// when the deciding ones were fewer (PrecisionSE for a probability
+	// that is published). Zero: the estimate of the deciding paths. Next
+	// ignores it.
+	Precision float64
 }
 
 // State is an alert rule's hysteresis state as Decide takes it.
@@ -49,10 +55,13 @@ func (r Rule) WithDefaults() Rule {
 	return r
 }
 
-// Validate reports whether 0 < Clear < Raise ≤ 1.
+// Validate reports whether 0 < Clear < Raise ≤ 1 and 0 ≤ Precision < 1.
 func (r Rule) Validate() error {
 	if math.IsNaN(r.Raise) || math.IsNaN(r.Clear) || !(0 < r.Clear && r.Clear < r.Raise && r.Raise <= 1) {
 		return fmt.Errorf("alert: rule raise %v clear %v: %w", r.Raise, r.Clear, ErrRule)
+	}
+	if !(r.Precision >= 0 && r.Precision < 1) {
+		return fmt.Errorf("alert: rule precision %v: %w", r.Precision, ErrRule)
 	}
 	return nil
 }

@@ -103,6 +103,12 @@ const (
 	// interval near csTarget pairs at a per-pair variance near csVar.
 	csTarget = 256
 	csVar    = 0.05
+	// PrecisionSE is the Rule.Precision for a probability that is
+	// published, not only compared with the levels: a standard error of
+	// about 0.01 (the MinPaths premise) keeps the estimate's noise well
+	// below the width of a reliability bin (engine/series
+	// TestAlertReliabilityCalibrated).
+	PrecisionSE = 0.01
 )
 
 // pathWork is the workspace of the path simulation, grown to the largest
@@ -163,7 +169,15 @@ func growF(s []float64, n int) []float64 {
 // for a Cleared rule the simulation stops once [Lo, Hi] lies at or above
 // Raise or below it (AboveRaise, BelowRaise), for a Raised rule once it
 // lies below Clear or at or above it (BelowClear, AboveClear), so a p near
-// the other level no longer draws the whole budget. Since Lo ≤ P ≤ Hi,
+// the other level no longer draws the whole budget. With rule.Precision
+// > 0 and a decision whose estimate is less precise than that, P and
+// StdErr then come from fresh pairs, as many as the per-pair variance of
+// the paths so far says give a standard error of Precision (at least one
+// batch, within the budget), clamped to [Lo, Hi]: a decision taken after a
+// few dozen paths is sound, but the estimate it leaves is too noisy to be
+// published as the rule's probability, and going on with the same paths
+// until their estimate looks precise would bias it (a low estimate of a
+// small p also looks precise, so it would stop there more often). Since Lo ≤ P ≤ Hi,
 // Next(raised, P, rule) then takes the transition the decision names. The floor
 // 1/(4n) on σ̂² guards the first checks against a variance estimated as
 // zero. A zero Rule (Raise = Clear = 0) disables the stopping rule: all
@@ -313,7 +327,11 @@ func (e *Evaluator) loadSystem(q *Query, ss *StateSpace, sc *screened) error {
 		if math.Abs(yq-mj) > 1e-6*math.Sqrt(vj)+1e-9*math.Abs(mj)+1e-300 {
 			return fmt.Errorf("state space mean at step %d is %v, query mean %v: %w", j+1, yq, mj, ErrStateSpace)
 		}
+		// W_j = m_j + f_j e_j > c  ⟺  e_j > (c − m_j)/f_j (sign-adjusted).
 		w.d[j] = sc.c - sc.sign*mj
+		if q.Scale != nil {
+			w.d[j] /= q.Scale[j]
+		}
 		a0 := u[0]
 		copy(u[:r-1], u[1:r])
 		u[r-1] = 0
@@ -335,6 +353,9 @@ func (e *Evaluator) loadSystem(q *Query, ss *StateSpace, sc *screened) error {
 		}
 	}
 	v1 *= ss.Sigma2
+	if q.Scale != nil {
+		v1 *= q.Scale[0] * q.Scale[0]
+	}
 	if v0 := q.Variance[0]; math.Abs(v1-v0) > 1e-6*math.Max(v0, v1)+1e-300 {
 		return fmt.Errorf("state space variance at step 1 is %v, query variance %v: %w", v1, v0, ErrStateSpace)
 	}
@@ -355,102 +376,122 @@ func (e *Evaluator) loadSystem(q *Query, ss *StateSpace, sc *screened) error {
 	return nil
 }
 
-// simulatePaths runs the antithetic, control-variate path simulation of
-// Decide with its stopping rule and fills est.
-func (e *Evaluator) simulatePaths(ss *StateSpace, sc *screened, rule Rule, noStop bool, seed uint64, est *Estimate) {
-	e.pcg.Seed(seed, seed^0x9e3779b97f4a7c15)
+// pairSums accumulates the antithetic pairs of a path simulation: the
+// sums of Y (crossing), X (the control variate) and their squares and
+// product, the pairs drawn and D, the paths with A ≠ B.
+type pairSums struct {
+	sy, sx, syy, sxx, sxy float64
+	n, nDiff              int
+}
+
+// estimate returns the control-variate estimate of p from the sums (mean
+// of the control variate pStar) and s², the per-pair variance of the
+// estimator with its add-one floor (see Decide).
+func (a *pairSums) estimate(pStar float64) (p, s2 float64) {
+	nf := float64(a.n)
+	ym, xm := a.sy/nf, a.sx/nf
+	Sxx := a.sxx - nf*xm*xm
+	Sxy := a.sxy - nf*xm*ym
+	Syy := a.syy - nf*ym*ym
+	beta := 0.0
+	if Sxx > 1e-12*nf {
+		beta = Sxy / Sxx
+	}
+	p = ym - beta*(xm-pStar)
+	if a.n > 1 {
+		s2 = math.Max(Syy-beta*Sxy, 0) / (nf - 1)
+	}
+	// Floor for a sample in which A and B (almost) never differ: the
+	// residual A − B is then a rare Bernoulli event, whose rate is
+	// taken as (D + 1)/(2n + 2) (add-one rule), D the paths with A ≠ B.
+	qt := (float64(a.nDiff) + 1) / (2*nf + 2)
+	return p, math.Max(s2, qt*(1-qt)/2)
+}
+
+// drawPairs simulates pairs more antithetic path pairs into a (see Decide).
+func (e *Evaluator) drawPairs(ss *StateSpace, sc *screened, pairs int, a *pairSums) {
 	rng := e.rng
 	w := &e.pw
 	r, nd := len(ss.Phi), len(ss.Delta)
 	m := r + nd
-	k, jStar, pStar := sc.k, sc.jStar, sc.lo
+	k, jStar := sc.k, sc.jStar
 	L, u, z, d := w.L[:m*m], w.u[:m], w.z[:m], w.d[:k]
 	phi, theta, delta := ss.Phi, ss.Theta, ss.Delta
 	phiNZ, thetaNZ, deltaNZ := w.phiNZ, w.thetaNZ, w.deltaNZ
 	sigma := math.Sqrt(ss.Sigma2)
+	for ; pairs > 0; pairs-- {
+		for i := range z {
+			z[i] = rng.NormFloat64()
+		}
+		for i := 0; i < m; i++ {
+			u[i] = dot(L[i*m:i*m+i+1], z[:i+1])
+		}
+		aP, aM, bP, bM := false, false, false, false
+		for j := 0; ; j++ {
+			ej := u[0]
+			for _, i := range deltaNZ {
+				ej += delta[i] * u[r+i]
+			}
+			dj := d[j]
+			if ej > dj {
+				aP = true
+				bP = bP || j == jStar
+			}
+			if -ej > dj {
+				aM = true
+				bM = bM || j == jStar
+			}
+			if j+1 == k || (aP && aM && j >= jStar) {
+				break
+			}
+			eta := sigma * rng.NormFloat64()
+			a0 := u[0]
+			copy(u[:r-1], u[1:r])
+			u[r-1] = 0
+			for _, i := range phiNZ {
+				u[i] += phi[i] * a0
+			}
+			for _, i := range thetaNZ {
+				u[i] += theta[i] * eta
+			}
+			if nd > 0 {
+				copy(u[r+1:m], u[r:m-1])
+				u[r] = ej
+			}
+		}
+		if aP != bP {
+			a.nDiff++
+		}
+		if aM != bM {
+			a.nDiff++
+		}
+		y := 0.5 * (b2f(aP) + b2f(aM))
+		x := 0.5 * (b2f(bP) + b2f(bM))
+		a.sy += y
+		a.sx += x
+		a.syy += y * y
+		a.sxx += x * x
+		a.sxy += x * y
+		a.n++
+	}
+}
+
+// simulatePaths runs the antithetic, control-variate path simulation of
+// Decide with its stopping rule and fills est.
+func (e *Evaluator) simulatePaths(ss *StateSpace, sc *screened, rule Rule, noStop bool, seed uint64, est *Estimate) {
+	e.pcg.Seed(seed, seed^0x9e3779b97f4a7c15)
+	pStar := sc.lo
 
 	alpha := DecisionError
 	la := -2 * math.Log(alpha)
 	rho2 := (la + math.Log(1+la)) / (csTarget * csVar)
 
 	maxPairs := e.paths / 2
-	var sy, sx, syy, sxx, sxy float64
-	n, nDiff := 0, 0
-	for n < maxPairs {
-		end := min(n+Batch/2, maxPairs)
-		for ; n < end; n++ {
-			for i := range z {
-				z[i] = rng.NormFloat64()
-			}
-			for i := 0; i < m; i++ {
-				u[i] = dot(L[i*m:i*m+i+1], z[:i+1])
-			}
-			aP, aM, bP, bM := false, false, false, false
-			for j := 0; ; j++ {
-				ej := u[0]
-				for _, i := range deltaNZ {
-					ej += delta[i] * u[r+i]
-				}
-				dj := d[j]
-				if ej > dj {
-					aP = true
-					bP = bP || j == jStar
-				}
-				if -ej > dj {
-					aM = true
-					bM = bM || j == jStar
-				}
-				if j+1 == k || (aP && aM && j >= jStar) {
-					break
-				}
-				eta := sigma * rng.NormFloat64()
-				a0 := u[0]
-				copy(u[:r-1], u[1:r])
-				u[r-1] = 0
-				for _, i := range phiNZ {
-					u[i] += phi[i] * a0
-				}
-				for _, i := range thetaNZ {
-					u[i] += theta[i] * eta
-				}
-				if nd > 0 {
-					copy(u[r+1:m], u[r:m-1])
-					u[r] = ej
-				}
-			}
-			if aP != bP {
-				nDiff++
-			}
-			if aM != bM {
-				nDiff++
-			}
-			y := 0.5 * (b2f(aP) + b2f(aM))
-			x := 0.5 * (b2f(bP) + b2f(bM))
-			sy += y
-			sx += x
-			syy += y * y
-			sxx += x * x
-			sxy += x * y
-		}
-		nf := float64(n)
-		ym, xm := sy/nf, sx/nf
-		Sxx := sxx - nf*xm*xm
-		Sxy := sxy - nf*xm*ym
-		Syy := syy - nf*ym*ym
-		beta := 0.0
-		if Sxx > 1e-12*nf {
-			beta = Sxy / Sxx
-		}
-		p := ym - beta*(xm-pStar)
-		s2 := 0.0
-		if n > 1 {
-			s2 = math.Max(Syy-beta*Sxy, 0) / (nf - 1)
-		}
-		// Floor for a sample in which A and B (almost) never differ: the
-		// residual A − B is then a rare Bernoulli event, whose rate is
-		// taken as (D + 1)/(2n + 2) (add-one rule), D the paths with A ≠ B.
-		qt := (float64(nDiff) + 1) / (2*nf + 2)
-		s2 = math.Max(s2, qt*(1-qt)/2)
+	var a pairSums
+	for a.n < maxPairs {
+		e.drawPairs(ss, sc, min(Batch/2, maxPairs-a.n), &a)
+		nf := float64(a.n)
+		p, s2 := a.estimate(pStar)
 		v := math.Max(s2, 0.25/nf)
 		t := nf * v * rho2
 		hw := math.Sqrt(2 * (t + 1) / (nf * nf * rho2) * math.Log(math.Sqrt(t+1)/alpha))
@@ -459,13 +500,37 @@ func (e *Evaluator) simulatePaths(ss *StateSpace, sc *screened, rule Rule, noSto
 		// Clamped into the bracket like P, so that Lo ≤ P ≤ Hi.
 		est.Lo = math.Max(sc.lo, math.Min(sc.hi, p-hw))
 		est.Hi = math.Min(sc.hi, math.Max(sc.lo, p+hw))
-		est.Paths = 2 * n
-		if !noStop {
-			if est.Decision = place(est.Lo, est.Hi, rule); est.Decision != Undecided {
-				return
-			}
+		est.Paths = 2 * a.n
+		if noStop {
+			continue
 		}
+		if est.Decision = place(est.Lo, est.Hi, rule); est.Decision == Undecided {
+			continue
+		}
+		if rule.Precision > 0 && est.StdErr > rule.Precision && a.n < maxPairs {
+			e.estimateAfresh(ss, sc, rule.Precision, s2, maxPairs-a.n, est)
+		}
+		return
 	}
+}
+
+// estimateAfresh replaces est.P and est.StdErr by an estimate from fresh
+// paths, as many pairs as the per-pair variance s2 of the paths so far
+// says give a standard error of prec (at least one batch, at most room).
+// The paths that decided are not reused: the moment the decision comes
+// depends on their estimate, so an estimate from them is biased (low where
+// p is small, as a low estimate also looks precise), while the fresh
+// pairs are drawn after their number is fixed. The estimate is clamped to
+// [est.Lo, est.Hi], so that Next still takes the transition the decision
+// names.
+func (e *Evaluator) estimateAfresh(ss *StateSpace, sc *screened, prec, s2 float64, room int, est *Estimate) {
+	pairs := min(max(int(math.Ceil(s2/(prec*prec))), Batch/2), room)
+	var b pairSums
+	e.drawPairs(ss, sc, pairs, &b)
+	p, s2b := b.estimate(sc.lo)
+	est.P = math.Max(est.Lo, math.Min(est.Hi, p))
+	est.StdErr = math.Sqrt(s2b / float64(b.n))
+	est.Paths += 2 * b.n
 }
 
 func b2f(b bool) float64 {

@@ -3,6 +3,7 @@ package alert
 import (
 	"errors"
 	"math"
+	"math/rand/v2"
 	"testing"
 )
 
@@ -257,5 +258,135 @@ func TestDecideOnlyTheLevelThatMatters(t *testing.T) {
 			t.Errorf("%+v: Next on p %.4f gives raised %v changed %v against decision %v", tc.rule, est.P, raised, changed, est.Decision)
 		}
 		t.Logf("%+v: %v after %d paths, p = %.4f in [%.4f, %.4f]", tc.rule, est.Decision, est.Paths, est.P, est.Lo, est.Hi)
+	}
+}
+
+// With Rule.Precision the estimate after the decision comes from fresh
+// paths planned for a standard error of Precision (checked to within
+// 1.5 times it: the plan uses the deciding paths' variance); without it,
+// the decision alone stops the simulation (TestDecideStopsEarly). The true p
+// is R mvtnorm pmvnorm's (crossing.csv, rw_drift_up, p = 0.2768), far
+// from the levels 0.9 / 0.45, so the decision comes within two batches
+// (common practice: a published probability needs a stated precision;
+// the estimate must lie within 4 of its standard errors and pmvnorm's
+// error of pmvnorm). A negative or NaN precision is an invalid rule.
+func TestDecidePrecision(t *testing.T) {
+	e := newEval(t, 60, 0)
+	c := loadCases(t)[0]
+	q, ss := c.query(false), c.stateSpace()
+	base, err := e.Decide(q, ss, Rule{Raise: 0.9, Clear: 0.45})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, prec := range []float64{PrecisionSE, 0.004} {
+		est, err := e.Decide(q, ss, Rule{Raise: 0.9, Clear: 0.45, Precision: prec})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if est.Decision != BelowClear {
+			t.Errorf("precision %v: decision %v, want %v", prec, est.Decision, BelowClear)
+		}
+		if est.StdErr > 1.5*prec || est.Paths <= base.Paths {
+			t.Errorf("precision %v: stopped at SE %.4f after %d paths (decision alone: SE %.4f after %d)",
+				prec, est.StdErr, est.Paths, base.StdErr, base.Paths)
+		}
+		if d := math.Abs(est.P - c.pGenz); d > 4*math.Hypot(est.StdErr, c.genzErr) {
+			t.Errorf("precision %v: p %.4f, pmvnorm %.4f", prec, est.P, c.pGenz)
+		}
+		t.Logf("precision %v: p %.4f ± %.4f after %d paths; decision alone %.4f ± %.4f after %d", prec, est.P, est.StdErr, est.Paths, base.P, base.StdErr, base.Paths)
+	}
+	for _, prec := range []float64{-0.01, math.NaN(), 1} {
+		if _, err := e.Decide(q, ss, Rule{Raise: 0.9, Clear: 0.45, Precision: prec}); !errors.Is(err, ErrRule) {
+			t.Errorf("precision %v: error %v, want ErrRule", prec, err)
+		}
+	}
+}
+
+// Query.Scale widens each step's error by its own factor, W_j = m_j +
+// f_j·e_j. Against a brute-force simulation of the case's process (common
+// practice: paths drawn step by step, each step's deviation from its mean
+// scaled by f_j), Decide (state-space paths) and Probability (joint
+// covariance) agree within 4 combined standard errors for every case of
+// crossing.csv with a gauge window, with factors rising from 0.8 to 1.3
+// over the window; and an unscaled run differs from the scaled reference
+// somewhere by more than that. A Scale of the wrong length or with a
+// non-positive factor is an error.
+func TestScalePerStep(t *testing.T) {
+	e := newEval(t, 60, 0)
+	differs := false
+	for _, c := range loadCases(t) {
+		if c.k < 2 {
+			continue
+		}
+		q := c.query(false)
+		mean, variance, joint := c.moments()
+		scale := make([]float64, c.h)
+		for j := range scale {
+			scale[j] = 0.8 + 0.5*float64(min(j, c.k-1))/float64(c.k-1)
+		}
+		sq := *q
+		sq.Scale = scale
+		sq.Variance = make([]float64, c.h)
+		for j := range variance {
+			sq.Variance[j] = variance[j] * scale[j] * scale[j]
+		}
+		// Brute force: the process's own paths, scaled about their means.
+		rng := rand.New(rand.NewPCG(5, 5))
+		const n = 40000
+		hits := 0
+		for range n {
+			x, crossed := c.x0, false
+			for j := 1; j <= c.k; j++ {
+				e := c.sigma * rng.NormFloat64()
+				if c.kind == "rw" {
+					x += c.a + e
+				} else {
+					x = c.b + c.a*(x-c.b) + e
+				}
+				w := mean[j-1] + scale[j-1]*(x-mean[j-1])
+				crossed = crossed || (c.direction == "below" && w < c.threshold) || (c.direction != "below" && w > c.threshold)
+			}
+			if crossed {
+				hits++
+			}
+		}
+		want := float64(hits) / n
+		seW := math.Sqrt(want * (1 - want) / n)
+		est, err := e.Decide(&sq, c.stateSpace(), Rule{})
+		if err != nil {
+			t.Fatalf("%s: %v", c.name, err)
+		}
+		pj, _, err := e.Probability(&sq, joint)
+		if err != nil {
+			t.Fatalf("%s: %v", c.name, err)
+		}
+		seJ := e.StdErr()
+		for _, got := range []struct {
+			name  string
+			p, se float64
+		}{{"Decide", est.P, est.StdErr}, {"Probability", pj, seJ}} {
+			if d := math.Abs(got.p - want); d > 4*math.Hypot(got.se, seW)+1e-12 {
+				t.Errorf("%s, %s: p %.4f ± %.4f with per-step scale, brute force %.4f ± %.4f", c.name, got.name, got.p, got.se, want, seW)
+			}
+		}
+		raw, err := e.Decide(q, c.stateSpace(), Rule{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if math.Abs(raw.P-want) > 4*math.Hypot(raw.StdErr, seW)+0.01 {
+			differs = true
+		}
+		t.Logf("%s: scaled Decide %.4f, Probability %.4f, brute force %.4f; unscaled %.4f", c.name, est.P, pj, want, raw.P)
+	}
+	if !differs {
+		t.Error("the unscaled probabilities match the scaled reference everywhere: the test cannot tell")
+	}
+	c := loadCases(t)[0]
+	q := c.query(false)
+	for _, bad := range [][]float64{make([]float64, c.h-1), append(make([]float64, c.h-1), -1)} {
+		q.Scale = bad
+		if _, err := e.Decide(q, c.stateSpace(), Rule{}); err == nil {
+			t.Errorf("scale %v: no error", bad)
+		}
 	}
 }

@@ -51,6 +51,7 @@ type Calibrator struct {
 	off          []int     // per horizon: offset of its ring in med/isd
 	med          []float64 // pending medians, NaN = nothing pending
 	isd          []float32 // pending 1/sd
+	pq           []float32 // pending: the thresholds it was issued with, L per forecast
 	updates      uint64    // (h, l) updates applied
 	pendingCount int
 }
@@ -119,6 +120,7 @@ func New(o Options) (*Calibrator, error) {
 	c.pendingCount = n
 	c.med = make([]float64, n)
 	c.isd = make([]float32, n)
+	c.pq = make([]float32, n*nl)
 	for i := range c.med {
 		c.med[i] = math.NaN()
 	}
@@ -150,12 +152,17 @@ func (c *Calibrator) Levels() []float64 { return c.levels }
 // Observe takes the value y of the bucket that just closed, on the model's
 // scale (NaN: missing), and resolves every forecast issued for it: the
 // forecast issued h buckets earlier for horizon h, for h = 1..H. For each
-// such forecast with median m and standard deviation s, and each level l,
+// such forecast with median m and standard deviation s, issued with the
+// threshold q' (Threshold(h, l) when it was issued: the band it was
+// published with), and each level l,
 //
-//	S = min(|y − m|/s, B),  err = 1{S > q_{h,l}},  q_{h,l} ← q_{h,l} + η(err − α_l)
+//	S = min(|y − m|/s, B),  err = 1{S > q'},  q_{h,l} ← q_{h,l} + η(err − α_l)
 //
 // (quantile tracking; in the parameter α_t = 1 − q/B this is the update of
-// adaptive conformal inference, α_{t+1} = α_t + γ(α − err_t) with γ = η/B).
+// adaptive conformal inference, α_{t+1} = α_t + γ(α − err_t) with γ = η/B,
+// with the feedback of horizon h arriving h buckets late). err is the miss
+// of the band as published, so the long-run bound of the package
+// documentation is a bound on the published bands' miss rate.
 // A missing y resolves nothing. Call Observe before Issue for the origin
 // at the same bucket. It does not allocate.
 func (c *Calibrator) Observe(y float64) {
@@ -190,9 +197,10 @@ func (c *Calibrator) Observe(y float64) {
 			s = bound
 		}
 		q := c.q[h*nl : h*nl+nl]
+		qi := c.pq[i*nl : i*nl+nl]
 		for l := range q {
 			e := 0.0
-			if s > q[l] {
+			if s > float64(qi[l]) {
 				e = 1
 			}
 			q[l] += eta * (e - miss[l])
@@ -205,7 +213,8 @@ func (c *Calibrator) Observe(y float64) {
 }
 
 // Issue records the forecast issued at the bucket last passed to Observe:
-// median[h−1] and sd[h−1] on the model's scale for h = 1..H. A step whose
+// median[h−1] and sd[h−1] on the model's scale for h = 1..H, with the
+// thresholds Threshold(h, l) its bands are published with. A step whose
 // sd is not positive and finite, or whose median is not finite, is not
 // recorded (it will resolve nothing). It panics if len(median) or len(sd)
 // is not H (a programmer error). It does not allocate.
@@ -215,6 +224,7 @@ func (c *Calibrator) Issue(median, sd []float64) {
 	}
 	med, isd, off, cur := c.med, c.isd, c.off[:len(median)], c.cur[:len(median)]
 	sd = sd[:len(median)]
+	nl, bound := c.nl, c.bound
 	for h, m := range median {
 		i := off[h] + int(cur[h])
 		// One test for everything: m − m is 0 only for a finite m, and
@@ -223,6 +233,16 @@ func (c *Calibrator) Issue(median, sd []float64) {
 		inv := float32(1 / sd[h])
 		if m-m == 0 && inv > 0 && inv <= math.MaxFloat32 {
 			med[i], isd[i] = m, inv
+			// Threshold(h, l) for every l: the running maximum over the
+			// lower levels, capped at B (as Thresholds).
+			row, out := c.q[h*nl:h*nl+nl], c.pq[i*nl:i*nl+nl]
+			v := 0.0
+			for l, q := range row {
+				if q > v {
+					v = q
+				}
+				out[l] = float32(min(v, bound))
+			}
 		} else {
 			med[i] = math.NaN()
 		}
@@ -281,6 +301,19 @@ func (c *Calibrator) Coverage(l int) (share, weight float64) {
 
 // Updates returns the number of (horizon, level) updates applied so far.
 func (c *Calibrator) Updates() uint64 { return c.updates }
+
+// KeepsAtRefit reports whether a refit of the series' model should keep
+// the thresholds rather than warm-start them: true once an online update
+// has been applied. Adaptive conformal inference lets the score function
+// change at every step, a model refitted on newer data included (Gibbs &
+// Candès 2021, §2: the model is re-estimated as the data arrive), and its
+// Proposition 1 needs only that α_t moves by the online update alone;
+// replacing the thresholds at each refit would add a jump to the sum the
+// bound telescopes, and the long-run bound would no longer hold for the
+// running series. So the warm start serves only a calibrator that has not
+// yet seen a realised value (the first fit, or a record without
+// calibration state).
+func (c *Calibrator) KeepsAtRefit() bool { return c.updates > 0 }
 
 // AppendState appends the fixed-size state to dst and returns the extended
 // slice (all float64): version, H, L, buckets observed, updates, η, B,
@@ -345,14 +378,19 @@ func (c *Calibrator) SetState(s []float64) error {
 	return nil
 }
 
-// AppendPending appends the forecasts issued and not yet realised, H(H+1)/2
-// pairs (median, 1/sd; NaN median: none), and returns the extended slice:
-// 16 bytes a pair, 29 280 bytes at H = 60. Restoring them with SetPending
-// after SetState continues the updates exactly; without them each horizon
-// h misses at most h updates after a restart.
+// AppendPending appends the forecasts issued and not yet realised,
+// H(H+1)/2 tuples (median, 1/sd, then the L thresholds they were issued
+// with; NaN median: none), and returns the extended slice: 8(2 + L) bytes
+// a tuple, 58 560 bytes at H = 60 with two levels. Restoring them with
+// SetPending after SetState continues the updates exactly; without them
+// each horizon h misses at most h updates after a restart.
 func (c *Calibrator) AppendPending(dst []float64) []float64 {
+	nl := c.nl
 	for i, m := range c.med {
 		dst = append(dst, m, float64(c.isd[i]))
+		for _, q := range c.pq[i*nl : i*nl+nl] {
+			dst = append(dst, float64(q))
+		}
 	}
 	return dst
 }
@@ -360,17 +398,26 @@ func (c *Calibrator) AppendPending(dst []float64) []float64 {
 // SetPending restores what AppendPending wrote (after SetState, which sets
 // the ring positions). On error (wrapping ErrState) nothing changes.
 func (c *Calibrator) SetPending(s []float64) error {
-	if len(s) != 2*c.pendingCount {
-		return fmt.Errorf("calibrate: set pending: %w: %d values, want %d", ErrState, len(s), 2*c.pendingCount)
+	w := 2 + c.nl
+	if len(s) != w*c.pendingCount {
+		return fmt.Errorf("calibrate: set pending: %w: %d values, want %d", ErrState, len(s), w*c.pendingCount)
 	}
 	for i := 0; i < c.pendingCount; i++ {
-		m, v := s[2*i], s[2*i+1]
+		m, v := s[w*i], s[w*i+1]
 		if !math.IsNaN(m) && (math.IsInf(m, 0) || !(v > 0) || math.IsInf(v, 0)) {
-			return fmt.Errorf("calibrate: set pending: %w: pair %d is (%v, %v)", ErrState, i, m, v)
+			return fmt.Errorf("calibrate: set pending: %w: forecast %d is (%v, %v)", ErrState, i, m, v)
+		}
+		for _, q := range s[w*i+2 : w*i+w] {
+			if !math.IsNaN(m) && !(q >= 0 && q <= c.bound) {
+				return fmt.Errorf("calibrate: set pending: %w: forecast %d threshold %v", ErrState, i, q)
+			}
 		}
 	}
 	for i := 0; i < c.pendingCount; i++ {
-		c.med[i], c.isd[i] = s[2*i], float32(s[2*i+1])
+		c.med[i], c.isd[i] = s[w*i], float32(s[w*i+1])
+		for l := 0; l < c.nl; l++ {
+			c.pq[i*c.nl+l] = float32(s[w*i+2+l])
+		}
 	}
 	return nil
 }

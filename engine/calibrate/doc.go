@@ -44,9 +44,10 @@
 // Each closed bucket resolves the forecasts issued for it, one per horizon
 // (issued h buckets earlier), and moves every threshold by quantile tracking
 // (Angelopoulos, Candès & Tibshirani 2023, §2, the P part of conformal PID
-// control):
+// control), err being the miss of the band as it was published (q' the
+// threshold at issue, Threshold(h, l) then):
 //
-//	err = 1{S > q_{h,l}},   q_{h,l} ← q_{h,l} + η·(err − α_l).
+//	err = 1{S > q'},   q_{h,l} ← q_{h,l} + η·(err − α_l).
 //
 // Written in α_t = 1 − q/B this is adaptive conformal inference (Gibbs &
 // Candès 2021, eq. 2), α_{t+1} = α_t + γ(α − err_t) with γ = η/B, over the
@@ -58,15 +59,31 @@
 //
 // Forecasts for horizon h arrive h buckets late, so α_t moves up to h
 // steps before its first feedback; the identity Σ(α − err_t) = (α_{T+1} −
-// α_1)/γ behind the bound still holds, with α_t in [−hγ, 1 + hγ].
+// α_1)/γ behind the bound still holds (each update adds γ(α − err)), and
+// since a miss needs q' < B and a hit q' ≥ 0, α_t stays in [−hγ, 1 + hγ]:
+//
+//	|(1/T)·Σ_{t≤T} err_t − α| ≤ (max(α_1, 1 − α_1) + hγ)/(γT)
+//
+// for the T forecasts of horizon h resolved so far, err_t the miss of the
+// band as published.
+//
+// # Refits
+//
+// A series refits its model every so often; a refit changes the score
+// function, which adaptive conformal inference allows at every step (Gibbs
+// & Candès 2021, §2). So once the calibrator has updated online, a refit
+// keeps its thresholds (KeepsAtRefit) and the bound above holds for the
+// running series across refits; the warm start serves only a calibrator
+// that has seen no realised value yet.
 //
 // # State and cost
 //
 // The fixed state (AppendState) is 8 + 3L + H·L float64 values: 1 072 bytes
 // at H = 60 with two levels. The forecasts issued and not yet realised are
-// H(H+1)/2 (median, 1/sd) pairs, 12 bytes each in memory (21 960 bytes at
-// H = 60); AppendPending writes them as 16-byte pairs (29 280 bytes) for a
-// restart that continues every update exactly. The record of a series
+// H(H+1)/2 (median, 1/sd, L thresholds at issue) tuples, 12 + 4L bytes each
+// in memory (36 600 bytes at H = 60 with two levels); AppendPending writes
+// them as float64 (58 560 bytes) for a restart that continues every update
+// exactly. The record of a series
 // keeps the fixed state only: a restart without the pending forecasts
 // loses at most h updates of horizon h, which moves no threshold by more
 // than h·η·max(α, 1 − α), and on a seeded t(3) simulation changes the

@@ -43,7 +43,9 @@ type AlertRule struct {
 //   - a gauge is decided by alert.Evaluator.Decide with the rule's current
 //     state (alert.Rule.Current), so only the level that can change it is
 //     tested, and paths are drawn from ps, filled once per call from the
-//     filter (arima.Filter.PathSystem; nil ps: no simulation possible). A
+//     filter (arima.Filter.PathSystem; nil ps: no simulation possible),
+//     until the estimate's standard error is at most alert.PrecisionSE,
+//     because the probability is published, not only compared. A
 //     counter takes the exact marginal at the window's end;
 //   - the simulation seed is a hash of the topic, the rule name and the
 //     forecast origin (data time), so the same input gives the same
@@ -107,9 +109,9 @@ type AlertWork struct {
 // alertItem is one rule of an AlertWork.
 type alertItem struct {
 	q    alert.Query
-	v    []float64        // the calibrated variances (calibration on), kept between calls
-	f2   float64          // the square of the calibration factor (0: none)
-	ss   alert.StateSpace // the path system with the calibrated σ², for Run
+	v    []float64 // the calibrated variances (calibration on), kept between calls
+	f    []float64 // the calibration factor per step (calibration on), kept between calls
+	cal  bool      // v and f are in use
 	lv   alert.Rule
 	est  alert.Estimate
 	err  error
@@ -174,12 +176,14 @@ func (s *Series) PrepareAlerts(w *AlertWork, rules []AlertRule, ev *alert.Evalua
 	origin := s.mf.Origin()
 	for i := range rules {
 		r, it := &rules[i], &w.items[i]
-		*it = alertItem{v: it.v[:0]}
+		*it = alertItem{v: it.v[:0], f: it.f[:0]}
 		if r.Window < 1 || r.Window > s.set.Horizon {
 			it.err = fmt.Errorf("%w: rule %q: window %d steps, horizon %d", ErrAlertRule, r.Name, r.Window, s.set.Horizon)
 			continue
 		}
-		lv := alert.Rule{Raise: r.Raise, Clear: r.Clear}.WithDefaults()
+		// The probability is published (Snapshot, alert messages), so the
+		// simulation must make it precise, not only decide the levels.
+		lv := alert.Rule{Raise: r.Raise, Clear: r.Clear, Precision: alert.PrecisionSE}.WithDefaults()
 		if err := lv.Validate(); err != nil {
 			it.err = fmt.Errorf("%w: rule %q: %w", ErrAlertRule, r.Name, err)
 			continue
@@ -196,15 +200,17 @@ func (s *Series) PrepareAlerts(w *AlertWork, rules []AlertRule, ev *alert.Evalua
 			Mean: s.mf.Mean, Variance: s.mf.Variance, Threshold: c, Direction: dir,
 			Window: r.Window, Monotone: !gauge, Seed: alertSeed(s.snap.Topic, r.Name, origin.Unix()),
 		}
-		if f := s.alertFactor(r.Window); f != 1 {
-			// The calibrated spread: every variance of the window times
-			// f², f the calibration factor at the window's last step.
-			f2 := f * f
-			it.f2 = f2
-			for _, v := range s.mf.Variance {
-				it.v = append(it.v, v*f2)
+		if s.cal != nil {
+			// The calibrated spread, step by step: step j's error times
+			// f_j, its calibration factor (alertFactor), so that its
+			// variance is f_j² times the model's and the paths keep the
+			// model's correlation.
+			for j, v := range s.mf.Variance {
+				f := s.alertFactor(j + 1)
+				it.f = append(it.f, f)
+				it.v = append(it.v, v*f*f)
 			}
-			it.q.Variance = it.v
+			it.q.Variance, it.q.Scale, it.cal = it.v, it.f, true
 		}
 		est, done, err := ev.Screen(&it.q, lv)
 		if done {
@@ -240,7 +246,7 @@ func (s *Series) PrepareAlerts(w *AlertWork, rules []AlertRule, ev *alert.Evalua
 			if it := &w.items[i]; it.sim {
 				it.q.Mean = w.mean
 				it.q.Offset = off
-				if it.f2 == 0 {
+				if !it.cal {
 					it.q.Variance = w.variance
 				}
 			}
@@ -262,16 +268,9 @@ func (w *AlertWork) Run(ev *alert.Evaluator) {
 		if !it.sim || it.done {
 			continue
 		}
-		iss := ss
-		if ss != nil && it.f2 > 0 {
-			// Scaling σ² scales every forecast variance of the state
-			// space alike and leaves its means: the paths of the
-			// calibrated spread (it.v = f²·variance).
-			it.ss = *ss
-			it.ss.Sigma2 = ss.Sigma2 * it.f2
-			iss = &it.ss
-		}
-		est, err := ev.Decide(&it.q, iss, it.lv)
+		// A calibrated item's Query.Scale widens the paths of the
+		// model's state space step by step (alert.Query.Scale).
+		est, err := ev.Decide(&it.q, ss, it.lv)
 		it.est, it.done = est, true
 		if err != nil {
 			it.err = fmt.Errorf("series: alert rule %q on %q: %w", w.rules[i].Name, w.topic, err)
@@ -325,14 +324,13 @@ func (s *Series) FinishAlerts(dst []AlertEvent, w *AlertWork) ([]AlertEvent, err
 	return dst, errors.Join(errs...)
 }
 
-// alertFactor is the calibration factor of the spread a rule of a window
-// of k steps is evaluated with: Factor(k, L) of the calibrator, L the
-// widest level, or 1 without calibration. A rule's probability is a tail
-// probability, which the widest band calibrates most closely, and the
-// window's last step carries the largest spread, which decides most
-// crossings; the factor scales the spread of every step of the window
-// alike, so that the paths keep the model's correlation. A non-positive
-// or non-finite factor (a threshold at 0) counts as 1.
+// alertFactor is the calibration factor of the spread at step k of a
+// rule's window: Factor(k, L) of the calibrator, L the widest level, or 1
+// without calibration. A rule's probability is a tail probability, which
+// the widest band calibrates most closely. Each step's error is widened
+// by its own factor, so the marginal at every step is the calibrated
+// band's and the paths keep the model's correlation. A non-positive or
+// non-finite factor (a threshold at 0) counts as 1.
 func (s *Series) alertFactor(k int) float64 {
 	if s.cal == nil {
 		return 1

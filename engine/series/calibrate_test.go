@@ -169,12 +169,14 @@ func TestUncalibratedBands(t *testing.T) {
 
 // Property test against simulated paths, as the alert tests do: with
 // calibration on, a gauge rule's probability of crossing within k = 6
-// steps is that of the fitted AR(1)'s paths with every innovation's sd
-// times the calibration factor f = Factor(6, widest level), estimated here
-// by 40 000 paths simulated directly from the recursion
-// x_{t+1} = μ + φ(x_t − μ) + f·σ·ε (common practice), within 4 combined
-// standard errors; and it differs from the uncalibrated probability (f = 1)
-// by more than that, so the check can tell them apart.
+// steps is that of the fitted AR(1)'s paths with each step's error times
+// its calibration factor f_j = Factor(j, widest level), W_j = m_j + f_j·e_j,
+// estimated here by 40 000 paths simulated directly from the recursion
+// x_{t+1} = μ + φ(x_t − μ) + σ·ε, e_j = x_j − m_j (common practice), within
+// 4 combined standard errors; and it differs from the uncalibrated
+// probability (f = 1) and from one factor for the whole window
+// (f_j = Factor(6, widest)) by more than that, so the check can tell them
+// apart.
 func TestCalibratedAlertProbability(t *testing.T) {
 	y := ar1T(900, 0.6, 100, 21)
 	s, err := New("cal", calSettings(true))
@@ -192,21 +194,22 @@ func TestCalibratedAlertProbability(t *testing.T) {
 	}
 	mean, variance, _ := s.ModelScale()
 	thr := mean[k-1] + 1.3*math.Sqrt(variance[k-1])
-	rule := AlertRule{Name: "up", Threshold: thr, Above: true, Window: k, Raise: 0.2, Clear: 0.19} // levels near p: the evaluator draws many paths
+	rule := AlertRule{Name: "up", Threshold: thr, Above: true, Window: k, Raise: 0.15, Clear: 0.14} // Raise near p: the evaluator draws every path
 	r := newAlertRig(t, s, []AlertRule{rule})
 	if _, err := s.EvaluateAlerts(nil, r.rules, r.ev, &r.ps); err != nil {
 		t.Fatal(err)
 	}
 	got := s.Snapshot().Alerts[0].Probability
-	mc := func(scale float64) (p, se float64) {
+	mc := func(scale func(j int) float64) (p, se float64) {
 		rng := rand.New(rand.NewPCG(99, 1))
 		const n = 40000
 		hits := 0
 		for range n {
-			x := last
-			for j := 0; j < k; j++ {
-				x = mu + phi*(x-mu) + scale*sigma*rng.NormFloat64()
-				if x > thr {
+			x, m := last, last
+			for j := 1; j <= k; j++ {
+				x = mu + phi*(x-mu) + sigma*rng.NormFloat64()
+				m = mu + phi*(m-mu)
+				if m+scale(j)*(x-m) > thr {
 					hits++
 					break
 				}
@@ -215,16 +218,24 @@ func TestCalibratedAlertProbability(t *testing.T) {
 		p = float64(hits) / n
 		return p, math.Sqrt(p * (1 - p) / n)
 	}
-	want, seW := mc(f)
-	raw, seR := mc(1)
+	want, seW := mc(func(j int) float64 { return s.Calibrator().Factor(j, 1) })
+	raw, seR := mc(func(int) float64 { return 1 })
+	one, seO := mc(func(int) float64 { return f })
 	est := s.work.items[0].est
 	tol := 4 * math.Sqrt(seW*seW+est.StdErr*est.StdErr)
-	t.Logf("factor %.3f: p %.4f (±%.4f, %d paths), simulated %.4f ± %.4f; uncalibrated %.4f ± %.4f", f, got, est.StdErr, est.Paths, want, seW, raw, seR)
+	t.Logf("factor at h=%d %.3f: p %.4f (±%.4f, %d paths), simulated %.4f ± %.4f; uncalibrated %.4f ± %.4f; one factor for the window %.4f ± %.4f",
+		k, f, got, est.StdErr, est.Paths, want, seW, raw, seR, one, seO)
+	if est.Paths != r.ev.Paths() {
+		t.Errorf("decided after %d of %d paths: p %.4f is not within Monte Carlo error of Raise %.2f, where the simulated paths put it", est.Paths, r.ev.Paths(), got, rule.Raise)
+	}
 	if math.Abs(got-want) > tol {
 		t.Errorf("calibrated probability %.4f, simulated paths with the calibrated spread %.4f (tolerance %.4f)", got, want, tol)
 	}
 	if math.Abs(raw-want) <= tol+4*seR {
 		t.Errorf("uncalibrated %.4f and calibrated %.4f paths are within the tolerance: the test cannot tell them apart", raw, want)
+	}
+	if math.Abs(one-want) <= tol+4*seO {
+		t.Errorf("one factor for the window %.4f and per-step factors %.4f are within the tolerance: the test cannot tell them apart", one, want)
 	}
 }
 

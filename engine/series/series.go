@@ -643,8 +643,13 @@ func (s *Series) initCalibrator() error {
 // would have issued over the window (calibrate.WarmStart: one filter pass
 // and at most calibrate.DefaultWarmOrigins forecasts). When the window
 // leaves no forecast to learn from, the thresholds go back to the model's
-// own.
+// own. A calibrator that has already updated online keeps its thresholds
+// (calibrate.Calibrator.KeepsAtRefit).
 func (s *Series) warmCalibrator() {
+	if s.cal.KeepsAtRefit() {
+		s.cal.Thresholds(s.mf.Mult)
+		return
+	}
 	w := make([]float64, len(s.snap.Window))
 	for i, v := range s.snap.Window {
 		w[i] = math.NaN()

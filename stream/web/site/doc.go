@@ -8,7 +8,7 @@
 //	GET /healthz                          200 "ok" while the process serves
 //	GET /readyz                           200 once the state is loaded, else 503
 //	GET /metrics                          OpenMetrics (or Prometheus text, by Accept)
-//	GET /api/series                       JSON list of Summary, sorted by topic
+//	GET /api/series                       JSON list of Summary, sorted by topic (with realised coverage per level)
 //	GET /api/series/{topic}               the latest forecast message (CONTRACT.md §2)
 //	GET /api/series/{topic}/chart.svg     chart; ?w= and ?h= in pixels, ?points= history buckets
 //	GET /api/partitions                   cluster mode: the instance owning each partition (owners.go)

@@ -83,6 +83,19 @@ type Summary struct {
 	// the instance that owns it (owners.go).
 	Partition *int   `json:"partition,omitempty"`
 	Owner     string `json:"owner,omitempty"`
+	// Coverage: per level, the realised coverage of the series' recent
+	// bands (View.Coverage); absent when the series does not calibrate.
+	Coverage []CoverageSummary `json:"coverage,omitempty"`
+}
+
+// CoverageSummary is the realised coverage of one level in a Summary:
+// the nominal level in percent, the share of recent forecasts whose value
+// fell inside the band (null before any was resolved) and the weighted
+// number of forecasts behind it.
+type CoverageSummary struct {
+	Level    float64  `json:"level"`
+	Realised *float64 `json:"realised"`
+	Weight   float64  `json:"weight"`
 }
 
 // AlertSummary is the state of one alert rule in a Summary.
@@ -111,6 +124,13 @@ func Summarize(v *View) Summary {
 			a.Probability = &p
 		}
 		sm.Alerts = append(sm.Alerts, a)
+	}
+	for _, c := range v.Coverage {
+		cs := CoverageSummary{Level: c.Level, Weight: c.Weight}
+		if x := c.Share; finite(x) {
+			cs.Realised = &x
+		}
+		sm.Coverage = append(sm.Coverage, cs)
 	}
 	return sm
 }

@@ -73,6 +73,16 @@ func TestSeriesJSON(t *testing.T) {
 	if len(air.Alerts) != 2 || air.Alerts[0].State != "raised" || air.Alerts[1].State != "cleared" || air.Alerts[1].Probability != nil {
 		t.Errorf("alerts %+v", air.Alerts)
 	}
+	// Realised coverage per level, as on the series page (issue 13): a
+	// level with nothing resolved yet is null; a series that does not
+	// calibrate has none.
+	if c := air.Coverage; len(c) != 2 || c[0].Level != 80 || c[0].Realised == nil || *c[0].Realised != 0.7843 ||
+		c[0].Weight != 1234.4 || c[1].Level != 95 || c[1].Realised != nil {
+		t.Errorf("air.passengers coverage %+v", c)
+	}
+	if list[1].Coverage != nil {
+		t.Errorf("lab.hormone does not calibrate, coverage %+v", list[1].Coverage)
+	}
 	if list[1].Model != "" || list[1].Status != "warming_up" || !list[1].Origin.IsZero() {
 		t.Errorf("warming series %+v", list[1])
 	}
