@@ -96,9 +96,10 @@
 // that can change it is tested: Raise for a cleared rule, Clear for a
 // raised one, so a p near the other level stops as early
 // (BenchmarkDecideK120NearClear). With Rule.Precision set (the daemon
-// sets PrecisionSE = 0.01, because it publishes the probability), a
-// decision whose estimate is less precise is followed by fresh paths,
-// as many as give that standard error, and the probability is theirs: a
+// sets PrecisionSE = 0.01 and PrecisionDraws = PrecisionN, because it
+// publishes the probability), the decision is always followed by fresh
+// paths, as many as give the standard error Rule.precisionAt plans, and
+// the probability is theirs: a
 // probability left after the first batch decides the levels soundly but
 // is too noisy to be read as a probability, and one from paths drawn
 // until they look precise is biased (engine/series

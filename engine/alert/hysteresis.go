@@ -25,6 +25,14 @@ type Rule struct {
 	// that is published). Zero: the estimate of the deciding paths. Next
 	// ignores it.
 	Precision float64
+	// PrecisionDraws, when positive, loosens Precision where p is far
+	// from 0: the standard error aimed at is no smaller than that of
+	// PrecisionDraws independent draws at the deciding estimate p,
+	// √(p(1−p)/PrecisionDraws) (PrecisionN for a published probability).
+	// A small p is still estimated to Precision, a middling one to the
+	// precision of that many draws, which bounds the paths a published
+	// estimate costs. Zero: Precision alone.
+	PrecisionDraws int
 }
 
 // State is an alert rule's hysteresis state as Decide takes it.
@@ -59,6 +67,9 @@ func (r Rule) WithDefaults() Rule {
 func (r Rule) Validate() error {
 	if math.IsNaN(r.Raise) || math.IsNaN(r.Clear) || !(0 < r.Clear && r.Clear < r.Raise && r.Raise <= 1) {
 		return fmt.Errorf("alert: rule raise %v clear %v: %w", r.Raise, r.Clear, ErrRule)
+	}
+	if r.PrecisionDraws < 0 {
+		return fmt.Errorf("alert: rule precision draws %d: %w", r.PrecisionDraws, ErrRule)
 	}
 	if !(r.Precision >= 0 && r.Precision < 1) {
 		return fmt.Errorf("alert: rule precision %v: %w", r.Precision, ErrRule)

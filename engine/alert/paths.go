@@ -109,7 +109,27 @@ const (
 	// below the width of a reliability bin (engine/series
 	// TestAlertReliabilityCalibrated).
 	PrecisionSE = 0.01
+	// PrecisionN is the Rule.PrecisionDraws for a published probability:
+	// away from 0 and 1 its estimate is as precise as 100 independent
+	// draws (a standard error of 0.05 at p = ½, 0.042 at p = 0.23), which
+	// keeps the noise within a tenth of a reliability bin's spread at
+	// that p while a published estimate costs a few dozen pairs, not
+	// hundreds (stream/daemon BenchmarkFleetNearCapacity).
+	PrecisionN = 100
 )
+
+// precisionAt is the standard error the published estimate is planned
+// for, given the deciding estimate p: Precision, loosened to that of
+// PrecisionDraws independent draws at p. Zero: no planning.
+func (r Rule) precisionAt(p float64) float64 {
+	if r.Precision <= 0 {
+		return 0
+	}
+	if r.PrecisionDraws > 0 {
+		return math.Max(r.Precision, math.Sqrt(p*(1-p)/float64(r.PrecisionDraws)))
+	}
+	return r.Precision
+}
 
 // pathWork is the workspace of the path simulation, grown to the largest
 // state dimension seen, then reused.
@@ -170,10 +190,10 @@ func growF(s []float64, n int) []float64 {
 // Raise or below it (AboveRaise, BelowRaise), for a Raised rule once it
 // lies below Clear or at or above it (BelowClear, AboveClear), so a p near
 // the other level no longer draws the whole budget. With rule.Precision
-// > 0 and a decision whose estimate is less precise than that, P and
-// StdErr then come from fresh pairs, as many as the per-pair variance of
-// the paths so far says give a standard error of Precision (at least one
-// batch, within the budget), clamped to [Lo, Hi]: a decision taken after a
+// > 0, P and StdErr then always come from fresh pairs, as many as the
+// per-pair variance of the paths so far says give the standard error
+// rule.precisionAt plans (Precision, loosened by PrecisionDraws away from
+// p = 0; at least one batch, within the budget), clamped to [Lo, Hi]: a decision taken after a
 // few dozen paths is sound, but the estimate it leaves is too noisy to be
 // published as the rule's probability, and going on with the same paths
 // until their estimate looks precise would bias it (a low estimate of a
@@ -507,8 +527,10 @@ func (e *Evaluator) simulatePaths(ss *StateSpace, sc *screened, rule Rule, noSto
 		if est.Decision = place(est.Lo, est.Hi, rule); est.Decision == Undecided {
 			continue
 		}
-		if rule.Precision > 0 && est.StdErr > rule.Precision && a.n < maxPairs {
-			e.estimateAfresh(ss, sc, rule.Precision, s2, maxPairs-a.n, est)
+		if prec := rule.precisionAt(est.P); prec > 0 && a.n < maxPairs {
+			// always fresh paths: the deciding ones stopped because of
+			// their own estimate, however precise it looks
+			e.estimateAfresh(ss, sc, prec, s2, maxPairs-a.n, est)
 		}
 		return
 	}

@@ -300,6 +300,34 @@ func TestDecidePrecision(t *testing.T) {
 			t.Errorf("precision %v: error %v, want ErrRule", prec, err)
 		}
 	}
+	if _, err := e.Decide(q, ss, Rule{Raise: 0.9, Clear: 0.45, Precision: PrecisionSE, PrecisionDraws: -1}); !errors.Is(err, ErrRule) {
+		t.Errorf("precision draws -1: error %v, want ErrRule", err)
+	}
+
+	// PrecisionDraws loosens the target where p is away from 0: the
+	// estimate is planned for the standard error of PrecisionN independent
+	// draws at p (binomial, common practice), with fewer paths than the
+	// absolute Precision asks for, and it still agrees with pmvnorm.
+	abs, err := e.Decide(q, ss, Rule{Raise: 0.9, Clear: 0.45, Precision: PrecisionSE})
+	if err != nil {
+		t.Fatal(err)
+	}
+	rel, err := e.Decide(q, ss, Rule{Raise: 0.9, Clear: 0.45, Precision: PrecisionSE, PrecisionDraws: PrecisionN})
+	if err != nil {
+		t.Fatal(err)
+	}
+	target := math.Sqrt(c.pGenz * (1 - c.pGenz) / PrecisionN)
+	if target <= PrecisionSE {
+		t.Fatalf("case p %.4f: √(p(1−p)/%d) = %.4f does not loosen %v; the check needs a middling p", c.pGenz, PrecisionN, target, PrecisionSE)
+	}
+	if rel.StdErr > 1.5*target || rel.Paths >= abs.Paths || rel.Paths <= base.Paths {
+		t.Errorf("precision draws %d: SE %.4f after %d paths, want about %.4f with fewer paths than Precision alone (%d) and more than the decision (%d)",
+			PrecisionN, rel.StdErr, rel.Paths, target, abs.Paths, base.Paths)
+	}
+	if d := math.Abs(rel.P - c.pGenz); d > 4*math.Hypot(rel.StdErr, c.genzErr) {
+		t.Errorf("precision draws %d: p %.4f, pmvnorm %.4f", PrecisionN, rel.P, c.pGenz)
+	}
+	t.Logf("precision draws %d: p %.4f ± %.4f after %d paths (target %.4f); Precision alone %d paths", PrecisionN, rel.P, rel.StdErr, rel.Paths, target, abs.Paths)
 }
 
 // Query.Scale widens each step's error by its own factor, W_j = m_j +

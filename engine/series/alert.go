@@ -44,8 +44,10 @@ type AlertRule struct {
 //     state (alert.Rule.Current), so only the level that can change it is
 //     tested, and paths are drawn from ps, filled once per call from the
 //     filter (arima.Filter.PathSystem; nil ps: no simulation possible),
-//     until the estimate's standard error is at most alert.PrecisionSE,
-//     because the probability is published, not only compared. A
+//     until the levels are decided, then fresh paths for the published
+//     estimate (standard error alert.PrecisionSE near 0, that of
+//     alert.PrecisionN draws elsewhere), because the probability is
+//     published, not only compared. A
 //     counter takes the exact marginal at the window's end;
 //   - the simulation seed is a hash of the topic, the rule name and the
 //     forecast origin (data time), so the same input gives the same
@@ -183,7 +185,7 @@ func (s *Series) PrepareAlerts(w *AlertWork, rules []AlertRule, ev *alert.Evalua
 		}
 		// The probability is published (Snapshot, alert messages), so the
 		// simulation must make it precise, not only decide the levels.
-		lv := alert.Rule{Raise: r.Raise, Clear: r.Clear, Precision: alert.PrecisionSE}.WithDefaults()
+		lv := alert.Rule{Raise: r.Raise, Clear: r.Clear, Precision: alert.PrecisionSE, PrecisionDraws: alert.PrecisionN}.WithDefaults()
 		if err := lv.Validate(); err != nil {
 			it.err = fmt.Errorf("%w: rule %q: %w", ErrAlertRule, r.Name, err)
 			continue
