@@ -115,6 +115,8 @@ type guardState struct {
 	// snapOK is false only after a record of the first layout restored
 	// with a run open (its state at the run's start was a and P alone).
 	runY    []float64
+	rq      []float64 // members being replayed (retract), a stack
+	rqTop   int
 	snap    []float64
 	snapOK  bool
 	runN    int
@@ -158,7 +160,7 @@ func (f *Filter) SetGuard(g Guard) error {
 		f.allocAug() // the snapshot of a run may hold the levels in the state
 	}
 	f.gd = guardState{on: true, g: g, z: math.NaN(), runV: make([]float64, g.Run), runS: make([]float64, g.Run), shift: f.gd.shift, c0: f.c - f.gd.shift,
-		runY: make([]float64, g.Run), snap: make([]float64, f.snapLen()),
+		runY: make([]float64, g.Run), rq: make([]float64, g.Run*g.Run), snap: make([]float64, f.snapLen()),
 		lA: make([]float64, f.r), lK: make([]float64, f.r), xs: make([]float64, f.maxH)}
 	return nil
 }
@@ -233,38 +235,50 @@ func (f *Filter) restoreRun() {
 }
 
 // retract ends the open run, whose members after the first turned out
-// to be ordinary values (the run broke, or the median rule called it a
-// spike), re-applying the first k−1 of them as observations. The check
-// took each member as missing, an intervention on that step: the Kalman
-// filter with a missing observation only predicts (Durbin & Koopman
-// 2012, §4.10). Retracting the intervention for the later members needs
-// no smoother: the filter is a deterministic function of its state and
-// the values it absorbs, so it goes back to its complete state at the
-// run's first step (the snapshot), repeats that step as missing (the
-// spike stays out) and absorbs the stored members 2..k as observed
-// values, in order, with the learning of a shift's size stepped as Step
-// steps it. The result is, bit for bit, the filter of the series with
-// only the run's first bucket missing. The stored values carry the
-// regression already removed (Step subtracts x_tᵀβ at each member's own
-// time before the check), so the replay uses no regressor and leaves the
-// clock alone. The caller then judges the current value afresh.
+// not to be a level shift (the run broke, the median rule called it a
+// spike, or a missing value cut it), re-applying the first k−1 of them
+// as observations. The check took each member as missing, an
+// intervention on that step: the Kalman filter with a missing
+// observation only predicts (Durbin & Koopman 2012, §4.10). Retracting
+// the intervention for the later members needs no smoother: the filter
+// is a deterministic function of its state and the values it is given,
+// so it goes back to its complete state at the run's first step (the
+// snapshot), repeats that step as missing (the first member stays out)
+// and gives it the stored members 2..k again, in order, each through the
+// check as Step would (a member may itself be extreme, or open a run of
+// its own, which is then retracted or left open in the same way). The
+// result is, bit for bit, the filter of the series with only the run's
+// first bucket missing. The stored values carry the regression already
+// removed (Step subtracts x_tᵀβ at each member's own time before the
+// check), so the replay uses no regressor and leaves the clock alone.
+// The caller then judges the current value (rejudge). A nested run has
+// fewer members than the one it came from, so the recursion is at most
+// Run deep; the members wait in rq, a stack of Run² values.
 func (f *Filter) retract(k int) {
 	gd := &f.gd
 	gd.runN = 0
 	if k < 2 || !gd.snapOK {
 		return // nothing after the first member, or no state to go back to
 	}
+	base := gd.rqTop
+	m := copy(gd.rq[base:], gd.runY[1:k])
+	gd.rqTop += m
 	f.restoreRun()
 	if gd.learn > 0 {
 		f.learnStep(math.NaN())
 	}
 	f.absorb(math.NaN())
-	for _, y := range gd.runY[1:k] {
-		if gd.learn > 0 {
-			f.learnStep(y)
-		}
-		f.absorb(y)
+	for _, y := range gd.rq[base : base+m] {
+		f.absorb(f.guardCheck(y))
 	}
+	gd.rqTop = base
+}
+
+// rejudge is guardJudge on the current value after a retraction, whose
+// replayed members left their verdicts behind.
+func (f *Filter) rejudge(y float64) float64 {
+	f.gd.verdict, f.gd.z = VerdictNone, math.NaN()
+	return f.guardJudge(y)
 }
 
 // LastVerdict returns what the check made of the last Step and that
@@ -280,10 +294,12 @@ func (f *Filter) guardCheck(y float64) float64 {
 	gd := &f.gd
 	gd.verdict, gd.z = VerdictNone, math.NaN()
 	if math.IsNaN(y) || f.mode == modeWarm {
-		if gd.runN > 0 {
-			// a gap ends the run (its members are consecutive steps)
+		for gd.runN > 0 {
+			// a gap ends the run (its members are consecutive steps),
+			// and any run its replay leaves open
 			f.retract(gd.runN)
 		}
+		gd.verdict, gd.z = VerdictNone, math.NaN()
 		if gd.learn > 0 {
 			f.learnStep(math.NaN())
 		}
@@ -319,15 +335,13 @@ func (f *Filter) guardJudge(y float64) float64 {
 					return f.declareShift(y)
 				}
 				// one large value and ordinary ones: a spike, not a step;
-				// the members between the first and this one were ordinary
+				// the members between the first and this one go back in
 				f.retract(gd.runN - 1)
-			} else {
-				f.retract(gd.runN) // the run broke
+				return f.rejudge(y)
 			}
-		} else {
-			f.retract(gd.runN)
 		}
-		v, F = f.innovation(y) // this step is judged afresh
+		f.retract(gd.runN) // the run broke
+		return f.rejudge(y)
 	}
 	if !(F > 0) || math.IsInf(F, 0) {
 		return y

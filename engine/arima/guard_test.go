@@ -64,12 +64,20 @@ func maxGap(a, b, se []float64, shift float64) float64 {
 // discarded bucket's own information, gain × its ordinary error: median
 // below 0.5σ and at least 90 % of the seeds below 1σ (σ: the clean
 // forecast's standard error at each horizon h = 1..24). Without the check
-// the spike moves them by more than 10σ in every seed.
+// the spike moves them by more than 10σ in every seed. Five ordinary
+// buckets later the forecasts still equal, to 1e-9 σ, those of the series
+// with only the spike's bucket missing, also in the seeds where the next
+// value joined the spike's run (re-applied when the run ended); their gap
+// to the clean series' is logged. Left out of that (and counted): seeds in
+// which the spike joined a run a 3σ value had opened just before, and
+// seeds in which the spike and the next two values were read as a level
+// shift (the run's median beyond 3 on the spike's scale).
 func TestGuardSpike(t *testing.T) {
 	const n, T, h, reps = 240, 200, 24, 200
 	for _, name := range []string{"airline12", "arima111", "ar1mean"} {
 		m := guardModels(t)[name]
-		var gaps []float64
+		var gaps, gaps5 []float64
+		joined, preRun, falseShift := 0, 0, 0
 		minRaw := math.Inf(1)
 		for seed := uint64(1); seed <= reps; seed++ {
 			y := simulate(m, n, seed)
@@ -93,9 +101,42 @@ func TestGuardSpike(t *testing.T) {
 			mu, su, _ := runGuarded(t, m, clean, h, false)
 			gaps = append(gaps, maxGap(ms, mc, se, 0))
 			minRaw = math.Min(minRaw, maxGap(mp, mu, su, 0))
+			// five ordinary buckets later: a value that joined the spike's
+			// run has been re-applied (TestGuardRetractsRun), unless the
+			// spike joined a run already open or the check read the run
+			// as a level shift (counted)
+			pre := f.gd.runN != 1
+			shifted := false
+			for i := T + 1; i <= T+5; i++ {
+				f.Step(y[i])
+				v, _ := f.LastVerdict()
+				if i == T+1 && v == VerdictOutlier {
+					joined++
+				}
+				shifted = shifted || v == VerdictShift
+			}
+			switch {
+			case pre:
+				preRun++
+				continue
+			case shifted:
+				falseShift++
+				continue
+			}
+			ms5, _, _ := runGuarded(t, m, append(spiky[:T+1:T+1], y[T+1:T+6]...), h, true)
+			mh5, _, _ := runGuarded(t, m, append(holed[:T+1:T+1], y[T+1:T+6]...), h, true)
+			mc5, se5, _ := runGuarded(t, m, y[:T+6], h, true)
+			if g := maxGap(ms5, mh5, se5, 0); g > 1e-9 {
+				t.Errorf("%s seed %d: 5 buckets after the spike the forecasts are %.3gσ from the series with only its bucket missing", name, seed, g)
+			}
+			gaps5 = append(gaps5, maxGap(ms5, mc5, se5, 0))
 		}
 		sort.Float64s(gaps)
+		sort.Float64s(gaps5)
 		below := sort.SearchFloat64s(gaps, 1)
+		n5 := len(gaps5)
+		t.Logf("%s: 5 buckets after the spike, against the clean series: median %.3f, p95 %.3f, max %.3f over %d seeds, equal to the series with only the spike missing (the next value joined the spike's run in %d/%d seeds; left out: %d with a run open before the spike, %d with a level shift read in the run)",
+			name, gaps5[n5/2], gaps5[n5*95/100], gaps5[n5-1], n5, joined, reps, preRun, falseShift)
 		t.Logf("%s: 20σ spike, max_h |Δ|/σ_h against the clean series: median %.3f, p95 %.3f, max %.3f, %d/%d below 1σ; without the check min %.2f",
 			name, gaps[reps/2], gaps[reps*95/100], gaps[reps-1], below, reps, minRaw)
 		if name == "airline12" && (gaps[reps/2] >= 0.5 || below < reps*9/10) {
@@ -617,4 +658,64 @@ func sqrtAll(v []float64) []float64 {
 		s[i] = math.Sqrt(x)
 	}
 	return s
+}
+
+// A run opened by a moderate value (3.5 sd) that a 20σ spike then joins,
+// broken by the next value: the retraction gives the members back
+// through the check, so the spike opens a run of its own and stays out.
+// The forecasts from the break on equal, to 1e-9 relative, those of the
+// series with only the first value missing, run with the same check
+// (property test, seeded; Durbin & Koopman 2012, §4.10), and the spike
+// moved nothing: absorbed, it would move them by several σ.
+func TestGuardRetractKeepsSpikeOut(t *testing.T) {
+	const n, T, h = 240, 200, 24
+	for seed := uint64(1); seed <= 10; seed++ {
+		for _, c := range retractCases(t, n, seed) {
+			fs, fg := c.newF(t), c.newF(t)
+			for _, f := range []*Filter{fs, fg} {
+				if err := f.SetGuard(DefaultGuard); err != nil {
+					t.Fatal(err)
+				}
+			}
+			fs.Steps(c.y[:T])
+			fg.Steps(c.y[:T])
+			if fs.gd.runN != 0 {
+				continue // a run already open: another scenario
+			}
+			ms, vs, mg, vg := make([]float64, h), make([]float64, h), make([]float64, h), make([]float64, h)
+			m0, sd0 := oneStep(fs, ms, vs)
+			fs.Step(m0 + 3.5*sd0)
+			fg.Step(math.NaN())
+			m1, sd1 := oneStep(fs, ms, vs)
+			fs.Step(m1 + 20*sd1)
+			fg.Step(m1 + 20*sd1)
+			if fs.gd.runN != 2 {
+				t.Fatalf("%s seed %d: the spike did not join the run (run %d)", c.name, seed, fs.gd.runN)
+			}
+			m2, _ := oneStep(fg, mg, vg)
+			x := math.Min(m2, oneStepMean(fs, ms, vs)) - 0.5 // below both: the runs break
+			fs.Step(x)
+			fg.Step(x)
+			for i := T + 3; i < T+10; i++ {
+				mm, ss := oneStep(fg, mg, vg)
+				x := mm + 0.3*ss
+				fs.Step(x)
+				fg.Step(x)
+			}
+			fs.Forecast(ms, vs)
+			fg.Forecast(mg, vg)
+			for k := range ms {
+				if d := math.Abs(ms[k]-mg[k]) / math.Sqrt(vg[k]); d > 1e-9 || math.Abs(vs[k]-vg[k]) > 1e-9*vg[k] {
+					t.Errorf("%s seed %d: h=%d forecast %v ± %v, with only the first value missing %v ± %v (%.3gσ)",
+						c.name, seed, k+1, ms[k], math.Sqrt(vs[k]), mg[k], math.Sqrt(vg[k]), d)
+					break
+				}
+			}
+		}
+	}
+}
+
+func oneStepMean(f *Filter, mean, v []float64) float64 {
+	m, _ := oneStep(f, mean, v)
+	return m
 }
