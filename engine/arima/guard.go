@@ -494,10 +494,6 @@ func (f *Filter) shiftCov(cov []float64, h int) {
 	}
 }
 
-// guardLayout tags the layout AppendGuardState writes (its first value,
-// which the first layout had as 1, "on").
-const guardLayout = 2
-
 // guardLen is the length of the state AppendGuardState writes: with the
 // filter's snapshot when a run is open (open).
 func (f *Filter) guardLen(open bool) int {
@@ -509,11 +505,12 @@ func (f *Filter) guardLen(open bool) int {
 }
 
 // guardLenV1 is the length of the first layout (no snapshot; the run's
-// a and P in its place).
+// a and P in its place). It is neither of guardLen's (r + r² is more than
+// 0 and less than the snapshot), so the length tells the layouts apart.
 func (f *Filter) guardLenV1() int { return 7 + 2*f.gd.g.Run + f.r + f.r*f.r + 5 + f.r }
 
-// AppendGuardState appends the check's state to dst: the layout (2), the
-// last verdict and z, the open run (its length, sign, first F, sum of z,
+// AppendGuardState appends the check's state to dst: on (1), the last
+// verdict and z, the open run (its length, sign, first F, sum of z,
 // its Run prediction errors and values), the learning of a shift's size
 // (steps left, the two sums, the correction, the prior precision and the
 // column's state) and, only while a run is open, the filter's complete
@@ -527,7 +524,7 @@ func (f *Filter) AppendGuardState(dst []float64) []float64 {
 	if !gd.on {
 		return dst
 	}
-	dst = append(dst, guardLayout, float64(gd.verdict), gd.z, float64(gd.runN), gd.runSign, gd.runF, gd.runZ)
+	dst = append(dst, 1, float64(gd.verdict), gd.z, float64(gd.runN), gd.runSign, gd.runF, gd.runZ)
 	dst = append(dst, gd.runV...)
 	dst = append(dst, gd.runY...)
 	dst = append(dst, float64(gd.learn), gd.lS, gd.ls, gd.lb, gd.lprec)
@@ -541,8 +538,8 @@ func (f *Filter) AppendGuardState(dst []float64) []float64 {
 // SetGuardState restores what AppendGuardState wrote, into a filter whose
 // check was turned on (SetGuard) with the same Run. It errors, leaving
 // the filter unchanged, on a state of another length or out of range. A
-// state of the first layout (tag 1: the run's a and P instead of the
-// snapshot) still loads; a run open in it then ends, when it breaks,
+// state of the first layout (the run's a and P instead of the snapshot,
+// told by its length) still loads; a run open in it then ends, when it breaks,
 // without its later members re-applied (as that layout's check did).
 func (f *Filter) SetGuardState(s []float64) error {
 	gd := &f.gd
@@ -552,10 +549,10 @@ func (f *Filter) SetGuardState(s []float64) error {
 	if !gd.on {
 		return bad("the check is off")
 	}
-	if len(s) < 7 || (s[0] != 1 && s[0] != guardLayout) {
-		return bad(fmt.Sprintf("%d values, layout %v", len(s), s[0]))
+	if len(s) < 7 || s[0] != 1 {
+		return bad(fmt.Sprintf("%d values, the first %v (want 1, on)", len(s), s[0]))
 	}
-	v1 := s[0] == 1
+	v1 := len(s) == f.guardLenV1()
 	v, n := Verdict(s[1]), int(s[3])
 	if float64(v) != s[1] || v < VerdictNone || v > VerdictShift || float64(n) != s[3] || n < 0 || n >= gd.g.Run {
 		return bad(fmt.Sprintf("verdict %v, run length %v", s[1], s[3]))
