@@ -274,48 +274,60 @@ func BenchmarkOnlineStepGuard(b *testing.B) {
 // The check allocates nothing per step, through spikes, runs retracted
 // and shifts.
 func TestGuardStepAllocs(t *testing.T) {
-	f, y := onlineFilter(t)
-	if err := f.SetGuard(DefaultGuard); err != nil {
-		t.Fatal(err)
+	f0, y0 := onlineFilter(t)
+	fx, _ := benchFilterX(t) // ARIMA(1,0,1) + 10 + 10 Fourier pairs
+	yx := make([]float64, 500)
+	for i := range yx {
+		yx[i] = 100 + math.Sin(float64(2880+i))
 	}
-	mean, v := make([]float64, 60), make([]float64, 60)
-	i, retracted := 0, 0
-	step := func() {
-		x := y[i%len(y)]
-		if i%23 == 0 {
-			x += 1e4 // a spike
+	for _, c := range []struct {
+		name string
+		f    *Filter
+		y    []float64
+	}{{"arima212", f0, y0}, {"fourier", fx, yx}} {
+		f, y := c.f, c.y
+		if err := f.SetGuard(DefaultGuard); err != nil {
+			t.Fatal(err)
 		}
-		switch i % 23 {
-		case 1: // a value that joins the spike's run, then one that breaks it
-			x = mean[0] + 2.5*math.Sqrt(f.sigma2*f.gd.runF)
-		case 2:
-			x = mean[0] - 1
+		mean, v := make([]float64, 60), make([]float64, 60)
+		i, retracted := 0, 0
+		step := func() {
+			x := y[i%len(y)]
+			if i%23 == 0 {
+				x += 1e4 // a spike
+			}
+			switch i % 23 {
+			case 1: // a value that joins the spike's run, then one that breaks it
+				x = mean[0] + 2.5*math.Sqrt(f.sigma2*f.gd.runF)
+			case 2:
+				x = mean[0] - 1
+			}
+			if i%50 >= 40 {
+				x += 1e3 // a level shift for ten steps
+			}
+			i++
+			open := f.gd.runN
+			f.Step(x)
+			f.Forecast(mean, v)
+			if vd, _ := f.LastVerdict(); open == 2 && f.gd.runN < 2 && vd != VerdictShift {
+				retracted++ // a run of two retracted (the value may open the next)
+			}
 		}
-		if i%50 >= 40 {
-			x += 1e3 // a level shift for ten steps
+		// all allocations of 300 steps (AllocsPerRun's per-call average
+		// rounds down, and would hide one in a rare branch)
+		allocs := testing.AllocsPerRun(1, func() {
+			for k := 0; k < 300; k++ {
+				step()
+			}
+		})
+		if allocs != 0 {
+			t.Errorf("%s: 300 guarded steps allocate %v times", c.name, allocs)
 		}
-		i++
-		open := f.gd.runN
-		f.Step(x)
-		f.Forecast(mean, v)
-		if vd, _ := f.LastVerdict(); open == 2 && f.gd.runN < 2 && vd != VerdictShift {
-			retracted++ // a run of two retracted (the value may open the next)
+		if retracted == 0 {
+			t.Errorf("%s: no run was retracted", c.name)
 		}
+		t.Logf("%s: %d runs of two retracted", c.name, retracted)
 	}
-	// all allocations of 300 steps (AllocsPerRun's per-call average
-	// rounds down, and would hide one in a rare branch)
-	allocs := testing.AllocsPerRun(1, func() {
-		for k := 0; k < 300; k++ {
-			step()
-		}
-	})
-	if allocs != 0 {
-		t.Errorf("300 guarded steps allocate %v times", allocs)
-	}
-	if retracted == 0 {
-		t.Error("no run was retracted")
-	}
-	t.Logf("%d runs of two retracted", retracted)
 }
 
 // A filter of a model without differencing saved and restored (AppendState
