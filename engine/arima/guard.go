@@ -53,14 +53,17 @@ import (
 //     filter goes back to its complete state at the run's first step,
 //     saved there (mode, a, P, the Chandrasekhar and gain vectors, the
 //     anchors or the levels in the state with their covariance, the
-//     learning of a shift), takes that step again as missing and
-//     absorbs the later members as the observations they were
-//     (retract). No smoother is needed: the filter is a deterministic
+//     learning of a shift), takes that step again as missing and gives
+//     the later members to the check again as the observations they were
+//     (retract; one that is itself extreme stays out or opens a run of
+//     its own). No smoother is needed: the filter is a deterministic
 //     function of its state and inputs, so the result is, bit for bit,
 //     the filter of the series with only the first member's bucket
 //     missing, for every model (with differencing, with the levels in
 //     the state, with regressors). The current value is then judged
-//     afresh. Only the first member, the spike, stays out.
+//     afresh. Only the first member, the spike, stays out. While the run
+//     is open (at most Run − 1 steps) its later members are still out of
+//     the forecasts.
 //
 // The defaults (DefaultGuard) are Spike 4.5, Shift 3 and Run 3 (common
 // practice: a 4.5σ rule keeps the false-alarm rate of a Gaussian series
@@ -112,8 +115,9 @@ type guardState struct {
 	// differencing, the levels-in-state x and P). A run that breaks, or
 	// that the median rule calls a spike, is retracted from it (retract);
 	// a shift without differencing is replayed from it (shiftReplay).
-	// snapOK is false only after a record of the first layout restored
-	// with a run open (its state at the run's start was a and P alone).
+	// snapOK says snap holds the open run's start; it does not after a
+	// record of the first layout restored with a run open (that layout
+	// kept a and P alone), and such a run ends without a retraction.
 	runY    []float64
 	rq      []float64 // members being replayed (retract), a stack
 	rqTop   int
