@@ -61,9 +61,16 @@ import (
 //     the filter of the series with only the first member's bucket
 //     missing, for every model (with differencing, with the levels in
 //     the state, with regressors). The current value is then judged
-//     afresh. Only the first member, the spike, stays out. While the run
-//     is open (at most Run − 1 steps) its later members are still out of
-//     the forecasts.
+//     afresh. Only the first member, the spike, stays out.
+//   - Undecided members: while the run is open (at most Run − 1 steps)
+//     the run is judged by the filter with all its members missing, but
+//     the filter the forecasts come from takes the members after the
+//     first as ordinary values (a member beyond Shift on its own stays
+//     out: the check would hold it), rebuilt from the run's start at each
+//     step (replayRun). The forecasts are then already those of the
+//     series with only the first member missing, and such a member's
+//     verdict is none. A shift declared at the Run-th step goes back to
+//     the filter with the members missing first, as above.
 //
 // The defaults (DefaultGuard) are Spike 4.5, Shift 3 and Run 3 (common
 // practice: a 4.5σ rule keeps the false-alarm rate of a Gaussian series
@@ -84,7 +91,7 @@ type Verdict int
 // The verdicts.
 const (
 	VerdictNone    Verdict = iota // normal step (or the check is off)
-	VerdictOutlier                // additive outlier: treated as missing
+	VerdictOutlier                // additive outlier: treated as missing (for now, if a later member of its run)
 	VerdictShift                  // level shift: the level moved
 )
 
@@ -278,6 +285,29 @@ func (f *Filter) retract(k int) {
 	gd.rqTop = base
 }
 
+// replayRun sets the filter to its state after the run's first k members:
+// back to the run's start (the snapshot), the first member missing, the
+// next k−1 missing (observed false: the state the run is judged by) or
+// observed (observed true: the provisional state while the run is
+// undecided; a member beyond Shift on its own, which the check would
+// hold, stays missing), with the learning of a shift stepped as Step
+// steps it. It does not touch the run itself.
+func (f *Filter) replayRun(k int, observed bool) {
+	gd := &f.gd
+	f.restoreRun()
+	for i, y := range gd.runY[:k] {
+		if i == 0 || !observed {
+			y = math.NaN()
+		} else if v, F := f.innovation(y); !(F > 0) || math.IsInf(F, 0) || math.Abs(v/math.Sqrt(f.sigma2*F)) > gd.g.Shift {
+			y = math.NaN()
+		}
+		if gd.learn > 0 {
+			f.learnStep(y)
+		}
+		f.absorb(y)
+	}
+}
+
 // rejudge is guardJudge on the current value after a retraction, whose
 // replayed members left their verdicts behind.
 func (f *Filter) rejudge(y float64) float64 {
@@ -321,6 +351,13 @@ func (f *Filter) guardJudge(y float64) float64 {
 	gd := &f.gd
 	v, F := f.innovation(y)
 	if gd.runN > 0 {
+		if gd.snapOK {
+			// the filter holds the run's later members provisionally;
+			// the run is judged by the filter with all its members
+			// missing, back from the run's start
+			f.replayRun(gd.runN, false)
+			v, F = f.innovation(y)
+		}
 		if F > 0 && !math.IsInf(F, 0) {
 			// a run is open: its members are measured on the scale of its
 			// first step, since the members before were not absorbed
@@ -332,6 +369,20 @@ func (f *Filter) guardJudge(y float64) float64 {
 				gd.runY[gd.runN] = y
 				gd.runN++
 				if gd.runN < gd.g.Run {
+					if !gd.snapOK {
+						gd.verdict = VerdictOutlier
+						return math.NaN()
+					}
+					// undecided: until the run ends the forecasts take it
+					// (and the members before it, after the first) as an
+					// ordinary value, unless it is extreme on its own
+					f.replayRun(gd.runN-1, true)
+					if v, F := f.innovation(y); F > 0 && !math.IsInf(F, 0) {
+						gd.z = v / math.Sqrt(f.sigma2*F)
+						if math.Abs(gd.z) <= gd.g.Shift {
+							return y
+						}
+					}
 					gd.verdict = VerdictOutlier
 					return math.NaN()
 				}
