@@ -269,6 +269,13 @@ func (f *Filter) Step(y float64) {
 	if f.gd.on {
 		y = f.guardCheck(y)
 	}
+	f.absorb(y)
+}
+
+// absorb is the filter step proper on y (regressors removed, after the
+// check): Step below its regressor and guard parts, also the step the
+// check uses to replay a run (guard.go, retract).
+func (f *Filter) absorb(y float64) {
 	switch f.mode {
 	case modeWarm:
 		f.warm[f.nWarm] = y
