@@ -119,7 +119,8 @@ type Intake struct {
 	// partitions as loops, by topic) with their series and their
 	// flush/acknowledgement pipeline, so that one instance uses more than
 	// one core. A series' results do not depend on the number. Zero:
-	// GOMAXPROCS, at most cluster.partitions when that is set (LoopCount).
+	// GOMAXPROCS, at most cluster.partitions, in cluster mode; 1 without
+	// partitions (LoopCount says why).
 	Loops int
 }
 
@@ -374,12 +375,23 @@ func (s *Source) TimeoutOrDefault() time.Duration {
 }
 
 // LoopCount returns the number of loops for gomaxprocs usable cores:
-// Loops, or gomaxprocs when Loops is zero; never more than partitions
-// when partitions > 0 (a loop owns whole partitions), never less than 1.
+// Loops; when Loops is zero, gomaxprocs in cluster mode (partitions > 0)
+// and 1 otherwise; never more than partitions when partitions > 0 (a loop
+// owns whole partitions), never less than 1.
+//
+// Several loops are opt-in without partitions: the loops create their
+// series concurrently, so once limits.max_series is reached which of
+// several new topics arriving together is refused depends on the order
+// the loops reach them (one loop refuses them in stream order). In
+// cluster mode that order is already the partitions' consumers', not the
+// stream's.
 func (in Intake) LoopCount(gomaxprocs, partitions int) int {
 	n := in.Loops
 	if n <= 0 {
-		n = gomaxprocs
+		n = 1
+		if partitions > 0 {
+			n = gomaxprocs
+		}
 	}
 	if partitions > 0 {
 		n = min(n, partitions)

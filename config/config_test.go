@@ -544,7 +544,7 @@ func TestIntakeLoops(t *testing.T) {
 		t.Errorf("loops -1: error %v, want one naming intake.loops", err)
 	}
 	for _, c := range []struct{ loops, procs, parts, want int }{
-		{0, 2, 0, 2}, {0, 8, 4, 4}, {3, 2, 0, 3}, {3, 2, 2, 2}, {0, 0, 0, 1}, {5, 1, 1, 1},
+		{0, 2, 0, 1}, {0, 8, 4, 4}, {0, 2, 8, 2}, {3, 2, 0, 3}, {3, 2, 2, 2}, {0, 0, 0, 1}, {5, 1, 1, 1},
 	} {
 		if got := (Intake{Loops: c.loops}).LoopCount(c.procs, c.parts); got != c.want {
 			t.Errorf("LoopCount(loops %d, procs %d, partitions %d) = %d, want %d", c.loops, c.procs, c.parts, got, c.want)
