@@ -252,6 +252,7 @@ func BenchmarkCloseCalibrate(b *testing.B) {
 		b.Run(name, func(b *testing.B) {
 			set := calSettings(cal)
 			set.Horizon, set.Window, set.MinPoints, set.Model = 60, 2000, 300, "1,1,1"
+			set.RefitEvery = 1 << 30 // no refit inside the timed loop, however long it runs
 			s, err := New("bench", set)
 			if err != nil {
 				b.Fatal(err)
