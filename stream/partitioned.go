@@ -5,7 +5,9 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"slices"
 	"sync"
+	"time"
 
 	"github.com/nats-io/nats.go"
 	"github.com/nats-io/nats.go/jetstream"
@@ -47,6 +49,31 @@ type PartitionedIntake struct {
 	mu    sync.Mutex // guards parts and owned; never held while calling out
 	parts map[int]*part
 	owned map[int]uint64 // partition → epoch, as the Owner last reported
+
+	// Handover (EnableHandover); nil snaps: none, a new owner replays the
+	// partition from the start of the stream.
+	snapStore *cluster.SnapshotStore // NewClusterIntake's
+	snaps     *cluster.SnapshotStore // snapStore once EnableHandover is called
+	snapEvery time.Duration
+	hand      Handover
+	ownerStop context.CancelFunc // ends the Owner (Leave)
+	drained   chan struct{}      // closed once the Owner's Changes are closed
+}
+
+// Handover is what a PartitionedIntake needs of its user (the daemon) to
+// hand partitions over through snapshots (EnableHandover).
+type Handover struct {
+	// Restore makes the series of partition p, owned now at epoch, what
+	// snap holds (nil: no snapshot was stored), before any of the
+	// partition's messages is handed over. It returns once done, or with
+	// ctx's error.
+	Restore func(ctx context.Context, p int, epoch uint64, snap *cluster.Snapshot) error
+	// Records returns the stored records of the series of each of the
+	// partitions ps: every effect acknowledged so far is in them.
+	Records func(ps []int) (map[int][][]byte, error)
+	// Gap is called when the stream no longer holds what a replay of
+	// partition p from floor needs (its first message is first).
+	Gap func(p int, floor, first uint64)
 }
 
 type part struct {
@@ -56,9 +83,11 @@ type part struct {
 	cancel context.CancelFunc
 	done   chan struct{}
 
-	// handed and mark are guarded by PartitionedIntake.mu.
-	handed uint64 // last stream position handed to the handler and applied
-	mark   uint64 // handed when the last flush took its floor
+	// handed, mark, acked and snapped are guarded by PartitionedIntake.mu.
+	handed  uint64 // last stream position handed to the handler and applied
+	mark    uint64 // handed when the last flush took its floor
+	acked   uint64 // acknowledged on this consumer (at first: the snapshot's floor)
+	snapped uint64 // the floor of the last snapshot stored (or loaded)
 }
 
 // NewPartitionedIntake prepares the intake stream (created with
@@ -88,6 +117,7 @@ func NewPartitionedIntake(nc *nats.Conn, o IntakeOptions, owner *cluster.Owner, 
 	return &PartitionedIntake{
 		nc: nc, o: o, st: st, owner: owner, cfg: cfg, log: log,
 		subscribed: make(chan struct{}),
+		drained:    make(chan struct{}),
 		parts:      map[int]*part{},
 		owned:      map[int]uint64{},
 	}, nil
@@ -102,33 +132,247 @@ func (pi *PartitionedIntake) Subscribed() <-chan struct{} { return pi.subscribed
 // partition's batches to handle, one call at a time, with the stored
 // subject split back to the subject as published. It returns nil once ctx
 // has ended and every partition has stopped, or the Owner's error.
+//
+// With handover (EnableHandover) Run also stores every owned partition's
+// snapshot every snapshot interval, and when ctx ends it stops the
+// consumers but keeps the leases, so that the last effects can still be
+// stored and acknowledged: Leave then stores the final snapshots and
+// releases the leases.
 func (pi *PartitionedIntake) Run(ctx context.Context, handle func(batch []Message)) error {
-	if err := pi.owner.Start(ctx); err != nil {
+	ownerCtx := ctx
+	if pi.snaps != nil {
+		var stop context.CancelFunc
+		ownerCtx, stop = context.WithCancel(context.Background())
+		pi.ownerStop = stop
+	}
+	if err := pi.owner.Start(ownerCtx); err != nil {
+		if pi.ownerStop != nil {
+			pi.ownerStop()
+			pi.ownerStop = nil
+		}
 		return fmt.Errorf("%w: %w", ErrIntake, err)
 	}
 	close(pi.subscribed)
-	defer pi.stopAll()
-	for c := range pi.owner.Changes() {
-		if ctx.Err() != nil {
-			break // leaving: stop consuming before the leases go
+	snapDone := make(chan struct{})
+	snapCtx, stopSnaps := context.WithCancel(ctx)
+	if pi.snaps != nil {
+		go func() {
+			defer close(snapDone)
+			pi.snapshotEvery(snapCtx)
+		}()
+	} else {
+		close(snapDone)
+	}
+	changes := pi.owner.Changes()
+loop:
+	for {
+		select {
+		case <-ctx.Done():
+			break loop // leaving: stop consuming before the leases go
+		case c, ok := <-changes:
+			switch {
+			case !ok:
+				break loop
+			case !c.Gained:
+				pi.lose(c)
+			case ctx.Err() == nil:
+				pi.gain(ctx, c, handle)
+			}
 		}
-		if c.Gained {
-			pi.gain(ctx, c, handle)
-		} else {
-			pi.lose(c)
-		}
+	}
+	stopSnaps()
+	<-snapDone
+	if pi.snaps != nil && ctx.Err() != nil {
+		// Leaving with handover: the consumers stop, the parts stay for
+		// the last acknowledgements, and the leases until Leave.
+		pi.stopConsumers()
+		go func() {
+			defer close(pi.drained)
+			for c := range pi.owner.Changes() {
+				if !c.Gained {
+					pi.forget(c.Partition) // no longer ours: no final snapshot
+				}
+			}
+		}()
+		return nil
 	}
 	pi.stopAll()
 	for range pi.owner.Changes() { // let the Owner release its leases
 	}
+	close(pi.drained)
 	return pi.owner.Err()
+}
+
+// EnableHandover makes the intake load each gained partition's snapshot
+// from the snapshot store (SnapshotStore(intake.stream); through
+// h.Restore) and replay the partition from its floor, store the owned
+// partitions' snapshots every cluster.snapshot_every and on Leave, and
+// report replays the stream can no longer serve whole (h.Gap). Call it
+// before Run, on an intake from NewClusterIntake; the user must then call
+// Leave after Run has returned and the last acknowledgements are made.
+func (pi *PartitionedIntake) EnableHandover(h Handover) error {
+	if pi.snapStore == nil || pi.snapEvery <= 0 {
+		return fmt.Errorf("%w: handover needs the snapshot store of NewClusterIntake", ErrIntake)
+	}
+	pi.snaps, pi.hand = pi.snapStore, h
+	return nil
+}
+
+// Leave stores the snapshot of every partition still owned, at its
+// acknowledged floor, then releases the leases and waits until the Owner
+// has stopped. Only with handover, after Run has returned.
+func (pi *PartitionedIntake) Leave() error {
+	if pi.snaps == nil || pi.ownerStop == nil {
+		return nil
+	}
+	pi.storeSnapshots(true)
+	pi.ownerStop()
+	<-pi.drained
+	pi.mu.Lock()
+	clear(pi.parts)
+	clear(pi.owned)
+	pi.mu.Unlock()
+	return pi.owner.Err()
+}
+
+// snapshotEvery stores the owned partitions' snapshots every snapEvery
+// until ctx ends.
+func (pi *PartitionedIntake) snapshotEvery(ctx context.Context) {
+	t := time.NewTicker(pi.snapEvery)
+	defer t.Stop()
+	for {
+		select {
+		case <-ctx.Done():
+			return
+		case <-t.C:
+			pi.storeSnapshots(false)
+		}
+	}
+}
+
+// storeSnapshots stores the snapshot of each owned partition whose
+// acknowledged floor moved since its last one (all of them when final).
+// The floor is read before the records: every effect at or below it is
+// already in them.
+func (pi *PartitionedIntake) storeSnapshots(final bool) {
+	type job struct {
+		p            int
+		epoch, floor uint64
+	}
+	var jobs []job
+	pi.mu.Lock()
+	for p, pt := range pi.parts {
+		if pt.acked > pt.snapped || (final && pt.acked > 0) {
+			jobs = append(jobs, job{p, pt.epoch, pt.acked})
+		}
+	}
+	pi.mu.Unlock()
+	if len(jobs) == 0 {
+		return
+	}
+	slices.SortFunc(jobs, func(a, b job) int { return a.p - b.p })
+	ps := make([]int, len(jobs))
+	for i, j := range jobs {
+		ps[i] = j.p
+	}
+	all, err := pi.hand.Records(ps)
+	if err != nil {
+		pi.log.Error("partition snapshots not stored: records unreadable", "err", err)
+		return
+	}
+	for _, j := range jobs {
+		recs := all[j.p]
+		ctx, cancel := context.WithTimeout(context.Background(), pi.o.SetupTimeout)
+		err := pi.snaps.Put(ctx, &cluster.Snapshot{Partition: j.p, Epoch: j.epoch, Floor: j.floor, Records: recs})
+		cancel()
+		if err != nil {
+			pi.log.Warn("partition snapshot not stored", "partition", j.p, "epoch", j.epoch, "floor", j.floor, "err", err)
+			continue
+		}
+		pi.mu.Lock()
+		if pt := pi.parts[j.p]; pt != nil && pt.epoch == j.epoch {
+			pt.snapped = max(pt.snapped, j.floor)
+		}
+		pi.mu.Unlock()
+		pi.log.Debug("partition snapshot stored", "partition", j.p, "epoch", j.epoch, "floor", j.floor, "records", len(recs), "final", final)
+	}
+}
+
+// stopConsumers stops every partition's consumer and keeps the parts.
+func (pi *PartitionedIntake) stopConsumers() {
+	pi.mu.Lock()
+	var pts []*part
+	for _, pt := range pi.parts {
+		pts = append(pts, pt)
+	}
+	pi.mu.Unlock()
+	for _, pt := range pts {
+		pt.cancel()
+		<-pt.done
+	}
+}
+
+// forget drops partition p's part without waiting for its consumer
+// (stopped already).
+func (pi *PartitionedIntake) forget(p int) {
+	pi.mu.Lock()
+	delete(pi.parts, p)
+	delete(pi.owned, p)
+	pi.mu.Unlock()
+}
+
+// restore loads partition p's snapshot and hands it to Handover.Restore;
+// it returns the floor to replay from (0: the start of the stream).
+func (pi *PartitionedIntake) restore(ctx context.Context, c cluster.Change) (uint64, error) {
+	gctx, cancel := context.WithTimeout(ctx, pi.o.SetupTimeout)
+	snap, err := pi.snaps.Get(gctx, c.Partition)
+	cancel()
+	if err != nil {
+		if ctx.Err() != nil {
+			return 0, ctx.Err()
+		}
+		// A snapshot that cannot be read: the replay from the start of
+		// the stream rebuilds the partition (Gap says if it cannot).
+		pi.log.Error("partition snapshot unreadable; replaying the partition from the start of the stream", "partition", c.Partition, "err", err)
+		snap = nil
+	}
+	if err := pi.hand.Restore(ctx, c.Partition, c.Epoch, snap); err != nil {
+		return 0, err
+	}
+	var floor uint64
+	if snap != nil {
+		floor = snap.Floor
+	}
+	ictx, cancel := context.WithTimeout(ctx, pi.o.SetupTimeout)
+	info, err := pi.st.Info(ictx)
+	cancel()
+	if err != nil {
+		pi.log.Warn("stream state unknown; replay gap not checked", "partition", c.Partition, "err", err)
+	} else if first := info.State.FirstSeq; first > floor+1 && info.State.LastSeq > floor {
+		pi.log.Error("the stream no longer holds everything the partition's replay needs: messages after the snapshot were removed by the stream's limits; its series are rebuilt from what remains",
+			"partition", c.Partition, "epoch", c.Epoch, "snapshot_floor", floor, "first_available", first, "missing", fmt.Sprintf("%d..%d", floor+1, first-1))
+		if pi.hand.Gap != nil {
+			pi.hand.Gap(c.Partition, floor, first)
+		}
+	}
+	return floor, nil
 }
 
 func (pi *PartitionedIntake) gain(ctx context.Context, c cluster.Change, handle func([]Message)) {
 	pi.lose(cluster.Change{Partition: c.Partition}) // an older epoch still running
+	var floor uint64
+	if pi.snaps != nil {
+		var err error
+		if floor, err = pi.restore(ctx, c); err != nil {
+			if ctx.Err() == nil {
+				pi.log.Error("partition not restored; not consumed", "partition", c.Partition, "epoch", c.Epoch, "err", err)
+			}
+			return
+		}
+	}
 	octx, cancel := context.WithTimeout(ctx, pi.o.SetupTimeout)
 	cons, err := cluster.OpenConsumer(octx, pi.st, pi.o.Consumer, c.Partition, c.Epoch, cluster.ConsumerOptions{
-		AckWait: pi.o.AckWait, MaxAckPending: pi.o.MaxAckPending, Replicas: pi.o.Replicas,
+		StartSeq: floor + 1, AckWait: pi.o.AckWait, MaxAckPending: pi.o.MaxAckPending, Replicas: pi.o.Replicas,
 	})
 	cancel()
 	if err != nil {
@@ -148,12 +392,12 @@ func (pi *PartitionedIntake) gain(ctx context.Context, c cluster.Change, handle 
 	in := newIntake(pi.nc, pi.o)
 	in.cons = cons
 	pctx, pcancel := context.WithCancel(ctx)
-	pt := &part{p: c.Partition, epoch: c.Epoch, in: in, cancel: pcancel, done: make(chan struct{})}
+	pt := &part{p: c.Partition, epoch: c.Epoch, in: in, cancel: pcancel, done: make(chan struct{}), acked: floor, snapped: floor}
 	pi.mu.Lock()
 	pi.parts[c.Partition] = pt
 	pi.owned[c.Partition] = c.Epoch
 	pi.mu.Unlock()
-	pi.log.Info("partition gained", "partition", c.Partition, "epoch", c.Epoch, "consumer", cons.CachedInfo().Name, "reason", c.Reason)
+	pi.log.Info("partition gained", "partition", c.Partition, "epoch", c.Epoch, "consumer", cons.CachedInfo().Name, "reason", c.Reason, "replay_from", floor+1)
 	go func() {
 		defer close(pt.done)
 		err := in.Run(pctx, func(batch []Message) {
@@ -225,21 +469,25 @@ func (pi *PartitionedIntake) Mark() {
 func (pi *PartitionedIntake) Ack(seq uint64) error {
 	pi.mu.Lock()
 	type ack struct {
-		in  *Intake
+		pt  *part
 		seq uint64
 	}
 	acks := make([]ack, 0, len(pi.parts))
 	for _, pt := range pi.parts {
 		if s := min(seq, pt.mark); s > 0 {
-			acks = append(acks, ack{pt.in, s})
+			acks = append(acks, ack{pt, s})
 		}
 	}
 	pi.mu.Unlock()
 	var errs []error
 	for _, a := range acks {
-		if err := a.in.Ack(a.seq); err != nil {
+		if err := a.pt.in.Ack(a.seq); err != nil {
 			errs = append(errs, err)
+			continue
 		}
+		pi.mu.Lock()
+		a.pt.acked = max(a.pt.acked, a.seq)
+		pi.mu.Unlock()
 	}
 	return errors.Join(errs...)
 }
@@ -282,6 +530,10 @@ func (pi *PartitionedIntake) OwnsTopic(topic string) bool {
 	return ok
 }
 
+// SnapshotStore is the name of the object store of the partition
+// snapshots of the intake stream called stream.
+func SnapshotStore(stream string) string { return stream + "_SNAPSHOTS" }
+
 // LeaseBucket is the name of the lease bucket of the intake stream called
 // stream: each set of instances sharing one stream has its own.
 func LeaseBucket(stream string) string { return stream + "_LEASES" }
@@ -317,6 +569,15 @@ func NewClusterIntake(nc *nats.Conn, c *config.Config, log *slog.Logger) (*Parti
 	if err != nil {
 		return nil, err
 	}
+	// The snapshot store, and a write, read and delete in it now: a
+	// missing right fails the start, not the first handover.
+	if pi.snapStore, err = cluster.EnsureSnapshotStore(ctx, js, SnapshotStore(o.Stream), o.Replicas); err != nil {
+		return nil, err
+	}
+	if err := pi.snapStore.Probe(ctx, name); err != nil {
+		return nil, err
+	}
+	pi.snapEvery = c.Cluster.SnapshotEvery
 	pi.owner, err = cluster.NewOwner(js, kv, cluster.Options{
 		Instance: name, Partitions: o.Partitions, Lease: c.Cluster.Lease, Logger: pi.log,
 	})

@@ -48,7 +48,7 @@ func EnsureBucket(ctx context.Context, js jetstream.JetStream, name string, repl
 func bucketHint(err error, bucket string) string {
 	var api *jetstream.APIError
 	switch {
-	case errors.Is(err, nats.ErrPermissionViolation), strings.Contains(strings.ToLower(err.Error()), "permission"):
+	case isPermission(err):
 		return fmt.Sprintf(" (each instance needs publish and subscribe on $KV.%s.> and the JetStream API for stream KV_%s: $JS.API.STREAM.*.KV_%s, $JS.API.CONSUMER.*.KV_%s.>)", bucket, bucket, bucket, bucket)
 	case errors.Is(err, jetstream.ErrLimitMarkerTTLNotSupported):
 		return " (per-key lifetimes need nats-server 2.11 or later)"
@@ -56,6 +56,11 @@ func bucketHint(err error, bucket string) string {
 		return " (JetStream is not enabled on the server)"
 	}
 	return ""
+}
+
+// isPermission reports whether err is the server refusing a right.
+func isPermission(err error) bool {
+	return errors.Is(err, nats.ErrPermissionViolation) || strings.Contains(strings.ToLower(err.Error()), "permission")
 }
 
 // member is the value of a member key.

@@ -80,6 +80,8 @@ type Daemon struct {
 
 	ready chan struct{}
 	done  chan struct{} // closed when Run returns
+
+	handover *handover // cluster mode with snapshots (partitioned.go); nil otherwise
 }
 
 // New builds a daemon; Run starts it.
@@ -95,9 +97,11 @@ func New(o Options) (*Daemon, error) {
 	}
 	c := o.Config.WithDefaults()
 	in := o.Intake
+	var pi *stream.PartitionedIntake // issue 15: cluster mode, for the handover (partitioned.go)
 	if in == nil && c.Cluster.Partitions > 0 {
 		// Cluster mode: this instance consumes the partitions it owns.
-		pi, err := stream.NewClusterIntake(o.Conn, c, o.Logger)
+		var err error
+		pi, err = stream.NewClusterIntake(o.Conn, c, o.Logger)
 		if err != nil {
 			return nil, err
 		}
@@ -149,6 +153,11 @@ func New(o Options) (*Daemon, error) {
 		series:  make(map[string]*entry),
 		ready:   make(chan struct{}),
 		done:    make(chan struct{}),
+	}
+	if pi != nil { // issue 15: snapshots for handover (partitioned.go)
+		if err := d.enableHandover(pi); err != nil {
+			return nil, err
+		}
 	}
 	return d, nil
 }
@@ -238,6 +247,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 		stopWorkers()
 		d.pub.stop()
 		d.flusher.stop()
+		d.leave() // issue 15: the Owner may have started
 		if err == nil {
 			err = errors.New("daemon: intake stopped before it subscribed")
 		}
@@ -277,6 +287,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 	stopWorkers()
 	d.pub.stop()
 	d.syncFlush()
+	d.leave() // issue 15: final snapshots at the acknowledged floors, then the leases go
 	d.flusher.stop()
 	d.pub.flush()
 	return runErr

@@ -1,0 +1,210 @@
+package daemon
+
+import (
+	"context"
+	"errors"
+	"maps"
+	"slices"
+	"strconv"
+
+	"github.com/prometheus/client_golang/prometheus"
+
+	"forewarn/engine/series"
+	"forewarn/state"
+	"forewarn/stream"
+	"forewarn/stream/cluster"
+)
+
+// Handover of partitions between instances (cluster mode, issue 15): the
+// daemon's side of stream.Handover.
+//
+// A new owner of a partition loads the partition's latest snapshot into
+// the loop (restorePartition) before the partition's consumer starts at
+// the snapshot's floor; the records' stream positions make the replay a
+// no-op for what they already hold. This instance's own copy of a series
+// (its memory, loaded from the local state file at start) is kept only if
+// it comes from an epoch of this instance's no older than the snapshot's:
+// lastOwned remembers, per partition, the epoch at which this instance
+// last owned it (0 after a start: the local file's records yield to any
+// snapshot). The snapshots themselves are read from the local state file
+// (partitionRecords), on the intake's snapshot goroutine.
+
+// handover is the cluster-mode state of the daemon. lastOwned is the
+// loop's; the rest is set in New.
+type handover struct {
+	pi        *stream.PartitionedIntake
+	lastOwned map[int]uint64 // partition → epoch this instance last owned it at
+	gaps      *prometheus.CounterVec
+}
+
+// enableHandover wires pi's snapshots to the daemon and registers
+// forewarn_cluster_replay_gaps_total, every partition's at 0.
+func (d *Daemon) enableHandover(pi *stream.PartitionedIntake) error {
+	h := &handover{pi: pi, lastOwned: map[int]uint64{}}
+	h.gaps = prometheus.NewCounterVec(prometheus.CounterOpts{
+		Name: "forewarn_cluster_replay_gaps_total",
+		Help: "Partitions taken over whose replay the intake stream could no longer serve whole (messages after the snapshot's floor removed by the stream's limits); their series were rebuilt from what remained.",
+	}, []string{"partition"})
+	for p := range d.cfg.Cluster.Partitions {
+		h.gaps.WithLabelValues(strconv.Itoa(p))
+	}
+	if err := d.metrics.Registry.Register(h.gaps); err != nil {
+		return err
+	}
+	d.handover = h
+	return pi.EnableHandover(stream.Handover{
+		Restore: d.restoreOnLoop,
+		Records: d.partitionRecords,
+		Gap: func(p int, floor, first uint64) {
+			h.gaps.WithLabelValues(strconv.Itoa(p)).Inc()
+		},
+	})
+}
+
+// leave stores the final snapshots and releases the leases (shutdown,
+// after the last flush is acknowledged).
+func (d *Daemon) leave() {
+	if d.handover == nil {
+		return
+	}
+	if err := d.handover.pi.Leave(); err != nil {
+		d.log.Warn("cluster: leaving", "err", err)
+	}
+}
+
+var errStopped = errors.New("daemon: stopped")
+
+// restoreOnLoop runs restorePartition on the loop and waits for it.
+func (d *Daemon) restoreOnLoop(ctx context.Context, p int, epoch uint64, snap *cluster.Snapshot) error {
+	res := make(chan error, 1)
+	f := func() { res <- d.restorePartition(p, epoch, snap) }
+	select {
+	case d.inspect <- f:
+	case <-ctx.Done():
+		return ctx.Err()
+	case <-d.done:
+		return errStopped
+	}
+	select {
+	case err := <-res:
+		return err
+	case <-d.done:
+		return errStopped
+	}
+}
+
+// partitionOf returns the partition of a topic (ok false: none).
+func (d *Daemon) partitionOf(topic string) (int, bool) {
+	return d.handover.pi.PartitionOfTopic(topic)
+}
+
+// restorePartition makes partition p's series, now owned at epoch, what
+// snap holds (on the loop). First the partition's series finish their
+// refits and alert evaluations, and the flush in progress is written, so
+// that no job and no record in flight refers to an entry replaced here.
+// Then, unless this instance's own copies are of an epoch no older than
+// the snapshot's, every series of the partition becomes the snapshot's
+// record, and a series the snapshot does not hold is dropped (its record
+// too): the replay from the snapshot's floor rebuilds it. The installed
+// series are written at the next flush, before the partition's first
+// acknowledgement.
+func (d *Daemon) restorePartition(p int, epoch uint64, snap *cluster.Snapshot) error {
+	h := d.handover
+	inP := func(topic string) bool {
+		q, ok := d.partitionOf(topic)
+		return ok && q == p
+	}
+	for {
+		held := false
+		for t, e := range d.series {
+			if e.held() && inP(t) {
+				held = true
+				break
+			}
+		}
+		if !held {
+			break
+		}
+		d.jobStep()
+	}
+	d.finishFlush()
+	own := h.lastOwned[p]
+	h.lastOwned[p] = epoch
+	if snap == nil {
+		d.log.Info("partition taken without a snapshot; replayed from the start of the stream", "partition", p, "epoch", epoch)
+		return nil
+	}
+	useOwn := own >= snap.Epoch
+	recs := make(map[string]*series.Snapshot, len(snap.Records))
+	for i, b := range snap.Records {
+		s, err := state.Decode(b)
+		if err != nil {
+			d.log.Error("snapshot record unreadable; its series is rebuilt from what the stream still holds", "partition", p, "record", i, "err", err)
+			d.metrics.StateResets.Inc()
+			continue
+		}
+		recs[s.Topic] = s
+	}
+	if !useOwn {
+		for t := range d.series {
+			if _, ok := recs[t]; !ok && inP(t) {
+				delete(d.series, t)
+				if err := d.store.Delete(t); err != nil {
+					d.log.Warn("stale record of a partition taken over not deleted", "topic", t, "err", err)
+				}
+			}
+		}
+	}
+	var due []string
+	for _, t := range slices.Sorted(maps.Keys(recs)) {
+		if useOwn && d.series[t] != nil {
+			continue
+		}
+		rec := recs[t]
+		sc, ok := d.cfg.SeriesFor(t)
+		if !ok {
+			d.log.Info("series of a snapshot no longer matches any series entry; dropped", "topic", t)
+			delete(d.series, t)
+			continue
+		}
+		s, err := series.Restore(rec, settingsOf(sc, rec.Kind))
+		if err != nil {
+			d.log.Warn("snapshot record does not fit the settings; the series starts afresh", "topic", t, "err", err)
+			d.metrics.StateResets.Inc()
+			delete(d.series, t)
+			continue
+		}
+		e := &entry{s: s, subject: d.pub.forecastSubject(t), rules: d.rulesFor(t, sc), dirty: true}
+		d.series[t] = e
+		if s.HasModel() {
+			d.pub.storeLatest(s, d.now())
+		}
+		if s.FitDue() {
+			due = append(due, t)
+		}
+	}
+	d.metrics.Series.Set(float64(len(d.series)))
+	for _, t := range due {
+		d.outcome(t, d.series[t], series.NeedFit)
+	}
+	d.log.Info("partition snapshot loaded", "partition", p, "epoch", epoch, "snapshot_epoch", snap.Epoch,
+		"floor", snap.Floor, "records", len(recs), "own_copies_kept", useOwn)
+	return nil
+}
+
+// partitionRecords reads the stored records of the series of partitions
+// ps from the state file, for their snapshots (any goroutine).
+func (d *Daemon) partitionRecords(ps []int) (map[int][][]byte, error) {
+	out := make(map[int][][]byte, len(ps))
+	err := d.store.LoadAll(func(topic string, s *series.Snapshot, err error) error {
+		if err != nil {
+			return nil // unreadable: set aside at load, its series rebuilt
+		}
+		q, ok := d.partitionOf(topic)
+		if ok && slices.Contains(ps, q) {
+			out[q] = append(out[q], state.Encode(nil, s))
+		}
+		return nil
+	})
+	return out, err
+}
