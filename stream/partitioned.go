@@ -16,6 +16,18 @@ import (
 	"forewarn/stream/cluster"
 )
 
+// Headers of a forecast message published in cluster mode: the partition
+// of its series and the epoch of the lease under which its publisher owned
+// that partition (the lease's revision; a later owner's is larger). A
+// consumer that keeps, per partition, the largest epoch seen recognises a
+// message with a smaller one as the late output of a former owner (paused
+// past its lease, then resumed) and may drop it: the current owner
+// publishes the same forecast, deterministic in data time.
+const (
+	PartitionHeader = "Forewarn-Partition"
+	EpochHeader     = "Forewarn-Epoch"
+)
+
 // PartitionedIntake is the intake of one instance in cluster mode
 // (cluster.partitions > 0): it consumes the partitions its cluster.Owner
 // holds, each through that partition's consumer for the owner's epoch

@@ -286,7 +286,11 @@ func (d *Daemon) release(topic string, e *entry) {
 // evaluates its alert rules.
 func (d *Daemon) publish(topic string, e *entry) {
 	now := d.now()
-	d.pub.forecast(e.s.ModelForecast(), now, e.subject)
+	if part, epoch, ok := d.ownerEpoch(topic); ok { // issue 15: owner headers (partitioned.go)
+		d.pub.forecastOwned(e.s.ModelForecast(), now, e.subject, part, epoch)
+	} else {
+		d.pub.forecast(e.s.ModelForecast(), now, e.subject)
+	}
 	if d.opt.OnForecast != nil {
 		d.opt.OnForecast(e.s.Forecast())
 	}

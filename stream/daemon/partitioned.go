@@ -93,6 +93,21 @@ func (d *Daemon) restoreOnLoop(ctx context.Context, p int, epoch uint64, snap *c
 	}
 }
 
+// ownerEpoch returns the partition of topic and the epoch at which this
+// instance last owned it, for the owner headers of its forecasts; ok is
+// false outside cluster mode. A former owner that publishes late (it was
+// paused past its lease) sends its old epoch. Loop only.
+func (d *Daemon) ownerEpoch(topic string) (part int, epoch uint64, ok bool) {
+	if d.handover == nil {
+		return 0, 0, false
+	}
+	p, ok := d.partitionOf(topic)
+	if !ok {
+		return 0, 0, false
+	}
+	return p, d.handover.lastOwned[p], d.handover.lastOwned[p] != 0
+}
+
 // partitionOf returns the partition of a topic (ok false: none).
 func (d *Daemon) partitionOf(topic string) (int, bool) {
 	return d.handover.pi.PartitionOfTopic(topic)
