@@ -38,6 +38,7 @@ func EnsureBucket(ctx context.Context, js jetstream.JetStream, name string, repl
 		LimitMarkerTTL: max(lease, time.Second),
 	})
 	if err != nil {
+		err = withDenied(js, err, name)
 		return nil, fmt.Errorf("%w %s: %w%s", ErrBucket, name, err, bucketHint(err, name))
 	}
 	return kv, nil
@@ -56,6 +57,20 @@ func bucketHint(err error, bucket string) string {
 		return " (JetStream is not enabled on the server)"
 	}
 	return ""
+}
+
+// withDenied adds to err the connection's last permissions violation
+// when it concerns name (a bucket or store): the server refuses a
+// publication asynchronously, so the request itself only times out.
+func withDenied(js jetstream.JetStream, err error, name string) error {
+	if err == nil || isPermission(err) {
+		return err
+	}
+	le := js.Conn().LastError()
+	if le != nil && errors.Is(le, nats.ErrPermissionViolation) && strings.Contains(le.Error(), name) {
+		return fmt.Errorf("%w (%w)", err, le)
+	}
+	return err
 }
 
 // isPermission reports whether err is the server refusing a right.

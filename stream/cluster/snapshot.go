@@ -109,14 +109,16 @@ func EnsureSnapshotStore(ctx context.Context, js jetstream.JetStream, name strin
 		Storage:     jetstream.FileStorage,
 	})
 	if err != nil {
+		err = withDenied(js, err, name)
 		return nil, fmt.Errorf("%w %s: %w%s", ErrSnapshot, name, err, snapshotHint(err, name))
 	}
-	return &SnapshotStore{obs: obs, name: name}, nil
+	return &SnapshotStore{js: js, obs: obs, name: name}, nil
 }
 
 // SnapshotStore is the object store of the partition snapshots (one
 // object per partition). Safe for concurrent use.
 type SnapshotStore struct {
+	js   jetstream.JetStream
 	obs  jetstream.ObjectStore
 	name string
 }
@@ -152,6 +154,7 @@ func (st *SnapshotStore) Put(ctx context.Context, s *Snapshot) error {
 		return err
 	}
 	if _, err := st.obs.PutBytes(ctx, snapshotName(s.Partition), b); err != nil {
+		err = withDenied(st.js, err, st.name)
 		return fmt.Errorf("%w %s: store partition %d: %w%s", ErrSnapshot, st.name, s.Partition, err, snapshotHint(err, st.name))
 	}
 	return nil
@@ -166,6 +169,7 @@ func (st *SnapshotStore) Get(ctx context.Context, p int) (*Snapshot, error) {
 		return nil, nil
 	}
 	if err != nil {
+		err = withDenied(st.js, err, st.name)
 		return nil, fmt.Errorf("cluster: read the snapshot of partition %d from %s: %w%s", p, st.name, err, snapshotHint(err, st.name))
 	}
 	var s Snapshot
@@ -183,14 +187,18 @@ func (st *SnapshotStore) Get(ctx context.Context, p int) (*Snapshot, error) {
 // this instance cannot use the store.
 func (st *SnapshotStore) Probe(ctx context.Context, instance string) error {
 	name := "probe-" + instance
+	fail := func(op string, err error) error {
+		err = withDenied(st.js, err, st.name)
+		return fmt.Errorf("%w %s: %s: %w%s", ErrSnapshot, st.name, op, err, snapshotHint(err, st.name))
+	}
 	if _, err := st.obs.PutBytes(ctx, name, []byte(instance)); err != nil {
-		return fmt.Errorf("%w %s: write: %w%s", ErrSnapshot, st.name, err, snapshotHint(err, st.name))
+		return fail("write", err)
 	}
 	if _, err := st.obs.GetBytes(ctx, name); err != nil {
-		return fmt.Errorf("%w %s: read: %w%s", ErrSnapshot, st.name, err, snapshotHint(err, st.name))
+		return fail("read", err)
 	}
 	if err := st.obs.Delete(ctx, name); err != nil {
-		return fmt.Errorf("%w %s: delete: %w%s", ErrSnapshot, st.name, err, snapshotHint(err, st.name))
+		return fail("delete", err)
 	}
 	return nil
 }

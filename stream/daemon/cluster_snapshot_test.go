@@ -3,14 +3,19 @@ package daemon
 import (
 	"context"
 	"fmt"
+	"log/slog"
 	"strconv"
+	"strings"
 	"testing"
 	"time"
 
+	"github.com/nats-io/nats-server/v2/server"
+	"github.com/nats-io/nats.go"
 	"github.com/nats-io/nats.go/jetstream"
 	dto "github.com/prometheus/client_model/go"
 
 	"forewarn/config"
+	"forewarn/state"
 	"forewarn/stream"
 	"forewarn/stream/cluster"
 	"forewarn/stream/streamtest"
@@ -242,4 +247,66 @@ func gapsOf(t *testing.T, d *Daemon, p int) float64 {
 		t.Fatal(err)
 	}
 	return m.GetCounter().GetValue()
+}
+
+// An instance whose NATS user lacks a right on the lease bucket or on the
+// snapshot store fails at start with an error that names the bucket (or
+// store) and the right, before it consumes anything. One server with
+// JetStream and a user per case whose publish permissions deny that
+// right (NATS authorization: deny lists on publish subjects).
+func TestClusterMissingRightNamed(t *testing.T) {
+	const name = "RIGHTS"
+	leases, snaps := stream.LeaseBucket(name), stream.SnapshotStore(name)
+	cases := []struct {
+		user string
+		deny []string
+		want []string // in the error
+	}{
+		{"nolease", []string{"$KV." + leases + ".>"}, []string{leases, "$KV." + leases + ".>", "publish"}},
+		{"nolapi", []string{"$JS.API.STREAM.*.KV_" + leases}, []string{leases, "KV_" + leases}},
+		{"nosnap", []string{"$O." + snaps + ".>"}, []string{snaps, "$O." + snaps + ".>", "publish"}},
+	}
+	opts := streamtest.Options(t)
+	for _, c := range cases {
+		opts.Users = append(opts.Users, &server.User{Username: c.user, Password: "pw",
+			Permissions: &server.Permissions{Publish: &server.SubjectPermission{Allow: []string{">"}, Deny: c.deny}}})
+	}
+	_, url := streamtest.RunServerWith(t, opts)
+	for _, c := range cases {
+		t.Run(c.user, func(t *testing.T) {
+			cfg := testConfig(t.TempDir())
+			cfg.NATS.URL = url
+			cfg.Intake.Stream = name
+			cfg.Cluster.Partitions = 2
+			cfg.Cluster.Instance = "fw-" + c.user
+			cfg.Cluster.Lease = 2 * time.Second
+			if err := cfg.Validate(); err != nil {
+				t.Fatal(err)
+			}
+			store, err := state.Open(cfg.State.Dir)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer store.Close()
+			nc := streamtest.Connect(t, url, nats.UserInfo(c.user, "pw"))
+			d, err := New(Options{Config: cfg, Conn: nc, Store: store, Logger: slog.New(slog.DiscardHandler)})
+			if err == nil {
+				ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+				defer cancel()
+				err = d.Run(ctx)
+				if ctx.Err() != nil {
+					t.Fatalf("the daemon ran without the right (%v)", err)
+				}
+			}
+			if err == nil {
+				t.Fatal("no error")
+			}
+			for _, w := range c.want {
+				if !strings.Contains(err.Error(), w) {
+					t.Errorf("error does not name %q:\n%v", w, err)
+				}
+			}
+			t.Logf("%s: %v", c.user, err)
+		})
+	}
 }
