@@ -382,14 +382,17 @@ func (pi *PartitionedIntake) gain(ctx context.Context, c cluster.Change, handle 
 			return
 		}
 	}
-	octx, cancel := context.WithTimeout(ctx, pi.o.SetupTimeout)
-	cons, err := cluster.OpenConsumer(octx, pi.st, pi.o.Consumer, c.Partition, c.Epoch, cluster.ConsumerOptions{
-		StartSeq: floor + 1, AckWait: pi.o.AckWait, MaxAckPending: pi.o.MaxAckPending, Replicas: pi.o.Replicas,
-	})
-	cancel()
-	if err != nil {
-		// Fenced (a newer owner exists) or the bus failed: the Owner
-		// reports the loss, or the lease lapses and the partition moves.
+	var cons jetstream.Consumer
+	for attempt := 1; ; attempt++ {
+		octx, cancel := context.WithTimeout(ctx, pi.o.SetupTimeout)
+		var err error
+		cons, err = cluster.OpenConsumer(octx, pi.st, pi.o.Consumer, c.Partition, c.Epoch, cluster.ConsumerOptions{
+			StartSeq: floor + 1, AckWait: pi.o.AckWait, MaxAckPending: pi.o.MaxAckPending, Replicas: pi.o.Replicas,
+		})
+		cancel()
+		if err == nil {
+			break
+		}
 		if ctx.Err() != nil {
 			return // leaving
 		}
@@ -398,8 +401,16 @@ func (pi *PartitionedIntake) gain(ctx context.Context, c cluster.Change, handle 
 			pi.log.Info("partition already taken by a newer owner", "partition", c.Partition, "epoch", c.Epoch, "err", err)
 			return
 		}
-		pi.log.Error("partition not consumed", "partition", c.Partition, "epoch", c.Epoch, "err", err)
-		return
+		// The bus failed (a node restarting, a slow answer): the lease is
+		// held, so try again. Meanwhile no change is read: if the bus
+		// stays away, the Owner stops renewing, the lease lapses and the
+		// next owner fences this one (the next attempt then says so).
+		pi.log.Warn("partition consumer not opened; trying again", "partition", c.Partition, "epoch", c.Epoch, "attempt", attempt, "err", err)
+		select {
+		case <-ctx.Done():
+			return
+		case <-time.After(time.Second):
+		}
 	}
 	in := newIntake(pi.nc, pi.o)
 	in.cons = cons
