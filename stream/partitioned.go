@@ -43,10 +43,12 @@ const (
 // for each partition, the last position handed over, and Ack(seq)
 // acknowledges on each consumer min(seq, that mark).
 //
-// A consumer starts at the first message the stream still holds: there
-// are no snapshots yet, so a new owner rebuilds a series it has no record
-// of from the stream's retained history, and one it has a record of skips
-// what its record already reflects.
+// Without handover a consumer starts at the first message the stream
+// still holds: a new owner rebuilds a series it has no record of from the
+// stream's retained history, and one it has a record of skips what its
+// record already reflects. With handover (EnableHandover, as the daemon
+// runs it) a consumer starts after the floor of the partition's latest
+// snapshot, whose records the user has installed first.
 type PartitionedIntake struct {
 	nc    *nats.Conn
 	o     IntakeOptions

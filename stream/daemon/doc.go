@@ -24,7 +24,15 @@
 //   - publisher (publisher.go) runs the encoder and keeps the latest
 //     forecast of each topic;
 //   - flusher (flusher.go) encodes the records into a state.Batch, runs
-//     the writer that commits it, and acknowledges the intake.
+//     the writer that commits it, and acknowledges the intake;
+//   - in cluster mode the handover (partitioned.go): a gained partition's
+//     snapshot is installed on the loop (Inspect's channel) before its
+//     consumer starts, after the partition's jobs and the flush in
+//     progress are finished; the intake's snapshot goroutine reads the
+//     records back from the state file (state.Store is safe for that);
+//     forecasts carry the owner headers (stream.PartitionHeader,
+//     stream.EpochHeader); shutdown ends with Leave (final snapshots at
+//     the acknowledged floors, then the leases go).
 //
 // # Goroutines and what they own
 //

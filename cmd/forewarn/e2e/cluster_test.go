@@ -310,7 +310,14 @@ func (ev *events) await(what string, cond func() bool) {
 	for {
 		ev.mu.Lock()
 		ok := cond()
+		var bad string
+		if len(ev.bad) > 0 {
+			bad = ev.bad[0]
+		}
 		ev.mu.Unlock()
+		if bad != "" {
+			ev.t.Fatalf("%s (while waiting for: %s)", bad, what)
+		}
 		if ok {
 			return
 		}
