@@ -50,7 +50,7 @@ func bucketHint(err error, bucket string) string {
 	var api *jetstream.APIError
 	switch {
 	case isPermission(err):
-		return fmt.Sprintf(" (each instance needs publish and subscribe on $KV.%s.> and the JetStream API for stream KV_%s: $JS.API.STREAM.*.KV_%s, $JS.API.CONSUMER.*.KV_%s.>)", bucket, bucket, bucket, bucket)
+		return fmt.Sprintf(" (each instance needs publish on $KV.%s.>, $JS.API.INFO and the JetStream API for stream KV_%s: $JS.API.STREAM.*.KV_%s, $JS.API.CONSUMER.*.KV_%s.>, $JS.API.DIRECT.GET.KV_%s.>; README, Rights)", bucket, bucket, bucket, bucket, bucket)
 	case errors.Is(err, jetstream.ErrLimitMarkerTTLNotSupported):
 		return " (per-key lifetimes need nats-server 2.11 or later)"
 	case errors.As(err, &api) && api.ErrorCode == jetstream.JSErrCodeJetStreamNotEnabled:
@@ -67,7 +67,7 @@ func withDenied(js jetstream.JetStream, err error, name string) error {
 		return err
 	}
 	le := js.Conn().LastError()
-	if le != nil && errors.Is(le, nats.ErrPermissionViolation) && strings.Contains(le.Error(), name) {
+	if le != nil && errors.Is(le, nats.ErrPermissionViolation) && (strings.Contains(le.Error(), name) || strings.Contains(le.Error(), `"$JS.API.INFO"`)) {
 		return fmt.Errorf("%w (%w)", err, le)
 	}
 	return err

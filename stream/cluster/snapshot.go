@@ -133,7 +133,7 @@ func snapshotHint(err error, name string) string {
 		return ""
 	}
 	if isPermission(err) {
-		return fmt.Sprintf(" (each instance needs publish and subscribe on $O.%s.> and the JetStream API for stream OBJ_%s: $JS.API.STREAM.*.OBJ_%s, $JS.API.CONSUMER.*.OBJ_%s.>, $JS.API.DIRECT.GET.OBJ_%s.>)", name, name, name, name, name)
+		return fmt.Sprintf(" (each instance needs publish on $O.%s.>, $JS.API.INFO and the JetStream API for stream OBJ_%s: $JS.API.STREAM.*.OBJ_%s, $JS.API.CONSUMER.*.OBJ_%s.>, $JS.API.DIRECT.GET.OBJ_%s.>; README, Rights)", name, name, name, name, name)
 	}
 	return bucketHint(err, name)
 }

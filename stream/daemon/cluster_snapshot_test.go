@@ -6,6 +6,7 @@ import (
 	"log/slog"
 	"strconv"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -308,5 +309,119 @@ func TestClusterMissingRightNamed(t *testing.T) {
 			}
 			t.Logf("%s: %v", c.user, err)
 		})
+	}
+}
+
+// readmeRights is the README's list ("Several instances on one NATS
+// cluster", Rights, with "Running beside an existing NATS cluster") of
+// the subjects an instance publishes to, for intake stream s and consumer
+// prefix c.
+func readmeRights(s, c string) (pub, sub []string) {
+	leases, snaps := s+"_LEASES", s+"_SNAPSHOTS"
+	pub = []string{
+		"forewarn.>", "_INBOX.>", "$JS.API.INFO",
+		"$JS.API.STREAM.*." + s, "$JS.API.CONSUMER.*." + s, "$JS.API.CONSUMER.*." + s + ".>",
+		"$JS.API.CONSUMER.MSG.NEXT." + s + ".>", "$JS.ACK." + s + ".>",
+		"$KV." + leases + ".>", "$JS.API.STREAM.*.KV_" + leases,
+		"$JS.API.CONSUMER.*.KV_" + leases + ".>",
+		"$JS.API.DIRECT.GET.KV_" + leases + ".>",
+		"$O." + snaps + ".>", "$JS.API.STREAM.*.OBJ_" + snaps,
+		"$JS.API.CONSUMER.*.OBJ_" + snaps + ".>",
+		"$JS.API.DIRECT.GET.OBJ_" + snaps + ".>",
+	}
+	return pub, []string{"_INBOX.>", "forewarn.query.>"}
+}
+
+// Two instances whose NATS user has exactly the rights the README lists
+// (an allow list, nothing else) run in turn: the first consumes and
+// leaves cleanly (its snapshots stored), the second loads them and
+// carries on. A right missing from the README's list fails this test.
+func TestClusterRightsAsDocumented(t *testing.T) {
+	const name = "DOCRIGHTS"
+	pub, sub := readmeRights(name, "forewarn")
+	opts := streamtest.Options(t)
+	opts.Users = []*server.User{
+		{Username: "fw", Password: "pw", Permissions: &server.Permissions{
+			Publish: &server.SubjectPermission{Allow: pub}, Subscribe: &server.SubjectPermission{Allow: sub}}},
+		{Username: "feeder", Password: "pw"},
+	}
+	var mu sync.Mutex
+	var denied []string
+	_, url := streamtest.RunServerWith(t, opts)
+	cfgFor := func(instance string) *config.Config {
+		cfg := testConfig(t.TempDir())
+		cfg.NATS.URL = url
+		cfg.Intake.Stream = name
+		cfg.Cluster.Partitions = 2
+		cfg.Cluster.Instance = instance
+		cfg.Cluster.Lease = 2 * time.Second
+		if err := cfg.Validate(); err != nil {
+			t.Fatal(err)
+		}
+		return cfg
+	}
+	startAsFW := func(cfg *config.Config) *runningDaemon {
+		nc, err := nats.Connect(url, nats.UserInfo("fw", "pw"), nats.ErrorHandler(func(_ *nats.Conn, _ *nats.Subscription, err error) {
+			mu.Lock()
+			denied = append(denied, err.Error())
+			mu.Unlock()
+		}))
+		if err != nil {
+			t.Fatal(err)
+		}
+		t.Cleanup(nc.Close)
+		t.Cleanup(func() {
+			mu.Lock()
+			defer mu.Unlock()
+			for _, d := range denied {
+				t.Errorf("refused by the server with the README's rights: %s", d)
+			}
+			denied = nil
+		})
+		store, err := state.Open(cfg.State.Dir)
+		if err != nil {
+			t.Fatal(err)
+		}
+		d, err := New(Options{Config: cfg, Conn: nc, Store: store, Logger: slog.New(slog.DiscardHandler)})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ctx, cancel := context.WithCancel(context.Background())
+		r := &runningDaemon{d: d, cancel: cancel, done: make(chan error, 1), store: store}
+		go func() { r.done <- d.Run(ctx) }()
+		select {
+		case <-d.Ready():
+		case err := <-r.done:
+			t.Fatalf("daemon stopped at once: %v", err)
+		}
+		return r
+	}
+	feeder := streamtest.Connect(t, url, nats.UserInfo("feeder", "pw"))
+	one := startAsFW(cfgFor("fw-one"))
+	clPublish(t, feeder, 0, clPhase1)
+	streamtest.Eventually(t, 60*time.Second, "fw-one forecasts every series", func() bool {
+		for i := range clSeries {
+			if _, ok := latestAt(one.d, clTopic(i), clOrigin(clPhase1-1)); !ok {
+				return false
+			}
+		}
+		return true
+	})
+	one.stop(t)
+	two := startAsFW(cfgFor("fw-two"))
+	clPublish(t, feeder, clPhase1, clPhase1+clPhase2)
+	streamtest.Eventually(t, 60*time.Second, "fw-two forecasts every series at the last origin", func() bool {
+		for i := range clSeries {
+			if _, ok := latestAt(two.d, clTopic(i), clOrigin(clPhase1+clPhase2-1)); !ok {
+				return false
+			}
+		}
+		return true
+	})
+	two.stop(t)
+	mu.Lock()
+	defer mu.Unlock()
+	for _, d := range denied {
+		t.Errorf("refused by the server with the README's rights: %s", d)
 	}
 }
