@@ -294,11 +294,13 @@ func (pi *PartitionedIntake) storeSnapshots(final bool) {
 		pi.log.Error("partition snapshots not stored: records unreadable", "err", err)
 		return
 	}
+	// One deadline for the whole round: a bus that does not answer must
+	// not hold a shutdown for a timeout per partition.
+	ctx, cancel := context.WithTimeout(context.Background(), pi.o.SetupTimeout)
+	defer cancel()
 	for _, j := range jobs {
 		recs := all[j.p]
-		ctx, cancel := context.WithTimeout(context.Background(), pi.o.SetupTimeout)
 		err := pi.snaps.Put(ctx, &cluster.Snapshot{Partition: j.p, Epoch: j.epoch, Floor: j.floor, Records: recs})
-		cancel()
 		if err != nil {
 			pi.log.Warn("partition snapshot not stored", "partition", j.p, "epoch", j.epoch, "floor", j.floor, "err", err)
 			continue
