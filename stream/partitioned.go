@@ -63,6 +63,11 @@ type PartitionedIntake struct {
 	mu    sync.Mutex // guards parts and owned; never held while calling out
 	parts map[int]*part
 	owned map[int]uint64 // partition → epoch, as the Owner last reported
+	// cover is, per partition, the stream position up to which this
+	// instance's own copies of the partition's series reflect every
+	// message (Handover.Restore's keptOwn): the floor of the snapshot
+	// that replaced them, then what each ownership acknowledged.
+	cover map[int]uint64
 
 	// Handover (EnableHandover); nil snaps: none, a new owner replays the
 	// partition from the start of the stream.
@@ -80,8 +85,14 @@ type Handover struct {
 	// Restore makes the series of partition p, owned now at epoch, what
 	// snap holds (nil: no snapshot was stored), before any of the
 	// partition's messages is handed over. It returns once done, or with
-	// ctx's error.
-	Restore func(ctx context.Context, p int, epoch uint64, snap *cluster.Snapshot) error
+	// ctx's error. keptOwn says that it kept this instance's own copies
+	// of the partition's series: the replay then starts no later than
+	// what those copies are known to reflect (the floor of the snapshot
+	// that last replaced them, or what an ownership since acknowledged),
+	// since a snapshot of an older epoch may have a later floor than the
+	// copies (a fenced owner's late snapshot), and an attempt to own the
+	// partition that was fenced may have replaced them with an older one.
+	Restore func(ctx context.Context, p int, epoch uint64, snap *cluster.Snapshot) (keptOwn bool, err error)
 	// Records returns the stored records of the series of each of the
 	// partitions ps: every effect acknowledged so far is in them.
 	Records func(ps []int) (map[int][][]byte, error)
@@ -134,6 +145,7 @@ func NewPartitionedIntake(nc *nats.Conn, o IntakeOptions, owner *cluster.Owner, 
 		drained:    make(chan struct{}),
 		parts:      map[int]*part{},
 		owned:      map[int]uint64{},
+		cover:      map[int]uint64{},
 	}, nil
 }
 
@@ -332,6 +344,9 @@ func (pi *PartitionedIntake) stopConsumers() {
 // (stopped already).
 func (pi *PartitionedIntake) forget(p int) {
 	pi.mu.Lock()
+	if pt := pi.parts[p]; pt != nil {
+		pi.cover[p] = pt.acked
+	}
 	delete(pi.parts, p)
 	delete(pi.owned, p)
 	pi.mu.Unlock()
@@ -352,13 +367,23 @@ func (pi *PartitionedIntake) restore(ctx context.Context, c cluster.Change) (uin
 		pi.log.Error("partition snapshot unreadable; replaying the partition from the start of the stream", "partition", c.Partition, "err", err)
 		snap = nil
 	}
-	if err := pi.hand.Restore(ctx, c.Partition, c.Epoch, snap); err != nil {
+	keptOwn, err := pi.hand.Restore(ctx, c.Partition, c.Epoch, snap)
+	if err != nil {
 		return 0, err
 	}
 	var floor uint64
 	if snap != nil {
 		floor = snap.Floor
 	}
+	pi.mu.Lock()
+	if keptOwn {
+		floor = min(floor, pi.cover[c.Partition])
+	}
+	// The copies now reflect everything up to floor (the snapshot's
+	// records replaced them, or the replay starts after what they hold),
+	// even if the consumer is not opened below.
+	pi.cover[c.Partition] = floor
+	pi.mu.Unlock()
 	ictx, cancel := context.WithTimeout(ctx, pi.o.SetupTimeout)
 	info, err := pi.st.Info(ictx)
 	cancel()
@@ -459,6 +484,7 @@ func (pi *PartitionedIntake) lose(c cluster.Change) {
 	}
 	delete(pi.parts, c.Partition)
 	delete(pi.owned, c.Partition)
+	pi.cover[c.Partition] = pt.acked
 	pi.mu.Unlock()
 	pt.cancel()
 	<-pt.done

@@ -26,7 +26,10 @@ import (
 // it comes from an epoch of this instance's no older than the snapshot's:
 // lastOwned remembers, per partition, the epoch at which this instance
 // last owned it (0 after a start: the local file's records yield to any
-// snapshot). The snapshots themselves are read from the local state file
+// snapshot). When it keeps its own copies, the replay starts no later
+// than what the copies are known to reflect (stream.PartitionedIntake
+// tracks it), for an older epoch's snapshot may have a later floor than
+// those copies (a paused owner's late snapshot). The snapshots themselves are read from the local state file
 // (partitionRecords), on the intake's snapshot goroutine.
 
 // handover is the cluster-mode state of the daemon. lastOwned is the
@@ -75,21 +78,21 @@ func (d *Daemon) leave() {
 var errStopped = errors.New("daemon: stopped")
 
 // restoreOnLoop runs restorePartition on the loop and waits for it.
-func (d *Daemon) restoreOnLoop(ctx context.Context, p int, epoch uint64, snap *cluster.Snapshot) error {
-	res := make(chan error, 1)
+func (d *Daemon) restoreOnLoop(ctx context.Context, p int, epoch uint64, snap *cluster.Snapshot) (keptOwn bool, err error) {
+	res := make(chan bool, 1)
 	f := func() { res <- d.restorePartition(p, epoch, snap) }
 	select {
 	case d.inspect <- f:
 	case <-ctx.Done():
-		return ctx.Err()
+		return false, ctx.Err()
 	case <-d.done:
-		return errStopped
+		return false, errStopped
 	}
 	select {
-	case err := <-res:
-		return err
+	case kept := <-res:
+		return kept, nil
 	case <-d.done:
-		return errStopped
+		return false, errStopped
 	}
 }
 
@@ -122,8 +125,9 @@ func (d *Daemon) partitionOf(topic string) (int, bool) {
 // record, and a series the snapshot does not hold is dropped (its record
 // too): the replay from the snapshot's floor rebuilds it. The installed
 // series are written at the next flush, before the partition's first
-// acknowledgement.
-func (d *Daemon) restorePartition(p int, epoch uint64, snap *cluster.Snapshot) error {
+// acknowledgement. It reports whether it kept this instance's own copies
+// (stream.Handover.Restore's keptOwn).
+func (d *Daemon) restorePartition(p int, epoch uint64, snap *cluster.Snapshot) (keptOwn bool) {
 	h := d.handover
 	inP := func(topic string) bool {
 		q, ok := d.partitionOf(topic)
@@ -147,7 +151,7 @@ func (d *Daemon) restorePartition(p int, epoch uint64, snap *cluster.Snapshot) e
 	h.lastOwned[p] = epoch
 	if snap == nil {
 		d.log.Info("partition taken without a snapshot; replayed from the start of the stream", "partition", p, "epoch", epoch)
-		return nil
+		return false
 	}
 	useOwn := own >= snap.Epoch
 	recs := make(map[string]*series.Snapshot, len(snap.Records))
@@ -204,7 +208,7 @@ func (d *Daemon) restorePartition(p int, epoch uint64, snap *cluster.Snapshot) e
 	}
 	d.log.Info("partition snapshot loaded", "partition", p, "epoch", epoch, "snapshot_epoch", snap.Epoch,
 		"floor", snap.Floor, "records", len(recs), "own_copies_kept", useOwn)
-	return nil
+	return useOwn
 }
 
 // partitionRecords reads the stored records of the series of partitions
