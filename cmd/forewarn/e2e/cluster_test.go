@@ -667,7 +667,8 @@ func TestClusterThreeInstances(t *testing.T) {
 		owner := owners[partOf[topic]]
 		st := stateShow(t, ds[owner].dataDir(), topic)
 		if !reflect.DeepEqual(st, want.state[topic]) {
-			report("%s: state record (from %s) differs from the single instance's:\n%s", topic, owner, diffMaps(st, want.state[topic]))
+			report("%s (partition %d): state record (from %s) differs from the single instance's:\n%s%s", topic, partOf[topic], owner,
+				diffMaps(st, want.state[topic]), firstDiff(st["window"], want.state[topic]["window"]))
 		}
 		if !mustSame(t, got[topic], want.forecast[topic]) {
 			report("%s: last forecast differs:\n got %s\nwant %s", topic, got[topic], want.forecast[topic])
@@ -747,4 +748,17 @@ func waitAllAcknowledged(t *testing.T, ev *events, js jetstream.JetStream) map[i
 		}
 	}
 	return owners
+}
+
+// firstDiff locates the first difference between two windows (lists).
+func firstDiff(got, want any) string {
+	g, _ := got.([]any)
+	w, _ := want.([]any)
+	for i := range min(len(g), len(w)) {
+		if !reflect.DeepEqual(g[i], w[i]) {
+			lo, hi := max(i-2, 0), min(i+4, len(g), len(w))
+			return fmt.Sprintf("  window: lengths %d and %d; first difference at %d: got %v, want %v\n", len(g), len(w), i, g[lo:hi], w[lo:hi])
+		}
+	}
+	return fmt.Sprintf("  window: lengths %d and %d, equal over the shorter\n", len(g), len(w))
 }
