@@ -75,8 +75,9 @@ type PartitionedIntake struct {
 	snaps     *cluster.SnapshotStore // snapStore once EnableHandover is called
 	snapEvery time.Duration
 	hand      Handover
-	ownerStop context.CancelFunc // ends the Owner (Leave)
-	drained   chan struct{}      // closed once the Owner's Changes are closed
+	ownerStop context.CancelFunc  // ends the Owner (Leave)
+	resume    chan cluster.Change // a part that lost a delivery in transit, to reopen
+	drained   chan struct{}       // closed once the Owner's Changes are closed
 }
 
 // Handover is what a PartitionedIntake needs of its user (the daemon) to
@@ -109,10 +110,13 @@ type part struct {
 	done   chan struct{}
 
 	// handed, mark, acked and snapped are guarded by PartitionedIntake.mu.
-	handed  uint64 // last stream position handed to the handler and applied
-	mark    uint64 // handed when the last flush took its floor
-	acked   uint64 // acknowledged on this consumer (at first: the snapshot's floor)
-	snapped uint64 // the floor of the last snapshot stored (or loaded)
+	handed uint64 // last stream position handed to the handler and applied
+	mark   uint64 // handed when the last flush took its floor
+	acked  uint64 // acknowledged on this consumer (at first: the snapshot's floor)
+	// delivery is the last delivery sequence handed over (the part's
+	// goroutine's); a jump stops the part for a restart (resume).
+	delivery uint64
+	snapped  uint64 // the floor of the last snapshot stored (or loaded)
 }
 
 // NewPartitionedIntake prepares the intake stream (created with
@@ -143,6 +147,7 @@ func NewPartitionedIntake(nc *nats.Conn, o IntakeOptions, owner *cluster.Owner, 
 		nc: nc, o: o, st: st, owner: owner, cfg: cfg, log: log,
 		subscribed: make(chan struct{}),
 		drained:    make(chan struct{}),
+		resume:     make(chan cluster.Change, o.Partitions+1),
 		parts:      map[int]*part{},
 		owned:      map[int]uint64{},
 		cover:      map[int]uint64{},
@@ -204,6 +209,8 @@ loop:
 			case ctx.Err() == nil:
 				pi.gain(ctx, c, handle)
 			}
+		case c := <-pi.resume:
+			pi.reopen(ctx, c, handle)
 		}
 	}
 	stopSnaps()
@@ -411,6 +418,13 @@ func (pi *PartitionedIntake) gain(ctx context.Context, c cluster.Change, handle 
 			return
 		}
 	}
+	pi.open(ctx, c, floor, nil, handle)
+}
+
+// open opens partition c.Partition's consumer at epoch c.Epoch from
+// floor+1 and starts handing its batches over. prev, when reopening,
+// is the part it replaces: its positions carry over.
+func (pi *PartitionedIntake) open(ctx context.Context, c cluster.Change, floor uint64, prev *part, handle func([]Message)) {
 	var cons jetstream.Consumer
 	for attempt := 1; ; attempt++ {
 		octx, cancel := context.WithTimeout(ctx, pi.o.SetupTimeout)
@@ -446,6 +460,9 @@ func (pi *PartitionedIntake) gain(ctx context.Context, c cluster.Change, handle 
 	pctx, pcancel := context.WithCancel(ctx)
 	pt := &part{p: c.Partition, epoch: c.Epoch, in: in, cancel: pcancel, done: make(chan struct{}), acked: floor, snapped: floor}
 	pi.mu.Lock()
+	if prev != nil {
+		pt.handed, pt.mark, pt.acked, pt.snapped = prev.handed, prev.mark, prev.acked, prev.snapped
+	}
 	pi.parts[c.Partition] = pt
 	pi.owned[c.Partition] = c.Epoch
 	pi.mu.Unlock()
@@ -461,17 +478,66 @@ func (pi *PartitionedIntake) gain(ctx context.Context, c cluster.Change, handle 
 			pi.handleMu.Lock()
 			defer pi.handleMu.Unlock()
 			if pctx.Err() != nil {
-				return // lost or leaving: another owner applies these
+				return // lost, leaving or reopening: these come again
 			}
-			handle(batch)
-			pi.mu.Lock()
-			pt.handed = batch[len(batch)-1].Seq
-			pi.mu.Unlock()
+			// A delivery lost in transit (a server restarting): what
+			// follows it must not be applied before it, or the lost one
+			// would be taken for applied. Hand over what precedes the
+			// gap, then reopen the partition after what was handed over.
+			n := len(batch)
+			for i := range batch {
+				d := batch[i].Delivery
+				if d != 0 && pt.delivery != 0 && d != pt.delivery+1 {
+					n = i
+					break
+				}
+				if d != 0 {
+					pt.delivery = d
+				}
+			}
+			if n > 0 {
+				handle(batch[:n])
+				pi.mu.Lock()
+				pt.handed = max(pt.handed, batch[n-1].Seq)
+				pi.mu.Unlock()
+			}
+			if n < len(batch) {
+				pi.log.Warn("partition delivery lost in transit; reopening after what was handed over",
+					"partition", pt.p, "epoch", pt.epoch, "delivery", batch[n].Delivery, "expected", pt.delivery+1)
+				pcancel()
+				select {
+				case pi.resume <- cluster.Change{Partition: pt.p, Epoch: pt.epoch, Gained: true, Reason: "reopen"}:
+				default:
+				}
+			}
 		})
 		if err != nil {
 			pi.log.Error("partition consumer stopped", "partition", pt.p, "epoch", pt.epoch, "err", err)
 		}
 	}()
+}
+
+// reopen restarts partition c.Partition's consumer at the same epoch,
+// after what was handed over (a delivery was lost in transit): the
+// consumer is deleted and created again with that start.
+func (pi *PartitionedIntake) reopen(ctx context.Context, c cluster.Change, handle func([]Message)) {
+	pi.mu.Lock()
+	pt := pi.parts[c.Partition]
+	pi.mu.Unlock()
+	if pt == nil || pt.epoch != c.Epoch {
+		return // lost meanwhile
+	}
+	<-pt.done
+	pi.mu.Lock()
+	from := max(pt.handed, pt.acked)
+	pi.mu.Unlock()
+	dctx, cancel := context.WithTimeout(ctx, pi.o.SetupTimeout)
+	err := pi.st.DeleteConsumer(dctx, cluster.ConsumerName(pi.o.Consumer, c.Partition, c.Epoch))
+	cancel()
+	if err != nil && !errors.Is(err, jetstream.ErrConsumerNotFound) {
+		pi.log.Warn("partition consumer not deleted for reopening", "partition", c.Partition, "err", err)
+	}
+	pi.open(ctx, c, from, pt, handle)
 }
 
 // lose stops partition c.Partition's consumer (any epoch when c.Epoch is 0).
