@@ -257,6 +257,13 @@ func (pi *PartitionedIntake) EnableHandover(h Handover) error {
 	return nil
 }
 
+// CanHandover reports whether EnableHandover can be called: the intake
+// comes from NewClusterIntake (its snapshot store) and handover has not
+// been enabled yet.
+func (pi *PartitionedIntake) CanHandover() bool {
+	return pi.snapStore != nil && pi.snapEvery > 0 && pi.snaps == nil
+}
+
 // Leave stores the snapshot of every partition still owned, at its
 // acknowledged floor, then releases the leases and waits until the Owner
 // has stopped. Only with handover, after Run has returned.

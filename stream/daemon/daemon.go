@@ -31,7 +31,9 @@ type Options struct {
 	// Intake is where the messages come from. Nil means a stream.Intake
 	// on Conn, as Config.Intake describes it, or with
 	// Config.Cluster.Partitions > 0 a stream.PartitionedIntake
-	// (stream.NewClusterIntake), whose OwnsTopic becomes Owns.
+	// (stream.NewClusterIntake), whose OwnsTopic becomes Owns. A
+	// PartitionedIntake from stream.NewClusterIntake given here gets the
+	// daemon's handover (snapshots, owner headers) as one built by New.
 	Intake Intake
 	// Owns says whether this instance answers queries for a topic (cluster
 	// mode: it owns the topic's partition, stream.PartitionedIntake's
@@ -104,6 +106,11 @@ func New(o Options) (*Daemon, error) {
 		if o.Owns == nil {
 			o.Owns = pi.OwnsTopic
 		}
+	}
+	if p, ok := in.(*stream.PartitionedIntake); ok && pi == nil && c.Cluster.Partitions > 0 && p.CanHandover() {
+		// The caller built the cluster intake (cmd/forewarn does, for the
+		// sources' leases): the handover is the daemon's all the same.
+		pi = p
 	}
 	if in == nil {
 		si, err := stream.NewIntake(o.Conn, stream.IntakeOptions{
