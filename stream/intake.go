@@ -30,6 +30,10 @@ type Message struct {
 	// publisher that knows the metric's kind (a source, from its TYPE
 	// metadata), anything else as sent; "" without the header.
 	Kind string
+	// Delivery is the consumer's delivery sequence in durable mode (one
+	// more for every delivery, redeliveries included), 0 in plain mode: a
+	// jump says a delivery was lost in transit (a server restarting).
+	Delivery uint64
 }
 
 // KindHeader is the NATS message header in which a publisher may name the
@@ -440,7 +444,7 @@ func (in *Intake) subscribe() (func(), error) {
 		in.unacked = append(in.unacked, delivered{seq: md.Sequence.Stream, msg: m})
 		in.ackMu.Unlock()
 		in.push(Message{Subject: m.Subject(), Data: m.Data(), Seq: md.Sequence.Stream, Received: md.Timestamp,
-			Kind: m.Headers().Get(KindHeader)})
+			Kind: m.Headers().Get(KindHeader), Delivery: md.Sequence.Consumer})
 	},
 		jetstream.PullMaxMessages(min(in.o.Buffer, in.o.MaxAckPending)),
 		jetstream.ConsumeErrHandler(func(jetstream.ConsumeContext, error) {}),

@@ -171,3 +171,117 @@ func TestPartitionedIntakeRefusesOtherCount(t *testing.T) {
 		t.Fatalf("a plain intake on a partitioned stream: %v, want ErrPartitions", err)
 	}
 }
+
+// An instance that regains a partition and keeps its own copies of the
+// partition's series (Handover.Restore's keptOwn) replays from what its
+// last ownership acknowledged when the stored snapshot, of an older
+// epoch, claims a later floor (a paused owner's late snapshot): nothing
+// after its copies is skipped. Here "solo" owns the one partition and
+// acknowledges 5 messages, "second" joins and takes it (rendezvous), 5
+// more are published, a snapshot of epoch 1 with floor 10 is stored, and
+// when "second" leaves, solo's consumer must start at 6, not 11.
+// Common practice: a replay starts no later than the oldest state kept.
+func TestPartitionedIntakeKeptCopiesReplayFromOwnFloor(t *testing.T) {
+	_, url := streamtest.RunServer(t)
+	nc := streamtest.Connect(t, url)
+	cfgOf := func(instance string) *config.Config {
+		cfg := config.Default()
+		cfg.Intake.Stream = "KEPT"
+		cfg.Cluster.Partitions = 1
+		cfg.Cluster.Instance = instance
+		cfg.Cluster.Lease = 2 * time.Second
+		cfg.Cluster.SnapshotEvery = time.Hour
+		return cfg.WithDefaults()
+	}
+	if a := cluster.Assign([]string{"solo", "second"}, 1); a[0] != "second" {
+		t.Fatalf("Assign gives the partition to %s: pick other names", a[0])
+	}
+	solo, err := NewClusterIntake(nc, cfgOf("solo"), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var mu sync.Mutex
+	var got []uint64
+	var restores int
+	err = solo.EnableHandover(Handover{
+		Restore: func(ctx context.Context, p int, epoch uint64, snap *cluster.Snapshot) (bool, error) {
+			mu.Lock()
+			defer mu.Unlock()
+			restores++
+			return restores > 1, nil // the second time: own copies kept
+		},
+		Records: func(ps []int) (map[int][][]byte, error) { return nil, nil },
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() {
+		done <- solo.Run(ctx, func(b []Message) {
+			mu.Lock()
+			for _, m := range b {
+				got = append(got, m.Seq)
+			}
+			mu.Unlock()
+		})
+	}()
+	defer func() {
+		cancel()
+		<-done
+		_ = solo.Leave()
+	}()
+	publish := func(n int) {
+		streamtest.PublishAcked(t, nc, n, func(i int) (string, []byte) {
+			return "metrics.kept", fmt.Appendf(nil, `{"value": %d}`, i)
+		})
+	}
+	streamtest.Eventually(t, 30*time.Second, "solo owns the partition", func() bool { return len(solo.Owned()) == 1 })
+	publish(5)
+	streamtest.Eventually(t, 30*time.Second, "5 handed over", func() bool {
+		mu.Lock()
+		defer mu.Unlock()
+		return len(got) == 5
+	})
+	streamtest.Eventually(t, 30*time.Second, "marked", func() bool {
+		solo.Mark()
+		solo.mu.Lock()
+		defer solo.mu.Unlock()
+		return solo.parts[0] != nil && solo.parts[0].mark == 5
+	})
+	if err := solo.Ack(5); err != nil {
+		t.Fatal(err)
+	}
+
+	other, err := NewClusterIntake(streamtest.Connect(t, url), cfgOf("second"), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	octx, ocancel := context.WithCancel(context.Background())
+	odone := make(chan error, 1)
+	go func() { odone <- other.Run(octx, func([]Message) {}) }()
+	streamtest.Eventually(t, 30*time.Second, "second takes the partition", func() bool {
+		return len(other.Owned()) == 1 && len(solo.Owned()) == 0
+	})
+	publish(5)
+	js, _ := jetstream.New(nc)
+	snaps, err := cluster.EnsureSnapshotStore(context.Background(), js, SnapshotStore("KEPT"), 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := snaps.Put(context.Background(), &cluster.Snapshot{Partition: 0, Epoch: 1, Floor: 10}); err != nil {
+		t.Fatal(err)
+	}
+	ocancel()
+	<-odone
+	streamtest.Eventually(t, 30*time.Second, "solo regains the partition and replays", func() bool {
+		mu.Lock()
+		defer mu.Unlock()
+		return len(got) >= 10
+	})
+	mu.Lock()
+	defer mu.Unlock()
+	if want := []uint64{1, 2, 3, 4, 5, 6, 7, 8, 9, 10}; !slices.Equal(got, want) {
+		t.Errorf("solo was handed %v, want %v (its copies reflect 5: the replay starts at 6)", got, want)
+	}
+}

@@ -2,6 +2,7 @@ package stream
 
 import (
 	"fmt"
+	"strconv"
 	"strings"
 
 	"github.com/nats-io/nats.go"
@@ -53,6 +54,22 @@ func (p *Publisher) ForecastSubject(topic string) string {
 // returns.
 func (p *Publisher) Forecast(subject string, payload []byte) error {
 	return p.publishOn(subject, payload)
+}
+
+// ForecastOwned publishes an encoded forecast on subject, as Forecast
+// does, with the owner headers of cluster mode: PartitionHeader and
+// EpochHeader (issue 15). msg is the caller's, reused between calls.
+func (p *Publisher) ForecastOwned(msg *nats.Msg, subject string, payload []byte, partition int, epoch uint64) error {
+	if msg.Header == nil {
+		msg.Header = nats.Header{}
+	}
+	msg.Subject, msg.Data = subject, payload
+	msg.Header.Set(PartitionHeader, strconv.Itoa(partition))
+	msg.Header.Set(EpochHeader, strconv.FormatUint(epoch, 10))
+	if err := p.nc.PublishMsg(msg); err != nil {
+		return fmt.Errorf("stream: publish on %q: %w", subject, err)
+	}
+	return nil
 }
 
 // Alert publishes an encoded alert event on <prefix>.alert.<topic>.

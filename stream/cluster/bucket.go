@@ -38,6 +38,7 @@ func EnsureBucket(ctx context.Context, js jetstream.JetStream, name string, repl
 		LimitMarkerTTL: max(lease, time.Second),
 	})
 	if err != nil {
+		err = withDenied(js, err, name)
 		return nil, fmt.Errorf("%w %s: %w%s", ErrBucket, name, err, bucketHint(err, name))
 	}
 	return kv, nil
@@ -48,14 +49,33 @@ func EnsureBucket(ctx context.Context, js jetstream.JetStream, name string, repl
 func bucketHint(err error, bucket string) string {
 	var api *jetstream.APIError
 	switch {
-	case errors.Is(err, nats.ErrPermissionViolation), strings.Contains(strings.ToLower(err.Error()), "permission"):
-		return fmt.Sprintf(" (each instance needs publish and subscribe on $KV.%s.> and the JetStream API for stream KV_%s: $JS.API.STREAM.*.KV_%s, $JS.API.CONSUMER.*.KV_%s.>)", bucket, bucket, bucket, bucket)
+	case isPermission(err):
+		return fmt.Sprintf(" (each instance needs publish on $KV.%s.>, $JS.API.INFO and the JetStream API for stream KV_%s: $JS.API.STREAM.*.KV_%s, $JS.API.CONSUMER.*.KV_%s.>, $JS.API.DIRECT.GET.KV_%s.>; README, Rights)", bucket, bucket, bucket, bucket, bucket)
 	case errors.Is(err, jetstream.ErrLimitMarkerTTLNotSupported):
 		return " (per-key lifetimes need nats-server 2.11 or later)"
 	case errors.As(err, &api) && api.ErrorCode == jetstream.JSErrCodeJetStreamNotEnabled:
 		return " (JetStream is not enabled on the server)"
 	}
 	return ""
+}
+
+// withDenied adds to err the connection's last permissions violation
+// when it concerns name (a bucket or store): the server refuses a
+// publication asynchronously, so the request itself only times out.
+func withDenied(js jetstream.JetStream, err error, name string) error {
+	if err == nil || isPermission(err) {
+		return err
+	}
+	le := js.Conn().LastError()
+	if le != nil && errors.Is(le, nats.ErrPermissionViolation) && (strings.Contains(le.Error(), name) || strings.Contains(le.Error(), `"$JS.API.INFO"`)) {
+		return fmt.Errorf("%w (%w)", err, le)
+	}
+	return err
+}
+
+// isPermission reports whether err is the server refusing a right.
+func isPermission(err error) bool {
+	return errors.Is(err, nats.ErrPermissionViolation) || strings.Contains(strings.ToLower(err.Error()), "permission")
 }
 
 // member is the value of a member key.

@@ -58,9 +58,23 @@
 //
 // stream.PartitionedIntake puts these together for the daemon: it starts
 // an Owner, opens a partition's consumer with OpenConsumer on each gained
-// change and stops it on each lost one. Without snapshots (a later step) a
-// consumer starts at the first message the stream holds, and its owner
-// rebuilds the partition's series from the stream's retained history.
+// change and stops it on each lost one.
+//
+// # Snapshots
+//
+// An owner stores each owned partition's Snapshot (its series' state
+// records, which this package does not read, and the partition's
+// acknowledged stream floor) in the object store SnapshotStore, one
+// object per partition, every cluster.snapshot_every and on a clean
+// leave. A new owner loads the latest and starts the partition's consumer
+// at its floor + 1 (ConsumerOptions.StartSeq); the records' stream
+// positions make the replay a no-op for what they hold. Any snapshot
+// whose records reflect every message of the partition at or below its
+// floor is a correct starting point, however old, as long as the stream
+// still holds what follows: so a snapshot read from a replica that is
+// behind, or a late one from a fenced owner (Put refuses to replace a
+// later epoch's, but cannot compare-and-set), costs replay time, not
+// correctness. The encoding is versioned and checksummed.
 //
 // # Goroutines and locks
 //

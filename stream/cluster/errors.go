@@ -22,6 +22,10 @@ var (
 	// and the caller must stop consuming it.
 	ErrFenced = errors.New("cluster: fenced by a newer owner")
 
+	// ErrSnapshot is returned when the snapshot store cannot be created,
+	// read or written, or holds a snapshot that cannot be read.
+	ErrSnapshot = errors.New("cluster: snapshot store")
+
 	// ErrOptions is returned by NewOwner for options it cannot use.
 	ErrOptions = errors.New("cluster: bad options")
 )

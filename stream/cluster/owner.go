@@ -175,7 +175,8 @@ func (w *Owner) Start(ctx context.Context) error {
 			break
 		}
 		if !errors.Is(err, jetstream.ErrKeyExists) {
-			return fmt.Errorf("%w: join as %s: %w%s", ErrBucket, w.o.Instance, err, bucketHint(err, w.kv.Bucket()))
+			err = withDenied(w.js, err, w.kv.Bucket())
+			return fmt.Errorf("%w %s: join as %s: %w%s", ErrBucket, w.kv.Bucket(), w.o.Instance, err, bucketHint(err, w.kv.Bucket()))
 		}
 		if time.Now().After(deadline) {
 			return fmt.Errorf("%w: %s is renewed by another live instance; give each instance its own cluster.instance", ErrInstanceInUse, w.o.Instance)
@@ -189,7 +190,8 @@ func (w *Owner) Start(ctx context.Context) error {
 	watcher, err := w.kv.WatchAll(ctx)
 	if err != nil {
 		w.releaseAll()
-		return fmt.Errorf("%w: watch: %w%s", ErrBucket, err, bucketHint(err, w.kv.Bucket()))
+		err = withDenied(w.js, err, w.kv.Bucket())
+		return fmt.Errorf("%w %s: watch: %w%s", ErrBucket, w.kv.Bucket(), err, bucketHint(err, w.kv.Bucket()))
 	}
 	go w.run(ctx, watcher)
 	return nil

@@ -31,7 +31,9 @@ type Options struct {
 	// Intake is where the messages come from. Nil means a stream.Intake
 	// on Conn, as Config.Intake describes it, or with
 	// Config.Cluster.Partitions > 0 a stream.PartitionedIntake
-	// (stream.NewClusterIntake), whose OwnsTopic becomes Owns.
+	// (stream.NewClusterIntake), whose OwnsTopic becomes Owns. A
+	// PartitionedIntake from stream.NewClusterIntake given here gets the
+	// daemon's handover (snapshots, owner headers) as one built by New.
 	Intake Intake
 	// Owns says whether this instance answers queries for a topic (cluster
 	// mode: it owns the topic's partition, stream.PartitionedIntake's
@@ -75,6 +77,8 @@ type Daemon struct {
 
 	ready chan struct{}
 	done  chan struct{} // closed when Run returns
+
+	handover *handover // cluster mode with snapshots (partitioned.go); nil otherwise
 }
 
 // New builds a daemon; Run starts it.
@@ -90,9 +94,11 @@ func New(o Options) (*Daemon, error) {
 	}
 	c := o.Config.WithDefaults()
 	in := o.Intake
+	var pi *stream.PartitionedIntake // issue 15: cluster mode, for the handover (partitioned.go)
 	if in == nil && c.Cluster.Partitions > 0 {
 		// Cluster mode: this instance consumes the partitions it owns.
-		pi, err := stream.NewClusterIntake(o.Conn, c, o.Logger)
+		var err error
+		pi, err = stream.NewClusterIntake(o.Conn, c, o.Logger)
 		if err != nil {
 			return nil, err
 		}
@@ -100,6 +106,11 @@ func New(o Options) (*Daemon, error) {
 		if o.Owns == nil {
 			o.Owns = pi.OwnsTopic
 		}
+	}
+	if p, ok := in.(*stream.PartitionedIntake); ok && pi == nil && c.Cluster.Partitions > 0 && p.CanHandover() {
+		// The caller built the cluster intake (cmd/forewarn does, for the
+		// sources' leases): the handover is the daemon's all the same.
+		pi = p
 	}
 	if in == nil {
 		si, err := stream.NewIntake(o.Conn, stream.IntakeOptions{
@@ -166,6 +177,11 @@ func New(o Options) (*Daemon, error) {
 			return nil, err
 		}
 		d.loops = append(d.loops, l)
+	}
+	if pi != nil { // issue 15: snapshots for handover (partitioned.go)
+		if err := d.enableHandover(pi); err != nil {
+			return nil, err
+		}
 	}
 	return d, nil
 }
@@ -279,7 +295,9 @@ func (d *Daemon) Run(ctx context.Context) error {
 		}()
 	}
 	// finish stops the loops once the intake has returned, then the
-	// pools, and writes and acknowledges every loop's state.
+	// pools, and writes and acknowledges every loop's state; in cluster
+	// mode it then leaves (final snapshots at the acknowledged floors,
+	// then the leases go) before the writers stop.
 	finish := func() {
 		close(quit)
 		loops.Wait()
@@ -287,6 +305,9 @@ func (d *Daemon) Run(ctx context.Context) error {
 		for _, l := range d.loops {
 			l.pub.stop()
 			l.syncFlush()
+		}
+		d.leave() // issue 15: every loop's last flush is acknowledged
+		for _, l := range d.loops {
 			l.flusher.stop()
 			l.pub.flush()
 		}
@@ -301,7 +322,7 @@ func (d *Daemon) Run(ctx context.Context) error {
 	select {
 	case <-d.intake.Subscribed():
 	case err := <-intakeErr:
-		finish()
+		finish() // the Owner may have started: finish leaves (d.leave)
 		if err == nil {
 			err = errors.New("daemon: intake stopped before it subscribed")
 		}

@@ -39,7 +39,17 @@
 //     Commit serialises the loops' writes), and acknowledges through the
 //     loop's acker: the intake itself (one loop), its own partitions
 //     (PartMarker), or ackJoin, which acknowledges the one consumer up to
-//     the lowest floor every loop has written.
+//     the lowest floor every loop has written;
+//   - in cluster mode the handover (partitioned.go): a gained partition's
+//     snapshot is installed on the loop that owns the partition (that
+//     loop's inspect channel, restoreOnLoop) before its consumer starts,
+//     after the partition's jobs and that loop's flush in progress are
+//     finished; each loop keeps the epochs at which this instance last
+//     owned its partitions (loop.lastOwned), for the owner headers of its
+//     forecasts (stream.PartitionHeader, stream.EpochHeader); the intake's
+//     snapshot goroutine reads the records back from the state file
+//     (state.Store is safe for that); shutdown ends with Leave (final
+//     snapshots at the acknowledged floors, then the leases go).
 //
 // # Goroutines and what they own
 //
@@ -47,11 +57,15 @@
 //	loop ×L (run)    its series map, entries, pending counts, batches ← dispatch, inspect,
 //	                 refit and alert queues, free alert jobs, refitPool.jobs/results,
 //	                 its flusher's fields (but batch while    alertPool.jobs/done,
-//	                 writing), its publisher's encBuf         publisher.free/out,
-//	                                                          flusher.writes/committed
+//	                 writing), its publisher's encBuf, its    publisher.free/out,
+//	                 partitions' epochs (lastOwned)           flusher.writes/committed
 //	intake (Run)     whatever the Intake holds; dispatch's    batches → loops; waits for
 //	                 per-call state (one call at a time per   them (one loop, or a Marker
-//	                 partition consumer)                      intake) or not (ackJoin)
+//	                 partition consumer)                      intake) or not (ackJoin);
+//	                                                          a restore → its loop's inspect,
+//	                                                          waits for the result
+//	snapshots        nothing of the daemon's (cluster mode:   reads the state file
+//	(intake's)       partitionRecords)                        (state.Store)
 //	refit worker ×n  the FitJob it holds (a window copy)      jobs → result on its loop's results
 //	alert worker ×n  the alertJob it holds, its Evaluator     jobs → the job back on its loop's done
 //	encoder ×L       the slots it holds, its encode buffer    out → slot back on free;
@@ -122,6 +136,9 @@
 // finishes the alert evaluations queued (what waited on those stays
 // unapplied and unacknowledged, for redelivery); once every loop has
 // exited, stop both worker pools, and for each loop let the encoder
-// publish what it holds, write the state and wait for the commit,
-// acknowledge, stop the writer, flush the publisher.
+// publish what it holds, write the state and wait for the commit, and
+// acknowledge; in cluster mode then leave (Leave: the final snapshots at
+// the acknowledged floors, then the leases go); last, for each loop, stop
+// the writer and flush the publisher. The same finish ends a start whose
+// intake stopped before it subscribed.
 package daemon

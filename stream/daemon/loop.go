@@ -44,6 +44,10 @@ type loop struct {
 	ahead    []int64 // handle's per-message latest later times (series.ObserveIn)
 	lastSeq  uint64  // highest stream position handled (work.upTo included)
 	stopping bool    // shutdown: finished jobs no longer release held observations
+	// lastOwned: cluster mode with handover, partition → the epoch at
+	// which this instance last owned it, for the partitions of this loop
+	// (partitioned.go).
+	lastOwned map[int]uint64
 }
 
 func newLoop(d *Daemon, id int, a acker) (*loop, error) {
@@ -62,6 +66,8 @@ func newLoop(d *Daemon, id int, a acker) (*loop, error) {
 		inspect: make(chan func()),
 		exited:  make(chan struct{}),
 		series:  make(map[string]*entry),
+
+		lastOwned: make(map[int]uint64),
 	}, nil
 }
 
@@ -396,7 +402,11 @@ func (d *loop) release(topic string, e *entry) {
 // evaluates its alert rules.
 func (d *loop) publish(topic string, e *entry) {
 	now := d.now()
-	d.pub.forecast(e.s.ModelForecast(), now, e.subject)
+	if part, epoch, ok := d.ownerEpoch(topic); ok { // issue 15: owner headers (partitioned.go)
+		d.pub.forecastOwned(e.s.ModelForecast(), now, e.subject, part, epoch)
+	} else {
+		d.pub.forecast(e.s.ModelForecast(), now, e.subject)
+	}
 	if d.opt.OnForecast != nil {
 		d.top.hookMu.Lock()
 		d.opt.OnForecast(e.s.Forecast())

@@ -44,6 +44,10 @@ type slot struct {
 	fc      series.Forecast
 	issued  time.Time
 	subject string
+	// cluster mode (issue 15): the series' partition and the epoch its
+	// owner holds it at, sent as headers; epoch 0: no headers.
+	part  int
+	epoch uint64
 }
 
 // outSlots bounds the forecasts waiting for the encoder.
@@ -88,6 +92,17 @@ func (p *publisher) forecast(mf *series.ModelForecast, issued time.Time, subject
 	sl := <-p.free
 	sl.mf.CopyFrom(mf)
 	sl.issued, sl.subject = issued, subject
+	sl.part, sl.epoch = 0, 0
+	p.out <- sl
+}
+
+// forecastOwned is forecast with the owner headers of cluster mode
+// (stream.PartitionHeader, stream.EpochHeader). Loop only.
+func (p *publisher) forecastOwned(mf *series.ModelForecast, issued time.Time, subject string, part int, epoch uint64) {
+	sl := <-p.free
+	sl.mf.CopyFrom(mf)
+	sl.issued, sl.subject = issued, subject
+	sl.part, sl.epoch = part, epoch
 	p.out <- sl
 }
 
@@ -99,10 +114,17 @@ func (p *publisher) forecast(mf *series.ModelForecast, issued time.Time, subject
 // gives (ModelForecast.Fill is a function of the copy alone).
 func (p *publisher) encodeLoop() {
 	var buf []byte
+	var msg nats.Msg // reused for the owner headers
 	for sl := range p.out {
 		sl.mf.Fill(&sl.fc)
 		buf = stream.AppendForecast(buf[:0], &sl.fc, sl.issued)
-		if err := p.pub.Forecast(sl.subject, buf); err != nil {
+		var err error
+		if sl.epoch != 0 {
+			err = p.pub.ForecastOwned(&msg, sl.subject, buf, sl.part, sl.epoch)
+		} else {
+			err = p.pub.Forecast(sl.subject, buf)
+		}
+		if err != nil {
 			p.log.Warn("forecast not published", "topic", sl.fc.Topic, "err", err)
 		}
 		// The message becomes the topic's latest, and the one it replaces

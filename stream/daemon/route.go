@@ -73,6 +73,10 @@ func (r router) loopOfTopic(topic string) int {
 	return 0
 }
 
+// loopOfPartition is the loop that owns partition p (cluster mode: a
+// stream partition, whose snapshot restorePartition installs there).
+func (r router) loopOfPartition(p int) int { return p % r.loops }
+
 // owns returns the partitions loop k owns, as a filter.
 func (r router) owns(k int) func(p int) bool {
 	n := r.loops

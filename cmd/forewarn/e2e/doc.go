@@ -29,6 +29,11 @@
 //     (issue 14);
 //   - the streamed forecast at the last bucket equals forewarn fit on the
 //     same window, and R's predict within the engine's tolerances (issue 4);
+//   - three instances with cluster.partitions: 8 on an in-process 3-node
+//     NATS cluster (kill -9 of one, a fourth joining, SIGSTOP past the
+//     lease, a NATS node restarted) end with every state record and
+//     forecast equal to one instance's, and a paused former owner's late
+//     output recognisable by its epoch header (issue 15);
 //   - the demo prints forecast lines and an alert raised and cleared, each
 //     line of exactly one of its two shapes; forewarn query answers.
 //
