@@ -108,18 +108,11 @@
 //	                   (calibrate.Calibrator.AppendState: version, H, L,
 //	                   buckets observed, updates, η, B, memory weight, the
 //	                   levels, the thresholds H×L horizon-major, the
-//	                   coverage sums 2L), then, since the cluster
-//	                   handover (issue 15), the forecasts issued and not
-//	                   yet realised (calibrate.Calibrator.AppendPending:
-//	                   H(H+1)/2 tuples of median, 1/sd and the L
-//	                   thresholds issued with; NaN median: none); empty
-//	                   when the series does not calibrate
+//	                   coverage sums 2L); empty when the series does not
+//	                   calibrate
 //
-// At the default horizon 60 with two levels the fixed state is 134 values
-// (4 + 1 072 bytes) and the pending forecasts 7 320 values (58 560 bytes)
-// more per series. A record whose calibration holds the fixed state alone
-// (written before the pending forecasts were kept) loads; its series then
-// misses at most h updates per horizon h. A version-2 record decodes with no calibration;
+// At the default horizon 60 with two levels it is 134 values: 4 + 1 072
+// bytes more per series. A version-2 record decodes with no calibration;
 // the restored series then warms its calibrator from the window, as a fit
 // does. state/testdata holds real version-2 records (written by the
 // version-2 code); TestDecodeVersion2Records loads them.

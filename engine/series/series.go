@@ -183,14 +183,8 @@ func Restore(snap *Snapshot, set Settings) (*Series, error) {
 		// The record's calibration continues; a record without one
 		// (format 1 or 2, or calibration just turned on, which changes
 		// the fingerprint only when turned off) warms it as a fit does.
-		n := s.cal.StateLen()
-		if len(snap.Calibration) < n || s.cal.SetState(snap.Calibration[:n]) != nil {
+		if len(snap.Calibration) == 0 || s.cal.SetState(snap.Calibration) != nil {
 			s.warmCalibrator()
-		} else if len(snap.Calibration) > n {
-			// The pending forecasts: without them (a record of the fixed
-			// state alone, or pending of another length) each horizon h
-			// misses at most h updates.
-			_ = s.cal.SetPending(snap.Calibration[n:])
 		}
 	}
 	if len(s.snap.Window) > 0 {
@@ -617,7 +611,7 @@ func (s *Series) Snapshot() *Snapshot {
 		s.snap.Guard = s.filter.AppendGuardState(s.snap.Guard[:0])
 	}
 	if s.cal != nil {
-		s.snap.Calibration = s.cal.AppendPending(s.cal.AppendState(s.snap.Calibration[:0]))
+		s.snap.Calibration = s.cal.AppendState(s.snap.Calibration[:0])
 	} else {
 		s.snap.Calibration = nil
 	}

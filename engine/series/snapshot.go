@@ -61,15 +61,11 @@ type Snapshot struct {
 	Flag  GuardFlag
 	Flags uint64
 
-	// Calibration is the state of the series' calibrator: its fixed
-	// state (calibrate.Calibrator.AppendState: thresholds per horizon and
-	// level, the online update's settings and the coverage sums) followed
-	// by the forecasts issued and not yet realised
-	// (calibrate.Calibrator.AppendPending), so that a restored series
-	// updates its thresholds exactly as the uninterrupted one (a record
-	// with the fixed state alone, as written before, loads too and
-	// misses at most h updates per horizon h); empty when the series does
-	// not calibrate.
+	// Calibration is the fixed state of the series' calibrator
+	// (calibrate.Calibrator.AppendState: thresholds per horizon and
+	// level, the online update's settings and the coverage sums); empty
+	// when the series does not calibrate. The
+	// forecasts issued and not yet realised are not kept.
 	Calibration []float64
 }
 
