@@ -46,7 +46,7 @@ func clusterStream(t *testing.T, url string) string {
 
 func snapConfig(t *testing.T, url, streamName, instance string) *config.Config {
 	t.Helper()
-	cfg := testConfig(t.TempDir())
+	cfg := handoverConfig(t.TempDir())
 	cfg.NATS.URL = url
 	cfg.Intake.Stream = streamName
 	cfg.Intake.Replicas = 3
@@ -66,7 +66,7 @@ func snapConfig(t *testing.T, url, streamName, instance string) *config.Config {
 func referenceForecasts(t *testing.T, n int) map[string]string {
 	t.Helper()
 	_, refURL := streamtest.RunServer(t)
-	ref := start(t, refURL, testConfig(t.TempDir()))
+	ref := start(t, refURL, handoverConfig(t.TempDir()))
 	clPublish(t, streamtest.Connect(t, refURL), 0, n)
 	want := map[string]string{}
 	streamtest.Eventually(t, 60*time.Second, "reference forecasts at the last origin", func() bool {
@@ -275,7 +275,7 @@ func TestClusterMissingRightNamed(t *testing.T) {
 	_, url := streamtest.RunServerWith(t, opts)
 	for _, c := range cases {
 		t.Run(c.user, func(t *testing.T) {
-			cfg := testConfig(t.TempDir())
+			cfg := handoverConfig(t.TempDir())
 			cfg.NATS.URL = url
 			cfg.Intake.Stream = name
 			cfg.Cluster.Partitions = 2
@@ -349,7 +349,7 @@ func TestClusterRightsAsDocumented(t *testing.T) {
 	var denied []string
 	_, url := streamtest.RunServerWith(t, opts)
 	cfgFor := func(instance string) *config.Config {
-		cfg := testConfig(t.TempDir())
+		cfg := handoverConfig(t.TempDir())
 		cfg.NATS.URL = url
 		cfg.Intake.Stream = name
 		cfg.Cluster.Partitions = 2

@@ -14,6 +14,7 @@ import (
 	"github.com/nats-io/nats.go"
 	"github.com/nats-io/nats.go/jetstream"
 
+	"forewarn/config"
 	"forewarn/engine/series"
 	"forewarn/stream"
 	"forewarn/stream/cluster"
@@ -154,7 +155,7 @@ func clusterShareAndHandOver(t *testing.T, die bool) {
 
 	// Reference: one instance, no partitions, its own server.
 	_, refURL := streamtest.RunServer(t)
-	ref := start(t, refURL, testConfig(t.TempDir()))
+	ref := start(t, refURL, handoverConfig(t.TempDir()))
 	refPub := streamtest.Connect(t, refURL)
 	clPublish(t, refPub, 0, clPhase1+clPhase2)
 	want := map[string]map[string]any{}
@@ -198,7 +199,7 @@ func clusterShareAndHandOver(t *testing.T, die bool) {
 		_ = js.DeleteKeyValue(ctx, stream.LeaseBucket(streamName))
 	})
 	for k, name := range names {
-		cfg := testConfig(t.TempDir())
+		cfg := handoverConfig(t.TempDir())
 		cfg.NATS.URL = cl.URLFrom(k)
 		cfg.Intake.Stream = streamName
 		cfg.Intake.Replicas = 3
@@ -352,4 +353,21 @@ func checkQueriesAnsweredOnce(t *testing.T, nc *nats.Conn, run map[string]*runni
 			t.Errorf("query for %s answered %d times, want once (by its owner)", clTopic(i), n)
 		}
 	}
+}
+
+// handoverConfig is testConfig with the model's own bands: the handover
+// tests compare every byte of the forecasts with a single instance's, and
+// a record keeps the calibrator's fixed state but not the forecasts still
+// waiting for their values (about 58 KB a series at horizon 60, over issue
+// 13's 2 KB budget for the record), so calibrated bands after a handover
+// may differ slightly from an uninterrupted run's, as after a restart
+// (README, "Calibrated bands"; the e2e restart, crash and cluster tests
+// run without calibration for the same reason).
+func handoverConfig(dir string) *config.Config {
+	c := testConfig(dir)
+	off := false
+	for i := range c.Series {
+		c.Series[i].Calibrate = &off
+	}
+	return c
 }
