@@ -148,22 +148,6 @@ func (d *loop) evaluate(topic string, e *entry, now time.Time) {
 	p.queue = append(p.queue, j)
 }
 
-// abandon drops the evaluations still waiting for a worker (shutdown).
-// Their series stay alerting, so the last flush neither stores them nor
-// acknowledges anything from their first unsaved observation on
-// (flusher.step): the stream redelivers it after a restart, and the close
-// and its evaluation are made again, with the same seed and so the same
-// result. Only the evaluations on the workers are waited for.
-func (p *alertPool) abandon(m *Metrics) {
-	for _, j := range p.queue {
-		p.alerting--
-		m.AlertsQueued.Dec()
-		j.e = nil
-	}
-	clear(p.queue)
-	p.queue = p.queue[:0]
-}
-
 // finishAlert takes back an evaluation from the alert pool: it steps the
 // rules' hysteresis, publishes the events, counts a late answer (one that
 // observations of its series had to wait for) and releases the

@@ -160,11 +160,9 @@ func (d *loop) run(quit <-chan struct{}) {
 	}
 	// From here a finished alert evaluation no longer releases the
 	// observations held behind it: they stay unapplied, unstored and
-	// unacknowledged (a durable stream redelivers them). The evaluations
-	// still waiting for a worker are dropped (abandon), so the work left
-	// is the refits and the evaluations on the workers.
+	// unacknowledged (a durable stream redelivers them), so the work left
+	// is at most the evaluations already queued, one per series.
 	d.stopping = true
-	d.alerts.abandon(d.metrics)
 	for d.refits.busy > 0 || d.alerts.alerting > 0 {
 		d.jobStep()
 	}
