@@ -248,7 +248,11 @@ func ensureStream(ctx context.Context, js jetstream.JetStream, o IntakeOptions) 
 	}
 	st, err := js.Stream(ctx, o.Stream)
 	if errors.Is(err, jetstream.ErrStreamNotFound) {
-		st, err = js.CreateStream(ctx, want)
+		// cluster.Ensure: instances started at one moment create it at once
+		st, err = cluster.Ensure(ctx,
+			func(ctx context.Context) (jetstream.Stream, error) { return js.CreateStream(ctx, want) },
+			func(ctx context.Context) (jetstream.Stream, error) { return js.Stream(ctx, o.Stream) },
+			func(err error) (error, bool) { return err, errors.Is(err, jetstream.ErrStreamNameAlreadyInUse) })
 		if err != nil {
 			return nil, fmt.Errorf("%w: create stream %q on %v: %w", ErrIntake, o.Stream, o.Subjects, err)
 		}

@@ -29,16 +29,19 @@ func leaseKey(p int) string            { return leasePrefix + strconv.Itoa(p) }
 // kept for lease. Errors wrap ErrBucket and say which right or server
 // feature is missing.
 func EnsureBucket(ctx context.Context, js jetstream.JetStream, name string, replicas int, lease time.Duration) (jetstream.KeyValue, error) {
-	kv, err := js.CreateOrUpdateKeyValue(ctx, jetstream.KeyValueConfig{
+	cfg := jetstream.KeyValueConfig{
 		Bucket:         name,
 		Description:    "forewarn cluster: live instances and partition leases",
 		History:        1,
 		Replicas:       replicas,
 		Storage:        jetstream.FileStorage,
 		LimitMarkerTTL: max(lease, time.Second),
-	})
+	}
+	kv, err := Ensure(ctx,
+		func(ctx context.Context) (jetstream.KeyValue, error) { return js.CreateOrUpdateKeyValue(ctx, cfg) },
+		func(ctx context.Context) (jetstream.KeyValue, error) { return js.KeyValue(ctx, name) },
+		func(err error) (error, bool) { err = withDenied(js, err, name); return err, isPermission(err) })
 	if err != nil {
-		err = withDenied(js, err, name)
 		return nil, fmt.Errorf("%w %s: %w%s", ErrBucket, name, err, bucketHint(err, name))
 	}
 	return kv, nil

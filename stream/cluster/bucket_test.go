@@ -35,3 +35,24 @@ func TestEnsureBucketConcurrently(t *testing.T) {
 		}
 	}
 }
+
+// The snapshot store likewise, three instances at once.
+func TestEnsureSnapshotStoreConcurrently(t *testing.T) {
+	name := "CONCURRENT_SNAPS"
+	var wg sync.WaitGroup
+	errs := make([]error, 3)
+	for i := range 3 {
+		_, js := connect(t, i, fmt.Sprintf("snap-starter-%d", i))
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			_, errs[i] = EnsureSnapshotStore(ctxT(t), js, name, 3)
+		}()
+	}
+	wg.Wait()
+	for i, err := range errs {
+		if err != nil {
+			t.Errorf("instance %d: %v", i, err)
+		}
+	}
+}

@@ -102,14 +102,19 @@ func snapshotName(p int) string { return "p" + strconv.Itoa(p) }
 // it, with replicas copies (intake.replicas). Errors wrap ErrSnapshot and
 // say which right or server feature is missing.
 func EnsureSnapshotStore(ctx context.Context, js jetstream.JetStream, name string, replicas int) (*SnapshotStore, error) {
-	obs, err := js.CreateOrUpdateObjectStore(ctx, jetstream.ObjectStoreConfig{
+	cfg := jetstream.ObjectStoreConfig{
 		Bucket:      name,
 		Description: "forewarn cluster: partition snapshots for handover",
 		Replicas:    replicas,
 		Storage:     jetstream.FileStorage,
-	})
+	}
+	obs, err := Ensure(ctx,
+		func(ctx context.Context) (jetstream.ObjectStore, error) {
+			return js.CreateOrUpdateObjectStore(ctx, cfg)
+		},
+		func(ctx context.Context) (jetstream.ObjectStore, error) { return js.ObjectStore(ctx, name) },
+		func(err error) (error, bool) { err = withDenied(js, err, name); return err, isPermission(err) })
 	if err != nil {
-		err = withDenied(js, err, name)
 		return nil, fmt.Errorf("%w %s: %w%s", ErrSnapshot, name, err, snapshotHint(err, name))
 	}
 	return &SnapshotStore{js: js, obs: obs, name: name}, nil
