@@ -97,23 +97,11 @@ func NewFourier(cycles []Cycle, step float64) (*Fourier, error) {
 		f.keep = append(f.keep, keep)
 		for k := 1; k <= c.K; k++ {
 			fr := float64(k) / c.Seconds
-			dup := false
-			for _, s := range seen {
-				if math.Abs(s-fr) <= 1e-12*fr {
-					dup = true
-					break
-				}
-			}
-			if dup {
+			if SeenFrequency(seen, fr) {
 				continue
 			}
 			seen = append(seen, fr)
-			hasSin := true
-			if step > 0 {
-				// 2·k·step/L integer: the sine is zero at every step
-				x := 2 * float64(k) * step / c.Seconds
-				hasSin = math.Abs(x-math.Round(x)) > 1e-12
-			}
+			hasSin := HasSine(k, step, c.Seconds)
 			keep[k-1] = 1
 			if hasSin {
 				keep[k-1] = 2
@@ -218,4 +206,31 @@ func (f *Fourier) Matrix(t0, step float64, n int) [][]float64 {
 		}
 	}
 	return X
+}
+
+// SameFrequency reports whether the harmonic frequencies a and b (per
+// second) are one: equal to a relative 1e-12 of b.
+func SameFrequency(a, b float64) bool { return math.Abs(a-b) <= 1e-12*b }
+
+// SeenFrequency reports whether fr is one of seen (SameFrequency): the
+// Fourier terms leave out a frequency an earlier cycle already generated,
+// as R forecast's fourier() does.
+func SeenFrequency(seen []float64, fr float64) bool {
+	for _, s := range seen {
+		if SameFrequency(s, fr) {
+			return true
+		}
+	}
+	return false
+}
+
+// HasSine reports whether harmonic k of a cycle of L seconds has a sine
+// term at steps of step seconds: not when 2·k·step/L is a whole number,
+// for the sine is then zero at every step. Without a step (0) it has one.
+func HasSine(k int, step, L float64) bool {
+	if step <= 0 {
+		return true
+	}
+	x := 2 * float64(k) * step / L
+	return math.Abs(x-math.Round(x)) > 1e-12
 }
