@@ -264,24 +264,20 @@ func (s *Series) Install(r FitResult) (Outcome, error) {
 	if r.Err != nil {
 		sn.RefitFailures++
 		sn.LastRefitNote = r.Err.Error()
-		if s.model == nil {
-			s.reissue = false
-			return Warming, r.Err
-		}
+	} else {
+		sn.LastRefitNote = r.Choice.Result.Note
+	}
+	reissue := s.reissue // see ObserveIn: this origin's forecast is already out
+	s.reissue = false
+	switch {
+	case s.model == nil:
+		return Warming, r.Err
+	case reissue:
 		s.forecast()
-		if s.reissue {
-			s.reissue = false
-			return Absorbed, r.Err
-		}
-		return Published, r.Err
+		return Absorbed, r.Err
 	}
-	sn.LastRefitNote = r.Choice.Result.Note
 	s.forecast()
-	if s.reissue { // see ObserveIn: this origin's forecast is already out
-		s.reissue = false
-		return Absorbed, nil
-	}
-	return Published, nil
+	return Published, r.Err
 }
 
 func (s *Series) install(r *FitResult) error {
