@@ -151,16 +151,23 @@ func TestGuardSpike(t *testing.T) {
 // A level shift of 5σ (property test): the forecasts (h = 1..24) come
 // within 1σ_h of the clean series' forecasts plus the shift after at most 5
 // buckets in every one of 200 seeds for the differenced models; the check
-// reports the shift. For the stationary AR(1) with a mean the fraction is
-// logged and must be at least 85 %: its long-horizon forecasts are the
-// shifted mean, which five values pin down only to about 0.8σ against
-// σ_h = 1.25σ (GLS of a mean under AR(1) with φ = 0.6), so that even the
-// efficient estimate (the run replayed, Box & Tiao 1975) misses in about
-// one seed in ten; the run's mean with a prior (the rule before) reached
-// 82 %.
+// reports the shift.
+//
+// For the stationary AR(1) with a mean, "followed" is measured as on-line
+// change detection measures it: the delay until the change is reported,
+// and the estimate after it (Basseville & Nikiforov 1993, Detection of
+// Abrupt Changes, ch. 4: mean delay for detection against mean time between
+// false alarms; the chapter from memory). No rule can do better than the
+// efficient estimator that knows when the shift began (its size by GLS from
+// the values since, Box & Tiao 1975; shiftOracle), and that estimator's
+// own error after k buckets has sd σ/√(1+(k−1)(1−φ)²), 0.78σ at k = 5 with
+// φ = 0.6, against a long-horizon σ_h of 1.25σ: it is beyond 1σ_h at the
+// fifth bucket in about one seed in seven. guardShiftStationary counts the
+// delays, the seeds whose forecasts are the efficient estimator's from the
+// report on, and both estimators' seeds within 1σ_h at the fifth bucket.
 func TestGuardLevelShift(t *testing.T) {
 	const n, T, h, reps = 240, 200, 24, 200
-	for _, name := range []string{"airline12", "arima111", "ar1mean"} {
+	for _, name := range []string{"airline12", "arima111"} {
 		m := guardModels(t)[name]
 		within, shifts := 0, 0
 		worst := 0
@@ -187,14 +194,94 @@ func TestGuardLevelShift(t *testing.T) {
 			worst = max(worst, k)
 		}
 		t.Logf("%s: 5σ level shift followed within 5 buckets in %d/%d seeds (worst k %d), shift verdicts %d", name, within, reps, worst, shifts)
-		want := reps
-		if name == "ar1mean" {
-			want = reps * 85 / 100
-		}
-		if within < want {
-			t.Errorf("%s: followed within 5 buckets in %d/%d seeds, want ≥ %d", name, within, reps, want)
+		if within < reps {
+			t.Errorf("%s: followed within 5 buckets in %d/%d seeds, want all", name, within, reps)
 		}
 	}
+	t.Run("ar1mean", func(t *testing.T) { guardShiftStationary(t, guardModels(t)["ar1mean"], n, T, h, reps) })
+}
+
+// guardShiftStationary is TestGuardLevelShift's stationary case. Per seed:
+// the bucket k ≤ 5 of the new level at which the check reports the shift;
+// whether from that bucket to the fifth the forecasts equal the efficient
+// estimator's (shiftOracle, to 1e-6 σ_h; they do when the check's run
+// began at the shift's first bucket, not when that bucket's own error hid
+// it and the run began later, or a run open before the shift took it in);
+// and, at the fifth bucket, whether the forecasts are within 1σ_h of the
+// clean series' plus the shift, ours and the efficient estimator's. The
+// floors are this seeded design's measured counts less a few seeds
+// (reported within 5 buckets: 188 of 200; equal to the efficient
+// estimator from then on: 169; within 1σ_h at bucket 5: ours 169, the
+// efficient estimator 171).
+func guardShiftStationary(t *testing.T, m *Model, n, T, h, reps int) {
+	detected, efficient, within, oracleWithin := 0, 0, 0, 0
+	for seed := uint64(1); seed <= uint64(reps); seed++ {
+		y := simulate(m, n, seed)
+		sh := append([]float64(nil), y...)
+		for i := T; i < n; i++ {
+			sh[i] += 5
+		}
+		at, equal := 0, true
+		for k := 1; k <= 5; k++ {
+			mc, se, _ := runGuarded(t, m, y[:T+k], h, true)
+			ms, _, f := runGuarded(t, m, sh[:T+k], h, true)
+			if v, _ := f.LastVerdict(); v == VerdictShift && at == 0 {
+				at = k
+			}
+			mo := shiftOracle(m, sh[:T+k], T, h)
+			if at > 0 && maxGap(ms, mo, se, 0) > 1e-6 {
+				equal = false
+			}
+			if k == 5 {
+				if maxGap(ms, mc, se, 5) < 1 {
+					within++
+				}
+				if maxGap(mo, mc, se, 5) < 1 {
+					oracleWithin++
+				}
+			}
+		}
+		if at > 0 {
+			detected++
+			if equal {
+				efficient++
+			}
+		}
+	}
+	t.Logf("5σ level shift in an AR(1) with a mean (φ = 0.6): reported within 5 buckets in %d/%d seeds, forecasts equal to the efficient estimator's from then on in %d; within 1σ_h of the truth at bucket 5 in %d seeds, the efficient estimator that knows the shift's start in %d",
+		detected, reps, efficient, within, oracleWithin)
+	if detected < reps*92/100 {
+		t.Errorf("reported within 5 buckets in %d/%d seeds, want ≥ 92 %%", detected, reps)
+	}
+	if efficient < reps*82/100 {
+		t.Errorf("equal to the efficient estimator from the report on in %d/%d seeds, want ≥ 82 %%", efficient, reps)
+	}
+	if within < oracleWithin-reps*3/100 {
+		t.Errorf("within 1σ_h at bucket 5 in %d seeds, the efficient estimator in %d: more than 3 %% of the seeds apart", within, oracleWithin)
+	}
+}
+
+// shiftOracle is the efficient forecast of an AR(1) with a known mean μ
+// after a level shift of unknown size δ that began at bucket T of y (Box &
+// Tiao 1975, intervention analysis; GLS). With u_t = y_t − μ and a_t = u_t −
+// φu_{t−1}: a_T = δ + e_T and a_t = (1−φ)δ + e_t for t > T, so δ̂ =
+// (a_T + (1−φ)Σ_{t>T} a_t) / (1 + (k−1)(1−φ)²) after k buckets, and the
+// h-step forecast is μ + δ̂ + φ^h (u_last − δ̂).
+func shiftOracle(m *Model, y []float64, T, h int) []float64 {
+	phi, mu := m.AR[0], m.Mean
+	num, den := y[T]-mu-phi*(y[T-1]-mu), 1.0
+	for t := T + 1; t < len(y); t++ {
+		num += (1 - phi) * (y[t] - mu - phi*(y[t-1]-mu))
+		den += (1 - phi) * (1 - phi)
+	}
+	d := num / den
+	u := y[len(y)-1] - mu - d
+	out := make([]float64, h)
+	for i := range out {
+		u *= phi
+		out[i] = mu + d + u
+	}
+	return out
 }
 
 // SetGuard rejects thresholds that make no sense.
