@@ -190,7 +190,7 @@ func (r *rig) timed(n int, backlog bool) (rate, cores float64) {
 		runtime.GC() // the publication's garbage is not the daemon's to collect
 		r.resumeIntake(names)
 		b.StartTimer()
-		stopProfile := profileTimed(b)
+		stopProfile := profileTimed(b, r.profileTag())
 		cpu0 := processCPU()
 		start := time.Now()
 		end := waitUntil(b, 120*time.Second, "every observation applied", func() bool {
@@ -206,7 +206,7 @@ func (r *rig) timed(n int, backlog bool) (rate, cores float64) {
 	runtime.GC() // the raw runs' garbage is not the daemon's to collect
 
 	b.StartTimer()
-	stopProfile := profileTimed(b)
+	stopProfile := profileTimed(b, r.profileTag())
 	cpu0 := processCPU()
 	start := time.Now()
 	r.send(msgs)
@@ -342,18 +342,19 @@ func BenchmarkIntakeBoundLoops(b *testing.B) {
 		{"durable", rigOptions{durable: true}},
 		{"partitioned", rigOptions{durable: true, partitions: 8}},
 	} {
-		b.Run(c.name, func(b *testing.B) { loopsBench(b, c.o, false) })
+		b.Run(c.name, func(b *testing.B) { loopsBench(b, c.o, false, false) })
 	}
 }
 
 // loopsBench runs one case of BenchmarkIntakeBoundLoops (drain false) or
 // BenchmarkBacklogDrainLoops (drain true).
-func loopsBench(b *testing.B, o rigOptions, drain bool) {
+// With full, every series starts from a full window (newRigFull).
+func loopsBench(b *testing.B, o rigOptions, drain, full bool) {
 	b.StopTimer()
 	n := max(2, runtime.GOMAXPROCS(0))
 	one, many := o, o
 	one.loops, many.loops = 1, n
-	r1, rn := newIntakeRig(b, one, false), newIntakeRig(b, many, false)
+	r1, rn := newIntakeRig(b, one, full), newIntakeRig(b, many, full)
 	if r1.d.Loops() != 1 || rn.d.Loops() != n {
 		b.Fatalf("loops %d and %d, want 1 and %d", r1.d.Loops(), rn.d.Loops(), n)
 	}
@@ -405,11 +406,13 @@ func BenchmarkBacklogDrainLoops(b *testing.B) {
 	for _, c := range []struct {
 		name string
 		o    rigOptions
+		full bool
 	}{
-		{"durable", rigOptions{durable: true}},
-		{"partitioned", rigOptions{durable: true, partitions: 8}},
+		{"durable", rigOptions{durable: true}, false},
+		{"partitioned", rigOptions{durable: true, partitions: 8}, false},
+		{"durable_full_window", rigOptions{durable: true, window: fullWindow}, true},
 	} {
-		b.Run(c.name, func(b *testing.B) { loopsBench(b, c.o, true) })
+		b.Run(c.name, func(b *testing.B) { loopsBench(b, c.o, true, c.full) })
 	}
 }
 
@@ -473,7 +476,7 @@ func runOutputBound(b *testing.B, o rigOptions) outputRun {
 	runtime.GC()
 
 	b.ResetTimer()
-	stopProfile := profileTimed(b)
+	stopProfile := profileTimed(b, "")
 	start := time.Now()
 	r.send(msgs)
 	end := waitUntil(b, 120*time.Second, "every forecast received", func() bool { return got.Load() >= want })
