@@ -45,6 +45,7 @@ import (
 	"time"
 
 	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
 
 	"forewarn/engine/alert"
 	"forewarn/engine/series"
@@ -96,18 +97,29 @@ func BenchmarkIntakeBound(b *testing.B) {
 // on the same server just before it.
 type intakeRun struct {
 	rate, raw, raw1, rawJS float64
+	// rawDrain and rawDrainParts: the raw backlog-drain rates
+	// (streamtest.RawDrainRate) with one consumer and with one per
+	// partition; 0 when not measured.
+	rawDrain, rawDrainParts float64
 }
 
 // report reports the raw rates and the rate's ratios to them, the names
 // prefixed with prefix.
 func (ir intakeRun) report(b *testing.B, prefix string) {
-	b.ReportMetric(ir.raw, prefix+"raw_msgs/s")
-	b.ReportMetric(100*ir.rate/ir.raw, prefix+"pct_raw")
-	b.ReportMetric(ir.raw1, prefix+"raw1_msgs/s")
-	b.ReportMetric(100*ir.rate/ir.raw1, prefix+"pct_raw1")
-	if ir.rawJS > 0 {
-		b.ReportMetric(ir.rawJS, prefix+"rawjs_msgs/s")
-		b.ReportMetric(100*ir.rate/ir.rawJS, prefix+"pct_rawjs")
+	for _, m := range []struct {
+		raw       float64
+		rate, pct string
+	}{
+		{ir.raw, "raw_msgs/s", "pct_raw"},
+		{ir.raw1, "raw1_msgs/s", "pct_raw1"},
+		{ir.rawJS, "rawjs_msgs/s", "pct_rawjs"},
+		{ir.rawDrain, "rawdrain_msgs/s", "pct_rawdrain"},
+		{ir.rawDrainParts, "rawdrainp_msgs/s", "pct_rawdrainp"},
+	} {
+		if m.raw > 0 {
+			b.ReportMetric(m.raw, prefix+m.rate)
+			b.ReportMetric(100*ir.rate/m.raw, prefix+m.pct)
+		}
 	}
 }
 
@@ -153,14 +165,48 @@ func (r *rig) rawIntake(n int) intakeRun {
 // the cores the process used meanwhile (its CPU time, user and system,
 // over the wall time; the in-process server and publisher included).
 func (r *rig) timedIntake(n int) (rate, cores float64) {
+	return r.timed(n, false)
+}
+
+// timedDrain is timedIntake for a backlog (BenchmarkBacklogDrainLoops):
+// the intake's consumers are paused while the n messages are published
+// (untimed), and the timer runs from their resumption until every
+// observation is applied. Durable rigs only.
+func (r *rig) timedDrain(n int) (rate, cores float64) {
+	return r.timed(n, true)
+}
+
+func (r *rig) timed(n int, backlog bool) (rate, cores float64) {
 	b := r.tb.(*testing.B)
 	msgs := r.build(n, 10)
 	acc0, pub0, rej0 := counterValue(r.d.metrics.Accepted), counterValue(r.d.metrics.Published), r.rejected()
 	want := acc0 + float64(n)
+	if backlog {
+		names := r.pauseIntake()
+		r.send(msgs)
+		if got := counterValue(r.d.metrics.Accepted); got != acc0 {
+			b.Fatalf("%v observations applied while the intake was paused", got-acc0)
+		}
+		runtime.GC() // the publication's garbage is not the daemon's to collect
+		r.resumeIntake(names)
+		b.StartTimer()
+		stopProfile := profileTimed(b, r.profileTag())
+		cpu0 := processCPU()
+		start := time.Now()
+		end := waitUntil(b, 120*time.Second, "every observation applied", func() bool {
+			return counterValue(r.d.metrics.Accepted) >= want
+		})
+		cpu := processCPU() - cpu0
+		b.StopTimer()
+		stopProfile()
+		r.checkTimed(n, want, pub0, rej0)
+		wall := end.Sub(start).Seconds()
+		return float64(n) / wall, cpu.Seconds() / wall
+	}
 	runtime.GC() // the raw runs' garbage is not the daemon's to collect
 
 	b.StartTimer()
-	stopProfile := profileTimed(b)
+	stopProfile := profileTimed(b, r.profileTag())
 	cpu0 := processCPU()
 	start := time.Now()
 	r.send(msgs)
@@ -170,7 +216,16 @@ func (r *rig) timedIntake(n int) (rate, cores float64) {
 	cpu := processCPU() - cpu0
 	b.StopTimer()
 	stopProfile()
+	r.checkTimed(n, want, pub0, rej0)
+	wall := end.Sub(start).Seconds()
+	return float64(n) / wall, cpu.Seconds() / wall
+}
 
+// checkTimed checks, after a timed part of n messages, that every
+// observation was accepted (want in all), none rejected, and every closed
+// bucket published, then waits until the state is quiet.
+func (r *rig) checkTimed(n int, want, pub0, rej0 float64) {
+	b := r.tb
 	if got := counterValue(r.d.metrics.Accepted); got != want {
 		b.Fatalf("accepted %v, want %v", got, want)
 	}
@@ -187,8 +242,61 @@ func (r *rig) timedIntake(n int) (rate, cores float64) {
 		b.Fatalf("published %v forecasts, want %d", got, closes)
 	}
 	r.quiesce()
-	wall := end.Sub(start).Seconds()
-	return float64(n) / wall, cpu.Seconds() / wall
+}
+
+// pauseIntake pauses every consumer of the intake stream (the durable
+// consumer, or the partitions' consumers) and returns their names: the
+// server delivers nothing from them until resumeIntake.
+func (r *rig) pauseIntake() []string {
+	tb := r.tb
+	ctx := context.Background()
+	js, err := jetstream.New(r.pub)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	st, err := js.Stream(ctx, r.cfg.Intake.Stream)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	var names []string
+	lister := st.ConsumerNames(ctx)
+	for name := range lister.Name() {
+		names = append(names, name)
+	}
+	if err := lister.Err(); err != nil || len(names) == 0 {
+		tb.Fatalf("intake consumers %v: %v", names, err)
+	}
+	for _, name := range names {
+		if _, err := st.PauseConsumer(ctx, name, time.Now().Add(time.Hour)); err != nil {
+			tb.Fatalf("pause %s: %v", name, err)
+		}
+	}
+	return names
+}
+
+// resumeIntake ends the pause of the consumers pauseIntake paused and
+// returns when the server resumes them. A pause ended by a request
+// (ResumeConsumer) does not wake a consumer that has requests waiting
+// (nats-server 2.15: it waits for the next message or pull request); one
+// that runs out does. So each pause is set to end at one moment, shortly
+// ahead, and resumeIntake returns at that moment.
+func (r *rig) resumeIntake(names []string) {
+	tb := r.tb
+	ctx := context.Background()
+	js, err := jetstream.New(r.pub)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	at := time.Now().Add(200 * time.Millisecond)
+	for _, name := range names {
+		if _, err := js.PauseConsumer(ctx, r.cfg.Intake.Stream, name, at); err != nil {
+			tb.Fatalf("resume %s: %v", name, err)
+		}
+	}
+	if time.Now().After(at) {
+		tb.Fatal("pauses not set before they ended")
+	}
+	time.Sleep(time.Until(at))
 }
 
 // processCPU is the process's CPU time so far, user and system.
@@ -234,41 +342,95 @@ func BenchmarkIntakeBoundLoops(b *testing.B) {
 		{"durable", rigOptions{durable: true}},
 		{"partitioned", rigOptions{durable: true, partitions: 8}},
 	} {
-		b.Run(c.name, func(b *testing.B) {
-			b.StopTimer()
-			n := max(2, runtime.GOMAXPROCS(0))
-			one, many := c.o, c.o
-			one.loops, many.loops = 1, n
-			r1, rn := newIntakeRig(b, one, false), newIntakeRig(b, many, false)
-			if r1.d.Loops() != 1 || rn.d.Loops() != n {
-				b.Fatalf("loops %d and %d, want 1 and %d", r1.d.Loops(), rn.d.Loops(), n)
-			}
-			i1, in := r1.rawIntake(b.N), rn.rawIntake(b.N)
-			var rates1, ratesN, cores1, coresN []float64
-			for range loopRounds {
-				rate, cores := r1.timedIntake(b.N)
-				rates1, cores1 = append(rates1, rate), append(cores1, cores)
-				rate, cores = rn.timedIntake(b.N)
-				ratesN, coresN = append(ratesN, rate), append(coresN, cores)
-			}
-			b.Logf("obs/s, 1 loop: %.0f (cores %.2f); %d loops: %.0f (cores %.2f)", rates1, cores1, n, ratesN, coresN)
-			median := func(x []float64) float64 {
-				x = slices.Clone(x)
-				slices.Sort(x)
-				return x[len(x)/2]
-			}
-			i1.rate, in.rate = median(rates1), median(ratesN)
-			b.ReportMetric(median(cores1), "loop1_cores")
-			b.ReportMetric(median(coresN), "loops_cores")
-			b.ReportMetric(i1.rate, "loop1_obs/s")
-			b.ReportMetric(in.rate, "loops_obs/s")
-			b.ReportMetric(float64(n), "loops")
-			b.ReportMetric(in.rate/i1.rate, "ratio")
-			i1.report(b, "loop1_")
-			in.report(b, "loops_")
-			b.ReportMetric(0, "ns/op")
+		b.Run(c.name, func(b *testing.B) { loopsBench(b, c.o, false, false) })
+	}
+}
+
+// loopsBench runs one case of BenchmarkIntakeBoundLoops (drain false) or
+// BenchmarkBacklogDrainLoops (drain true).
+// With full, every series starts from a full window (newRigFull).
+func loopsBench(b *testing.B, o rigOptions, drain, full bool) {
+	b.StopTimer()
+	n := max(2, runtime.GOMAXPROCS(0))
+	one, many := o, o
+	one.loops, many.loops = 1, n
+	r1, rn := newIntakeRig(b, one, full), newIntakeRig(b, many, full)
+	if r1.d.Loops() != 1 || rn.d.Loops() != n {
+		b.Fatalf("loops %d and %d, want 1 and %d", r1.d.Loops(), rn.d.Loops(), n)
+	}
+	raw, timed := (*rig).rawIntake, (*rig).timedIntake
+	if drain {
+		raw, timed = (*rig).rawDrain, (*rig).timedDrain
+	}
+	i1, in := raw(r1, b.N), raw(rn, b.N)
+	var rates1, ratesN, cores1, coresN []float64
+	for range loopRounds {
+		rate, cores := timed(r1, b.N)
+		rates1, cores1 = append(rates1, rate), append(cores1, cores)
+		rate, cores = timed(rn, b.N)
+		ratesN, coresN = append(ratesN, rate), append(coresN, cores)
+	}
+	b.Logf("obs/s, 1 loop: %.0f (cores %.2f); %d loops: %.0f (cores %.2f)", rates1, cores1, n, ratesN, coresN)
+	median := func(x []float64) float64 {
+		x = slices.Clone(x)
+		slices.Sort(x)
+		return x[len(x)/2]
+	}
+	i1.rate, in.rate = median(rates1), median(ratesN)
+	b.ReportMetric(median(cores1), "loop1_cores")
+	b.ReportMetric(median(coresN), "loops_cores")
+	b.ReportMetric(i1.rate, "loop1_obs/s")
+	b.ReportMetric(in.rate, "loops_obs/s")
+	b.ReportMetric(float64(n), "loops")
+	b.ReportMetric(in.rate/i1.rate, "ratio")
+	i1.report(b, "loop1_")
+	in.report(b, "loops_")
+	b.ReportMetric(0, "ns/op")
+}
+
+// BenchmarkBacklogDrainLoops (issue 15, "One machine, several loops"):
+// BenchmarkIntakeBoundLoops for a backlog, the case of a restart's
+// catch-up or a handover's replay, where the daemon's consumption and not
+// a live publisher sets the pace. Each round pauses the intake's
+// consumers, publishes b.N messages (ten per bucket) with JetStream
+// acknowledgements, untimed, then times from the consumers' resumption
+// until every observation is applied (timedDrain). The raw rates are
+// streamtest.RawDrainRate's on each rig's server: the same backlog
+// drained without the daemon by one consumer (rawdrain_msgs/s,
+// pct_rawdrain) and, for the partitioned case, by one consumer per
+// partition (rawdrainp_msgs/s, pct_rawdrainp). Run it with a fixed count,
+// for instance
+//
+//	go test ./stream/daemon -run '^$' -bench BacklogDrainLoops -benchtime 400000x
+func BenchmarkBacklogDrainLoops(b *testing.B) {
+	for _, c := range []struct {
+		name string
+		o    rigOptions
+		full bool
+	}{
+		{"durable", rigOptions{durable: true}, false},
+		{"partitioned", rigOptions{durable: true, partitions: 8}, false},
+		{"durable_full_window", rigOptions{durable: true, window: fullWindow}, true},
+	} {
+		b.Run(c.name, func(b *testing.B) { loopsBench(b, c.o, true, c.full) })
+	}
+}
+
+// rawDrain measures the raw backlog-drain rates for n messages of the
+// size of the intake-bound benchmark's on the rig's server.
+func (r *rig) rawDrain(n int) intakeRun {
+	b := r.tb.(*testing.B)
+	size := len(r.appendObs(nil, 0, r.t0+r.next*int64(r.opts.stepOf()/time.Second)))
+	twins, filter := rawTwins(r.subjects)
+	n = max(n, 100_000)
+	var ir intakeRun
+	ir.rawDrain = medianOf3(func() float64 { return streamtest.RawDrainRate(b, r.url, twins, filter, size, n, 0) })
+	if r.opts.partitions > 0 {
+		ir.rawDrainParts = medianOf3(func() float64 {
+			return streamtest.RawDrainRate(b, r.url, twins, filter, size, n, r.opts.partitions)
 		})
 	}
+	return ir
 }
 
 // closesOf counts the bucket closes that n messages sent round-robin over
@@ -314,7 +476,7 @@ func runOutputBound(b *testing.B, o rigOptions) outputRun {
 	runtime.GC()
 
 	b.ResetTimer()
-	stopProfile := profileTimed(b)
+	stopProfile := profileTimed(b, "")
 	start := time.Now()
 	r.send(msgs)
 	end := waitUntil(b, 120*time.Second, "every forecast received", func() bool { return got.Load() >= want })

@@ -43,6 +43,7 @@ type loop struct {
 	obsBuf   []stream.Observation
 	ahead    []int64 // handle's per-message latest later times (series.ObserveIn)
 	lastSeq  uint64  // highest stream position handled (work.upTo included)
+	flushMax int     // messages after which this loop writes: its share of state.flush_max
 	stopping bool    // shutdown: finished jobs no longer release held observations
 	// lastOwned: cluster mode with handover, partition → the epoch at
 	// which this instance last owned it, for the partitions of this loop
@@ -173,7 +174,7 @@ func (d *loop) take(w work) {
 	d.handleBatch(w.msgs)
 	d.lastSeq = max(d.lastSeq, w.upTo)
 	w.done()
-	if d.flusher.sinceSave >= d.cfg.State.FlushMax {
+	if d.flusher.sinceSave >= d.flushMax {
 		d.flush()
 	}
 }

@@ -302,3 +302,57 @@ func TestLoopsAckOwnPartitions(t *testing.T) {
 		return true
 	})
 }
+
+// TestFlushMaxCountsEveryLoop: state.flush_max counts the daemon's
+// messages, whichever loop applies them (h32, issue 15). Two loops share
+// one durable consumer; flush_interval is an hour, so only flush_max can
+// start a write. 1320 messages, about 660 per loop, exceed flush_max = 1000
+// for the daemon but not for either loop alone: the state must be written
+// and the consumer acknowledged all the same. (When each loop counted only
+// its own, two loops wrote after 2 × flush_max: past the consumer's
+// 200 000 unacknowledged messages at the default, where the server stops
+// delivering until the next flush_interval.)
+func TestFlushMaxCountsEveryLoop(t *testing.T) {
+	const nSeries, nObs, flushMax = 60, 22, 1000
+	_, url := streamtest.RunServer(t)
+	cfg := testConfig(t.TempDir())
+	cfg.Intake.Loops = 2
+	cfg.State.FlushInterval = time.Hour
+	cfg.State.FlushMax = flushMax
+	r := start(t, url, cfg)
+	defer r.stop(t)
+	if r.d.Loops() != 2 {
+		t.Fatalf("daemon runs %d loops, want 2", r.d.Loops())
+	}
+	perLoop := make([]int, 2)
+	for i := range nSeries {
+		perLoop[r.d.route.loopOfTopic(fmt.Sprintf("fm.s%02d", i))] += nObs
+	}
+	for k, n := range perLoop {
+		if n <= flushMax/2 || n >= flushMax {
+			t.Fatalf("loop %d gets %d messages, want between flush_max/2 and flush_max (the test's premise)", k, n)
+		}
+	}
+	nc := streamtest.Connect(t, url)
+	streamtest.PublishAcked(t, nc, nSeries*nObs, func(j int) (string, []byte) {
+		i, k := j%nSeries, j/nSeries
+		return fmt.Sprintf("metrics.fm.s%02d", i), fmt.Appendf(nil, `{"time": %d, "value": %d}`, detT0+60*k, 100+k%7+i)
+	})
+	waitUntil(t, 30*time.Second, "every observation applied", func() bool {
+		return counterValue(r.d.metrics.Accepted) == nSeries*nObs
+	})
+	js, err := jetstream.New(nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var floor uint64
+	waitUntil(t, 30*time.Second, "the state written and the consumer acknowledged after flush_max messages", func() bool {
+		cons, err := js.Consumer(context.Background(), cfg.Intake.Stream, cfg.Intake.Consumer)
+		if err != nil {
+			t.Fatal(err)
+		}
+		floor = cons.CachedInfo().AckFloor.Stream
+		return floor > 0
+	})
+	t.Logf("acknowledged up to %d of %d messages (per loop %v)", floor, nSeries*nObs, perLoop)
+}

@@ -316,6 +316,10 @@ func (r *rig) warm() {
 	r.quiesce()
 }
 
+// profileTag tells the rigs of one benchmark apart in the names of their
+// profiles (profileTimed): ".loops" and the rig's number of loops.
+func (r *rig) profileTag() string { return ".loops" + strconv.Itoa(r.d.Loops()) }
+
 // quiesce waits until the daemon has stored every change (no series
 // dirty, no write in flight) and collects garbage, so that what the
 // warm-up left behind (its state write, its garbage) runs neither during
@@ -458,12 +462,14 @@ func waitUntil(tb testing.TB, timeout time.Duration, what string, cond func() bo
 
 // profileTimed starts a CPU profile of the timed part of a benchmark when
 // FOREWARN_BENCH_CPUPROFILE names a file (the -cpuprofile flag would
-// also profile the warm-up's 10 000 fits); the returned function stops it.
-func profileTimed(tb testing.TB) func() {
+// also profile the warm-up's 10 000 fits), with tag appended to the name;
+// the returned function stops it.
+func profileTimed(tb testing.TB, tag string) func() {
 	path := os.Getenv("FOREWARN_BENCH_CPUPROFILE")
 	if path == "" {
 		return func() {}
 	}
+	path += tag
 	f, err := os.Create(path)
 	if err != nil {
 		tb.Fatal(err)

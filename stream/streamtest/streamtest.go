@@ -10,6 +10,8 @@ import (
 	"github.com/nats-io/nats-server/v2/server"
 	"github.com/nats-io/nats.go"
 	"github.com/nats-io/nats.go/jetstream"
+
+	"forewarn/stream/cluster"
 )
 
 // Options returns the server options RunServer uses, for a test that needs
@@ -253,3 +255,88 @@ func letters(size int) []byte {
 // rawStreams numbers RawDurableRate's streams, so that runs on one server
 // never share one.
 var rawStreams atomic.Int64
+
+// RawDrainRate is the raw rate of a backlog drain through JetStream, the
+// way the daemon's durable intake catches up after a restart or a
+// handover: n messages of size bytes, round-robin over subjects, are
+// published into a file-storage stream on filter first (untimed, with
+// acknowledgements), then consumers created on it receive them all. With
+// partitions > 0 the stream stores the subjects with the partition
+// transform of the cluster mode (cluster.Transform) and there is one
+// consumer per partition (filter cluster.FilterSubject(p)), all on one
+// connection, as a PartitionedIntake has them; otherwise one consumer
+// takes everything. Each consumer is durable, acknowledges all up to a
+// message (AckAll, at most 200 000 unacknowledged) every 1000th message
+// and at its last, and pulls up to 16 384 at a time (the intake's
+// buffer). It returns the messages per second from the start of the
+// consumers until every message is received, and deletes the stream.
+func RawDrainRate(tb testing.TB, url string, subjects []string, filter string, size, n, partitions int) float64 {
+	tb.Helper()
+	if len(subjects) == 0 {
+		tb.Fatal("streamtest: no subjects")
+	}
+	ctx := context.Background()
+	pub, sub := Connect(tb, url), Connect(tb, url)
+	js, err := jetstream.New(sub)
+	if err != nil {
+		tb.Fatalf("streamtest: jetstream: %v", err)
+	}
+	name := fmt.Sprintf("STREAMTEST_DRAIN_%d", rawStreams.Add(1))
+	scfg := jetstream.StreamConfig{
+		Name: name, Subjects: []string{filter}, Storage: jetstream.FileStorage,
+		Retention: jetstream.LimitsPolicy, Discard: jetstream.DiscardOld, MaxMsgs: -1, Replicas: 1,
+	}
+	filters := []string{""}
+	if partitions > 0 {
+		scfg.SubjectTransform = cluster.Transform(partitions)
+		filters = filters[:0]
+		for p := range partitions {
+			filters = append(filters, cluster.FilterSubject(p))
+		}
+	}
+	st, err := js.CreateStream(ctx, scfg)
+	if err != nil {
+		tb.Fatalf("streamtest: create stream: %v", err)
+	}
+	defer func() { _ = js.DeleteStream(ctx, name) }()
+	payload := letters(size)
+	PublishAcked(tb, pub, n, func(i int) (string, []byte) { return subjects[i%len(subjects)], payload })
+
+	conses := make([]jetstream.Consumer, len(filters))
+	for i, f := range filters {
+		conses[i], err = st.CreateOrUpdateConsumer(ctx, jetstream.ConsumerConfig{
+			Durable: fmt.Sprintf("drain%d", i), FilterSubject: f,
+			AckPolicy: jetstream.AckAllPolicy, DeliverPolicy: jetstream.DeliverAllPolicy,
+			MaxAckPending: 200_000, MaxDeliver: -1,
+		})
+		if err != nil {
+			tb.Fatalf("streamtest: create consumer: %v", err)
+		}
+	}
+	var got atomic.Int64
+	done := make(chan struct{})
+	start := time.Now()
+	for _, cons := range conses {
+		var mine int64
+		cc, err := cons.Consume(func(m jetstream.Msg) {
+			mine++ // one handler goroutine per consumer
+			k := got.Add(1)
+			if mine%1000 == 0 || k == int64(n) {
+				_ = m.Ack()
+			}
+			if k == int64(n) {
+				close(done)
+			}
+		}, jetstream.PullMaxMessages(16384))
+		if err != nil {
+			tb.Fatalf("streamtest: consume: %v", err)
+		}
+		defer cc.Stop()
+	}
+	select {
+	case <-done:
+	case <-time.After(120 * time.Second):
+		tb.Fatalf("streamtest: drained %d of %d messages within 120s", got.Load(), n)
+	}
+	return float64(n) / time.Since(start).Seconds()
+}
