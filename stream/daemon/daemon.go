@@ -179,7 +179,7 @@ func New(o Options) (*Daemon, error) {
 		// state.flush_max counts the daemon's messages, not each loop's:
 		// each loop writes after its share, so that the whole writes (and
 		// acknowledges) within flush_max messages, under the intake's
-		// 200 000 unacknowledged (h32, issue 15: with the loops' own
+		// 200 000 unacknowledged (issue 15: with the loops' own
 		// counts, two loops on one consumer reached that bound first and
 		// the server stopped delivering until the next flush_interval).
 		l.flushMax = (c.State.FlushMax + n - 1) / n

@@ -304,7 +304,7 @@ func TestLoopsAckOwnPartitions(t *testing.T) {
 }
 
 // TestFlushMaxCountsEveryLoop: state.flush_max counts the daemon's
-// messages, whichever loop applies them (h32, issue 15). Two loops share
+// messages, whichever loop applies them (issue 15). Two loops share
 // one durable consumer; flush_interval is an hour, so only flush_max can
 // start a write. 1320 messages, about 660 per loop, exceed flush_max = 1000
 // for the daemon but not for either loop alone: the state must be written
