@@ -134,6 +134,26 @@ func publishJS(t testing.TB, nc *nats.Conn, subj string, from, to int) {
 	}
 }
 
+// ackFloorAt waits until the server has applied an acknowledgement up to
+// seq to the consumer: an ack is a message the server takes in on its
+// own time (a flush only says it arrived), and a consumer reopened before
+// would redeliver what it covers.
+func ackFloorAt(t *testing.T, nc *nats.Conn, stream, consumer string, seq uint64) {
+	t.Helper()
+	js, err := jetstream.New(nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	streamtest.Eventually(t, 10*time.Second, "the acknowledgement applied", func() bool {
+		c, err := js.Consumer(context.Background(), stream, consumer)
+		if err != nil {
+			return false
+		}
+		info, err := c.Info(context.Background())
+		return err == nil && info.AckFloor.Stream >= seq
+	})
+}
+
 func TestIntakeDurableRedelivery(t *testing.T) {
 	_, url := streamtest.RunServer(t)
 	nc := streamtest.Connect(t, url)
@@ -155,7 +175,7 @@ func TestIntakeDurableRedelivery(t *testing.T) {
 	if err := in.Ack(5); err != nil {
 		t.Fatal(err)
 	}
-	_ = nc.Flush()
+	ackFloorAt(t, nc, "T", "c", 5)
 	stop()
 	if got := c1.seqs(); !slices.Equal(got, []uint64{1, 2, 3, 4, 5, 6, 7, 8, 9, 10}) {
 		t.Fatalf("first run seqs %v", got)
@@ -183,7 +203,7 @@ func TestIntakeDurableRedelivery(t *testing.T) {
 	if err := in.Ack(10); err != nil {
 		t.Fatal(err)
 	}
-	_ = nc.Flush()
+	ackFloorAt(t, nc, "T", "c", 10)
 	stop()
 
 	// Reopened after acknowledging everything: nothing old comes back; the
