@@ -147,6 +147,34 @@ func RawFanInRate(tb testing.TB, url string, subjects []string, filter string, s
 	return float64(n) / el.Seconds()
 }
 
+// rawStream connects a publisher to url and, on a connection of its own,
+// creates a file stream named prefix_<k> on filter for the raw rates (with
+// the cluster's partition transform when partitions > 0). drop deletes it.
+func rawStream(tb testing.TB, url, prefix string, subjects []string, filter string, partitions int) (pub *nats.Conn, st jetstream.Stream, drop func()) {
+	tb.Helper()
+	if len(subjects) == 0 {
+		tb.Fatal("streamtest: no subjects")
+	}
+	ctx := context.Background()
+	pub = Connect(tb, url)
+	js, err := jetstream.New(Connect(tb, url))
+	if err != nil {
+		tb.Fatalf("streamtest: jetstream: %v", err)
+	}
+	name := fmt.Sprintf("%s_%d", prefix, rawStreams.Add(1))
+	cfg := jetstream.StreamConfig{
+		Name: name, Subjects: []string{filter}, Storage: jetstream.FileStorage,
+		Retention: jetstream.LimitsPolicy, Discard: jetstream.DiscardOld, MaxMsgs: -1, Replicas: 1,
+	}
+	if partitions > 0 {
+		cfg.SubjectTransform = cluster.Transform(partitions)
+	}
+	if st, err = js.CreateStream(ctx, cfg); err != nil {
+		tb.Fatalf("streamtest: create stream: %v", err)
+	}
+	return pub, st, func() { _ = js.DeleteStream(ctx, name) }
+}
+
 // RawDurableRate is RawFanInRate through JetStream, the way the daemon's
 // durable intake gets its messages: a file-storage stream on filter (limits
 // retention, oldest discarded first), a durable pull consumer that
@@ -158,24 +186,9 @@ func RawFanInRate(tb testing.TB, url string, subjects []string, filter string, s
 // them all, and deletes the stream.
 func RawDurableRate(tb testing.TB, url string, subjects []string, filter string, size, n int) float64 {
 	tb.Helper()
-	if len(subjects) == 0 {
-		tb.Fatal("streamtest: no subjects")
-	}
 	ctx := context.Background()
-	pub, sub := Connect(tb, url), Connect(tb, url)
-	jsSub, err := jetstream.New(sub)
-	if err != nil {
-		tb.Fatalf("streamtest: jetstream: %v", err)
-	}
-	name := fmt.Sprintf("STREAMTEST_RAW_%d", rawStreams.Add(1))
-	st, err := jsSub.CreateStream(ctx, jetstream.StreamConfig{
-		Name: name, Subjects: []string{filter}, Storage: jetstream.FileStorage,
-		Retention: jetstream.LimitsPolicy, Discard: jetstream.DiscardOld, MaxMsgs: -1, Replicas: 1,
-	})
-	if err != nil {
-		tb.Fatalf("streamtest: create stream: %v", err)
-	}
-	defer func() { _ = jsSub.DeleteStream(ctx, name) }()
+	pub, st, drop := rawStream(tb, url, "STREAMTEST_RAW", subjects, filter, 0)
+	defer drop()
 	cons, err := st.CreateOrUpdateConsumer(ctx, jetstream.ConsumerConfig{
 		Durable: "raw", AckPolicy: jetstream.AckAllPolicy, DeliverPolicy: jetstream.DeliverAllPolicy,
 		MaxAckPending: 200_000, MaxDeliver: -1,
@@ -272,33 +285,17 @@ var rawStreams atomic.Int64
 // consumers until every message is received, and deletes the stream.
 func RawDrainRate(tb testing.TB, url string, subjects []string, filter string, size, n, partitions int) float64 {
 	tb.Helper()
-	if len(subjects) == 0 {
-		tb.Fatal("streamtest: no subjects")
-	}
 	ctx := context.Background()
-	pub, sub := Connect(tb, url), Connect(tb, url)
-	js, err := jetstream.New(sub)
-	if err != nil {
-		tb.Fatalf("streamtest: jetstream: %v", err)
-	}
-	name := fmt.Sprintf("STREAMTEST_DRAIN_%d", rawStreams.Add(1))
-	scfg := jetstream.StreamConfig{
-		Name: name, Subjects: []string{filter}, Storage: jetstream.FileStorage,
-		Retention: jetstream.LimitsPolicy, Discard: jetstream.DiscardOld, MaxMsgs: -1, Replicas: 1,
-	}
+	pub, st, drop := rawStream(tb, url, "STREAMTEST_DRAIN", subjects, filter, partitions)
+	defer drop()
 	filters := []string{""}
 	if partitions > 0 {
-		scfg.SubjectTransform = cluster.Transform(partitions)
 		filters = filters[:0]
 		for p := range partitions {
 			filters = append(filters, cluster.FilterSubject(p))
 		}
 	}
-	st, err := js.CreateStream(ctx, scfg)
-	if err != nil {
-		tb.Fatalf("streamtest: create stream: %v", err)
-	}
-	defer func() { _ = js.DeleteStream(ctx, name) }()
+	var err error
 	payload := letters(size)
 	PublishAcked(tb, pub, n, func(i int) (string, []byte) { return subjects[i%len(subjects)], payload })
 
