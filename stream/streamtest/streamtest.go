@@ -147,6 +147,29 @@ func RawFanInRate(tb testing.TB, url string, subjects []string, filter string, s
 	return float64(n) / el.Seconds()
 }
 
+// countAll consumes from cons, counting the messages into got (shared by
+// the consumers of one measurement); it acknowledges (AckAll) every 1000th
+// message of this consumer and the n-th of all, and closes done at the
+// n-th.
+func countAll(tb testing.TB, cons jetstream.Consumer, got *atomic.Int64, n int, done chan struct{}) jetstream.ConsumeContext {
+	tb.Helper()
+	var mine int64
+	cc, err := cons.Consume(func(m jetstream.Msg) {
+		mine++ // one handler goroutine per consumer
+		k := got.Add(1)
+		if mine%1000 == 0 || k == int64(n) {
+			_ = m.Ack()
+		}
+		if k == int64(n) {
+			close(done)
+		}
+	}, jetstream.PullMaxMessages(16384))
+	if err != nil {
+		tb.Fatalf("streamtest: consume: %v", err)
+	}
+	return cc
+}
+
 // rawStream connects a publisher to url and, on a connection of its own,
 // creates a file stream named prefix_<k> on filter for the raw rates (with
 // the cluster's partition transform when partitions > 0). drop deletes it.
@@ -198,19 +221,7 @@ func RawDurableRate(tb testing.TB, url string, subjects []string, filter string,
 	}
 	var got atomic.Int64
 	done := make(chan struct{})
-	cc, err := cons.Consume(func(m jetstream.Msg) {
-		k := got.Add(1)
-		if k%1000 == 0 || k == int64(n) {
-			_ = m.Ack()
-		}
-		if k == int64(n) {
-			close(done)
-		}
-	}, jetstream.PullMaxMessages(16384))
-	if err != nil {
-		tb.Fatalf("streamtest: consume: %v", err)
-	}
-	defer cc.Stop()
+	defer countAll(tb, cons, &got, n, done).Stop()
 
 	payload := letters(size)
 	start := time.Now()
@@ -314,21 +325,7 @@ func RawDrainRate(tb testing.TB, url string, subjects []string, filter string, s
 	done := make(chan struct{})
 	start := time.Now()
 	for _, cons := range conses {
-		var mine int64
-		cc, err := cons.Consume(func(m jetstream.Msg) {
-			mine++ // one handler goroutine per consumer
-			k := got.Add(1)
-			if mine%1000 == 0 || k == int64(n) {
-				_ = m.Ack()
-			}
-			if k == int64(n) {
-				close(done)
-			}
-		}, jetstream.PullMaxMessages(16384))
-		if err != nil {
-			tb.Fatalf("streamtest: consume: %v", err)
-		}
-		defer cc.Stop()
+		defer countAll(tb, cons, &got, n, done).Stop()
 	}
 	select {
 	case <-done:
