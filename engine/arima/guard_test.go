@@ -78,7 +78,7 @@ func TestGuardSpike(t *testing.T) {
 		m := guardModels(t)[name]
 		var gaps, gaps5 []float64
 		joined, preRun, falseShift := 0, 0, 0
-		minRaw := math.Inf(1)
+		minRaw, falseGap := math.Inf(1), 0.0
 		for seed := uint64(1); seed <= reps; seed++ {
 			y := simulate(m, n, seed)
 			clean := y[:T+1]
@@ -120,7 +120,20 @@ func TestGuardSpike(t *testing.T) {
 				preRun++
 				continue
 			case shifted:
+				// a spike and two large ordinary values read as a shift:
+				// with differencing the level moves by the run's median
+				// error, and five buckets on the forecasts are within 1σ_h
+				// of the clean series' (with the mean, airline12 reached
+				// 1.93σ_h); without differencing the step is estimated
+				// with the spike in it (logged, not asserted)
 				falseShift++
+				ms5, _, _ := runGuarded(t, m, append(spiky[:T+1:T+1], y[T+1:T+6]...), h, true)
+				mc5, se5, _ := runGuarded(t, m, y[:T+6], h, true)
+				g := maxGap(ms5, mc5, se5, 0)
+				falseGap = math.Max(falseGap, g)
+				if m.Spec.D+m.Spec.SD > 0 && g >= 1 {
+					t.Errorf("%s seed %d: a spike read as a level shift left the forecasts %.3gσ_h off the clean series' five buckets on", name, seed, g)
+				}
 				continue
 			}
 			ms5, _, _ := runGuarded(t, m, append(spiky[:T+1:T+1], y[T+1:T+6]...), h, true)
@@ -135,8 +148,8 @@ func TestGuardSpike(t *testing.T) {
 		sort.Float64s(gaps5)
 		below := sort.SearchFloat64s(gaps, 1)
 		n5 := len(gaps5)
-		t.Logf("%s: 5 buckets after the spike, against the clean series: median %.3f, p95 %.3f, max %.3f over %d seeds, equal to the series with only the spike missing (the next value joined the spike's run in %d/%d seeds; left out: %d with a run open before the spike, %d with a level shift read in the run)",
-			name, gaps5[n5/2], gaps5[n5*95/100], gaps5[n5-1], n5, joined, reps, preRun, falseShift)
+		t.Logf("%s: 5 buckets after the spike, against the clean series: median %.3f, p95 %.3f, max %.3f over %d seeds, equal to the series with only the spike missing (the next value joined the spike's run in %d/%d seeds; left out: %d with a run open before the spike, %d with a level shift read in the run, at most %.3fσ_h off the clean series' then)",
+			name, gaps5[n5/2], gaps5[n5*95/100], gaps5[n5-1], n5, joined, reps, preRun, falseShift, falseGap)
 		t.Logf("%s: 20σ spike, max_h |Δ|/σ_h against the clean series: median %.3f, p95 %.3f, max %.3f, %d/%d below 1σ; without the check min %.2f",
 			name, gaps[reps/2], gaps[reps*95/100], gaps[reps-1], below, reps, minRaw)
 		if name == "airline12" && (gaps[reps/2] >= 0.5 || below < reps*9/10) {
