@@ -46,7 +46,9 @@ import (
 //     values, common practice), is added to the levels' covariance. Without differencing the constant (the mean of
 //     the series) carries the shift as a regression coefficient on a step
 //     from the run's first value, estimated by generalised least squares
-//     from the run itself (Box & Tiao 1975's intervention estimate): the
+//     from the run itself (Box & Tiao 1975's intervention estimate; a first
+//     member beyond Spike from the run's median error is a spike on top
+//     and stays out of it): the
 //     filter goes back to its state before the run, absorbs the run's
 //     values while the coefficient is re-estimated at each (shiftReplay,
 //     learnStep); the coefficient goes on learning for 100 steps, and
@@ -491,7 +493,17 @@ func (f *Filter) shiftReplay() {
 	for i := range gd.lA {
 		gd.lA[i] = 0
 	}
-	for _, y := range gd.runY[:n-1] {
+	// a first member beyond Spike from the run's median error is a spike
+	// on which the step's values followed (or a spike and two large
+	// ordinary values): it stays out, missing, and the step is estimated
+	// from the members after it
+	spike := math.Abs(gd.runV[0]-median(gd.runS, gd.runV[:n])) > gd.g.Spike*math.Sqrt(f.sigma2*gd.runF)
+	for i, y := range gd.runY[:n-1] {
+		if i == 0 && spike {
+			f.learnStep(math.NaN())
+			f.predictOnly()
+			continue
+		}
 		f.learnStep(y)
 		f.fullStep(y - f.c)
 	}

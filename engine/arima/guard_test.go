@@ -124,15 +124,21 @@ func TestGuardSpike(t *testing.T) {
 				// with differencing the level moves by the run's median
 				// error, and five buckets on the forecasts are within 1σ_h
 				// of the clean series' (with the mean, airline12 reached
-				// 1.93σ_h); without differencing the step is estimated
-				// with the spike in it (logged, not asserted)
+				// 1.93σ_h); without differencing the spike stays out of
+				// the step's estimate, which the two values make about
+				// 3σ: within 2σ_h (1.83 measured; with the spike in it,
+				// 5.68)
 				falseShift++
 				ms5, _, _ := runGuarded(t, m, append(spiky[:T+1:T+1], y[T+1:T+6]...), h, true)
 				mc5, se5, _ := runGuarded(t, m, y[:T+6], h, true)
 				g := maxGap(ms5, mc5, se5, 0)
 				falseGap = math.Max(falseGap, g)
-				if m.Spec.D+m.Spec.SD > 0 && g >= 1 {
-					t.Errorf("%s seed %d: a spike read as a level shift left the forecasts %.3gσ_h off the clean series' five buckets on", name, seed, g)
+				bound := 1.0
+				if m.Spec.D+m.Spec.SD == 0 {
+					bound = 2
+				}
+				if g >= bound {
+					t.Errorf("%s seed %d: a spike read as a level shift left the forecasts %.3gσ_h off the clean series' five buckets on, want < %gσ_h", name, seed, g, bound)
 				}
 				continue
 			}
