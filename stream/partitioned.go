@@ -754,7 +754,11 @@ func NewClusterIntake(nc *nats.Conn, c *config.Config, log *slog.Logger) (*Parti
 	if pi.snapStore, err = cluster.EnsureSnapshotStore(ctx, js, SnapshotStore(o.Stream), o.Replicas); err != nil {
 		return nil, err
 	}
-	if err := pi.snapStore.Probe(ctx, name); err != nil {
+	// the probe has a bound of its own: right after the store is created
+	// its stream may answer nobody for a few seconds (cluster.Settle)
+	pctx, pcancel := context.WithTimeout(context.Background(), o.SetupTimeout)
+	defer pcancel()
+	if err := pi.snapStore.Probe(pctx, name); err != nil {
 		return nil, err
 	}
 	pi.snapEvery = c.Cluster.SnapshotEvery

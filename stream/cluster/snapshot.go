@@ -196,15 +196,23 @@ func (st *SnapshotStore) Probe(ctx context.Context, instance string) error {
 		err = withDenied(st.js, err, st.name)
 		return fmt.Errorf("%w %s: %s: %w%s", ErrSnapshot, st.name, op, err, snapshotHint(err, st.name))
 	}
-	if _, err := st.obs.PutBytes(ctx, name, []byte(instance)); err != nil {
+	// each step is retried while the store's stream answers nobody (just
+	// created or its leader moving: Settle)
+	if err := Settle(ctx, func(ctx context.Context) error {
+		_, err := st.obs.PutBytes(ctx, name, []byte(instance))
+		return err
+	}); err != nil {
 		return fail("write", err)
 	}
 	// A read may be served by a replica that has not yet stored the
 	// write: "not found" is an answer, and so proves the right.
-	if _, err := st.obs.GetBytes(ctx, name); err != nil && !errors.Is(err, jetstream.ErrObjectNotFound) {
+	if err := Settle(ctx, func(ctx context.Context) error {
+		_, err := st.obs.GetBytes(ctx, name)
+		return err
+	}); err != nil && !errors.Is(err, jetstream.ErrObjectNotFound) {
 		return fail("read", err)
 	}
-	if err := st.obs.Delete(ctx, name); err != nil && !errors.Is(err, jetstream.ErrObjectNotFound) {
+	if err := Settle(ctx, func(ctx context.Context) error { return st.obs.Delete(ctx, name) }); err != nil && !errors.Is(err, jetstream.ErrObjectNotFound) {
 		return fail("delete", err)
 	}
 	return nil
