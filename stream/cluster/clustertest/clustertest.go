@@ -35,8 +35,22 @@ func freePort() (int, error) {
 }
 
 // Start starts three nodes with their stores under dir and waits until an
-// R3 bucket can be made.
+// R3 bucket can be made. A node that does not come up (its port, free
+// when chosen, taken meanwhile by another process: the test binaries of
+// several packages run at once) makes it try again with new ports, at
+// most three times in all.
 func Start(dir string) (*Cluster, error) {
+	var err error
+	for attempt := 1; attempt <= 3; attempt++ {
+		var c *Cluster
+		if c, err = start(filepath.Join(dir, fmt.Sprintf("try%d", attempt))); err == nil {
+			return c, nil
+		}
+	}
+	return nil, err
+}
+
+func start(dir string) (*Cluster, error) {
 	const n = 3
 	var clientPorts, routePorts [n]int
 	var routes []string
