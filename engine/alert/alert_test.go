@@ -101,33 +101,39 @@ func (c refCase) query(monotone bool) *Query {
 	return &Query{Mean: mean, Variance: variance, Threshold: c.threshold, Direction: d, Window: c.k, Monotone: monotone}
 }
 
+// step draws the case's process one step on from x.
+func (c refCase) step(x float64, rng *rand.Rand) float64 {
+	e := c.sigma * rng.NormFloat64()
+	if c.kind == "rw" {
+		return x + c.a + e
+	}
+	return c.b + c.a*(x-c.b) + e
+}
+
+// beyond reports whether x is past the case's threshold in its direction.
+func (c refCase) beyond(x float64) bool {
+	if c.direction == "below" {
+		return x < c.threshold
+	}
+	return x > c.threshold
+}
+
 // bruteForce simulates the case's process step by step (no covariance,
 // no Cholesky) and returns the fraction of paths beyond the threshold at
 // step k (end) and at any step ≤ k (any), with their standard errors.
 func (c refCase) bruteForce(n int, seed uint64) (end, any, seEnd, seAny float64) {
 	rng := rand.New(rand.NewPCG(seed, 7))
-	beyond := func(x float64) bool {
-		if c.direction == "below" {
-			return x < c.threshold
-		}
-		return x > c.threshold
-	}
 	var nEnd, nAny int
 	for p := 0; p < n; p++ {
 		x, crossed := c.x0, false
 		for j := 1; j <= c.k; j++ {
-			e := c.sigma * rng.NormFloat64()
-			if c.kind == "rw" {
-				x += c.a + e
-			} else {
-				x = c.b + c.a*(x-c.b) + e
-			}
-			crossed = crossed || beyond(x)
+			x = c.step(x, rng)
+			crossed = crossed || c.beyond(x)
 		}
 		if crossed {
 			nAny++
 		}
-		if beyond(x) {
+		if c.beyond(x) {
 			nEnd++
 		}
 	}

@@ -365,14 +365,8 @@ func TestScalePerStep(t *testing.T) {
 		for range n {
 			x, crossed := c.x0, false
 			for j := 1; j <= c.k; j++ {
-				e := c.sigma * rng.NormFloat64()
-				if c.kind == "rw" {
-					x += c.a + e
-				} else {
-					x = c.b + c.a*(x-c.b) + e
-				}
-				w := mean[j-1] + scale[j-1]*(x-mean[j-1])
-				crossed = crossed || (c.direction == "below" && w < c.threshold) || (c.direction != "below" && w > c.threshold)
+				x = c.step(x, rng)
+				crossed = crossed || c.beyond(mean[j-1]+scale[j-1]*(x-mean[j-1]))
 			}
 			if crossed {
 				hits++

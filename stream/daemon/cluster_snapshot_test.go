@@ -83,6 +83,20 @@ func referenceForecasts(t *testing.T, n int) map[string]string {
 	return want
 }
 
+// waitEvery waits until d has a forecast of every series at origin bucket
+// k (what says so in a failure).
+func waitEvery(t *testing.T, d *Daemon, k int, what string) {
+	t.Helper()
+	streamtest.Eventually(t, 60*time.Second, what, func() bool {
+		for i := range clSeries {
+			if _, ok := latestAt(d, clTopic(i), clOrigin(k)); !ok {
+				return false
+			}
+		}
+		return true
+	})
+}
+
 // A clean leave stores each owned partition's snapshot (its records and
 // its acknowledged floor) in the snapshot store; a new owner with an empty
 // state file loads it and replays the partition from the floor: its
@@ -99,14 +113,7 @@ func TestClusterSnapshotHandover(t *testing.T) {
 	one := start(t, cl.URLFrom(0), snapConfig(t, cl.URLFrom(0), name, "fw-one"))
 	pub := streamtest.Connect(t, cl.URL())
 	clPublish(t, pub, 0, clPhase1)
-	streamtest.Eventually(t, 60*time.Second, "fw-one forecasts every series", func() bool {
-		for i := range clSeries {
-			if _, ok := latestAt(one.d, clTopic(i), clOrigin(clPhase1-1)); !ok {
-				return false
-			}
-		}
-		return true
-	})
+	waitEvery(t, one.d, clPhase1-1, "fw-one forecasts every series")
 	one.stop(t) // clean leave: final snapshots, then the leases go
 
 	js, err := jetstream.New(pub)
@@ -193,14 +200,7 @@ func TestClusterReplayGapCounted(t *testing.T) {
 	one := start(t, cl.URLFrom(0), snapConfig(t, cl.URLFrom(0), name, "fw-one"))
 	pub := streamtest.Connect(t, cl.URL())
 	clPublish(t, pub, 0, clPhase1)
-	streamtest.Eventually(t, 60*time.Second, "fw-one forecasts every series", func() bool {
-		for i := range clSeries {
-			if _, ok := latestAt(one.d, clTopic(i), clOrigin(clPhase1-1)); !ok {
-				return false
-			}
-		}
-		return true
-	})
+	waitEvery(t, one.d, clPhase1-1, "fw-one forecasts every series")
 	one.stop(t)
 	// Nobody consumes phase 2; then its first half goes.
 	clPublish(t, pub, clPhase1, clPhase1+clPhase2)
@@ -224,14 +224,7 @@ func TestClusterReplayGapCounted(t *testing.T) {
 	}
 
 	two := start(t, cl.URLFrom(1), snapConfig(t, cl.URLFrom(1), name, "fw-two"))
-	streamtest.Eventually(t, 60*time.Second, "fw-two forecasts every series at the last origin", func() bool {
-		for i := range clSeries {
-			if _, ok := latestAt(two.d, clTopic(i), clOrigin(clPhase1+clPhase2-1)); !ok {
-				return false
-			}
-		}
-		return true
-	})
+	waitEvery(t, two.d, clPhase1+clPhase2-1, "fw-two forecasts every series at the last origin")
 	for p := range 2 {
 		if n := gapsOf(t, two.d, p); n != 1 {
 			t.Errorf("partition %d: %v replay gaps counted, want 1", p, n)
@@ -378,46 +371,16 @@ func TestClusterRightsAsDocumented(t *testing.T) {
 			}
 			denied = nil
 		})
-		store, err := state.Open(cfg.State.Dir)
-		if err != nil {
-			t.Fatal(err)
-		}
-		d, err := New(Options{Config: cfg, Conn: nc, Store: store, Logger: slog.New(slog.DiscardHandler)})
-		if err != nil {
-			t.Fatal(err)
-		}
-		ctx, cancel := context.WithCancel(context.Background())
-		r := &runningDaemon{d: d, cancel: cancel, done: make(chan error, 1), store: store}
-		go func() { r.done <- d.Run(ctx) }()
-		select {
-		case <-d.Ready():
-		case err := <-r.done:
-			t.Fatalf("daemon stopped at once: %v", err)
-		}
-		return r
+		return start(t, url, cfg, func(o *Options) { o.Conn, o.Logger = nc, slog.New(slog.DiscardHandler) })
 	}
 	feeder := streamtest.Connect(t, url, nats.UserInfo("feeder", "pw"))
 	one := startAsFW(cfgFor("fw-one"))
 	clPublish(t, feeder, 0, clPhase1)
-	streamtest.Eventually(t, 60*time.Second, "fw-one forecasts every series", func() bool {
-		for i := range clSeries {
-			if _, ok := latestAt(one.d, clTopic(i), clOrigin(clPhase1-1)); !ok {
-				return false
-			}
-		}
-		return true
-	})
+	waitEvery(t, one.d, clPhase1-1, "fw-one forecasts every series")
 	one.stop(t)
 	two := startAsFW(cfgFor("fw-two"))
 	clPublish(t, feeder, clPhase1, clPhase1+clPhase2)
-	streamtest.Eventually(t, 60*time.Second, "fw-two forecasts every series at the last origin", func() bool {
-		for i := range clSeries {
-			if _, ok := latestAt(two.d, clTopic(i), clOrigin(clPhase1+clPhase2-1)); !ok {
-				return false
-			}
-		}
-		return true
-	})
+	waitEvery(t, two.d, clPhase1+clPhase2-1, "fw-two forecasts every series at the last origin")
 	two.stop(t)
 	mu.Lock()
 	defer mu.Unlock()

@@ -46,18 +46,21 @@ type runningDaemon struct {
 	store  *state.Store
 }
 
-// start runs a daemon on cfg; each of with may change its options.
+// start runs a daemon on cfg; each of with may change its options (one
+// that sets Conn saves the connection to url made otherwise).
 func start(t *testing.T, url string, cfg *config.Config, with ...func(*Options)) *runningDaemon {
 	t.Helper()
 	store, err := state.Open(cfg.State.Dir)
 	if err != nil {
 		t.Fatal(err)
 	}
-	nc := streamtest.Connect(t, url)
-	o := Options{Config: cfg, Conn: nc, Store: store,
+	o := Options{Config: cfg, Store: store,
 		Logger: slog.New(slog.NewTextHandler(os.Stderr, &slog.HandlerOptions{Level: slog.LevelError}))}
 	for _, f := range with {
 		f(&o)
+	}
+	if o.Conn == nil {
+		o.Conn = streamtest.Connect(t, url)
 	}
 	d, err := New(o)
 	if err != nil {
