@@ -394,8 +394,8 @@ func (f *Filter) guardJudge(y float64) float64 {
 					gd.verdict = VerdictOutlier
 					return math.NaN()
 				}
-				if math.Abs(median(gd.runS, gd.runV[:gd.runN])) > gd.g.Shift*math.Sqrt(f.sigma2*gd.runF) {
-					return f.declareShift(y)
+				if med := median(gd.runS, gd.runV[:gd.runN]); math.Abs(med) > gd.g.Shift*math.Sqrt(f.sigma2*gd.runF) {
+					return f.declareShift(y, med)
 				}
 				// one large value and ordinary ones: a spike, not a step;
 				// the members between the first and this one go back in
@@ -436,17 +436,16 @@ func (f *Filter) innovation(y float64) (v, F float64) {
 }
 
 // declareShift moves the level at the run's last step (y, which the
-// caller absorbs next).
-func (f *Filter) declareShift(y float64) float64 {
+// caller absorbs next); med is the median of the run's errors.
+func (f *Filter) declareShift(y, med float64) float64 {
 	gd := &f.gd
 	if f.nd == 0 {
-		f.shiftReplay()
+		f.shiftReplay(med)
 		gd.runN = 0
 		gd.verdict = VerdictShift
 		return y
 	}
-	omega := median(gd.runS, gd.runV[:gd.runN])
-	f.shiftLevel(omega, gd.g.Inflate*math.Pi/2*gd.runF/float64(gd.runN))
+	f.shiftLevel(med, gd.g.Inflate*math.Pi/2*gd.runF/float64(gd.runN))
 	gd.runN = 0
 	gd.verdict = VerdictShift
 	return y
@@ -482,7 +481,7 @@ func (f *Filter) shiftLevel(omega, vw float64) {
 // the constant as it goes, which then continues for shiftLearn steps in
 // all. The estimate's variance, 1/Σ x̃²/F, widens the forecasts' bands
 // meanwhile (shiftVariance).
-func (f *Filter) shiftReplay() {
+func (f *Filter) shiftReplay(med float64) {
 	gd := &f.gd
 	n := gd.runN
 	a, P := f.snapAP()
@@ -497,7 +496,7 @@ func (f *Filter) shiftReplay() {
 	// on which the step's values followed (or a spike and two large
 	// ordinary values): it stays out, missing, and the step is estimated
 	// from the members after it
-	spike := math.Abs(gd.runV[0]-median(gd.runS, gd.runV[:n])) > gd.g.Spike*math.Sqrt(f.sigma2*gd.runF)
+	spike := math.Abs(gd.runV[0]-med) > gd.g.Spike*math.Sqrt(f.sigma2*gd.runF)
 	for i, y := range gd.runY[:n-1] {
 		if i == 0 && spike {
 			f.learnStep(math.NaN())
