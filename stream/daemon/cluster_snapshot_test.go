@@ -371,7 +371,23 @@ func TestClusterRightsAsDocumented(t *testing.T) {
 			}
 			denied = nil
 		})
-		return start(t, url, cfg, func(o *Options) { o.Conn, o.Logger = nc, slog.New(slog.DiscardHandler) })
+		store, err := state.Open(cfg.State.Dir)
+		if err != nil {
+			t.Fatal(err)
+		}
+		d, err := New(Options{Config: cfg, Conn: nc, Store: store, Logger: slog.New(slog.DiscardHandler)})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ctx, cancel := context.WithCancel(context.Background())
+		r := &runningDaemon{d: d, cancel: cancel, done: make(chan error, 1), store: store}
+		go func() { r.done <- d.Run(ctx) }()
+		select {
+		case <-d.Ready():
+		case err := <-r.done:
+			t.Fatalf("daemon stopped at once: %v", err)
+		}
+		return r
 	}
 	feeder := streamtest.Connect(t, url, nats.UserInfo("feeder", "pw"))
 	one := startAsFW(cfgFor("fw-one"))

@@ -46,21 +46,18 @@ type runningDaemon struct {
 	store  *state.Store
 }
 
-// start runs a daemon on cfg; each of with may change its options (one
-// that sets Conn saves the connection to url made otherwise).
+// start runs a daemon on cfg; each of with may change its options.
 func start(t *testing.T, url string, cfg *config.Config, with ...func(*Options)) *runningDaemon {
 	t.Helper()
 	store, err := state.Open(cfg.State.Dir)
 	if err != nil {
 		t.Fatal(err)
 	}
-	o := Options{Config: cfg, Store: store,
+	nc := streamtest.Connect(t, url)
+	o := Options{Config: cfg, Conn: nc, Store: store,
 		Logger: slog.New(slog.NewTextHandler(os.Stderr, &slog.HandlerOptions{Level: slog.LevelError}))}
 	for _, f := range with {
 		f(&o)
-	}
-	if o.Conn == nil {
-		o.Conn = streamtest.Connect(t, url)
 	}
 	d, err := New(o)
 	if err != nil {
